@@ -1,0 +1,1 @@
+//! Streaming reader for load-profile CSV files (placeholder until written).

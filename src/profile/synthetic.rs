@@ -1,0 +1,1 @@
+//! Seeded synthetic load generator (placeholder until written).
