@@ -1,1 +1,265 @@
-//! placeholder
+//! The capacitor bank: its steps (size, phase, detuning, fixed or switched, contactor
+//! life, injected faults) and the per-phase susceptance of any set of connected steps.
+//!
+//! A bank state is a bit mask: bit i set means step i + 1 is connected. Steps are
+//! numbered from 1 in scenario order, fixed steps included; at most [`MAX_STEPS`].
+
+use serde::Serialize;
+
+/// Largest number of steps in one bank (the width of a state mask).
+pub const MAX_STEPS: usize = 64;
+
+/// Where a step is connected.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum StepPhase {
+    /// A three-phase step, its kvar shared equally by the phases.
+    Three,
+    /// A single-phase step on phase a, b or c (index 0, 1, 2), connected line to neutral.
+    Single(usize),
+}
+
+/// What an injected fault does to a step.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum FaultKind {
+    /// The step delivers nothing even when its contactor is closed (blown fuses, open
+    /// contactor pole).
+    Open,
+    /// The step has lost this fraction of its capacitance (0 < f < 1): ageing, a failed
+    /// element.
+    CapacitanceLoss(f64),
+}
+
+/// A fault that starts at a given time.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Fault {
+    /// The kind of fault.
+    pub kind: FaultKind,
+    /// Start, seconds after the start of the run.
+    pub from_s: f64,
+}
+
+/// One step of the bank.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StepSpec {
+    /// Effective reactive output at U_n, kvar (three-phase total, or of its one phase).
+    pub kvar: f64,
+    /// Three-phase or single-phase.
+    pub phase: StepPhase,
+    /// Fixed steps are on from the start and never switched by the controller.
+    pub fixed: bool,
+    /// Detuning reactor ratio p = X_L/X_C at the fundamental, as a fraction (0.07 for 7 %).
+    pub detuning: Option<f64>,
+    /// Rated electrical life of the contactor, operations.
+    pub rated_operations: f64,
+    /// Fault injection, if any.
+    pub fault: Option<Fault>,
+}
+
+impl StepSpec {
+    /// Nominal susceptance per phase at U_n, siemens: Q per phase / U_ln^2.
+    pub fn susceptance(&self, u_n_v: f64) -> [f64; 3] {
+        let u_ln2 = u_n_v * u_n_v / 3.0;
+        match self.phase {
+            StepPhase::Three => [self.kvar * 1e3 / 3.0 / u_ln2; 3],
+            StepPhase::Single(p) => {
+                let mut b = [0.0; 3];
+                b[p] = self.kvar * 1e3 / u_ln2;
+                b
+            }
+        }
+    }
+
+    /// Fraction of nominal capacitance delivering at run time `elapsed_s`.
+    pub fn health(&self, elapsed_s: f64) -> f64 {
+        match self.fault {
+            Some(f) if elapsed_s >= f.from_s => match f.kind {
+                FaultKind::Open => 0.0,
+                FaultKind::CapacitanceLoss(x) => 1.0 - x,
+            },
+            _ => 1.0,
+        }
+    }
+}
+
+/// The bank as the engine sees it: steps, their susceptances and health.
+#[derive(Debug, Clone)]
+pub struct Bank {
+    /// The steps in number order (step n is `steps[n - 1]`).
+    pub steps: Vec<StepSpec>,
+    nominal_b: Vec<[f64; 3]>,
+    health: Vec<f64>,
+    /// Mask of fixed steps.
+    pub fixed_mask: u64,
+    /// Mask of switched steps.
+    pub switched_mask: u64,
+    /// Times (elapsed seconds) at which some step's health changes, ascending.
+    fault_times: Vec<f64>,
+    next_fault: usize,
+}
+
+impl Bank {
+    /// Builds a bank for a nominal voltage. `steps.len()` must not exceed [`MAX_STEPS`].
+    pub fn new(steps: Vec<StepSpec>, u_n_v: f64) -> Self {
+        let nominal_b = steps.iter().map(|s| s.susceptance(u_n_v)).collect();
+        let mut fixed_mask = 0;
+        let mut switched_mask = 0;
+        for (i, s) in steps.iter().enumerate() {
+            if s.fixed {
+                fixed_mask |= 1 << i;
+            } else {
+                switched_mask |= 1 << i;
+            }
+        }
+        let mut fault_times: Vec<f64> = steps
+            .iter()
+            .filter_map(|s| s.fault.map(|f| f.from_s))
+            .collect();
+        fault_times.sort_by(f64::total_cmp);
+        let health = vec![1.0; steps.len()];
+        let mut bank = Bank {
+            steps,
+            nominal_b,
+            health,
+            fixed_mask,
+            switched_mask,
+            fault_times,
+            next_fault: 0,
+        };
+        bank.refresh_health(0.0);
+        bank
+    }
+
+    /// Number of steps.
+    pub fn len(&self) -> usize {
+        self.steps.len()
+    }
+
+    /// True when the bank has no steps.
+    pub fn is_empty(&self) -> bool {
+        self.steps.is_empty()
+    }
+
+    /// Applies faults that start at or before `elapsed_s`; returns true when any step's
+    /// health changed (so cached susceptances must be recomputed). Cheap when nothing is due.
+    #[inline]
+    pub fn advance_faults(&mut self, elapsed_s: f64) -> bool {
+        if self.next_fault < self.fault_times.len()
+            && self.fault_times[self.next_fault] <= elapsed_s
+        {
+            self.refresh_health(elapsed_s);
+            true
+        } else {
+            false
+        }
+    }
+
+    fn refresh_health(&mut self, elapsed_s: f64) {
+        for (h, s) in self.health.iter_mut().zip(&self.steps) {
+            *h = s.health(elapsed_s);
+        }
+        while self.next_fault < self.fault_times.len()
+            && self.fault_times[self.next_fault] <= elapsed_s
+        {
+            self.next_fault += 1;
+        }
+    }
+
+    /// Actual per-phase susceptance of the connected steps in `mask`, siemens, with faults.
+    pub fn susceptance(&self, mask: u64) -> [f64; 3] {
+        let mut b = [0.0; 3];
+        let mut m = mask;
+        while m != 0 {
+            let i = m.trailing_zeros() as usize;
+            m &= m - 1;
+            for (bp, nb) in b.iter_mut().zip(self.nominal_b[i]) {
+                *bp += nb * self.health[i];
+            }
+        }
+        b
+    }
+
+    /// Nominal kvar at U_n of the steps in `mask` (what the controller believes).
+    pub fn nominal_kvar(&self, mask: u64) -> f64 {
+        let mut q = 0.0;
+        let mut m = mask;
+        while m != 0 {
+            let i = m.trailing_zeros() as usize;
+            m &= m - 1;
+            q += self.steps[i].kvar;
+        }
+        q
+    }
+
+    /// Step numbers (from 1) of the steps in `mask`.
+    pub fn numbers(mask: u64) -> Vec<usize> {
+        (0..MAX_STEPS)
+            .filter(|i| mask & (1 << i) != 0)
+            .map(|i| i + 1)
+            .collect()
+    }
+
+    /// Smallest switched step, kvar; the smallest step of all if none is switched.
+    pub fn smallest_switched_kvar(&self) -> f64 {
+        let pick = |fixed: Option<bool>| {
+            self.steps
+                .iter()
+                .filter(|s| fixed.is_none_or(|f| s.fixed == f))
+                .map(|s| s.kvar)
+                .fold(f64::INFINITY, f64::min)
+        };
+        let q = pick(Some(false));
+        if q.is_finite() {
+            q
+        } else {
+            pick(None)
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn step(kvar: f64) -> StepSpec {
+        StepSpec {
+            kvar,
+            phase: StepPhase::Three,
+            fixed: false,
+            detuning: None,
+            rated_operations: 100_000.0,
+            fault: None,
+        }
+    }
+
+    #[test]
+    fn susceptance_gives_rated_kvar_at_nominal_voltage() {
+        // Q = 3 · B · U_ln² = B · U_ll² (definition of a star-connected shunt).
+        let b = step(50.0).susceptance(400.0);
+        assert!((b[0] * 400.0 * 400.0 - 50_000.0).abs() < 1e-6);
+        let single = StepSpec {
+            phase: StepPhase::Single(1),
+            ..step(10.0)
+        };
+        let bs = single.susceptance(400.0);
+        assert_eq!(bs[0], 0.0);
+        assert!((bs[1] * 400.0 * 400.0 / 3.0 - 10_000.0).abs() < 1e-6);
+    }
+
+    #[test]
+    fn faults_take_effect_at_their_time() {
+        let mut s = step(50.0);
+        s.fault = Some(Fault {
+            kind: FaultKind::Open,
+            from_s: 100.0,
+        });
+        let mut bank = Bank::new(vec![s, step(25.0)], 400.0);
+        let full = bank.susceptance(0b11);
+        assert!(!bank.advance_faults(99.0));
+        assert!(bank.advance_faults(100.0));
+        let after = bank.susceptance(0b11);
+        assert!((after[0] - full[0] / 3.0).abs() < 1e-12);
+        assert_eq!(bank.nominal_kvar(0b11), 75.0);
+        assert_eq!(Bank::numbers(0b101), vec![1, 3]);
+    }
+}

@@ -1,1 +1,295 @@
-//! placeholder
+//! The time-stepping engine: runs a load profile through the supply, the bank and the
+//! controller, interval by interval, and collects the metrics.
+//!
+//! Order inside interval k (start t_k = t_first + k·Δt): take the load sample; solve the
+//! bus with the bank as it stands; record the interval; let the controller read the
+//! measurement and make at most one operation; the new state holds from t_{k+1}.
+//!
+//! The engine does no I/O and allocates nothing inside the loop. A [`Simulation`] is
+//! immutable and can serve many runs (sweeps); the per-run state lives on the stack of
+//! [`Simulation::run`]. Observers see every interval (time series, progress) and are the
+//! only way out of the loop.
+
+use crate::bank::{Bank, StepSpec};
+use crate::controller::{Controller, ControllerParams, Decision, Reading};
+use crate::error::RunError;
+use crate::harmonics::{HarmonicModel, Spectrum};
+use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
+use crate::profile::{LoadSample, LoadSource};
+use crate::supply::{BusSolver, PhaseSolution, SupplyParams};
+use crate::timebase::Calendar;
+use serde::Serialize;
+use std::collections::HashMap;
+
+/// Everything needed to simulate one study; built and validated by the scenario module.
+#[derive(Debug, Clone)]
+pub struct Simulation {
+    /// Supply at the bus.
+    pub supply: SupplyParams,
+    /// Bank steps in number order.
+    pub steps: Vec<StepSpec>,
+    /// Controller settings.
+    pub controller: ControllerParams,
+    /// Metric settings.
+    pub metrics: MetricParams,
+    /// Load harmonic spectrum.
+    pub spectrum: Spectrum,
+    /// A resonance within this many orders of a harmonic in the spectrum is a warning.
+    /// Default 0.5.
+    pub resonance_tolerance: f64,
+    /// Calendar of the run's time base.
+    pub calendar: Calendar,
+    /// Start of the first interval, s (profile time base).
+    pub t_first_s: f64,
+    /// Time step Δt, s.
+    pub dt_s: f64,
+    /// Number of intervals.
+    pub intervals: u64,
+}
+
+/// One interval as observers see it.
+#[derive(Debug, Clone, Copy)]
+pub struct IntervalRecord<'a> {
+    /// Interval index k.
+    pub k: u64,
+    /// Start t_k, s.
+    pub t_s: f64,
+    /// The load sample.
+    pub load: &'a LoadSample,
+    /// Per-phase solution at the metering point.
+    pub phases: &'a [PhaseSolution; 3],
+    /// Connected steps during the interval (mask).
+    pub mask: u64,
+    /// The controller's decision (operations take effect at t_{k+1}).
+    pub decision: &'a Decision,
+}
+
+/// Receives every interval. The default methods do nothing and compile away.
+pub trait Observer {
+    /// Called once per interval, after the controller has decided.
+    fn interval(&mut self, _r: &IntervalRecord<'_>) -> Result<(), RunError> {
+        Ok(())
+    }
+    /// Called every few thousand intervals with the number done and the total.
+    fn progress(&mut self, _done: u64, _total: u64) {}
+}
+
+/// An observer that ignores everything.
+#[derive(Debug, Default, Clone, Copy)]
+pub struct Quiet;
+impl Observer for Quiet {}
+
+/// Resonance of one bank state reached.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StateResonance {
+    /// Connected steps.
+    pub steps: Vec<usize>,
+    /// Nominal kvar connected.
+    pub kvar: f64,
+    /// Parallel-resonance order; `null` with nothing connected or a stiff supply.
+    pub order: Option<f64>,
+    /// Resonance frequency, Hz.
+    pub frequency_hz: Option<f64>,
+    /// Time in the state, s.
+    pub time_s: f64,
+    /// Estimated voltage THD at the bus in this state, %.
+    pub thd_pct: f64,
+}
+
+/// A state resonating near a harmonic present in the load.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ResonanceWarning {
+    /// Connected steps.
+    pub steps: Vec<usize>,
+    /// Parallel-resonance order.
+    pub order: f64,
+    /// The harmonic order of the load spectrum it lies near.
+    pub near_harmonic: f64,
+    /// Time in the state, s.
+    pub time_s: f64,
+    /// Estimated bus voltage at that harmonic, % of U_n.
+    pub v_h_pct: f64,
+    /// Estimated voltage THD at the bus, %.
+    pub thd_pct: f64,
+}
+
+/// Resonance section of a run.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ResonanceReport {
+    /// Short-circuit power at the bus, kVA (`null` if infinite).
+    pub short_circuit_kva: Option<f64>,
+    /// Tolerance used, orders.
+    pub tolerance_orders: f64,
+    /// Every state reached, longest first.
+    pub states: Vec<StateResonance>,
+    /// States near a harmonic of the load, longest first.
+    pub warnings: Vec<ResonanceWarning>,
+}
+
+/// The result of one run.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct RunResult {
+    /// Metrics of the run.
+    #[serde(flatten)]
+    pub metrics: RunMetrics,
+    /// Resonance per state reached.
+    pub resonance: ResonanceReport,
+    /// Intervals where the bus-voltage iteration did not converge (load beyond what the
+    /// supply can carry); nonzero values deserve a look.
+    pub nonconverged_intervals: u64,
+}
+
+/// How often observers hear about progress, intervals.
+const PROGRESS_EVERY: u64 = 1 << 16;
+
+impl Simulation {
+    /// The harmonic model of the site.
+    pub fn harmonic_model(&self) -> HarmonicModel {
+        HarmonicModel::new(
+            self.supply.nominal_voltage_v,
+            self.supply.impedance_ohm(),
+            self.supply.short_circuit_kva(),
+            &self.steps,
+            self.spectrum.clone(),
+        )
+    }
+
+    /// Runs the simulation over `source`, telling `observer` about every interval.
+    pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
+        &self,
+        source: &mut S,
+        observer: &mut O,
+    ) -> Result<RunResult, RunError> {
+        let u_n = self.supply.nominal_voltage_v;
+        let dt = self.dt_s;
+        let t0 = self.t_first_s;
+        let mut bank = Bank::new(self.steps.clone(), u_n);
+        let mut solver = BusSolver::new(&self.supply);
+        let mut ctl = Controller::new(self.controller, &bank, dt, t0);
+        let mut met =
+            crate::metrics::Metrics::new(self.metrics.clone(), &bank, self.calendar, u_n, dt, t0);
+        let hm = self.harmonic_model();
+        let thd_wanted = self.controller.protection.thd_limit_pct.is_some();
+        let mut thd_cache: HashMap<u64, f64> =
+            HashMap::with_capacity(if thd_wanted { 4096 } else { 0 });
+        let mut thd_of = |mask: u64| -> f64 {
+            if !thd_wanted {
+                return 0.0;
+            }
+            *thd_cache
+                .entry(mask)
+                .or_insert_with(|| hm.state(mask).thd_pct)
+        };
+
+        let mut sample = LoadSample::default();
+        let mut b = bank.susceptance(ctl.mask());
+        let mut b_fixed = bank.susceptance(bank.fixed_mask);
+        let mut thd = thd_of(ctl.mask());
+        let sqrt3 = 3f64.sqrt();
+        let n = self.intervals;
+        observer.progress(0, n);
+        for k in 0..n {
+            let t = t0 + k as f64 * dt;
+            let t_next = t0 + (k + 1) as f64 * dt;
+            if bank.advance_faults(k as f64 * dt) {
+                b = bank.susceptance(ctl.mask());
+                b_fixed = bank.susceptance(bank.fixed_mask);
+            }
+            source.sample(k, t, &mut sample)?;
+            let sol = solver.solve(&sample.p_kw, &sample.q_kvar, &b);
+            let mut v_min = f64::INFINITY;
+            let mut v_max: f64 = 0.0;
+            let mut i_max: f64 = 0.0;
+            let mut fixed_q = 0.0;
+            let mut reading = Reading {
+                thd_pct: thd,
+                ..Reading::default()
+            };
+            for ph in 0..3 {
+                let s = &sol[ph];
+                v_min = v_min.min(s.v_ln);
+                v_max = v_max.max(s.v_ln);
+                i_max = i_max.max(s.p_kw.hypot(s.q_kvar) * 1e3 / s.v_ln.max(1e-9));
+                fixed_q += b_fixed[ph] * s.v_ln * s.v_ln * 1e-3;
+                reading.p_kw[ph] = s.p_kw;
+                reading.q_kvar[ph] = s.q_kvar;
+            }
+            reading.v_ll_max = v_max * sqrt3;
+            reading.current_a = i_max;
+            let mask = ctl.mask();
+            let d = ctl.decide(&reading, t_next);
+            met.record(&IntervalObs {
+                k,
+                t_s: t,
+                p_kw: reading.p_kw[0] + reading.p_kw[1] + reading.p_kw[2],
+                q_kvar: reading.q_kvar[0] + reading.q_kvar[1] + reading.q_kvar[2],
+                load_q_kvar: sample.q_total(),
+                fixed_q_kvar: fixed_q,
+                v_ll_min: v_min * sqrt3,
+                v_ll_max: v_max * sqrt3,
+                decision: &d,
+            });
+            observer.interval(&IntervalRecord {
+                k,
+                t_s: t,
+                load: &sample,
+                phases: &sol,
+                mask,
+                decision: &d,
+            })?;
+            if d.closed | d.opened != 0 {
+                met.record_ops(k, &d, t_next);
+                b = bank.susceptance(ctl.mask());
+                thd = thd_of(ctl.mask());
+            }
+            if (k + 1) % PROGRESS_EVERY == 0 {
+                observer.progress(k + 1, n);
+            }
+        }
+        observer.progress(n, n);
+        let metrics = met.finish(&bank, ctl.steps());
+        let resonance = self.resonance_report(&hm, &bank, &metrics);
+        Ok(RunResult {
+            metrics,
+            resonance,
+            nonconverged_intervals: solver.nonconverged,
+        })
+    }
+
+    fn resonance_report(&self, hm: &HarmonicModel, bank: &Bank, m: &RunMetrics) -> ResonanceReport {
+        let f = self.supply.frequency_hz;
+        let mut states = Vec::with_capacity(m.states.len());
+        let mut warnings = Vec::new();
+        for st in &m.states {
+            let h = hm.state(st.mask);
+            states.push(StateResonance {
+                steps: st.steps.clone(),
+                kvar: bank.nominal_kvar(st.mask),
+                order: h.order,
+                frequency_hz: h.order.map(|o| o * f),
+                time_s: st.time_s,
+                thd_pct: h.thd_pct,
+            });
+            if let Some(order) = h.order {
+                if let Some(near) = hm.near_harmonic(order, self.resonance_tolerance) {
+                    let v_h = h.v_h_pct.iter().find(|x| x.0 == near).map_or(0.0, |x| x.1);
+                    warnings.push(ResonanceWarning {
+                        steps: st.steps.clone(),
+                        order,
+                        near_harmonic: near,
+                        time_s: st.time_s,
+                        v_h_pct: v_h,
+                        thd_pct: h.thd_pct,
+                    });
+                }
+            }
+        }
+        let s_sc = self.supply.short_circuit_kva();
+        ResonanceReport {
+            short_circuit_kva: s_sc.is_finite().then_some(s_sc),
+            tolerance_orders: self.resonance_tolerance,
+            states,
+            warnings,
+        }
+    }
+}

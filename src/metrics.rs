@@ -1,1 +1,662 @@
-//! placeholder
+//! Run metrics: everything a run reports, accumulated interval by interval without
+//! allocating, then finished into a [`RunMetrics`] value that the report writers turn
+//! into text or JSON.
+//!
+//! Definitions follow the domain contract: energy PF = E_P / sqrt(E_P² + E_Q,ind²) over
+//! the import register; four separate energy registers; shares of run time under target
+//! and leading; overcorrection episodes as maximal runs of intervals leading beyond a
+//! strict threshold; one hunting cycle per pair of consecutive operations of one step no
+//! further apart than the hunting window.
+
+use crate::bank::Bank;
+use crate::controller::{Decision, StepState};
+use crate::pf::{PfTarget, Quadrant};
+use crate::timebase::{Calendar, YEAR_S};
+use serde::Serialize;
+use std::collections::{BTreeMap, HashMap};
+
+/// Settings of the metrics.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MetricParams {
+    /// Target PF, for the share of time under target.
+    pub target: PfTarget,
+    /// Leading |Q| above which the supply counts as overcorrected, kvar (strict). Default:
+    /// the smallest switched step.
+    pub overcorrection_threshold_kvar: f64,
+    /// Shortest run of overcorrected intervals that counts as an episode, s. Default 60 s.
+    pub overcorrection_min_s: f64,
+    /// Two consecutive operations of one step at most this far apart make a hunting cycle,
+    /// s. Default 10 × the switching delay.
+    pub hunting_window_s: f64,
+    /// Run times at which a new billing window starts (after the first), ascending.
+    pub billing_starts: Vec<f64>,
+}
+
+/// What the engine tells the metrics about one interval.
+#[derive(Debug, Clone, Copy)]
+pub struct IntervalObs<'a> {
+    /// Interval index k.
+    pub k: u64,
+    /// Start of the interval t_k, s.
+    pub t_s: f64,
+    /// Three-phase supply active power, kW.
+    pub p_kw: f64,
+    /// Three-phase supply reactive power, kvar.
+    pub q_kvar: f64,
+    /// Three-phase load reactive power, kvar.
+    pub load_q_kvar: f64,
+    /// Reactive power delivered by the fixed steps, kvar.
+    pub fixed_q_kvar: f64,
+    /// Lowest and highest line-to-line-equivalent bus voltage over the phases, V.
+    pub v_ll_min: f64,
+    /// See `v_ll_min`.
+    pub v_ll_max: f64,
+    /// The controller's decision in this interval.
+    pub decision: &'a Decision,
+}
+
+/// What dominated an overcorrection episode.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum OvercorrectionCause {
+    /// The site was exporting active power.
+    Export,
+    /// The fixed steps alone overcorrect the light load.
+    FixedSteps,
+    /// The controller wanted to open a step but could not yet (delay, operation cap).
+    StepNotOpened,
+    /// The controller saw no need to open (dead band, averaging or single-phase
+    /// measurement hid the leading power).
+    NotSeenByController,
+}
+
+const CAUSES: [OvercorrectionCause; 4] = [
+    OvercorrectionCause::Export,
+    OvercorrectionCause::FixedSteps,
+    OvercorrectionCause::StepNotOpened,
+    OvercorrectionCause::NotSeenByController,
+];
+
+/// Energy and PF over one billing window.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BillingWindow {
+    /// Window start, run time, s.
+    pub start_s: f64,
+    /// Window end, run time, s.
+    pub end_s: f64,
+    /// Energy PF of the window.
+    pub energy_pf: f64,
+    /// `lag` or `lead`.
+    pub energy_pf_quadrant: Quadrant,
+    /// Active energy imported, kWh.
+    pub kwh_import: f64,
+    /// Active energy exported, kWh.
+    pub kwh_export: f64,
+    /// Inductive reactive energy, kvarh.
+    pub kvarh_inductive: f64,
+    /// Capacitive reactive energy, kvarh.
+    pub kvarh_capacitive: f64,
+}
+
+/// What was simulated.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct RunInfo {
+    /// Number of intervals simulated.
+    pub samples: u64,
+    /// Simulated duration, s.
+    pub duration_s: f64,
+    /// Time step Δt, s.
+    pub time_step_s: f64,
+    /// Start of the first interval in the profile's time base, s.
+    pub t_first_s: f64,
+}
+
+/// PF and energy registers.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PfMetrics {
+    /// Energy PF over the run, 0..1.
+    pub energy_pf: f64,
+    /// `lag` or `lead`.
+    pub energy_pf_quadrant: Quadrant,
+    /// Active energy imported, kWh.
+    pub kwh_import: f64,
+    /// Active energy exported, kWh.
+    pub kwh_export: f64,
+    /// Inductive reactive energy, kvarh (≥ 0).
+    pub kvarh_inductive: f64,
+    /// Capacitive reactive energy, kvarh (≥ 0).
+    pub kvarh_capacitive: f64,
+    /// Share of run time with P > 0 and the supply less corrected than the target.
+    pub share_under_target: f64,
+    /// Share of run time with Q < 0.
+    pub share_leading: f64,
+    /// The target as written, e.g. `0.95 lag`.
+    pub target: String,
+    /// Per billing window.
+    pub billing: Vec<BillingWindow>,
+}
+
+/// Switching counts of one step.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StepSwitching {
+    /// Step number (from 1).
+    pub step: usize,
+    /// Closings plus openings.
+    pub operations: u64,
+    /// Closings.
+    pub closings: u64,
+    /// Openings.
+    pub openings: u64,
+    /// Hunting cycles of this step.
+    pub hunting_cycles: u64,
+}
+
+/// Protection trips by kind.
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+pub struct TripCounts {
+    /// Overvoltage trips (one step each).
+    pub overvoltage: u64,
+    /// Loss-of-current trips.
+    pub loss_of_current: u64,
+    /// Export trips.
+    pub export: u64,
+    /// Distortion trips.
+    pub distortion: u64,
+}
+
+/// Switching.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SwitchingMetrics {
+    /// Closings plus openings, all steps.
+    pub total_operations: u64,
+    /// Operations per day of run time.
+    pub per_day: f64,
+    /// Operations extrapolated to a 365-day year.
+    pub per_year: f64,
+    /// Hunting cycles, all steps.
+    pub hunting_cycles: u64,
+    /// Hunting window used, s.
+    pub hunting_window_s: f64,
+    /// One entry per switched step.
+    pub per_step: Vec<StepSwitching>,
+    /// Protection trips.
+    pub trips: TripCounts,
+}
+
+/// Overcorrection episodes.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct OvercorrectionMetrics {
+    /// Number of episodes.
+    pub episodes: u64,
+    /// Total time in episodes, s.
+    pub total_s: f64,
+    /// Longest episode, s.
+    pub longest_s: f64,
+    /// Largest leading |Q| in an episode, kvar.
+    pub worst_leading_kvar: f64,
+    /// Threshold used, kvar.
+    pub threshold_kvar: f64,
+    /// Minimum duration used, s.
+    pub min_duration_s: f64,
+    /// The cause with the most episode time, if any episode.
+    pub dominant_cause: Option<OvercorrectionCause>,
+    /// Episode time per cause, s.
+    pub cause_s: BTreeMap<String, f64>,
+    /// Episode time per weekday, Monday first, s.
+    pub by_weekday_s: [f64; 7],
+}
+
+/// One bank state reached.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StateTime {
+    /// Connected steps (numbers), fixed ones included.
+    pub steps: Vec<usize>,
+    /// Bit mask of the connected steps.
+    pub mask: u64,
+    /// Time in the state, s.
+    pub time_s: f64,
+}
+
+/// Wear of one step.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StepWear {
+    /// Step number.
+    pub step: usize,
+    /// Fixed step (never switched by the controller).
+    pub fixed: bool,
+    /// Operations in the run.
+    pub operations: u64,
+    /// Operations extrapolated to a 365-day year.
+    pub operations_per_year: f64,
+    /// Rated electrical life of the contactor, operations.
+    pub rated_operations: f64,
+    /// Years until the rated life is reached at this rate; `None` when it never operates.
+    pub years_to_rated_life: Option<f64>,
+    /// Hours connected (energized) in the run.
+    pub energized_h: f64,
+}
+
+/// Bus voltage over the run.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct VoltageMetrics {
+    /// Lowest line-to-line-equivalent bus voltage, V.
+    pub min_v: f64,
+    /// Highest line-to-line-equivalent bus voltage, V.
+    pub max_v: f64,
+    /// Time with the bus above 110 % of U_n, s.
+    pub above_110pct_s: f64,
+}
+
+/// Everything a run measured (the resonance section is added by the engine).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct RunMetrics {
+    /// What was simulated.
+    pub run: RunInfo,
+    /// PF and energy.
+    pub pf: PfMetrics,
+    /// Switching.
+    pub switching: SwitchingMetrics,
+    /// Overcorrection.
+    pub overcorrection: OvercorrectionMetrics,
+    /// Bank states reached and time in each.
+    pub states: Vec<StateTime>,
+    /// Wear per step.
+    pub wear: Vec<StepWear>,
+    /// Bus voltage.
+    pub voltage: VoltageMetrics,
+}
+
+#[derive(Debug, Clone, Copy, Default)]
+struct Registers {
+    kwh_import: f64,
+    kwh_export: f64,
+    kvarh_ind: f64,
+    kvarh_cap: f64,
+}
+
+impl Registers {
+    #[inline]
+    fn add(&mut self, p: f64, q: f64, h: f64) {
+        if p > 0.0 {
+            self.kwh_import += p * h;
+        } else if p < 0.0 {
+            self.kwh_export -= p * h;
+        }
+        if q > 0.0 {
+            self.kvarh_ind += q * h;
+        } else if q < 0.0 {
+            self.kvarh_cap -= q * h;
+        }
+    }
+
+    fn energy_pf(&self) -> (f64, Quadrant) {
+        let pf = if self.kwh_import > 0.0 {
+            self.kwh_import / self.kwh_import.hypot(self.kvarh_ind)
+        } else if self.kvarh_ind > 0.0 {
+            0.0
+        } else {
+            1.0
+        };
+        let quad = if self.kvarh_cap > self.kvarh_ind {
+            Quadrant::Lead
+        } else {
+            Quadrant::Lag
+        };
+        (pf, quad)
+    }
+}
+
+#[derive(Debug, Clone, Copy, Default)]
+struct Episode {
+    open: bool,
+    intervals: u64,
+    worst: f64,
+    cause_n: [u64; 4],
+    weekday_n: [u64; 7],
+}
+
+/// Accumulates the metrics of one run. Allocates only in [`Metrics::new`] (and when a
+/// bank state is reached for the first time beyond the reserved capacity).
+pub struct Metrics {
+    p: MetricParams,
+    dt: f64,
+    h: f64,
+    tan_t: f64,
+    t_first: f64,
+    calendar: Calendar,
+    u_n: f64,
+    n: u64,
+    reg: Registers,
+    win: Registers,
+    win_start: f64,
+    next_bill: usize,
+    billing: Vec<BillingWindow>,
+    under_n: u64,
+    lead_n: u64,
+    ep: Episode,
+    episodes: u64,
+    ep_total_n: u64,
+    ep_longest_n: u64,
+    ep_worst: f64,
+    cause_n: [u64; 4],
+    weekday_n: [u64; 7],
+    min_ep_n: u64,
+    mask: u64,
+    mask_since_k: u64,
+    state_n: HashMap<u64, u64>,
+    on_since_k: Vec<u64>,
+    energized_n: Vec<u64>,
+    last_op_t: Vec<f64>,
+    hunting: Vec<u64>,
+    trips: TripCounts,
+    v_min: f64,
+    v_max: f64,
+    over_110_n: u64,
+}
+
+impl Metrics {
+    /// Prepares the accumulators for a bank whose fixed steps are on from t_first.
+    pub fn new(
+        p: MetricParams,
+        bank: &Bank,
+        calendar: Calendar,
+        u_n_v: f64,
+        dt_s: f64,
+        t_first_s: f64,
+    ) -> Self {
+        let n_steps = bank.len();
+        let states_cap = if n_steps >= 12 { 4096 } else { 1 << n_steps };
+        let min_ep_n = (p.overcorrection_min_s / dt_s - 1e-9).ceil().max(1.0) as u64;
+        let billing = Vec::with_capacity(p.billing_starts.len() + 1);
+        Metrics {
+            tan_t: p.target.tan_phi(),
+            p,
+            dt: dt_s,
+            h: dt_s / 3600.0,
+            t_first: t_first_s,
+            calendar,
+            u_n: u_n_v,
+            n: 0,
+            reg: Registers::default(),
+            win: Registers::default(),
+            win_start: t_first_s,
+            next_bill: 0,
+            billing,
+            under_n: 0,
+            lead_n: 0,
+            ep: Episode::default(),
+            episodes: 0,
+            ep_total_n: 0,
+            ep_longest_n: 0,
+            ep_worst: 0.0,
+            cause_n: [0; 4],
+            weekday_n: [0; 7],
+            min_ep_n,
+            mask: bank.fixed_mask,
+            mask_since_k: 0,
+            state_n: HashMap::with_capacity(states_cap),
+            on_since_k: vec![0; n_steps],
+            energized_n: vec![0; n_steps],
+            last_op_t: vec![f64::NEG_INFINITY; n_steps],
+            hunting: vec![0; n_steps],
+            trips: TripCounts::default(),
+            v_min: f64::INFINITY,
+            v_max: 0.0,
+            over_110_n: 0,
+        }
+    }
+
+    /// Records interval k with the bank state as it stood.
+    #[inline]
+    pub fn record(&mut self, o: &IntervalObs<'_>) {
+        self.n += 1;
+        let (p, q) = (o.p_kw, o.q_kvar);
+        if self.next_bill < self.p.billing_starts.len()
+            && o.t_s >= self.p.billing_starts[self.next_bill] - 1e-9
+        {
+            self.close_window(o.t_s);
+            self.next_bill += 1;
+        }
+        self.reg.add(p, q, self.h);
+        self.win.add(p, q, self.h);
+        if p > 0.0 && q > p * self.tan_t {
+            self.under_n += 1;
+        }
+        if q < 0.0 {
+            self.lead_n += 1;
+        }
+        self.v_min = self.v_min.min(o.v_ll_min);
+        self.v_max = self.v_max.max(o.v_ll_max);
+        if o.v_ll_max > 1.1 * self.u_n {
+            self.over_110_n += 1;
+        }
+        let thr = self.p.overcorrection_threshold_kvar;
+        if q < 0.0 && -q > thr {
+            if !self.ep.open {
+                self.ep = Episode {
+                    open: true,
+                    ..Episode::default()
+                };
+            }
+            self.ep.intervals += 1;
+            self.ep.worst = self.ep.worst.max(-q);
+            let cause = if p < 0.0 {
+                0
+            } else if o.load_q_kvar - o.fixed_q_kvar < -thr {
+                1
+            } else if o.decision.wish < 0 {
+                2
+            } else {
+                3
+            };
+            self.ep.cause_n[cause] += 1;
+            self.ep.weekday_n[self.calendar.weekday(o.t_s)] += 1;
+        } else if self.ep.open {
+            self.close_episode();
+        }
+    }
+
+    fn close_episode(&mut self) {
+        let e = self.ep;
+        self.ep.open = false;
+        if e.intervals >= self.min_ep_n {
+            self.episodes += 1;
+            self.ep_total_n += e.intervals;
+            self.ep_longest_n = self.ep_longest_n.max(e.intervals);
+            self.ep_worst = self.ep_worst.max(e.worst);
+            for (a, b) in self.cause_n.iter_mut().zip(e.cause_n) {
+                *a += b;
+            }
+            for (a, b) in self.weekday_n.iter_mut().zip(e.weekday_n) {
+                *a += b;
+            }
+        }
+    }
+
+    fn close_window(&mut self, t_end: f64) {
+        let (pf, quad) = self.win.energy_pf();
+        self.billing.push(BillingWindow {
+            start_s: self.win_start,
+            end_s: t_end,
+            energy_pf: pf,
+            energy_pf_quadrant: quad,
+            kwh_import: self.win.kwh_import,
+            kwh_export: self.win.kwh_export,
+            kvarh_inductive: self.win.kvarh_ind,
+            kvarh_capacitive: self.win.kvarh_cap,
+        });
+        self.win = Registers::default();
+        self.win_start = t_end;
+    }
+
+    /// Records the operations of interval k, which take effect at t_{k+1} (interval k + 1).
+    #[inline]
+    pub fn record_ops(&mut self, k: u64, d: &Decision, t_next: f64) {
+        let changed = d.closed | d.opened;
+        if changed == 0 {
+            return;
+        }
+        if let Some(t) = d.trip {
+            match t {
+                crate::controller::Trip::Overvoltage => self.trips.overvoltage += 1,
+                crate::controller::Trip::LossOfCurrent => self.trips.loss_of_current += 1,
+                crate::controller::Trip::Export => self.trips.export += 1,
+                crate::controller::Trip::Distortion => self.trips.distortion += 1,
+            }
+        }
+        let k_next = k + 1;
+        *self.state_n.entry(self.mask).or_insert(0) += k_next - self.mask_since_k;
+        self.mask_since_k = k_next;
+        let mut m = changed;
+        while m != 0 {
+            let i = m.trailing_zeros() as usize;
+            m &= m - 1;
+            if t_next - self.last_op_t[i] <= self.p.hunting_window_s + 1e-9 {
+                self.hunting[i] += 1;
+            }
+            self.last_op_t[i] = t_next;
+            if d.closed & (1 << i) != 0 {
+                self.on_since_k[i] = k_next;
+            } else {
+                self.energized_n[i] += k_next - self.on_since_k[i];
+            }
+        }
+        self.mask = (self.mask | d.closed) & !d.opened;
+    }
+
+    /// Finishes the run after `n` intervals and builds the result.
+    pub fn finish(mut self, bank: &Bank, steps: &[StepState]) -> RunMetrics {
+        let n = self.n;
+        let dt = self.dt;
+        let duration = n as f64 * dt;
+        let t_end = self.t_first + duration;
+        if self.ep.open {
+            self.close_episode();
+        }
+        self.close_window(t_end);
+        *self.state_n.entry(self.mask).or_insert(0) += n - self.mask_since_k;
+        let mut m = self.mask;
+        while m != 0 {
+            let i = m.trailing_zeros() as usize;
+            m &= m - 1;
+            self.energized_n[i] += n - self.on_since_k[i];
+        }
+        let (pf, quad) = self.reg.energy_pf();
+        let share = |c: u64| if n > 0 { c as f64 / n as f64 } else { 0.0 };
+        let per_year = |ops: u64| {
+            if duration > 0.0 {
+                ops as f64 * YEAR_S / duration
+            } else {
+                0.0
+            }
+        };
+
+        let mut per_step = Vec::new();
+        let mut wear = Vec::new();
+        let mut total = 0;
+        for (i, (spec, st)) in bank.steps.iter().zip(steps).enumerate() {
+            let ops = st.operations();
+            total += ops;
+            if !spec.fixed {
+                per_step.push(StepSwitching {
+                    step: i + 1,
+                    operations: ops,
+                    closings: st.closings,
+                    openings: st.openings,
+                    hunting_cycles: self.hunting[i],
+                });
+            }
+            let opy = per_year(ops);
+            wear.push(StepWear {
+                step: i + 1,
+                fixed: spec.fixed,
+                operations: ops,
+                operations_per_year: opy,
+                rated_operations: spec.rated_operations,
+                years_to_rated_life: (ops > 0 && opy > 0.0).then(|| spec.rated_operations / opy),
+                energized_h: self.energized_n[i] as f64 * dt / 3600.0,
+            });
+        }
+        let mut states: Vec<StateTime> = self
+            .state_n
+            .iter()
+            .filter(|(_, c)| **c > 0)
+            .map(|(mask, c)| StateTime {
+                steps: Bank::numbers(*mask),
+                mask: *mask,
+                time_s: *c as f64 * dt,
+            })
+            .collect();
+        states.sort_by(|a, b| b.time_s.total_cmp(&a.time_s).then(a.mask.cmp(&b.mask)));
+
+        let mut cause_s = BTreeMap::new();
+        let mut dominant = None;
+        let mut best = 0;
+        for (c, nc) in CAUSES.iter().zip(self.cause_n) {
+            let name = serde_json::to_value(c)
+                .ok()
+                .and_then(|v| v.as_str().map(str::to_owned))
+                .unwrap_or_default();
+            cause_s.insert(name, nc as f64 * dt);
+            if nc > best {
+                best = nc;
+                dominant = Some(*c);
+            }
+        }
+        RunMetrics {
+            run: RunInfo {
+                samples: n,
+                duration_s: duration,
+                time_step_s: dt,
+                t_first_s: self.t_first,
+            },
+            pf: PfMetrics {
+                energy_pf: pf,
+                energy_pf_quadrant: quad,
+                kwh_import: self.reg.kwh_import,
+                kwh_export: self.reg.kwh_export,
+                kvarh_inductive: self.reg.kvarh_ind,
+                kvarh_capacitive: self.reg.kvarh_cap,
+                share_under_target: share(self.under_n),
+                share_leading: share(self.lead_n),
+                target: self.p.target.to_string(),
+                billing: self.billing,
+            },
+            switching: SwitchingMetrics {
+                total_operations: total,
+                per_day: if duration > 0.0 {
+                    total as f64 * 86_400.0 / duration
+                } else {
+                    0.0
+                },
+                per_year: per_year(total),
+                hunting_cycles: self.hunting.iter().sum(),
+                hunting_window_s: self.p.hunting_window_s,
+                per_step,
+                trips: self.trips,
+            },
+            overcorrection: OvercorrectionMetrics {
+                episodes: self.episodes,
+                total_s: self.ep_total_n as f64 * dt,
+                longest_s: self.ep_longest_n as f64 * dt,
+                worst_leading_kvar: self.ep_worst,
+                threshold_kvar: self.p.overcorrection_threshold_kvar,
+                min_duration_s: self.p.overcorrection_min_s,
+                dominant_cause: dominant,
+                cause_s,
+                by_weekday_s: self.weekday_n.map(|c| c as f64 * dt),
+            },
+            states,
+            wear,
+            voltage: VoltageMetrics {
+                min_v: if self.v_min.is_finite() {
+                    self.v_min
+                } else {
+                    0.0
+                },
+                max_v: self.v_max,
+                above_110pct_s: self.over_110_n as f64 * dt,
+            },
+        }
+    }
+}

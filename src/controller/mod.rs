@@ -1,1 +1,575 @@
-//! placeholder
+//! The automatic step controller: demand, dead band, switching and disconnect delays,
+//! discharge lockout, step ordering, measurement mode and averaging, and protections.
+//!
+//! The controller sees only its measurement (P and Q at the supply side of the bank, so the
+//! bank's own output is in it) and the nominal kvar of its steps at U_n; it does not know a
+//! step has failed. Each interval it advances its timers by Δt and makes at most one
+//! ordinary operation; a protection may open several steps at once. Operations take effect
+//! at t_{k+1}, and that time is what the discharge lockout and the wear counters see.
+//!
+//! Step orderings live one per file behind [`StepOrdering`]; adding one means adding a
+//! file, a variant of [`OrderingKind`] and a line in [`OrderingKind::build`].
+
+mod best_fit;
+mod rotating;
+mod sequential;
+
+pub use best_fit::BestFit;
+pub use rotating::Rotating;
+pub use sequential::Sequential;
+
+use crate::bank::Bank;
+use crate::pf::PfTarget;
+use serde::{Deserialize, Serialize};
+
+/// Tolerance on time comparisons (delays, discharge time), seconds.
+const TIME_EPS_S: f64 = 1e-9;
+
+/// What an ordering sees when it picks a step.
+#[derive(Debug, Clone, Copy)]
+pub struct Choice<'a> {
+    /// Demand ΔQ = Q_m − P_m·tan φ_t, kvar (> 0: wants capacitance).
+    pub demand_kvar: f64,
+    /// Mask of the steps that may be operated now (for a closing: switched, off and out of
+    /// lockout; for an opening: switched and on). Never empty when an ordering is asked.
+    pub candidates: u64,
+    /// Per-step switching state, by index (step number − 1).
+    pub steps: &'a [StepState],
+    /// Nominal kvar of each step at U_n, by index.
+    pub kvar: &'a [f64],
+}
+
+/// A rule that chooses which step to operate. One file per ordering.
+pub trait StepOrdering: Send + Sync {
+    /// The name used in scenarios and reports.
+    fn name(&self) -> &'static str;
+    /// Index of the step to close, or `None` to make no operation.
+    fn pick_close(&self, c: &Choice<'_>) -> Option<usize>;
+    /// Index of the step to open, or `None` to make no operation.
+    fn pick_open(&self, c: &Choice<'_>) -> Option<usize>;
+}
+
+/// The orderings a scenario can name.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum OrderingKind {
+    /// Lowest-numbered first in, last in first out.
+    #[default]
+    Sequential,
+    /// Off longest first in, on longest first out.
+    Rotating,
+    /// The single operation that lands closest to the target.
+    BestFit,
+}
+
+impl OrderingKind {
+    /// Builds the ordering.
+    pub fn build(self) -> Box<dyn StepOrdering> {
+        match self {
+            OrderingKind::Sequential => Box::new(Sequential),
+            OrderingKind::Rotating => Box::new(Rotating),
+            OrderingKind::BestFit => Box::new(BestFit),
+        }
+    }
+
+    /// The scenario name of the ordering.
+    pub fn name(self) -> &'static str {
+        self.build().name()
+    }
+}
+
+/// Where the controller's current transformer sits.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Measurement {
+    /// Sum of the three phases.
+    #[default]
+    ThreePhase,
+    /// One current transformer on phase 0, 1 or 2; the controller assumes balance and
+    /// multiplies by 3.
+    SinglePhase(usize),
+}
+
+/// Optional protections, each with its own delay.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ProtectionParams {
+    /// Trip level for the highest line-to-line bus voltage, V. Default none.
+    pub overvoltage_v: Option<f64>,
+    /// Time above the level before one step is opened (and again per further delay), s.
+    /// Default 5 s.
+    pub overvoltage_delay_s: f64,
+    /// Measured current below which all steps are opened (loss of load current), A.
+    /// Default none.
+    pub min_current_a: Option<f64>,
+    /// Delay of the loss-of-current release, s. Default 5 s.
+    pub min_current_delay_s: f64,
+    /// Open all steps while the site exports active power. Default false.
+    pub trip_on_export: bool,
+    /// Delay of the export release, s. Default 5 s.
+    pub export_delay_s: f64,
+    /// Bus voltage THD above which all steps are opened, %. Default none.
+    pub thd_limit_pct: Option<f64>,
+    /// Delay of the distortion release, s. Default 60 s.
+    pub thd_delay_s: f64,
+    /// Most ordinary operations in any 3600 s window. Default none.
+    pub max_operations_per_hour: Option<u32>,
+}
+
+impl Default for ProtectionParams {
+    fn default() -> Self {
+        ProtectionParams {
+            overvoltage_v: None,
+            overvoltage_delay_s: 5.0,
+            min_current_a: None,
+            min_current_delay_s: 5.0,
+            trip_on_export: false,
+            export_delay_s: 5.0,
+            thd_limit_pct: None,
+            thd_delay_s: 60.0,
+            max_operations_per_hour: None,
+        }
+    }
+}
+
+/// Controller settings.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ControllerParams {
+    /// Target power factor with its quadrant. Default 0.95 lag.
+    pub target: PfTarget,
+    /// Dead band half-width B, kvar. Default 0.65 × the smallest switched step.
+    pub dead_band_kvar: f64,
+    /// Switching delay T_sw for connecting, s. Default 30 s.
+    pub connect_delay_s: f64,
+    /// Delay for disconnecting, s. Default equal to the switching delay.
+    pub disconnect_delay_s: f64,
+    /// Discharge time T_d: a step opened at t may close again from t + T_d, s. Default 60 s.
+    pub discharge_time_s: f64,
+    /// Step ordering. Default `sequential`.
+    pub ordering: OrderingKind,
+    /// Measurement mode. Default three-phase.
+    pub measurement: Measurement,
+    /// Averaging window of the measurement, s; 0 for none. Default 0 s.
+    pub averaging_s: f64,
+    /// Protections. Default none enabled.
+    pub protection: ProtectionParams,
+}
+
+/// What the controller reads in one interval.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Reading {
+    /// Supply-side active power per phase, kW.
+    pub p_kw: [f64; 3],
+    /// Supply-side reactive power per phase, kvar.
+    pub q_kvar: [f64; 3],
+    /// Highest line-to-line-equivalent bus voltage (√3 × highest phase voltage), V.
+    pub v_ll_max: f64,
+    /// Highest phase current at the metering point, A.
+    pub current_a: f64,
+    /// Estimated bus voltage THD for the present bank state, %.
+    pub thd_pct: f64,
+}
+
+/// Switching state of one step.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct StepState {
+    /// Contactor closed.
+    pub on: bool,
+    /// Time of the last change of state (t_first at the start), s.
+    pub since_s: f64,
+    /// Time of the last opening; −∞ if never opened.
+    pub last_open_s: f64,
+    /// Closings so far.
+    pub closings: u64,
+    /// Openings so far.
+    pub openings: u64,
+}
+
+impl StepState {
+    /// Closings plus openings.
+    pub fn operations(&self) -> u64 {
+        self.closings + self.openings
+    }
+}
+
+/// Which protection opened steps.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Trip {
+    /// Bus voltage above the overvoltage level.
+    Overvoltage,
+    /// Measured current below the loss-of-current level.
+    LossOfCurrent,
+    /// Site exporting active power.
+    Export,
+    /// Bus voltage distortion above its limit.
+    Distortion,
+}
+
+/// What the controller did in one interval.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Decision {
+    /// Measured (averaged) active power, kW.
+    pub p_m_kw: f64,
+    /// Measured (averaged) reactive power, kvar.
+    pub q_m_kvar: f64,
+    /// Demand ΔQ, kvar.
+    pub demand_kvar: f64,
+    /// +1 connect wanted, −1 disconnect wanted, 0 inside the dead band.
+    pub wish: i8,
+    /// Steps closed at t_{k+1} (mask).
+    pub closed: u64,
+    /// Steps opened at t_{k+1} (mask).
+    pub opened: u64,
+    /// A protection that opened steps, if any.
+    pub trip: Option<Trip>,
+}
+
+/// Moving average over a fixed number of intervals; allocates once.
+#[derive(Debug, Clone)]
+struct Averager {
+    p: Vec<f64>,
+    q: Vec<f64>,
+    next: usize,
+    filled: usize,
+    sum_p: f64,
+    sum_q: f64,
+}
+
+impl Averager {
+    fn new(n: usize) -> Self {
+        Averager {
+            p: vec![0.0; n],
+            q: vec![0.0; n],
+            next: 0,
+            filled: 0,
+            sum_p: 0.0,
+            sum_q: 0.0,
+        }
+    }
+
+    #[inline]
+    fn push(&mut self, p: f64, q: f64) -> (f64, f64) {
+        let n = self.p.len();
+        if n == 1 {
+            return (p, q);
+        }
+        self.sum_p += p - self.p[self.next];
+        self.sum_q += q - self.q[self.next];
+        self.p[self.next] = p;
+        self.q[self.next] = q;
+        self.next += 1;
+        if self.next == n {
+            // Resum once per window so rounding cannot build up over long runs.
+            self.next = 0;
+            self.sum_p = self.p.iter().sum();
+            self.sum_q = self.q.iter().sum();
+        }
+        self.filled = (self.filled + 1).min(n);
+        let k = self.filled as f64;
+        (self.sum_p / k, self.sum_q / k)
+    }
+}
+
+/// Consecutive-interval timer of a protection.
+#[derive(Debug, Clone, Copy, Default)]
+struct Timer {
+    count: u64,
+}
+
+impl Timer {
+    /// Advances the timer; returns true when the condition has held for `delay_s`.
+    #[inline]
+    fn advance(&mut self, active: bool, dt: f64, delay_s: f64) -> bool {
+        if !active {
+            self.count = 0;
+            return false;
+        }
+        self.count += 1;
+        if self.count as f64 * dt >= delay_s - TIME_EPS_S {
+            self.count = 0;
+            true
+        } else {
+            false
+        }
+    }
+}
+
+/// The controller: settings plus its own state. The caller owns it and calls
+/// [`Controller::decide`] once per interval.
+pub struct Controller {
+    params: ControllerParams,
+    ordering: Box<dyn StepOrdering>,
+    kvar: Vec<f64>,
+    switched: u64,
+    dt: f64,
+    tan_t: f64,
+    steps: Vec<StepState>,
+    mask: u64,
+    wish: i8,
+    count: u64,
+    avg: Averager,
+    ov: Timer,
+    low: Timer,
+    export: Timer,
+    thd: Timer,
+    op_times: Vec<f64>,
+    op_head: usize,
+    op_len: usize,
+}
+
+impl Controller {
+    /// Builds a controller for a bank, with every switched step off and every fixed step
+    /// on since `t_first_s`.
+    pub fn new(params: ControllerParams, bank: &Bank, dt_s: f64, t_first_s: f64) -> Self {
+        let n_avg = ((params.averaging_s / dt_s).round() as usize).max(1);
+        let cap = params.protection.max_operations_per_hour.unwrap_or(0) as usize;
+        let steps = bank
+            .steps
+            .iter()
+            .map(|s| StepState {
+                on: s.fixed,
+                since_s: t_first_s,
+                last_open_s: f64::NEG_INFINITY,
+                closings: 0,
+                openings: 0,
+            })
+            .collect();
+        Controller {
+            params,
+            ordering: params.ordering.build(),
+            kvar: bank.steps.iter().map(|s| s.kvar).collect(),
+            switched: bank.switched_mask,
+            dt: dt_s,
+            tan_t: params.target.tan_phi(),
+            steps,
+            mask: bank.fixed_mask,
+            wish: 0,
+            count: 0,
+            avg: Averager::new(n_avg),
+            ov: Timer::default(),
+            low: Timer::default(),
+            export: Timer::default(),
+            thd: Timer::default(),
+            op_times: vec![0.0; cap],
+            op_head: 0,
+            op_len: 0,
+        }
+    }
+
+    /// Connected steps (mask), fixed ones included.
+    #[inline]
+    pub fn mask(&self) -> u64 {
+        self.mask
+    }
+
+    /// Per-step switching state, by index.
+    pub fn steps(&self) -> &[StepState] {
+        &self.steps
+    }
+
+    /// The settings.
+    pub fn params(&self) -> &ControllerParams {
+        &self.params
+    }
+
+    /// Reads the measurement of interval k, advances the timers by Δt and makes at most
+    /// one ordinary operation (or a protection trip). `t_next` is t_{k+1}, the time the
+    /// new state takes effect.
+    pub fn decide(&mut self, r: &Reading, t_next: f64) -> Decision {
+        let (p_raw, q_raw) = match self.params.measurement {
+            Measurement::ThreePhase => (
+                r.p_kw[0] + r.p_kw[1] + r.p_kw[2],
+                r.q_kvar[0] + r.q_kvar[1] + r.q_kvar[2],
+            ),
+            Measurement::SinglePhase(ph) => (3.0 * r.p_kw[ph], 3.0 * r.q_kvar[ph]),
+        };
+        let (p_m, q_m) = self.avg.push(p_raw, q_raw);
+        let demand = q_m - p_m * self.tan_t;
+        let b = self.params.dead_band_kvar;
+        let wish: i8 = if demand > b {
+            1
+        } else if demand < -b {
+            -1
+        } else {
+            0
+        };
+        if wish == 0 {
+            self.count = 0;
+        } else if wish == self.wish {
+            self.count += 1;
+        } else {
+            self.count = 1;
+        }
+        self.wish = wish;
+        let mut d = Decision {
+            p_m_kw: p_m,
+            q_m_kvar: q_m,
+            demand_kvar: demand,
+            wish,
+            ..Decision::default()
+        };
+
+        // Protections first: they may open several steps and block closings.
+        let pr = self.params.protection;
+        let dt = self.dt;
+        let ov_on = pr.overvoltage_v.is_some_and(|v| r.v_ll_max > v);
+        let low_on = pr.min_current_a.is_some_and(|a| r.current_a < a);
+        let exp_on = pr.trip_on_export && p_m < 0.0;
+        let thd_on = pr.thd_limit_pct.is_some_and(|l| r.thd_pct > l);
+        let ov_fire = self.ov.advance(ov_on, dt, pr.overvoltage_delay_s);
+        let low_fire = self.low.advance(low_on, dt, pr.min_current_delay_s);
+        let exp_fire = self.export.advance(exp_on, dt, pr.export_delay_s);
+        let thd_fire = self.thd.advance(thd_on, dt, pr.thd_delay_s);
+        let on_switched = self.mask & self.switched;
+        let trip_all = if low_fire {
+            Some(Trip::LossOfCurrent)
+        } else if exp_fire {
+            Some(Trip::Export)
+        } else if thd_fire {
+            Some(Trip::Distortion)
+        } else {
+            None
+        };
+        if let Some(t) = trip_all {
+            if on_switched != 0 {
+                self.open_mask(on_switched, t_next);
+                d.opened = on_switched;
+                d.trip = Some(t);
+                return d;
+            }
+        }
+        if ov_fire && on_switched != 0 {
+            let i = self.largest(on_switched);
+            self.open_mask(1 << i, t_next);
+            d.opened = 1 << i;
+            d.trip = Some(Trip::Overvoltage);
+            return d;
+        }
+        let blocked_close = ov_on || low_on || exp_on || thd_on;
+
+        if wish == 0 {
+            return d;
+        }
+        let delay = if wish > 0 {
+            self.params.connect_delay_s
+        } else {
+            self.params.disconnect_delay_s
+        };
+        if (self.count as f64) * dt < delay - TIME_EPS_S {
+            return d;
+        }
+        if !self.cap_allows(t_next) {
+            return d;
+        }
+        let candidates = if wish > 0 {
+            if blocked_close {
+                0
+            } else {
+                self.closable(t_next)
+            }
+        } else {
+            on_switched
+        };
+        if candidates == 0 {
+            return d;
+        }
+        let choice = Choice {
+            demand_kvar: demand,
+            candidates,
+            steps: &self.steps,
+            kvar: &self.kvar,
+        };
+        let pick = if wish > 0 {
+            self.ordering.pick_close(&choice)
+        } else {
+            self.ordering.pick_open(&choice)
+        };
+        let Some(i) = pick.filter(|i| candidates & (1 << i) != 0) else {
+            return d;
+        };
+        if wish > 0 {
+            let s = &mut self.steps[i];
+            s.on = true;
+            s.since_s = t_next;
+            s.closings += 1;
+            self.mask |= 1 << i;
+            d.closed = 1 << i;
+        } else {
+            self.open_mask(1 << i, t_next);
+            d.opened = 1 << i;
+        }
+        self.count = 0;
+        self.record_op(t_next);
+        d
+    }
+
+    /// Switched steps that are off and out of their discharge lockout at `t_close`.
+    #[inline]
+    fn closable(&self, t_close: f64) -> u64 {
+        let mut m = self.switched & !self.mask;
+        let mut out = 0;
+        let td = self.params.discharge_time_s;
+        while m != 0 {
+            let i = m.trailing_zeros() as usize;
+            m &= m - 1;
+            if t_close - self.steps[i].last_open_s >= td - TIME_EPS_S {
+                out |= 1 << i;
+            }
+        }
+        out
+    }
+
+    /// Largest connected step of `mask` by nominal kvar; ties to the higher number.
+    fn largest(&self, mask: u64) -> usize {
+        let mut best = 63 - mask.leading_zeros() as usize;
+        let mut m = mask;
+        while m != 0 {
+            let i = m.trailing_zeros() as usize;
+            m &= m - 1;
+            if self.kvar[i] > self.kvar[best] {
+                best = i;
+            }
+        }
+        best
+    }
+
+    fn open_mask(&mut self, mask: u64, t: f64) {
+        let mut m = mask;
+        while m != 0 {
+            let i = m.trailing_zeros() as usize;
+            m &= m - 1;
+            let s = &mut self.steps[i];
+            s.on = false;
+            s.since_s = t;
+            s.last_open_s = t;
+            s.openings += 1;
+        }
+        self.mask &= !mask;
+    }
+
+    /// True when the cap on operations per hour leaves room for one more at `t`.
+    fn cap_allows(&self, t: f64) -> bool {
+        let cap = self.op_times.len();
+        if self.params.protection.max_operations_per_hour.is_none() {
+            return true;
+        }
+        if cap == 0 {
+            return false;
+        }
+        // The oldest of the last `cap` operations must have left the window (t − 3600, t].
+        self.op_len < cap || self.op_times[self.op_head] <= t - 3600.0
+    }
+
+    fn record_op(&mut self, t: f64) {
+        let cap = self.op_times.len();
+        if cap == 0 {
+            return;
+        }
+        if self.op_len < cap {
+            self.op_times[(self.op_head + self.op_len) % cap] = t;
+            self.op_len += 1;
+        } else {
+            self.op_times[self.op_head] = t;
+            self.op_head = (self.op_head + 1) % cap;
+        }
+    }
+}
