@@ -17,5 +17,6 @@ pub mod pf;
 pub mod profile;
 pub mod report;
 pub mod scenario;
+pub mod study;
 pub mod supply;
 pub mod timebase;

@@ -474,12 +474,14 @@ impl Scenario {
                             }
                             FaultKind::CapacitanceLoss(x)
                         }
-                        other => return Err(FieldError::new(
-                            key("fault.kind"),
-                            format!(
+                        other => {
+                            return Err(FieldError::new(
+                                key("fault.kind"),
+                                format!(
                                 "`{other}` is not a fault kind; write `open` or `capacitance-loss`"
                             ),
-                        )),
+                            ))
+                        }
                     };
                     Some(Fault { kind, from_s: from })
                 }
@@ -571,12 +573,14 @@ impl Scenario {
                 "controller.measurement_phase",
                 c.measurement_phase.as_deref().unwrap_or("a"),
             )?),
-            other => return Err(FieldError::new(
-                "controller.measurement",
-                format!(
+            other => {
+                return Err(FieldError::new(
+                    "controller.measurement",
+                    format!(
                     "`{other}` is not a measurement mode; write `three-phase` or `single-phase`"
                 ),
-            )),
+                ))
+            }
         };
         let averaging_s = range(
             "controller.averaging_s",
