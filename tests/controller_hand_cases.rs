@@ -1,0 +1,277 @@
+//! Hand-derived controller cases: staircase loads whose operation times and counts were
+//! worked out on paper from the setting semantics (demand ΔQ = Q_m − P_m·tan φ_t, strict
+//! dead band, consecutive-interval switching delay, discharge lockout, step orderings).
+//! The bus is stiff (no transformer, infinite grid), so every step delivers its nominal
+//! kvar and the arithmetic stays exact.
+
+mod common;
+use common::{record_with, Op, Pieces};
+
+/// Four 25 kvar steps, target 1.0, T_sw = 10 s, T_d = 60 s, Δt = 1 s, 400 s.
+fn four_equal(ordering: &str) -> String {
+    format!(
+        r#"
+[[steps]]
+kvar = 25
+count = 4
+[controller]
+target_pf = 1.0
+switching_delay_s = 10
+discharge_time_s = 60
+ordering = "{ordering}"
+[load.synthetic]
+[run]
+duration_s = 400
+"#
+    )
+}
+
+/// Q = 60 kvar to 100 s, 10 kvar to 300 s, then 80 kvar; P = 100 kW.
+fn staircase() -> Pieces {
+    Pieces(vec![
+        (0.0, 100.0, 60.0),
+        (100.0, 100.0, 10.0),
+        (300.0, 100.0, 80.0),
+    ])
+}
+
+fn op(t: f64, step: usize, close: bool) -> Op {
+    Op { t, step, close }
+}
+
+// Worked on paper: dead band 0.65 × 25 = 16.25 kvar (default, common practice).
+// ΔQ 60 → close at t=10 (10 consecutive wishes from k=0), ΔQ 35 → close at 20, ΔQ 10 in
+// band. At 100 s ΔQ = 10 − 50 = −40 → open at 110; ΔQ −15 in band. At 300 s ΔQ 55 →
+// close at 310 (step 2 off since 110, 200 s ≥ T_d), ΔQ 30 → close at 320, ΔQ 5.
+#[test]
+fn sequential_staircase() {
+    let (r, rec) = record_with(&four_equal("sequential"), staircase());
+    assert_eq!(
+        rec.ops,
+        vec![
+            op(10.0, 1, true),
+            op(20.0, 2, true),
+            op(110.0, 2, false),
+            op(310.0, 2, true),
+            op(320.0, 3, true)
+        ]
+    );
+    assert_eq!(r.metrics.switching.total_operations, 5);
+    assert_eq!(*rec.masks.last().unwrap(), 0b0111);
+}
+
+// Rotating: first in, first out. Opening at 110 takes step 1 (on since 10, longest);
+// closing at 310 takes step 3 (off since 0) before step 1 (off since 110).
+#[test]
+fn rotating_staircase() {
+    let (_, rec) = record_with(&four_equal("rotating"), staircase());
+    assert_eq!(
+        rec.ops,
+        vec![
+            op(10.0, 1, true),
+            op(20.0, 2, true),
+            op(110.0, 1, false),
+            op(310.0, 3, true),
+            op(320.0, 4, true)
+        ]
+    );
+}
+
+// Best-fit with equal steps: residuals tie, so fewer operations wins, then the lower
+// number. At 310 step 1 (2 operations) loses to step 3 (none); at 320 to step 4.
+#[test]
+fn best_fit_staircase_equal_steps() {
+    let (_, rec) = record_with(&four_equal("best-fit"), staircase());
+    assert_eq!(
+        rec.ops,
+        vec![
+            op(10.0, 1, true),
+            op(20.0, 2, true),
+            op(110.0, 1, false),
+            op(310.0, 3, true),
+            op(320.0, 4, true)
+        ]
+    );
+}
+
+/// Steps of 10, 20 and 40 kvar, target 1.0, T_sw 10 s, T_d 60 s; dead band 6.5 kvar.
+fn binary(ordering: &str) -> String {
+    format!(
+        r#"
+[[steps]]
+kvar = 10
+[[steps]]
+kvar = 20
+[[steps]]
+kvar = 40
+[controller]
+target_pf = 1.0
+switching_delay_s = 10
+discharge_time_s = 60
+ordering = "{ordering}"
+[load.synthetic]
+[run]
+duration_s = 300
+"#
+    )
+}
+
+/// Q = 55 kvar to 100 s, 25 kvar to 200 s, then 70 kvar; P = 100 kW.
+fn staircase_b() -> Pieces {
+    Pieces(vec![
+        (0.0, 100.0, 55.0),
+        (100.0, 100.0, 25.0),
+        (200.0, 100.0, 70.0),
+    ])
+}
+
+// Best-fit, on paper: ΔQ 55 → the 40 leaves 15 (best) at t=10; ΔQ 15 → 10 and 20 both
+// leave 5: tie, no operations yet, lower number: step 1 at 20. At 100 s ΔQ = −25: opening
+// step 1 or step 3 both leave 15; both have one operation; lower number: step 1 at 110.
+// ΔQ −15: opening step 3 would leave +25, no reduction, so no operation (best-fit checks).
+// At 200 s ΔQ 30: step 2 leaves 10 (step 1 leaves 20) → 210; ΔQ 10 → step 1 at 220.
+#[test]
+fn best_fit_binary_steps() {
+    let (r, rec) = record_with(&binary("best-fit"), staircase_b());
+    assert_eq!(
+        rec.ops,
+        vec![
+            op(10.0, 3, true),
+            op(20.0, 1, true),
+            op(110.0, 1, false),
+            op(210.0, 2, true),
+            op(220.0, 1, true)
+        ]
+    );
+    let per: Vec<u64> = r
+        .metrics
+        .switching
+        .per_step
+        .iter()
+        .map(|s| s.operations)
+        .collect();
+    assert_eq!(per, vec![3, 1, 1]);
+    // The demand stuck at −15 kvar from 110 s to 200 s is outside the band but irreducible.
+    assert!((rec.demand[150] + 15.0).abs() < 1e-9);
+}
+
+// Sequential does not check that an operation helps, and it overshoots: 10 → 20 → 40
+// (ΔQ −15 at 30 s) → opens step 3 at 40 (ΔQ +25). Step 3 is then in lockout until 100 s;
+// the connect wish keeps counting, so it closes at exactly 100 s (t_close − t_open = 60 =
+// T_d). The load step at 100 s gives ΔQ = 25 − 70 = −45: open step 3 at 110 (ΔQ −5). At
+// 200 s ΔQ 40: close step 3 at 210 (ΔQ 0).
+// Hunting window 10 × T_sw = 100 s: step 3's operations at 30, 40, 100, 110, 210 make four
+// consecutive pairs no further apart than 100 s, so four cycles.
+#[test]
+fn sequential_binary_steps_lockout_and_hunting() {
+    let (r, rec) = record_with(&binary("sequential"), staircase_b());
+    assert_eq!(
+        rec.ops,
+        vec![
+            op(10.0, 1, true),
+            op(20.0, 2, true),
+            op(30.0, 3, true),
+            op(40.0, 3, false),
+            op(100.0, 3, true),
+            op(110.0, 3, false),
+            op(210.0, 3, true)
+        ]
+    );
+    assert_eq!(r.metrics.switching.total_operations, 7);
+    assert_eq!(r.metrics.switching.hunting_cycles, 4);
+    let s3 = &r.metrics.switching.per_step[2];
+    assert_eq!(
+        (s3.step, s3.closings, s3.openings, s3.hunting_cycles),
+        (3, 3, 2, 4)
+    );
+}
+
+// Rotating on the binary bank, on paper: closes 1, 2, 3 at 10, 20, 30 (ΔQ −15); opens
+// step 1 (on since 10, longest) at 40: steps 2 + 3 = 60 kvar, ΔQ −5. At 100 s ΔQ = 25 − 60
+// = −35: opens step 2 (on since 20) at 110, ΔQ −15, then step 3 at 120, ΔQ +25. Closes
+// step 1 (off since 40, longest) at 130, ΔQ 15. The wish holds from 130 s but steps 2 and
+// 3 are in lockout until 170 s and 180 s; the count keeps running, so step 2 (off longest)
+// closes at 170, ΔQ −5. At 200 s ΔQ = 70 − 30 = 40: step 3 closes at 210, ΔQ 0.
+#[test]
+fn rotating_binary_steps() {
+    let (r, rec) = record_with(&binary("rotating"), staircase_b());
+    assert_eq!(
+        rec.ops,
+        vec![
+            op(10.0, 1, true),
+            op(20.0, 2, true),
+            op(30.0, 3, true),
+            op(40.0, 1, false),
+            op(110.0, 2, false),
+            op(120.0, 3, false),
+            op(130.0, 1, true),
+            op(170.0, 2, true),
+            op(210.0, 3, true)
+        ]
+    );
+    assert_eq!(r.metrics.switching.total_operations, 9);
+}
+
+/// One 25 kvar step sitting half a step from the target, with a chosen dead band.
+fn half_step(dead_band_fraction: f64) -> String {
+    format!(
+        r#"
+[[steps]]
+kvar = 25
+[controller]
+target_pf = 1.0
+dead_band_fraction = {dead_band_fraction}
+switching_delay_s = 10
+discharge_time_s = 30
+[load.synthetic]
+[run]
+duration_s = 3600
+"#
+    )
+}
+
+// Common practice: a dead band below half the smallest step hunts, because one operation
+// moves ΔQ by a full step; at 0.65 of a step it does not. With Q = 13 kvar, ΔQ is +13 with
+// the step open and −12 with it closed: both outside ±10 (0.4 × 25) but inside ±16.25.
+#[test]
+fn dead_band_below_half_a_step_hunts() {
+    let load = || Pieces(vec![(0.0, 100.0, 13.0)]);
+    let (narrow, rec) = record_with(&half_step(0.4), load());
+    assert!(
+        narrow.metrics.switching.hunting_cycles > 50,
+        "{}",
+        narrow.metrics.switching.hunting_cycles
+    );
+    // Lockout never broken: every closing at least T_d = 30 s after the previous opening.
+    let mut last_open = f64::NEG_INFINITY;
+    for o in &rec.ops {
+        if o.close {
+            assert!(o.t - last_open >= 30.0 - 1e-9);
+        } else {
+            last_open = o.t;
+        }
+    }
+    let (wide, _) = record_with(&half_step(0.65), load());
+    assert_eq!(wide.metrics.switching.total_operations, 0);
+    assert_eq!(wide.metrics.switching.hunting_cycles, 0);
+}
+
+// The wish test is strict: ΔQ exactly equal to the dead band is no wish.
+#[test]
+fn demand_equal_to_dead_band_is_no_wish() {
+    let toml = r#"
+[[steps]]
+kvar = 20
+[controller]
+target_pf = 1.0
+dead_band_kvar = 12
+switching_delay_s = 5
+[load.synthetic]
+[run]
+duration_s = 100
+"#;
+    let (r, _) = record_with(toml, Pieces(vec![(0.0, 50.0, 12.0)]));
+    assert_eq!(r.metrics.switching.total_operations, 0);
+    let (r, _) = record_with(toml, Pieces(vec![(0.0, 50.0, 12.001)]));
+    assert_eq!(r.metrics.switching.total_operations, 1);
+}
