@@ -186,6 +186,8 @@ impl Simulation {
         let mut b_fixed = bank.susceptance(bank.fixed_mask);
         let mut thd = thd_of(ctl.mask());
         let sqrt3 = 3f64.sqrt();
+        let want_current = self.controller.protection.min_current_a.is_some();
+        let has_fixed = bank.fixed_mask != 0;
         let n = self.intervals;
         observer.progress(0, n);
         for k in 0..n {
@@ -197,9 +199,9 @@ impl Simulation {
             }
             source.sample(k, t, &mut sample)?;
             let sol = solver.solve(&sample.p_kw, &sample.q_kvar, &b);
-            let mut v_min = f64::INFINITY;
-            let mut v_max: f64 = 0.0;
-            let mut i_max: f64 = 0.0;
+            let mut v_min = sol[0].v_ln;
+            let mut v_max = sol[0].v_ln;
+            let mut i2_max: f64 = 0.0;
             let mut fixed_q = 0.0;
             let mut reading = Reading {
                 thd_pct: thd,
@@ -207,15 +209,26 @@ impl Simulation {
             };
             for ph in 0..3 {
                 let s = &sol[ph];
-                v_min = v_min.min(s.v_ln);
-                v_max = v_max.max(s.v_ln);
-                i_max = i_max.max(s.p_kw.hypot(s.q_kvar) * 1e3 / s.v_ln.max(1e-9));
-                fixed_q += b_fixed[ph] * s.v_ln * s.v_ln * 1e-3;
+                if s.v_ln < v_min {
+                    v_min = s.v_ln;
+                }
+                if s.v_ln > v_max {
+                    v_max = s.v_ln;
+                }
+                if want_current {
+                    let i2 = (s.p_kw * s.p_kw + s.q_kvar * s.q_kvar) / (s.v_ln * s.v_ln).max(1e-18);
+                    if i2 > i2_max {
+                        i2_max = i2;
+                    }
+                }
+                if has_fixed {
+                    fixed_q += b_fixed[ph] * s.v_ln * s.v_ln * 1e-3;
+                }
                 reading.p_kw[ph] = s.p_kw;
                 reading.q_kvar[ph] = s.q_kvar;
             }
             reading.v_ll_max = v_max * sqrt3;
-            reading.current_a = i_max;
+            reading.current_a = i2_max.sqrt() * 1e3;
             let mask = ctl.mask();
             let d = ctl.decide(&reading, t_next);
             met.record(&IntervalObs {

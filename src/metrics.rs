@@ -324,7 +324,6 @@ pub struct Metrics {
     tan_t: f64,
     t_first: f64,
     calendar: Calendar,
-    u_n: f64,
     n: u64,
     reg: Registers,
     win: Registers,
@@ -352,6 +351,7 @@ pub struct Metrics {
     v_min: f64,
     v_max: f64,
     over_110_n: u64,
+    v_110: f64,
 }
 
 impl Metrics {
@@ -375,7 +375,6 @@ impl Metrics {
             h: dt_s / 3600.0,
             t_first: t_first_s,
             calendar,
-            u_n: u_n_v,
             n: 0,
             reg: Registers::default(),
             win: Registers::default(),
@@ -403,6 +402,7 @@ impl Metrics {
             v_min: f64::INFINITY,
             v_max: 0.0,
             over_110_n: 0,
+            v_110: 1.1 * u_n_v,
         }
     }
 
@@ -425,9 +425,13 @@ impl Metrics {
         if q < 0.0 {
             self.lead_n += 1;
         }
-        self.v_min = self.v_min.min(o.v_ll_min);
-        self.v_max = self.v_max.max(o.v_ll_max);
-        if o.v_ll_max > 1.1 * self.u_n {
+        if o.v_ll_min < self.v_min {
+            self.v_min = o.v_ll_min;
+        }
+        if o.v_ll_max > self.v_max {
+            self.v_max = o.v_ll_max;
+        }
+        if o.v_ll_max > self.v_110 {
             self.over_110_n += 1;
         }
         let thr = self.p.overcorrection_threshold_kvar;

@@ -113,35 +113,58 @@ pub struct PhaseSolution {
     pub q_bank_kvar: f64,
 }
 
-/// Iterative per-phase bus-voltage solver with a warm start from the previous interval.
+/// Thevenin equivalent of one phase as the load sees it, with the connected capacitors
+/// folded in: E' = E/(1 + jB·Z), Z' = Z/(1 + jB·Z).
+#[derive(Debug, Clone, Copy, Default)]
+struct Equivalent {
+    b: f64,
+    e2: f64,
+    e: Complex64,
+    z: Complex64,
+}
+
+/// Closed-form per-phase bus-voltage solver for a constant-power load behind a Thevenin
+/// source with shunt capacitors.
+///
+/// With E'·conj(V) = |V|² + Z'·conj(S) and W = |V|², the squared magnitude of both sides
+/// gives W² + (2·Re A − |E'|²)·W + |A|² = 0 with A = Z'·conj(S); the operating point is
+/// the high-voltage root. No iteration, so the per-interval cost is fixed.
 #[derive(Debug, Clone)]
 pub struct BusSolver {
     e_ln: f64,
     z: Complex64,
-    stiff: bool,
-    v: [Complex64; 3],
-    /// Intervals in which the voltage iteration did not converge (load beyond the
-    /// supply's capability); the last iterate is used.
+    eq: [Equivalent; 3],
+    /// Intervals in which the load exceeded what the supply can carry (no real solution);
+    /// the voltage is then taken at the nose of the curve.
     pub nonconverged: u64,
 }
-
-/// Largest number of fixed-point iterations per phase and interval.
-const MAX_ITER: usize = 60;
-/// Convergence tolerance on the voltage change, per unit of the EMF.
-const TOL_PU: f64 = 1e-10;
 
 impl BusSolver {
     /// Builds a solver for a supply.
     pub fn new(supply: &SupplyParams) -> Self {
         let e_ln = supply.nominal_ln_v() * supply.source_voltage_pu;
         let z = supply.impedance_ohm();
-        BusSolver {
+        let mut s = BusSolver {
             e_ln,
             z,
-            stiff: z.norm() == 0.0,
-            v: [Complex64::new(e_ln, 0.0); 3],
+            eq: [Equivalent::default(); 3],
             nonconverged: 0,
+        };
+        for ph in 0..3 {
+            s.fold(ph, 0.0);
         }
+        s
+    }
+
+    fn fold(&mut self, ph: usize, b: f64) {
+        let d = Complex64::new(1.0, 0.0) + Complex64::new(0.0, b) * self.z;
+        let e = Complex64::new(self.e_ln, 0.0) / d;
+        self.eq[ph] = Equivalent {
+            b,
+            e2: e.norm_sqr(),
+            e,
+            z: self.z / d,
+        };
     }
 
     /// Solves the three phases for a load of `p_kw`/`q_kvar` per phase and a shunt
@@ -155,16 +178,13 @@ impl BusSolver {
     ) -> [PhaseSolution; 3] {
         let mut out = [PhaseSolution::default(); 3];
         for ph in 0..3 {
-            let s = Complex64::new(p_kw[ph] * 1e3, q_kvar[ph] * 1e3);
-            let v = if self.stiff {
-                Complex64::new(self.e_ln, 0.0)
-            } else {
-                self.iterate(ph, s, b_s[ph])
-            };
-            let v2 = v.norm_sqr();
-            let q_bank = b_s[ph] * v2 * 1e-3;
+            if self.eq[ph].b != b_s[ph] {
+                self.fold(ph, b_s[ph]);
+            }
+            let w = self.squared_voltage(ph, p_kw[ph] * 1e3, q_kvar[ph] * 1e3);
+            let q_bank = b_s[ph] * w * 1e-3;
             out[ph] = PhaseSolution {
-                v_ln: v2.sqrt(),
+                v_ln: w.sqrt(),
                 p_kw: p_kw[ph],
                 q_kvar: q_kvar[ph] - q_bank,
                 q_bank_kvar: q_bank,
@@ -173,29 +193,29 @@ impl BusSolver {
         out
     }
 
-    /// Fixed-point iteration V = E − Z·(conj(S/V) + jB·V) for one phase.
+    /// |V|² of one phase for a load S = P + jQ (W, var).
     #[inline]
-    fn iterate(&mut self, ph: usize, s: Complex64, b: f64) -> Complex64 {
-        let e = Complex64::new(self.e_ln, 0.0);
-        let jb = Complex64::new(0.0, b);
-        let tol = TOL_PU * self.e_ln;
-        let mut v = self.v[ph];
-        for _ in 0..MAX_ITER {
-            let i = (s / v).conj() + jb * v;
-            let next = e - self.z * i;
-            let d = (next - v).norm_sqr();
-            v = next;
-            if d < tol * tol {
-                self.v[ph] = v;
-                return v;
-            }
+    fn squared_voltage(&mut self, ph: usize, p: f64, q: f64) -> f64 {
+        let eq = &self.eq[ph];
+        // A = Z'·conj(S).
+        let a_re = eq.z.re * p + eq.z.im * q;
+        let a_im = eq.z.im * p - eq.z.re * q;
+        let m = eq.e2 - 2.0 * a_re;
+        let disc = m * m - 4.0 * (a_re * a_re + a_im * a_im);
+        if disc < 0.0 {
+            self.nonconverged += 1;
+            return (0.5 * m).max(0.0);
         }
-        self.nonconverged += 1;
-        if !(v.re.is_finite() && v.im.is_finite()) || v.norm() < 1e-3 * self.e_ln {
-            v = e;
-        }
-        self.v[ph] = v;
-        v
+        0.5 * (m + disc.sqrt())
+    }
+
+    /// Complex bus voltage of one phase in its own angle reference (for checks and
+    /// reports, not the per-sample loop).
+    pub fn phasor(&mut self, ph: usize, p_kw: f64, q_kvar: f64, b_s: f64) -> Complex64 {
+        self.fold(ph, b_s);
+        let w = self.squared_voltage(ph, p_kw * 1e3, q_kvar * 1e3);
+        let a = self.eq[ph].z * Complex64::new(p_kw * 1e3, -q_kvar * 1e3);
+        ((Complex64::new(w, 0.0) + a) / self.eq[ph].e).conj()
     }
 }
 
@@ -245,7 +265,8 @@ mod tests {
         let mut b = BusSolver::new(&s);
         let r = b.solve(&[200.0; 3], &[150.0; 3], &[2e-3; 3]);
         // The voltage drop across Z equals Z times the supply current (Kirchhoff).
-        let v = b.v[0];
+        let v = b.phasor(0, 200.0, 150.0, 2e-3);
+        assert!((v.norm() - r[0].v_ln).abs() < 1e-9);
         let i = (Complex64::new(200e3, 150e3) / v).conj() + Complex64::new(0.0, 2e-3) * v;
         let e = Complex64::new(s.nominal_ln_v(), 0.0);
         assert!((e - s.impedance_ohm() * i - v).norm() < 1e-6);

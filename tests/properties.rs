@@ -31,17 +31,19 @@ fn case() -> impl Strategy<Value = Case> {
         prop::option::of(1u32..30),
         prop::collection::vec((-50.0f64..400.0, -60.0f64..350.0), 50..400),
     )
-        .prop_map(|(steps, ordering, band, delay, discharge, transformer, dt, cap, load)| Case {
-            steps,
-            ordering,
-            band,
-            delay,
-            discharge,
-            transformer,
-            dt,
-            cap,
-            load,
-        })
+        .prop_map(
+            |(steps, ordering, band, delay, discharge, transformer, dt, cap, load)| Case {
+                steps,
+                ordering,
+                band,
+                delay,
+                discharge,
+                transformer,
+                dt,
+                cap,
+                load,
+            },
+        )
 }
 
 impl Case {
@@ -62,7 +64,11 @@ impl Case {
         }
         // Each random load value holds for 10 intervals.
         let n = self.load.len() * 10;
-        s += &format!("[load.synthetic]\n[run]\ntime_step_s = {}\nduration_s = {}\n", self.dt, n as f64 * self.dt);
+        s += &format!(
+            "[load.synthetic]\n[run]\ntime_step_s = {}\nduration_s = {}\n",
+            self.dt,
+            n as f64 * self.dt
+        );
         s
     }
 

@@ -232,6 +232,7 @@ struct Averager {
     filled: usize,
     sum_p: f64,
     sum_q: f64,
+    inv_n: f64,
 }
 
 impl Averager {
@@ -243,6 +244,7 @@ impl Averager {
             filled: 0,
             sum_p: 0.0,
             sum_q: 0.0,
+            inv_n: 1.0 / n as f64,
         }
     }
 
@@ -263,9 +265,12 @@ impl Averager {
             self.sum_p = self.p.iter().sum();
             self.sum_q = self.q.iter().sum();
         }
-        self.filled = (self.filled + 1).min(n);
-        let k = self.filled as f64;
-        (self.sum_p / k, self.sum_q / k)
+        if self.filled < n {
+            self.filled += 1;
+            let k = self.filled as f64;
+            return (self.sum_p / k, self.sum_q / k);
+        }
+        (self.sum_p * self.inv_n, self.sum_q * self.inv_n)
     }
 }
 
@@ -302,6 +307,7 @@ pub struct Controller {
     switched: u64,
     dt: f64,
     tan_t: f64,
+    any_protection: bool,
     steps: Vec<StepState>,
     mask: u64,
     wish: i8,
@@ -340,6 +346,13 @@ impl Controller {
             switched: bank.switched_mask,
             dt: dt_s,
             tan_t: params.target.tan_phi(),
+            any_protection: {
+                let p = params.protection;
+                p.overvoltage_v.is_some()
+                    || p.min_current_a.is_some()
+                    || p.trip_on_export
+                    || p.thd_limit_pct.is_some()
+            },
             steps,
             mask: bank.fixed_mask,
             wish: 0,
@@ -409,42 +422,45 @@ impl Controller {
         };
 
         // Protections first: they may open several steps and block closings.
-        let pr = self.params.protection;
         let dt = self.dt;
-        let ov_on = pr.overvoltage_v.is_some_and(|v| r.v_ll_max > v);
-        let low_on = pr.min_current_a.is_some_and(|a| r.current_a < a);
-        let exp_on = pr.trip_on_export && p_m < 0.0;
-        let thd_on = pr.thd_limit_pct.is_some_and(|l| r.thd_pct > l);
-        let ov_fire = self.ov.advance(ov_on, dt, pr.overvoltage_delay_s);
-        let low_fire = self.low.advance(low_on, dt, pr.min_current_delay_s);
-        let exp_fire = self.export.advance(exp_on, dt, pr.export_delay_s);
-        let thd_fire = self.thd.advance(thd_on, dt, pr.thd_delay_s);
         let on_switched = self.mask & self.switched;
-        let trip_all = if low_fire {
-            Some(Trip::LossOfCurrent)
-        } else if exp_fire {
-            Some(Trip::Export)
-        } else if thd_fire {
-            Some(Trip::Distortion)
-        } else {
-            None
-        };
-        if let Some(t) = trip_all {
-            if on_switched != 0 {
-                self.open_mask(on_switched, t_next);
-                d.opened = on_switched;
-                d.trip = Some(t);
+        let mut blocked_close = false;
+        if self.any_protection {
+            let pr = self.params.protection;
+            let ov_on = pr.overvoltage_v.is_some_and(|v| r.v_ll_max > v);
+            let low_on = pr.min_current_a.is_some_and(|a| r.current_a < a);
+            let exp_on = pr.trip_on_export && p_m < 0.0;
+            let thd_on = pr.thd_limit_pct.is_some_and(|l| r.thd_pct > l);
+            let ov_fire = self.ov.advance(ov_on, dt, pr.overvoltage_delay_s);
+            let low_fire = self.low.advance(low_on, dt, pr.min_current_delay_s);
+            let exp_fire = self.export.advance(exp_on, dt, pr.export_delay_s);
+            let thd_fire = self.thd.advance(thd_on, dt, pr.thd_delay_s);
+            let trip_all = if low_fire {
+                Some(Trip::LossOfCurrent)
+            } else if exp_fire {
+                Some(Trip::Export)
+            } else if thd_fire {
+                Some(Trip::Distortion)
+            } else {
+                None
+            };
+            if let Some(t) = trip_all {
+                if on_switched != 0 {
+                    self.open_mask(on_switched, t_next);
+                    d.opened = on_switched;
+                    d.trip = Some(t);
+                    return d;
+                }
+            }
+            if ov_fire && on_switched != 0 {
+                let i = self.largest(on_switched);
+                self.open_mask(1 << i, t_next);
+                d.opened = 1 << i;
+                d.trip = Some(Trip::Overvoltage);
                 return d;
             }
+            blocked_close = ov_on || low_on || exp_on || thd_on;
         }
-        if ov_fire && on_switched != 0 {
-            let i = self.largest(on_switched);
-            self.open_mask(1 << i, t_next);
-            d.opened = 1 << i;
-            d.trip = Some(Trip::Overvoltage);
-            return d;
-        }
-        let blocked_close = ov_on || low_on || exp_on || thd_on;
 
         if wish == 0 {
             return d;
