@@ -15,6 +15,9 @@ use crate::timebase::{Calendar, TimeKind, DAY_S};
 /// Default length of a synthetic run: one week, s.
 pub const DEFAULT_SYNTHETIC_S: f64 = 7.0 * DAY_S;
 
+/// Runs shorter than this are billed as one window even with monthly billing, s.
+pub const SHORT_RUN_S: f64 = 30.0 * DAY_S;
+
 /// A scenario with its profile located and scanned.
 #[derive(Debug, Clone)]
 pub struct Study {
@@ -88,6 +91,8 @@ impl Study {
         let t_end = t_first + intervals as f64 * dt;
         let billing_starts = match scenario.billing {
             BillingWindows::Run => Vec::new(),
+            // A run shorter than a (30-day) month is billed as one window.
+            BillingWindows::Month if t_end - t_first < SHORT_RUN_S => Vec::new(),
             BillingWindows::Month => calendar.month_starts(t_first, t_end),
         };
         let c = &scenario.controller;
