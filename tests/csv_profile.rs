@@ -777,3 +777,11 @@ mod prop {
         }
     }
 }
+
+#[test]
+fn rows_may_omit_trailing_extra_columns() {
+    // Only the required columns must be present; a missing trailing `note` is fine.
+    let f = write("time,p_a_kw,q_a_kvar,p_b_kw,q_b_kvar,p_c_kw,q_c_kvar,note\n0,1,1,1,1,1,1\n1,2,1,1,1,1,1,x\n");
+    let sc = scan(f.path(), &stop()).unwrap();
+    assert_eq!((sc.rows_used, sc.defect_counts.total()), (2, 0));
+}

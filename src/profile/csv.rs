@@ -27,7 +27,7 @@
 use super::{DefectPolicy, LoadSample, LoadSource};
 use crate::error::ProfileError;
 use crate::timebase::{parse_iso8601, TimeKind};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::fmt;
 use std::fs::File;
@@ -62,8 +62,10 @@ pub fn time_tolerance(t_s: f64) -> f64 {
     TIME_TOL_S.max(t_s.abs() * 4.0 * f64::EPSILON)
 }
 
-/// How to read a profile CSV.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+/// How to read a profile CSV. Deserializes from e.g. `{ on_defect = "skip",
+/// gap_factor = 5.0 }`, missing keys taking their defaults.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
 pub struct CsvOptions {
     /// What to do with a defective row: stop with an error, or skip it and record it.
     pub on_defect: DefectPolicy,
@@ -1652,6 +1654,14 @@ mod tests {
         assert_eq!(sc.rows_used, 2);
         assert_eq!(sc.blank_rows, 2);
         assert_eq!(sc.last_line, 6);
+    }
+
+    #[test]
+    fn options_deserialize_with_defaults() {
+        let o: CsvOptions = serde_json::from_str(r#"{"on_defect": "skip"}"#).unwrap();
+        assert_eq!(o.on_defect, DefectPolicy::Skip);
+        assert_eq!(o.gap_factor, 3.0);
+        assert!(serde_json::from_str::<CsvOptions>(r#"{"gap": 2}"#).is_err());
     }
 
     #[test]
