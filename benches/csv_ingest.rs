@@ -1,1 +1,165 @@
-fn main() {}
+//! Ingest speed of load-profile CSVs: writes a one-week, 1-s profile (604 800 rows,
+//! elapsed seconds, invented but plausible per-phase P and Q) to a temporary file, then
+//! times the first pass (`scan`) and a full second pass (`stream` sampled on the 1-s
+//! grid), several times each, and prints rows/s, ns/row and the peak resident set size.
+//! For comparison it also times `load` into memory and a pass of the memory cursor, and
+//! a scan of a shorter ISO 8601 profile.
+//!
+//! Run with `cargo bench --bench csv_ingest`.
+
+use bankstep::profile::csv::{scan, CsvOptions};
+use bankstep::profile::{LoadSample, LoadSource};
+use std::io::{BufWriter, Write};
+use std::path::Path;
+use std::time::Instant;
+
+const ROWS: u64 = 7 * 24 * 3600;
+const REPS: usize = 5;
+
+/// A small xorshift generator, so the bench needs no extra crates and is reproducible.
+struct XorShift(u64);
+
+impl XorShift {
+    fn next_f64(&mut self) -> f64 {
+        self.0 ^= self.0 << 13;
+        self.0 ^= self.0 >> 7;
+        self.0 ^= self.0 << 17;
+        (self.0 >> 11) as f64 / (1u64 << 53) as f64
+    }
+}
+
+/// Writes `rows` rows at 1-s spacing. Each phase: a base load with a daily shape, a
+/// compressor that cycles every 15 minutes, and noise; Q follows P at about 0.85 lag.
+fn write_profile(path: &Path, rows: u64, iso: bool) -> std::io::Result<()> {
+    let mut w = BufWriter::with_capacity(1 << 16, std::fs::File::create(path)?);
+    writeln!(w, "time,p_a_kw,q_a_kvar,p_b_kw,q_b_kvar,p_c_kw,q_c_kvar")?;
+    let mut rng = XorShift(0x9E37_79B9_7F4A_7C15);
+    // 2026-03-02T00:00:00Z, a Monday.
+    let epoch0: i64 = 1_772_409_600;
+    for t in 0..rows {
+        let hour = (t % 86_400) as f64 / 3600.0;
+        let shift = if (6.0..22.0).contains(&hour) {
+            1.0
+        } else {
+            0.35
+        };
+        let compressor = if (t / 450) % 2 == 0 { 18.0 } else { 0.0 };
+        if iso {
+            let d = chrono::DateTime::from_timestamp(epoch0 + t as i64, 0).unwrap_or_default();
+            write!(w, "{}", d.format("%Y-%m-%dT%H:%M:%SZ"))?;
+        } else {
+            write!(w, "{t}")?;
+        }
+        for phase in 0..3 {
+            let p = 60.0 * shift + compressor + 4.0 * rng.next_f64() + phase as f64 * 3.0;
+            let q = p * (0.58 + 0.1 * rng.next_f64());
+            write!(w, ",{p:.3},{q:.3}")?;
+        }
+        writeln!(w)?;
+    }
+    w.flush()
+}
+
+fn peak_rss_kib() -> Option<u64> {
+    let status = std::fs::read_to_string("/proc/self/status").ok()?;
+    let line = status.lines().find(|l| l.starts_with("VmHWM:"))?;
+    line.split_whitespace().nth(1)?.parse().ok()
+}
+
+fn report(name: &str, rows: u64, secs: &mut [f64]) {
+    secs.sort_by(f64::total_cmp);
+    let best = secs[0];
+    let median = secs[secs.len() / 2];
+    println!(
+        "{name:<28} best {:>6.1} ms  {:>5.2} M rows/s  {:>6.1} ns/row   median {:>6.1} ms  {:>5.2} M rows/s  {:>6.1} ns/row",
+        best * 1e3,
+        rows as f64 / best / 1e6,
+        best * 1e9 / rows as f64,
+        median * 1e3,
+        rows as f64 / median / 1e6,
+        median * 1e9 / rows as f64,
+    );
+}
+
+fn main() -> Result<(), Box<dyn std::error::Error>> {
+    let dir = tempfile::tempdir()?;
+    let path = dir.path().join("week_1s.csv");
+    write_profile(&path, ROWS, false)?;
+    let bytes = std::fs::metadata(&path)?.len();
+    println!(
+        "profile: {ROWS} rows, {:.1} MB, elapsed seconds; {REPS} repetitions each",
+        bytes as f64 / 1e6
+    );
+    println!(
+        "peak RSS after writing: {} KiB",
+        peak_rss_kib().unwrap_or(0)
+    );
+
+    let opts = CsvOptions::default();
+    let mut times = Vec::new();
+    let mut sc = scan(&path, &opts)?;
+    for _ in 0..REPS {
+        let t0 = Instant::now();
+        sc = std::hint::black_box(scan(&path, &opts)?);
+        times.push(t0.elapsed().as_secs_f64());
+    }
+    assert_eq!(sc.rows_used, ROWS);
+    assert_eq!(sc.end_s, ROWS as f64);
+    report("scan", ROWS, &mut times);
+
+    let mut times = Vec::new();
+    let mut checksum = 0.0;
+    for _ in 0..REPS {
+        let t0 = Instant::now();
+        let mut st = sc.stream()?;
+        let mut s = LoadSample::default();
+        let mut sum = 0.0;
+        for k in 0..ROWS {
+            st.sample(k, sc.t_first_s + k as f64, &mut s)?;
+            sum += s.q_total();
+        }
+        checksum = std::hint::black_box(sum);
+        times.push(t0.elapsed().as_secs_f64());
+    }
+    report("stream (dt = 1 s)", ROWS, &mut times);
+    println!(
+        "peak RSS after scan + stream: {} KiB",
+        peak_rss_kib().unwrap_or(0)
+    );
+
+    let mut times = Vec::new();
+    let mut mem = sc.load()?;
+    for _ in 0..REPS {
+        let t0 = Instant::now();
+        mem = std::hint::black_box(sc.load()?);
+        times.push(t0.elapsed().as_secs_f64());
+    }
+    report("load into memory", ROWS, &mut times);
+    let mut times = Vec::new();
+    for _ in 0..REPS {
+        let t0 = Instant::now();
+        let mut cur = mem.cursor();
+        let mut s = LoadSample::default();
+        let mut sum = 0.0;
+        for k in 0..ROWS {
+            cur.sample(k, sc.t_first_s + k as f64, &mut s)?;
+            sum += s.q_total();
+        }
+        assert_eq!(sum, checksum);
+        times.push(t0.elapsed().as_secs_f64());
+    }
+    report("memory cursor (dt = 1 s)", ROWS, &mut times);
+    println!("peak RSS after load: {} KiB", peak_rss_kib().unwrap_or(0));
+
+    let iso_rows = 86_400;
+    let iso_path = dir.path().join("day_1s_iso.csv");
+    write_profile(&iso_path, iso_rows, true)?;
+    let mut times = Vec::new();
+    for _ in 0..REPS {
+        let t0 = Instant::now();
+        std::hint::black_box(scan(&iso_path, &opts)?);
+        times.push(t0.elapsed().as_secs_f64());
+    }
+    report("scan, ISO 8601 times", iso_rows, &mut times);
+    Ok(())
+}
