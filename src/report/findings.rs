@@ -1,0 +1,854 @@
+//! Findings: what a run means, in plain words, ranked most serious first.
+//!
+//! Each check looks at one part of the result (billed PF, contactor wear, overcorrection,
+//! hunting, resonance, bus voltage, protections, injected faults) and, where there is
+//! something to say, writes one sentence an engineer would put in a commissioning or
+//! design note, with every figure in its unit and PF with its quadrant. Findings are
+//! ranked by [`Severity`] and then by how far the figure is from acceptable. The text and
+//! JSON reports both print this list, so it is worded once.
+//!
+//! Thresholds used for the severity (our own engineering choices, written here so that a
+//! reader can weigh them): contactor life within 1 year is critical, within 5 years a
+//! warning and within 10 years a note; a resonance warning is critical when the state
+//! lasts at least 1 % of the run or the estimated harmonic voltage is at least 3 % or the
+//! THD at least 5 %; an estimated THD of 8 % or more in a state that lasts 1 % of the run
+//! is a warning, and of 5 % a note; hunting of 10 cycles per day or more is a warning;
+//! overcorrection is a warning from 1 % of the run time or a worst leading kvar of twice
+//! the threshold; a bus voltage above 110 % of nominal is a warning and below 90 % a note.
+
+use crate::bank::FaultKind;
+use crate::metrics::OvercorrectionCause;
+use crate::pf::{format_pf, Quadrant};
+use crate::report::{
+    approx, count, duration, harmonic_name, num, pct, steps_label, timeseries::trip_word,
+    years_text, ReportContext,
+};
+use crate::timebase::{DAY_S, WEEKDAYS};
+use serde::Serialize;
+
+/// How much a finding matters, most serious first.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Severity {
+    /// Act before commissioning: risk to equipment or a life far too short.
+    Critical,
+    /// Costs money or wear; worth changing the settings or the design.
+    Warning,
+    /// Worth knowing; no immediate action.
+    Note,
+    /// For the record: the run met its goal on this point.
+    Info,
+}
+
+impl Severity {
+    /// The word used in reports.
+    pub fn word(self) -> &'static str {
+        match self {
+            Severity::Critical => "critical",
+            Severity::Warning => "warning",
+            Severity::Note => "note",
+            Severity::Info => "info",
+        }
+    }
+}
+
+/// One finding of a run.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Finding {
+    /// How much it matters.
+    pub severity: Severity,
+    /// What part of the result it is about: `pf`, `wear`, `overcorrection`, `hunting`,
+    /// `resonance`, `voltage`, `supply`, `protection` or `fault`.
+    pub topic: &'static str,
+    /// The finding, one or two sentences.
+    pub text: String,
+    /// What to consider doing, if anything.
+    pub advice: Option<String>,
+    /// The advice touches hardware, so the safety caution applies.
+    pub hardware: bool,
+    /// Rank inside a severity: larger is worse.
+    #[serde(skip)]
+    score: f64,
+}
+
+impl Finding {
+    fn new(severity: Severity, topic: &'static str, score: f64, text: String) -> Self {
+        Finding {
+            severity,
+            topic,
+            text,
+            advice: None,
+            hardware: false,
+            score,
+        }
+    }
+
+    fn advise(mut self, advice: impl Into<String>, hardware: bool) -> Self {
+        self.advice = Some(advice.into());
+        self.hardware = hardware;
+        self
+    }
+}
+
+/// All findings of a run, most serious first.
+pub fn findings(ctx: &ReportContext<'_>) -> Vec<Finding> {
+    let mut out = Vec::new();
+    pf(ctx, &mut out);
+    wear(ctx, &mut out);
+    overcorrection(ctx, &mut out);
+    hunting(ctx, &mut out);
+    resonance(ctx, &mut out);
+    voltage(ctx, &mut out);
+    protection(ctx, &mut out);
+    faults(ctx, &mut out);
+    // A stable sort keeps the order of the checks above for equal ranks.
+    out.sort_by(|a, b| {
+        a.severity
+            .cmp(&b.severity)
+            .then(b.score.total_cmp(&a.score))
+    });
+    out
+}
+
+/// A note on extrapolated rates when the run is too short for them to mean much.
+fn extrapolation_note(duration_s: f64) -> String {
+    if duration_s < DAY_S {
+        format!(
+            " (extrapolated from a {} run; simulate at least a week for a rate you can plan with)",
+            duration(duration_s)
+        )
+    } else {
+        String::new()
+    }
+}
+
+/// Shows `value` as a PF, with a third decimal if two would make it look equal to `target`.
+fn pf_vs(value: f64, quadrant: Quadrant, target: &str) -> String {
+    let shown = format_pf(value, quadrant);
+    if shown == target {
+        match quadrant {
+            Quadrant::Lag => format!("{value:.3} lag"),
+            Quadrant::Lead => format!("{value:.3} lead"),
+        }
+    } else {
+        shown
+    }
+}
+
+fn pf(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    let m = &ctx.result.metrics;
+    let p = &m.pf;
+    let target = ctx.scenario().controller.target;
+    let target_text = target.to_string();
+    // The billed PF counts inductive energy only, so a lagging PF is what falls short; for
+    // a unity or leading target any lagging shortfall from unity does.
+    let goal = if target.quadrant == Quadrant::Lag && target.pf < 1.0 {
+        target.pf
+    } else {
+        1.0
+    };
+    let billed = pf_vs(p.energy_pf, p.energy_pf_quadrant, &target_text);
+    let under = pct(p.share_under_target);
+    let below = p.energy_pf_quadrant == Quadrant::Lag && p.energy_pf < goal - 1e-9;
+    let mut windows = String::new();
+    if p.billing.len() > 1 {
+        let short: Vec<_> = p
+            .billing
+            .iter()
+            .filter(|w| w.energy_pf_quadrant == Quadrant::Lag && w.energy_pf < goal - 1e-9)
+            .collect();
+        if let Some(worst) = short
+            .iter()
+            .min_by(|a, b| a.energy_pf.total_cmp(&b.energy_pf))
+        {
+            let cal = ctx.study.simulation.calendar;
+            windows = format!(
+                " {} of {} billing windows fall short; the lowest is {} (from {}).",
+                short.len(),
+                p.billing.len(),
+                pf_vs(worst.energy_pf, worst.energy_pf_quadrant, &target_text),
+                cal.datetime(worst.start_s).format("%Y-%m-%d"),
+            );
+        }
+    }
+    // Leading time is worth a word beside the billed PF, which counts inductive energy
+    // only; long overcorrection has its own finding.
+    let leading = if p.share_leading >= 0.1 {
+        format!(
+            " The supply leads {} of the time ({} kvarh capacitive), which a tariff that \
+             bills capacitive energy would count.",
+            pct(p.share_leading),
+            num(p.kvarh_capacitive, 1)
+        )
+    } else {
+        String::new()
+    };
+    if below {
+        let f = Finding::new(
+            Severity::Warning,
+            "pf",
+            goal - p.energy_pf,
+            format!(
+                "Billed PF {billed} is below the {target_text} target; {under} of the time \
+                 under target.{windows}{leading}"
+            ),
+        );
+        let c = &ctx.scenario().controller;
+        let full = full_bank_share(ctx);
+        let advice = if full >= 0.2 {
+            format!(
+                "The bank runs with every switched step on {} of the time: it is too small \
+                 for this load; more switched kvar is needed.",
+                pct(full)
+            )
+        } else {
+            format!(
+                "The PF settles anywhere within the dead band (±{} kvar) around the target; \
+                 a narrower dead band or a slightly higher target PF brings the billed PF onto \
+                 the target, at the cost of more operations.",
+                num(c.dead_band_kvar, 1)
+            )
+        };
+        out.push(f.advise(advice, false));
+    } else {
+        let word = if windows.is_empty() {
+            "meets"
+        } else {
+            "meets over the run"
+        };
+        let severity = if leading.is_empty() || m.overcorrection.episodes > 0 {
+            Severity::Info
+        } else {
+            Severity::Note
+        };
+        out.push(Finding::new(
+            severity,
+            "pf",
+            p.share_leading,
+            format!(
+                "Billed PF {billed} {word} the {target_text} target; {under} of the time under \
+                 target.{windows}{leading}"
+            ),
+        ));
+    }
+}
+
+/// Share of run time with every switched step connected.
+fn full_bank_share(ctx: &ReportContext<'_>) -> f64 {
+    let m = &ctx.result.metrics;
+    let switched: Vec<usize> = m.wear.iter().filter(|w| !w.fixed).map(|w| w.step).collect();
+    if switched.is_empty() || m.run.duration_s <= 0.0 {
+        return 0.0;
+    }
+    let t: f64 = m
+        .states
+        .iter()
+        .filter(|s| switched.iter().all(|n| s.steps.contains(n)))
+        .map(|s| s.time_s)
+        .sum();
+    t / m.run.duration_s
+}
+
+fn wear(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    let m = &ctx.result.metrics;
+    let mut lives: Vec<_> = m
+        .wear
+        .iter()
+        .filter_map(|w| w.years_to_rated_life.map(|y| (y, w)))
+        .collect();
+    lives.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.step.cmp(&b.1.step)));
+    let any_switched = m.wear.iter().any(|w| !w.fixed);
+    let Some(&(years, w)) = lives.first() else {
+        if any_switched {
+            out.push(Finding::new(
+                Severity::Info,
+                "wear",
+                0.0,
+                "No step operated during the run, so no contactor wears.".to_string(),
+            ));
+        }
+        return;
+    };
+    let note = extrapolation_note(m.run.duration_s);
+    if years >= 10.0 {
+        out.push(Finding::new(
+            Severity::Info,
+            "wear",
+            1.0 / years,
+            format!(
+                "No contactor reaches its rated life within 10 years at this rate; the earliest \
+                 is step {} in {} years at {} operations/year{note}.",
+                w.step,
+                years_text(years),
+                approx(w.operations_per_year)
+            ),
+        ));
+        return;
+    }
+    let severity = if years < 1.0 {
+        Severity::Critical
+    } else if years < 5.0 {
+        Severity::Warning
+    } else {
+        Severity::Note
+    };
+    let mut text = format!(
+        "Step {} reaches its rated contactor life ({} operations) in {} years at {} \
+         operations/year{note}.",
+        w.step,
+        count(w.rated_operations.round() as u64),
+        years_text(years),
+        approx(w.operations_per_year),
+    );
+    let next: Vec<_> = lives[1..].iter().filter(|(y, _)| *y < 10.0).collect();
+    if !next.is_empty() {
+        let shown: Vec<_> = next.iter().take(4).collect();
+        let steps: Vec<String> = shown.iter().map(|(_, w)| w.step.to_string()).collect();
+        let ys: Vec<String> = shown.iter().map(|(y, _)| years_text(*y)).collect();
+        let more = if next.len() > shown.len() {
+            format!(" and {} more within 10 years", next.len() - shown.len())
+        } else {
+            String::new()
+        };
+        text.push_str(&format!(
+            " Step{} {} follow{} in {} years{more}.",
+            if shown.len() > 1 { "s" } else { "" },
+            join_and(&steps),
+            if shown.len() > 1 { "" } else { "s" },
+            join_and(&ys),
+        ));
+    }
+    let c = &ctx.scenario().controller;
+    let mut advice = String::new();
+    if m.switching.hunting_cycles > 0 {
+        advice.push_str("Stop the hunting first (see that finding). ");
+    }
+    if c.ordering.name() == "sequential" && uneven_equal_steps(ctx) {
+        advice.push_str("Rotating ordering would share the operations among equal steps. ");
+    }
+    advice.push_str(&format!(
+        "A longer switching delay (now {}) or a wider dead band (now ±{} kvar) cuts operations; \
+         plan contactor replacement before the rated life, with contactors rated for \
+         capacitor duty.",
+        duration(c.connect_delay_s),
+        num(c.dead_band_kvar, 1)
+    ));
+    out.push(Finding::new(severity, "wear", 1.0 / years, text).advise(advice, true));
+}
+
+/// True when equal switched steps wear very unevenly (the busiest has more than twice the
+/// operations of the least busy of the same size).
+fn uneven_equal_steps(ctx: &ReportContext<'_>) -> bool {
+    let steps = &ctx.scenario().steps;
+    let wear = &ctx.result.metrics.wear;
+    for (i, a) in steps.iter().enumerate() {
+        if a.fixed {
+            continue;
+        }
+        for (j, b) in steps.iter().enumerate() {
+            if b.fixed || i == j || (a.kvar - b.kvar).abs() > 1e-9 {
+                continue;
+            }
+            let (oa, ob) = (wear[i].operations, wear[j].operations);
+            if oa > 2 * ob.max(1) {
+                return true;
+            }
+        }
+    }
+    false
+}
+
+fn join_and(items: &[String]) -> String {
+    match items.len() {
+        0 => String::new(),
+        1 => items[0].clone(),
+        n => format!("{} and {}", items[..n - 1].join(", "), items[n - 1]),
+    }
+}
+
+/// The cause of an overcorrection in words.
+pub fn cause_words(c: OvercorrectionCause) -> &'static str {
+    match c {
+        OvercorrectionCause::Export => "export of active power (on-site generation)",
+        OvercorrectionCause::FixedSteps => "fixed steps at light load",
+        OvercorrectionCause::StepNotOpened => {
+            "a step the controller wanted to open but could not yet (disconnect delay or operation cap)"
+        }
+        OvercorrectionCause::NotSeenByController => {
+            "leading power the controller did not act on (dead band, averaging or single-phase measurement)"
+        }
+    }
+}
+
+fn overcorrection(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    let m = &ctx.result.metrics;
+    let o = &m.overcorrection;
+    if o.episodes == 0 {
+        return;
+    }
+    let share = if m.run.duration_s > 0.0 {
+        o.total_s / m.run.duration_s
+    } else {
+        0.0
+    };
+    let severity = if share >= 0.01 || o.worst_leading_kvar >= 2.0 * o.threshold_kvar {
+        Severity::Warning
+    } else {
+        Severity::Note
+    };
+    let mut text = format!(
+        "Overcorrected {} in {} episode{}",
+        duration(o.total_s),
+        o.episodes,
+        if o.episodes == 1 { "" } else { "s" }
+    );
+    let (day, day_s) =
+        o.by_weekday_s.iter().enumerate().fold(
+            (0, 0.0),
+            |best, (i, &s)| if s > best.1 { (i, s) } else { best },
+        );
+    if o.total_s > 0.0 && day_s > 0.5 * o.total_s && m.run.duration_s >= 2.0 * DAY_S {
+        text.push_str(&format!(", mostly on {}", WEEKDAYS[day]));
+    }
+    if o.episodes > 1 {
+        text.push_str(&format!("; longest {}", duration(o.longest_s)));
+    }
+    text.push_str(&format!(
+        "; worst {} kvar leading",
+        num(o.worst_leading_kvar, 0)
+    ));
+    if let Some(c) = o.dominant_cause {
+        text.push_str(&format!("; cause: {}", cause_words(c)));
+    }
+    text.push('.');
+    let c = &ctx.scenario().controller;
+    let f = Finding::new(severity, "overcorrection", share, text);
+    let f = match o.dominant_cause {
+        Some(OvercorrectionCause::FixedSteps) => f.advise(
+            "Keep the fixed kvar below the reactive power of the lightest load (for example, put \
+             a fixed step under the controller).",
+            true,
+        ),
+        Some(OvercorrectionCause::StepNotOpened) => f.advise(
+            format!(
+                "A shorter disconnect delay (now {}) lets the controller open steps sooner.",
+                duration(c.disconnect_delay_s)
+            ),
+            false,
+        ),
+        Some(OvercorrectionCause::Export) => f.advise(
+            "Opening the steps while the site exports (the export protection) avoids it.",
+            false,
+        ),
+        Some(OvercorrectionCause::NotSeenByController) => f.advise(
+            format!(
+                "Check the dead band (now ±{} kvar), the averaging ({}) and the measurement mode.",
+                num(c.dead_band_kvar, 1),
+                if c.averaging_s > 0.0 {
+                    duration(c.averaging_s)
+                } else {
+                    "none".to_string()
+                }
+            ),
+            false,
+        ),
+        None => f,
+    };
+    out.push(f);
+}
+
+fn hunting(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    let m = &ctx.result.metrics;
+    let s = &m.switching;
+    if s.hunting_cycles == 0 {
+        return;
+    }
+    let per_day = if m.run.duration_s > 0.0 {
+        s.hunting_cycles as f64 * DAY_S / m.run.duration_s
+    } else {
+        0.0
+    };
+    let severity = if per_day >= 10.0 {
+        Severity::Warning
+    } else {
+        Severity::Note
+    };
+    let mut by_step: Vec<_> = s.per_step.iter().filter(|p| p.hunting_cycles > 0).collect();
+    by_step.sort_by(|a, b| {
+        b.hunting_cycles
+            .cmp(&a.hunting_cycles)
+            .then(a.step.cmp(&b.step))
+    });
+    let detail: Vec<String> = by_step
+        .iter()
+        .take(3)
+        .map(|p| format!("step {}: {}", p.step, count(p.hunting_cycles)))
+        .collect();
+    let mut text = format!(
+        "The bank hunts: {} cycle{} ({}) in {}",
+        count(s.hunting_cycles),
+        if s.hunting_cycles == 1 { "" } else { "s" },
+        detail.join(", "),
+        duration(m.run.duration_s),
+    );
+    if m.run.duration_s >= DAY_S {
+        text.push_str(&format!(", about {} per day", approx(per_day)));
+    }
+    text.push('.');
+    let c = &ctx.scenario().controller;
+    let smallest = ctx.smallest_switched_kvar();
+    let fraction = if smallest > 0.0 {
+        c.dead_band_kvar / smallest
+    } else {
+        0.0
+    };
+    let advice = format!(
+        "Widen the dead band (now ±{} kvar, {} × the smallest switched step; below about 0.5 × \
+         the step one operation overshoots the band) or lengthen the switching delay (now {}).",
+        num(c.dead_band_kvar, 1),
+        num(fraction, 2),
+        duration(c.connect_delay_s),
+    );
+    out.push(Finding::new(severity, "hunting", per_day, text).advise(advice, false));
+}
+
+fn resonance(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    let r = &ctx.result.resonance;
+    let run_s = ctx.result.metrics.run.duration_s.max(1e-9);
+    thd(ctx, out);
+    let Some(w) = r.warnings.first() else {
+        if ctx.scenario().spectrum.orders.is_empty() {
+            let lowest = r
+                .states
+                .iter()
+                .filter_map(|s| s.order)
+                .min_by(f64::total_cmp);
+            if let Some(h) = lowest {
+                out.push(Finding::new(
+                    Severity::Info,
+                    "resonance",
+                    0.0,
+                    format!(
+                        "The scenario gives no load harmonics, so resonance is not checked \
+                         against any; the lowest resonant order reached is {}.",
+                        num(h, 1)
+                    ),
+                ));
+            }
+        }
+        return;
+    };
+    let critical = r
+        .warnings
+        .iter()
+        .any(|w| w.time_s / run_s >= 0.01 || w.v_h_pct >= 3.0 || w.thd_pct >= 5.0);
+    let kvar = r
+        .states
+        .iter()
+        .find(|s| s.steps == w.steps)
+        .map(|s| format!(" ({} kvar)", num(s.kvar, 0)))
+        .unwrap_or_default();
+    let h = harmonic_name(w.near_harmonic);
+    let mut text = format!(
+        "Bank state {}{kvar} resonates at order {}, near the {h} of the load, for {} ({} of the \
+         run); estimated voltage at the {h} {} % and THD {} % at the bus.",
+        steps_label(&w.steps),
+        num(w.order, 1),
+        duration(w.time_s),
+        pct(w.time_s / run_s),
+        num(w.v_h_pct, 1),
+        num(w.thd_pct, 1),
+    );
+    if r.warnings.len() > 1 {
+        let n = r.warnings.len() - 1;
+        text.push_str(&format!(
+            " {n} more state{} resonate{} near a harmonic (see the resonance section).",
+            if n == 1 { "" } else { "s" },
+            if n == 1 { "s" } else { "" }
+        ));
+    }
+    let detuned = ctx.scenario().steps.iter().any(|s| s.detuning.is_some());
+    let advice = if detuned {
+        "Check the detuning ratio of the steps against the harmonics present, and avoid the \
+         resonating states."
+    } else {
+        "Detuned steps (a series reactor that tunes each step below the lowest harmonic \
+         present, e.g. 7 % for a load with a 5th harmonic) move the resonance out of the way."
+    };
+    let severity = if critical {
+        Severity::Critical
+    } else {
+        Severity::Warning
+    };
+    out.push(
+        Finding::new(severity, "resonance", w.time_s / run_s + w.v_h_pct, text)
+            .advise(advice, true),
+    );
+}
+
+/// Estimated voltage distortion in the states where the bank spends real time.
+fn thd(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    let r = &ctx.result.resonance;
+    let run_s = ctx.result.metrics.run.duration_s.max(1e-9);
+    let worst = r
+        .states
+        .iter()
+        .filter(|s| s.time_s / run_s >= 0.01)
+        .filter(|s| !r.warnings.iter().any(|w| w.steps == s.steps))
+        .max_by(|a, b| a.thd_pct.total_cmp(&b.thd_pct));
+    let Some(s) = worst else { return };
+    let severity = if s.thd_pct >= 8.0 {
+        Severity::Warning
+    } else if s.thd_pct >= 5.0 {
+        Severity::Note
+    } else {
+        return;
+    };
+    out.push(Finding::new(
+        severity,
+        "resonance",
+        s.thd_pct,
+        format!(
+            "The estimated bus voltage THD reaches {} % {} ({} of the run); the estimate \
+             neglects the load's own damping, so it errs high.",
+            num(s.thd_pct, 1),
+            match s.steps.len() {
+                0 => "with no step connected".to_string(),
+                1 => format!("with step {} connected", s.steps[0]),
+                _ => format!("with steps {} connected", steps_label(&s.steps)),
+            },
+            pct(s.time_s / run_s),
+        ),
+    ));
+}
+
+fn voltage(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    let m = &ctx.result.metrics;
+    let v = &m.voltage;
+    let u_n = ctx.scenario().supply.nominal_voltage_v;
+    if v.max_v > 1.1 * u_n {
+        out.push(
+            Finding::new(
+                Severity::Warning,
+                "voltage",
+                v.max_v / u_n,
+                format!(
+                    "The bus voltage reached {} V ({} % of the {} V nominal) and was above 110 % \
+                     for {}.",
+                    num(v.max_v, 0),
+                    num(100.0 * v.max_v / u_n, 1),
+                    num(u_n, 0),
+                    duration(v.above_110pct_s),
+                ),
+            )
+            .advise(
+                "Check the transformer tap and the steps left on at light load; an overvoltage \
+                 protection setting opens steps one by one.",
+                true,
+            ),
+        );
+    }
+    if v.min_v > 0.0 && v.min_v < 0.9 * u_n {
+        out.push(Finding::new(
+            Severity::Note,
+            "voltage",
+            u_n / v.min_v,
+            format!(
+                "The bus voltage fell to {} V ({} % of the {} V nominal).",
+                num(v.min_v, 0),
+                num(100.0 * v.min_v / u_n, 1),
+                num(u_n, 0),
+            ),
+        ));
+    }
+    let nc = ctx.result.nonconverged_intervals;
+    if nc > 0 {
+        out.push(
+            Finding::new(
+                Severity::Warning,
+                "supply",
+                nc as f64,
+                format!(
+                    "The bus voltage could not be solved in {} interval{}: the load is beyond \
+                     what the supply can carry there.",
+                    count(nc),
+                    if nc == 1 { "" } else { "s" }
+                ),
+            )
+            .advise("Check the transformer rating and the load profile.", false),
+        );
+    }
+}
+
+fn protection(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    let t = &ctx.result.metrics.switching.trips;
+    let kinds = [
+        (t.overvoltage, crate::controller::Trip::Overvoltage),
+        (t.loss_of_current, crate::controller::Trip::LossOfCurrent),
+        (t.export, crate::controller::Trip::Export),
+        (t.distortion, crate::controller::Trip::Distortion),
+    ];
+    let total: u64 = kinds.iter().map(|k| k.0).sum();
+    if total == 0 {
+        return;
+    }
+    let parts: Vec<String> = kinds
+        .iter()
+        .filter(|k| k.0 > 0)
+        .map(|k| format!("{} {}", trip_word(k.1), count(k.0)))
+        .collect();
+    out.push(Finding::new(
+        Severity::Note,
+        "protection",
+        total as f64,
+        format!(
+            "Protections opened steps {} time{} ({}).",
+            count(total),
+            if total == 1 { "" } else { "s" },
+            parts.join(", ")
+        ),
+    ));
+}
+
+fn faults(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    for (i, s) in ctx.scenario().steps.iter().enumerate() {
+        let Some(f) = s.fault else { continue };
+        let what = match f.kind {
+            FaultKind::Open => "fails open (delivers nothing)".to_string(),
+            FaultKind::CapacitanceLoss(x) => format!("loses {} of its capacitance", pct(x)),
+        };
+        let when = if f.from_s > 0.0 {
+            format!(" from {} into the run", duration(f.from_s))
+        } else {
+            " from the start".to_string()
+        };
+        out.push(Finding::new(
+            Severity::Info,
+            "fault",
+            0.0,
+            format!(
+                "Step {} {what}{when} (fault injected in the scenario); the controller does not \
+                 know and keeps operating it, so the results above include its effect.",
+                i + 1
+            ),
+        ));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::engine::{Quiet, ResonanceWarning, StateResonance};
+    use crate::scenario::Scenario;
+    use crate::study::Study;
+    use std::path::Path;
+
+    fn study() -> Study {
+        let s = Scenario::from_str(
+            "[[steps]]\nkvar = 50\ncount = 4\n[load.synthetic]\n[run]\nduration_s = 600\n",
+            Path::new("site.toml"),
+        )
+        .unwrap();
+        Study::prepare(s).unwrap()
+    }
+
+    #[test]
+    fn ranks_the_serious_first_in_plain_words() {
+        let st = study();
+        let mut r = st.run(&mut Quiet).unwrap();
+        r.metrics.run.duration_s = 7.0 * DAY_S;
+        let w = &mut r.metrics.wear[2];
+        w.operations = 9_150;
+        w.operations_per_year = 47_600.0;
+        w.years_to_rated_life = Some(100_000.0 / 47_600.0);
+        r.metrics.switching.hunting_cycles = 112;
+        r.metrics.switching.per_step[1].hunting_cycles = 80;
+        r.metrics.switching.per_step[2].hunting_cycles = 32;
+        r.resonance.states.push(StateResonance {
+            steps: vec![1, 2, 3],
+            kvar: 150.0,
+            order: Some(4.9),
+            frequency_hz: Some(245.0),
+            time_s: 31.0 * 3600.0,
+            thd_pct: 4.1,
+        });
+        r.resonance.warnings.push(ResonanceWarning {
+            steps: vec![1, 2, 3],
+            order: 4.9,
+            near_harmonic: 5.0,
+            time_s: 31.0 * 3600.0,
+            v_h_pct: 3.2,
+            thd_pct: 4.1,
+        });
+        let ctx = ReportContext::new(&st, &r);
+        let f = findings(&ctx);
+        assert_eq!(f[0].topic, "resonance");
+        assert_eq!(f[0].severity, Severity::Critical);
+        assert!(
+            f[0].text.starts_with(
+                "Bank state 1+2+3 (150 kvar) resonates at order 4.9, near the 5th harmonic of \
+                 the load, for 31 h"
+            ),
+            "{}",
+            f[0].text
+        );
+        assert!(f[0].hardware);
+        let wear = f.iter().find(|x| x.topic == "wear").unwrap();
+        assert_eq!(wear.severity, Severity::Warning);
+        assert_eq!(
+            wear.text,
+            "Step 3 reaches its rated contactor life (100,000 operations) in 2.1 years at \
+             47,600 operations/year."
+        );
+        let hunt = f.iter().find(|x| x.topic == "hunting").unwrap();
+        assert!(
+            hunt.text
+                .starts_with("The bank hunts: 112 cycles (step 2: 80, step 3: 32)"),
+            "{}",
+            hunt.text
+        );
+        // Ranked: severities never go back up.
+        assert!(f.windows(2).all(|p| p[0].severity <= p[1].severity));
+    }
+
+    #[test]
+    fn shortfall_of_billed_pf_is_a_warning() {
+        let st = study();
+        let mut r = st.run(&mut Quiet).unwrap();
+        r.metrics.pf.energy_pf = 0.91;
+        r.metrics.pf.energy_pf_quadrant = Quadrant::Lag;
+        r.metrics.pf.share_under_target = 0.38;
+        let ctx = ReportContext::new(&st, &r);
+        let f = findings(&ctx);
+        let pf = f.iter().find(|x| x.topic == "pf").unwrap();
+        assert_eq!(pf.severity, Severity::Warning);
+        assert_eq!(
+            pf.text,
+            "Billed PF 0.91 lag is below the 0.95 lag target; 38 % of the time under target."
+        );
+    }
+
+    #[test]
+    fn overcorrection_names_day_and_cause() {
+        let st = study();
+        let mut r = st.run(&mut Quiet).unwrap();
+        r.metrics.run.duration_s = 7.0 * DAY_S;
+        let o = &mut r.metrics.overcorrection;
+        o.episodes = 3;
+        o.total_s = 41.0 * 60.0;
+        o.longest_s = 20.0 * 60.0;
+        o.worst_leading_kvar = 62.0;
+        o.dominant_cause = Some(OvercorrectionCause::FixedSteps);
+        o.by_weekday_s[6] = 30.0 * 60.0;
+        o.by_weekday_s[5] = 11.0 * 60.0;
+        let ctx = ReportContext::new(&st, &r);
+        let f = findings(&ctx);
+        let oc = f.iter().find(|x| x.topic == "overcorrection").unwrap();
+        assert_eq!(
+            oc.text,
+            "Overcorrected 41 min in 3 episodes, mostly on Sundays; longest 20 min; worst 62 \
+             kvar leading; cause: fixed steps at light load."
+        );
+        assert!(oc.hardware);
+    }
+}

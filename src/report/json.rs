@@ -1,0 +1,262 @@
+//! The machine-readable report: one pretty-printed JSON object.
+//!
+//! It carries every key of the domain contract (section 9) at its dotted path — `run.*`,
+//! `pf.*`, `switching.*`, `overcorrection.*`, `resonance.states[i].*`,
+//! `resonance.warnings[i].*`, `wear.per_step[i].*` — plus a `tool` object (name and
+//! version), a `study` object (what was simulated and with which settings), the ranked
+//! `findings`, the bus `voltage` and the count of unsolved intervals.
+//!
+//! The output is byte-reproducible for a given scenario and version: no run timestamps, no
+//! absolute paths (file names only), and only structs, vectors and ordered maps.
+
+use crate::bank::StepPhase;
+use crate::controller::Measurement;
+use crate::engine::ResonanceReport;
+use crate::metrics::{
+    OvercorrectionMetrics, PfMetrics, RunInfo, StepWear, SwitchingMetrics, VoltageMetrics,
+};
+use crate::report::findings::{findings, Finding};
+use crate::report::{ReportContext, ReportError, ReportWriter};
+use serde::Serialize;
+use std::io::Write;
+
+/// The JSON report.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct JsonReport;
+
+impl ReportWriter for JsonReport {
+    fn write(&self, ctx: &ReportContext<'_>, out: &mut dyn Write) -> Result<(), ReportError> {
+        let doc = document(ctx);
+        serde_json::to_writer_pretty(&mut *out, &doc)?;
+        out.write_all(b"\n")?;
+        out.flush()?;
+        Ok(())
+    }
+}
+
+impl JsonReport {
+    /// The report as a `serde_json::Value`, for callers that post-process it.
+    pub fn value(ctx: &ReportContext<'_>) -> Result<serde_json::Value, ReportError> {
+        Ok(serde_json::to_value(document(ctx))?)
+    }
+}
+
+/// The tool that wrote the report.
+#[derive(Debug, Serialize)]
+struct Tool {
+    name: &'static str,
+    version: &'static str,
+}
+
+/// One step of the bank as configured.
+#[derive(Debug, Serialize)]
+struct StepJson {
+    step: usize,
+    kvar: f64,
+    phase: &'static str,
+    fixed: bool,
+    detuning_pct: Option<f64>,
+    rated_operations: f64,
+    fault: bool,
+}
+
+/// The bank as configured.
+#[derive(Debug, Serialize)]
+struct BankJson {
+    total_kvar: f64,
+    switched_kvar: f64,
+    fixed_kvar: f64,
+    steps: Vec<StepJson>,
+}
+
+/// Supply as configured.
+#[derive(Debug, Serialize)]
+struct SupplyJson {
+    nominal_voltage_v: f64,
+    frequency_hz: f64,
+    short_circuit_kva: Option<f64>,
+}
+
+/// Controller settings in force.
+#[derive(Debug, Serialize)]
+struct ControllerJson {
+    target: String,
+    ordering: &'static str,
+    dead_band_kvar: f64,
+    switching_delay_s: f64,
+    disconnect_delay_s: f64,
+    discharge_time_s: f64,
+    averaging_s: f64,
+    measurement: String,
+}
+
+/// What was studied.
+#[derive(Debug, Serialize)]
+struct StudyJson {
+    name: String,
+    description: Option<String>,
+    scenario: String,
+    load: String,
+    seed: u64,
+    start: String,
+    ordering: &'static str,
+    target: String,
+    supply: SupplyJson,
+    bank: BankJson,
+    controller: ControllerJson,
+}
+
+/// Wear, with the per-step list under `per_step`.
+#[derive(Debug, Serialize)]
+struct WearJson<'a> {
+    per_step: &'a [StepWear],
+}
+
+/// The whole document, in output order.
+#[derive(Debug, Serialize)]
+struct Document<'a> {
+    tool: Tool,
+    study: StudyJson,
+    run: &'a RunInfo,
+    findings: Vec<Finding>,
+    pf: &'a PfMetrics,
+    switching: &'a SwitchingMetrics,
+    overcorrection: &'a OvercorrectionMetrics,
+    resonance: &'a ResonanceReport,
+    wear: WearJson<'a>,
+    voltage: &'a VoltageMetrics,
+    nonconverged_intervals: u64,
+}
+
+fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
+    let sc = ctx.scenario();
+    let m = &ctx.result.metrics;
+    let c = &sc.controller;
+    let s_sc = sc.supply.short_circuit_kva();
+    let steps: Vec<StepJson> = sc
+        .steps
+        .iter()
+        .enumerate()
+        .map(|(i, s)| StepJson {
+            step: i + 1,
+            kvar: s.kvar,
+            phase: match s.phase {
+                StepPhase::Three => "abc",
+                StepPhase::Single(0) => "a",
+                StepPhase::Single(1) => "b",
+                StepPhase::Single(_) => "c",
+            },
+            fixed: s.fixed,
+            detuning_pct: s.detuning.map(|p| p * 100.0),
+            rated_operations: s.rated_operations,
+            fault: s.fault.is_some(),
+        })
+        .collect();
+    let total: f64 = sc.steps.iter().map(|s| s.kvar).sum();
+    let fixed: f64 = sc.steps.iter().filter(|s| s.fixed).map(|s| s.kvar).sum();
+    Document {
+        tool: Tool {
+            name: "bankstep",
+            version: env!("CARGO_PKG_VERSION"),
+        },
+        study: StudyJson {
+            name: sc.name.clone(),
+            description: sc.description.clone(),
+            scenario: ctx.scenario_file(),
+            load: ctx.load_source(),
+            seed: sc.seed,
+            start: sc.start.format("%Y-%m-%dT%H:%M:%S").to_string(),
+            ordering: c.ordering.name(),
+            target: c.target.to_string(),
+            supply: SupplyJson {
+                nominal_voltage_v: sc.supply.nominal_voltage_v,
+                frequency_hz: sc.supply.frequency_hz,
+                short_circuit_kva: s_sc.is_finite().then_some(s_sc),
+            },
+            bank: BankJson {
+                total_kvar: total,
+                switched_kvar: total - fixed,
+                fixed_kvar: fixed,
+                steps,
+            },
+            controller: ControllerJson {
+                target: c.target.to_string(),
+                ordering: c.ordering.name(),
+                dead_band_kvar: c.dead_band_kvar,
+                switching_delay_s: c.connect_delay_s,
+                disconnect_delay_s: c.disconnect_delay_s,
+                discharge_time_s: c.discharge_time_s,
+                averaging_s: c.averaging_s,
+                measurement: match c.measurement {
+                    Measurement::ThreePhase => "three-phase".to_string(),
+                    Measurement::SinglePhase(p) => {
+                        format!("single-phase {}", ["a", "b", "c"][p.min(2)])
+                    }
+                },
+            },
+        },
+        run: &m.run,
+        findings: findings(ctx),
+        pf: &m.pf,
+        switching: &m.switching,
+        overcorrection: &m.overcorrection,
+        resonance: &ctx.result.resonance,
+        wear: WearJson { per_step: &m.wear },
+        voltage: &m.voltage,
+        nonconverged_intervals: ctx.result.nonconverged_intervals,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::engine::Quiet;
+    use crate::scenario::Scenario;
+    use crate::study::Study;
+    use serde_json::Value;
+    use std::path::Path;
+
+    fn render() -> (Vec<u8>, Value) {
+        let sc = Scenario::from_str(
+            "[[steps]]\nkvar = 50\ncount = 4\n[[steps]]\nkvar = 20\nfixed = true\n\
+             [load.synthetic]\n[run]\nduration_s = 600\n",
+            Path::new("dir/site.toml"),
+        )
+        .unwrap();
+        let st = Study::prepare(sc).unwrap();
+        let r = st.run(&mut Quiet).unwrap();
+        let mut out = Vec::new();
+        JsonReport
+            .write(&ReportContext::new(&st, &r), &mut out)
+            .unwrap();
+        let v: Value = serde_json::from_slice(&out).unwrap();
+        (out, v)
+    }
+
+    #[test]
+    fn contract_paths_exist() {
+        let (_, v) = render();
+        assert_eq!(v["run"]["samples"], 600);
+        assert!(v["pf"]["energy_pf"].is_number());
+        let q = v["pf"]["energy_pf_quadrant"].as_str().unwrap();
+        assert!(q == "lag" || q == "lead");
+        assert_eq!(v["switching"]["per_step"].as_array().unwrap().len(), 4);
+        assert_eq!(v["switching"]["per_step"][0]["step"], 1);
+        let wear = v["wear"]["per_step"].as_array().unwrap();
+        assert_eq!(wear.len(), 5);
+        assert!(wear[4]["years_to_rated_life"].is_null());
+        assert!(v["resonance"]["states"].is_array());
+        assert!(v["resonance"]["warnings"].is_array());
+        assert_eq!(v["tool"]["name"], "bankstep");
+        assert_eq!(v["study"]["scenario"], "site.toml");
+        assert_eq!(v["study"]["ordering"], "sequential");
+        assert_eq!(v["study"]["target"], "0.95 lag");
+    }
+
+    #[test]
+    fn output_is_reproducible() {
+        let (a, _) = render();
+        let (b, _) = render();
+        assert_eq!(a, b);
+    }
+}

@@ -1,0 +1,309 @@
+//! End-to-end tests of the `bankstep` command line: the summary on standard output, the
+//! JSON report's contract keys (domain contract, section 9), the time-series CSV, exit
+//! codes and error messages for bad input, and the help text.
+
+use assert_cmd::Command;
+use predicates::prelude::*;
+use serde_json::Value;
+use std::path::{Path, PathBuf};
+use tempfile::TempDir;
+
+/// A minimal scenario with the synthetic load at its defaults (its fields will grow).
+const MINIMAL: &str =
+    "[[steps]]\nkvar = 50\ncount = 4\n[load.synthetic]\n[run]\nduration_s = 600\n";
+
+fn bankstep() -> Command {
+    Command::cargo_bin("bankstep").expect("the bankstep binary is built")
+}
+
+fn scenario(dir: &TempDir, name: &str, text: &str) -> PathBuf {
+    let p = dir.path().join(name);
+    std::fs::write(&p, text).expect("write the scenario");
+    p
+}
+
+#[test]
+fn simulate_prints_a_summary_with_units_and_quadrants() {
+    let dir = TempDir::new().unwrap();
+    let sc = scenario(&dir, "site.toml", MINIMAL);
+    let out = bankstep()
+        .arg("simulate")
+        .arg(&sc)
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let text = String::from_utf8(out).unwrap();
+    assert!(
+        text.contains(" lag") || text.contains(" lead"),
+        "no PF quadrant in:\n{text}"
+    );
+    for unit in [" kWh", " kvarh", " kvar", " V", " h", " s"] {
+        assert!(text.contains(unit), "no `{unit}` in:\n{text}");
+    }
+    for section in [
+        "Top findings",
+        "PF and energy",
+        "Switching",
+        "Resonance",
+        "Wear",
+    ] {
+        assert!(text.contains(section), "no `{section}` in:\n{text}");
+    }
+    assert!(text.contains("site.toml"));
+}
+
+/// Looks up a dotted path such as `wear.per_step` in a JSON value.
+fn at<'a>(v: &'a Value, path: &str) -> &'a Value {
+    path.split('.').fold(v, |v, k| &v[k])
+}
+
+#[test]
+fn json_report_has_every_contract_key() {
+    let dir = TempDir::new().unwrap();
+    let sc = scenario(
+        &dir,
+        "site.toml",
+        &format!("{MINIMAL}[[steps]]\nkvar = 20\nfixed = true\n"),
+    );
+    let json = dir.path().join("out.json");
+    bankstep()
+        .arg("simulate")
+        .arg(&sc)
+        .arg("--json")
+        .arg(&json)
+        .arg("--quiet")
+        .assert()
+        .success();
+    let v: Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
+
+    for key in [
+        "run.samples",
+        "run.duration_s",
+        "run.time_step_s",
+        "pf.energy_pf",
+        "pf.kwh_import",
+        "pf.kwh_export",
+        "pf.kvarh_inductive",
+        "pf.kvarh_capacitive",
+        "pf.share_under_target",
+        "pf.share_leading",
+        "switching.total_operations",
+        "switching.hunting_cycles",
+        "overcorrection.episodes",
+        "overcorrection.total_s",
+        "overcorrection.longest_s",
+        "overcorrection.worst_leading_kvar",
+    ] {
+        assert!(
+            at(&v, key).is_number(),
+            "`{key}` is not a number: {}",
+            at(&v, key)
+        );
+    }
+    assert_eq!(at(&v, "run.samples"), 600);
+    let pf = at(&v, "pf.energy_pf").as_f64().unwrap();
+    assert!((0.0..=1.0).contains(&pf));
+    for key in ["pf.share_under_target", "pf.share_leading"] {
+        let x = at(&v, key).as_f64().unwrap();
+        assert!((0.0..=1.0).contains(&x), "{key} = {x}");
+    }
+    for key in ["pf.kvarh_inductive", "pf.kvarh_capacitive"] {
+        assert!(at(&v, key).as_f64().unwrap() >= 0.0, "{key}");
+    }
+    let quadrant = at(&v, "pf.energy_pf_quadrant").as_str().unwrap();
+    assert!(quadrant == "lag" || quadrant == "lead", "{quadrant}");
+
+    // One entry per switched step, numbered from 1.
+    let per_step = at(&v, "switching.per_step").as_array().unwrap();
+    assert_eq!(per_step.len(), 4);
+    for (i, s) in per_step.iter().enumerate() {
+        assert_eq!(s["step"].as_u64(), Some(i as u64 + 1));
+        for k in ["operations", "closings", "openings"] {
+            assert!(s[k].is_u64(), "switching.per_step[{i}].{k}");
+        }
+    }
+
+    // Every bank state reached has its steps, order (null if none) and time.
+    let states = at(&v, "resonance.states").as_array().unwrap();
+    assert!(!states.is_empty());
+    for s in states {
+        assert!(s["steps"].is_array());
+        assert!(s["order"].is_number() || s["order"].is_null());
+        assert!(s["time_s"].is_number());
+    }
+    for w in at(&v, "resonance.warnings").as_array().unwrap() {
+        assert!(w["steps"].is_array());
+        for k in ["order", "near_harmonic", "time_s"] {
+            assert!(w[k].is_number(), "resonance.warnings[].{k}");
+        }
+    }
+
+    // One entry per step, the fixed one too; null years where a step never operates.
+    let wear = at(&v, "wear.per_step").as_array().unwrap();
+    assert_eq!(wear.len(), 5);
+    for (i, w) in wear.iter().enumerate() {
+        assert_eq!(w["step"].as_u64(), Some(i as u64 + 1));
+        assert!(w["operations_per_year"].is_number());
+        assert!(w["energized_h"].is_number());
+        let y = &w["years_to_rated_life"];
+        if w["operations"].as_u64() == Some(0) {
+            assert!(y.is_null(), "wear.per_step[{i}].years_to_rated_life = {y}");
+        } else {
+            assert!(y.is_number());
+        }
+    }
+    assert!(wear[4]["years_to_rated_life"].is_null());
+
+    assert_eq!(at(&v, "tool.name"), "bankstep");
+    assert_eq!(at(&v, "tool.version"), env!("CARGO_PKG_VERSION"));
+    assert_eq!(at(&v, "study.scenario"), "site.toml");
+    assert!(at(&v, "study.seed").is_u64());
+    assert!(at(&v, "study.ordering").is_string());
+    assert!(at(&v, "study.target").is_string());
+}
+
+#[test]
+fn json_to_stdout_is_reproducible_and_alone() {
+    let dir = TempDir::new().unwrap();
+    let sc = scenario(&dir, "site.toml", MINIMAL);
+    let run = || {
+        bankstep()
+            .args(["simulate", "--json", "-", "--quiet"])
+            .arg(&sc)
+            .assert()
+            .success()
+            .get_output()
+            .stdout
+            .clone()
+    };
+    let a = run();
+    let b = run();
+    assert_eq!(a, b, "two runs of one scenario differ");
+    let v: Value = serde_json::from_slice(&a).expect("stdout is one JSON object");
+    assert!(v.is_object());
+}
+
+fn timeseries(dir: &TempDir, sc: &Path, extra: &[&str]) -> Vec<String> {
+    let csv = dir.path().join("ts.csv");
+    bankstep()
+        .arg("simulate")
+        .arg(sc)
+        .arg("--timeseries")
+        .arg(&csv)
+        .args(extra)
+        .arg("--quiet")
+        .assert()
+        .success();
+    std::fs::read_to_string(&csv)
+        .unwrap()
+        .lines()
+        .map(str::to_owned)
+        .collect()
+}
+
+#[test]
+fn timeseries_has_a_row_per_interval_and_decimates() {
+    let dir = TempDir::new().unwrap();
+    let sc = scenario(&dir, "site.toml", MINIMAL);
+    let lines = timeseries(&dir, &sc, &[]);
+    assert_eq!(
+        lines[0],
+        "time_s,p_kw,q_kvar,pf,pf_quadrant,u_bus_v,demand_kvar,bank_kvar,steps_on,operation"
+    );
+    assert_eq!(lines.len() - 1, 600);
+    let first: Vec<&str> = lines[1].split(',').collect();
+    assert_eq!(first.len(), 10, "{}", lines[1]);
+    assert_eq!(first[0], "0");
+    assert!(first[4] == "lag" || first[4] == "lead");
+    let pf: f64 = first[3].parse().unwrap();
+    assert!((0.0..=1.0).contains(&pf));
+    assert_eq!(lines[600].split(',').next(), Some("599"));
+
+    let lines = timeseries(&dir, &sc, &["--every", "10"]);
+    assert_eq!(lines.len() - 1, 60);
+    assert_eq!(lines[2].split(',').next(), Some("10"));
+}
+
+#[test]
+fn bad_scenario_exits_2_naming_file_and_key() {
+    let dir = TempDir::new().unwrap();
+    let sc = scenario(
+        &dir,
+        "bad.toml",
+        &MINIMAL.replace("kvar = 50", "kvar = -50"),
+    );
+    bankstep()
+        .arg("simulate")
+        .arg(&sc)
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("bad.toml"))
+        .stderr(predicate::str::contains("steps[0].kvar"));
+}
+
+#[test]
+fn missing_scenario_exits_2_naming_it() {
+    let dir = TempDir::new().unwrap();
+    let missing = dir.path().join("nowhere.toml");
+    bankstep()
+        .arg("simulate")
+        .arg(&missing)
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("nowhere.toml"));
+}
+
+#[test]
+fn unwritable_output_exits_1() {
+    let dir = TempDir::new().unwrap();
+    let sc = scenario(&dir, "site.toml", MINIMAL);
+    let bad = dir.path().join("no-such-dir").join("out.json");
+    bankstep()
+        .arg("simulate")
+        .arg(&sc)
+        .arg("--json")
+        .arg(&bad)
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("out.json"));
+}
+
+#[test]
+fn every_needs_timeseries_and_a_positive_n() {
+    let dir = TempDir::new().unwrap();
+    let sc = scenario(&dir, "site.toml", MINIMAL);
+    bankstep()
+        .arg("simulate")
+        .arg(&sc)
+        .args(["--every", "10"])
+        .assert()
+        .code(2);
+    bankstep()
+        .arg("simulate")
+        .arg(&sc)
+        .args(["--timeseries", "x.csv", "--every", "0"])
+        .current_dir(dir.path())
+        .assert()
+        .code(2);
+}
+
+#[test]
+fn help_teaches_the_subcommand_and_an_example() {
+    bankstep()
+        .arg("--help")
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("simulate"))
+        .stdout(predicate::str::contains("Example"))
+        .stdout(predicate::str::contains("Exit codes"));
+    bankstep()
+        .args(["simulate", "--help"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("bankstep simulate site.toml"))
+        .stdout(predicate::str::contains("--every"))
+        .stdout(predicate::str::contains("kvar"))
+        .stdout(predicate::str::contains("Exit codes"));
+}
