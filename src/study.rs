@@ -32,7 +32,7 @@ pub struct Study {
 /// The load source of one run.
 pub enum Source {
     /// Streaming CSV.
-    Csv(CsvStream),
+    Csv(Box<CsvStream>),
     /// Synthetic generator.
     Synthetic(SyntheticProfile),
 }
@@ -124,7 +124,7 @@ impl Study {
     /// A fresh load source positioned at the start of the run.
     pub fn source(&self) -> Result<Source, RunError> {
         match (&self.scenario.load, &self.csv) {
-            (LoadSpec::Csv { .. }, Some(scan)) => Ok(Source::Csv(scan.stream()?)),
+            (LoadSpec::Csv { .. }, Some(scan)) => Ok(Source::Csv(Box::new(scan.stream()?))),
             (LoadSpec::Synthetic(cfg), _) => Ok(Source::Synthetic(self.synthetic(cfg))),
             (LoadSpec::Csv { .. }, None) => {
                 Err(RunError::Config("the CSV profile was not scanned".into()))
