@@ -296,6 +296,15 @@ pub struct Scenario {
     pub overcorrection_min_s: f64,
     /// Hunting window, s.
     pub hunting_window_s: f64,
+    /// SHA-256 of the scenario text, lowercase hex, for provenance.
+    pub content_sha256: String,
+}
+
+/// Lowercase hex SHA-256 of some bytes.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    use sha2::{Digest, Sha256};
+    let d = Sha256::digest(bytes);
+    d.iter().map(|b| format!("{b:02x}")).collect()
 }
 
 /// Checks `lo ≤ x ≤ hi` (and finiteness), naming key, range and unit.
@@ -353,7 +362,9 @@ impl Scenario {
             file: path.to_path_buf(),
             message: e.to_string().trim_end().to_string(),
         })?;
-        Self::validate(file, path).map_err(|e| ScenarioError::from_field(path, e))
+        let mut sc = Self::validate(file, path).map_err(|e| ScenarioError::from_field(path, e))?;
+        sc.content_sha256 = sha256_hex(text.as_bytes());
+        Ok(sc)
     }
 
     fn validate(f: ScenarioFile, path: &Path) -> Result<Scenario, FieldError> {
@@ -830,6 +841,7 @@ impl Scenario {
             overcorrection_threshold_kvar,
             overcorrection_min_s,
             hunting_window_s,
+            content_sha256: String::new(),
         })
     }
 }

@@ -27,6 +27,29 @@ pub struct Study {
     pub simulation: Simulation,
     /// The CSV scan, for a CSV profile.
     pub csv: Option<CsvScan>,
+    /// SHA-256 of the CSV profile file, lowercase hex (none for a synthetic profile).
+    pub profile_sha256: Option<String>,
+}
+
+/// Hashes a file by streaming it.
+fn file_sha256(path: &std::path::Path) -> Result<String, ProfileError> {
+    use sha2::{Digest, Sha256};
+    use std::io::Read;
+    let io = |source| ProfileError::Io {
+        file: path.to_path_buf(),
+        source,
+    };
+    let mut f = std::fs::File::open(path).map_err(io)?;
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 16];
+    loop {
+        let n = f.read(&mut buf).map_err(io)?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+    }
+    Ok(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
 }
 
 /// The load source of one run.
@@ -114,10 +137,15 @@ impl Study {
             dt_s: dt,
             intervals,
         };
+        let profile_sha256 = match &scenario.load {
+            LoadSpec::Csv { path, .. } => Some(file_sha256(path)?),
+            LoadSpec::Synthetic(_) => None,
+        };
         Ok(Study {
             scenario,
             simulation,
             csv,
+            profile_sha256,
         })
     }
 

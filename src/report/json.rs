@@ -106,6 +106,15 @@ struct StudyJson {
     controller: ControllerJson,
 }
 
+/// What a report was made from, so that a run can be repeated and checked later.
+#[derive(Debug, Serialize)]
+struct Provenance {
+    tool_version: &'static str,
+    scenario_sha256: String,
+    profile_sha256: Option<String>,
+    seed: u64,
+}
+
 /// Wear, with the per-step list under `per_step`.
 #[derive(Debug, Serialize)]
 struct WearJson<'a> {
@@ -116,6 +125,7 @@ struct WearJson<'a> {
 #[derive(Debug, Serialize)]
 struct Document<'a> {
     tool: Tool,
+    provenance: Provenance,
     study: StudyJson,
     run: &'a RunInfo,
     findings: Vec<Finding>,
@@ -158,6 +168,12 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
         tool: Tool {
             name: "bankstep",
             version: env!("CARGO_PKG_VERSION"),
+        },
+        provenance: Provenance {
+            tool_version: env!("CARGO_PKG_VERSION"),
+            scenario_sha256: sc.content_sha256.clone(),
+            profile_sha256: ctx.study.profile_sha256.clone(),
+            seed: sc.seed,
         },
         study: StudyJson {
             name: sc.name.clone(),
