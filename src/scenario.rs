@@ -12,8 +12,9 @@ use crate::controller::{ControllerParams, Measurement, OrderingKind, ProtectionP
 use crate::error::{FieldError, ScenarioError};
 use crate::harmonics::{Spectrum, SpectrumPreset};
 use crate::pf::PfTarget;
+use crate::profile::csv::CsvOptions;
 use crate::profile::synthetic::SyntheticConfig;
-use crate::profile::DefectPolicy;
+use crate::profile::{DefectPolicies, DefectPolicy};
 use crate::supply::{SupplyParams, Transformer};
 use crate::timebase::parse_start;
 use chrono::NaiveDateTime;
@@ -183,10 +184,68 @@ pub struct ProtectionSection {
 pub struct LoadSection {
     /// CSV profile, relative to the scenario file.
     pub csv: Option<PathBuf>,
-    /// What to do with defective CSV rows: `stop` (default) or `skip`.
+    /// What to do with every kind of defective CSV row at once: `stop`, `skip`, `hold` or
+    /// `interpolate` (kinds that cannot hold or interpolate skip instead; gaps keep their
+    /// own policy). Default: none, so each kind takes its default (see `[load.defects]`).
     pub on_defect: Option<DefectPolicy>,
+    /// `[load.defects]`: a policy per kind of defect, winning over `on_defect`. Defaults:
+    /// `malformed`, `not_finite`, `short_row`, `conflicting_duplicate`, `backwards` stop;
+    /// `duplicate` and `truncated_last_line` skip; `gap` holds.
+    pub defects: Option<DefectPolicies>,
+    /// A spacing longer than this many median spacings is a gap. Default 3 (≥ 1).
+    pub gap_factor: Option<f64>,
+    /// Column delimiter of the CSV: `","` (default), `";"`, `"\t"` (or `"tab"`), `"|"`.
+    pub delimiter: Option<String>,
+    /// Decimal mark of the CSV's numbers: `"."` (default) or `","`.
+    pub decimal: Option<String>,
     /// Synthetic generator.
     pub synthetic: Option<SyntheticConfig>,
+}
+
+impl LoadSection {
+    /// The CSV reading options these keys give, validated; errors name the key.
+    pub fn csv_options(&self) -> Result<CsvOptions, FieldError> {
+        let d = CsvOptions::default();
+        let one_char = |key: &str, v: &Option<String>, default: char| match v.as_deref() {
+            None => Ok(default),
+            Some("tab") | Some("\\t") => Ok('\t'),
+            Some(text) => {
+                let mut chars = text.chars();
+                match (chars.next(), chars.next()) {
+                    (Some(c), None) => Ok(c),
+                    _ => Err(FieldError::new(
+                        key,
+                        format!("`{text}` is not a single character"),
+                    )),
+                }
+            }
+        };
+        let options = CsvOptions {
+            on_defect: self.on_defect,
+            defects: self.defects.unwrap_or_default(),
+            gap_factor: self.gap_factor.unwrap_or(d.gap_factor),
+            delimiter: one_char("load.delimiter", &self.delimiter, d.delimiter)?,
+            decimal: one_char("load.decimal", &self.decimal, d.decimal)?,
+        };
+        options
+            .check()
+            .map_err(|e| FieldError::new(format!("load.{}", e.key), e.message))?;
+        Ok(options)
+    }
+
+    /// The first CSV-only key that is set, for a scenario without a CSV profile.
+    fn csv_only_key(&self) -> Option<&'static str> {
+        [
+            ("load.on_defect", self.on_defect.is_some()),
+            ("load.defects", self.defects.is_some()),
+            ("load.gap_factor", self.gap_factor.is_some()),
+            ("load.delimiter", self.delimiter.is_some()),
+            ("load.decimal", self.decimal.is_some()),
+        ]
+        .into_iter()
+        .find(|(_, set)| *set)
+        .map(|(k, _)| k)
+    }
 }
 
 /// `[harmonics]`.
@@ -243,8 +302,8 @@ pub enum LoadSpec {
     Csv {
         /// The file.
         path: PathBuf,
-        /// Defective-row policy.
-        on_defect: DefectPolicy,
+        /// How to read it: delimiter, decimal mark, defect policies, gap factor.
+        options: CsvOptions,
     },
     /// The synthetic generator.
     Synthetic(SyntheticConfig),
@@ -693,15 +752,12 @@ impl Scenario {
                         } else {
                             base.join(csv)
                         },
-                        on_defect: f.load.on_defect.unwrap_or_default(),
+                        options: f.load.csv_options()?,
                     }
                 }
                 (None, Some(cfg)) => {
-                    if f.load.on_defect.is_some() {
-                        return Err(FieldError::new(
-                            "load.on_defect",
-                            "only meaningful with a CSV profile",
-                        ));
+                    if let Some(key) = f.load.csv_only_key() {
+                        return Err(FieldError::new(key, "only meaningful with a CSV profile"));
                     }
                     cfg.validate("load.synthetic")?;
                     LoadSpec::Synthetic(cfg.clone())

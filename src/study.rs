@@ -6,7 +6,7 @@
 use crate::engine::{Observer, RunResult, Simulation};
 use crate::error::{ProfileError, RunError};
 use crate::metrics::MetricParams;
-use crate::profile::csv::{self, CsvOptions, CsvScan, CsvStream};
+use crate::profile::csv::{self, CsvScan, CsvStream};
 use crate::profile::synthetic::{SyntheticConfig, SyntheticProfile};
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::{BillingWindows, LoadSpec, Scenario};
@@ -75,14 +75,8 @@ impl Study {
     pub fn prepare(scenario: Scenario) -> Result<Study, RunError> {
         let dt = scenario.dt_s;
         let (csv, t_first, calendar, available) = match &scenario.load {
-            LoadSpec::Csv { path, on_defect } => {
-                let scan = csv::scan(
-                    path,
-                    &CsvOptions {
-                        on_defect: *on_defect,
-                        gap_factor: 3.0,
-                    },
-                )?;
+            LoadSpec::Csv { path, options } => {
+                let scan = csv::scan(path, options)?;
                 let cal = match scan.time_kind {
                     TimeKind::Absolute => Calendar::absolute(),
                     TimeKind::Elapsed => Calendar::elapsed_from(scenario.start),

@@ -26,15 +26,14 @@ fn write(text: &str) -> tempfile::NamedTempFile {
     f
 }
 
+/// `on_defect = "stop"`: every kind of row defect stops the scan.
 fn stop() -> CsvOptions {
-    CsvOptions::default()
+    CsvOptions::all(DefectPolicy::Stop)
 }
 
+/// `on_defect = "skip"`: every kind of row defect is left out.
 fn skip() -> CsvOptions {
-    CsvOptions {
-        on_defect: DefectPolicy::Skip,
-        ..CsvOptions::default()
-    }
+    CsvOptions::all(DefectPolicy::Skip)
 }
 
 /// A row at time `t` whose p_a_kw is `id` (to tell rows apart) and other values fixed.
@@ -405,15 +404,15 @@ fn every_defect_kind_under_skip() {
     assert_eq!(
         got,
         vec![
-            (4, DefectKind::Malformed),  // q_b_kvar "1,5"
-            (5, DefectKind::NotFinite),  // p_c_kw NaN
-            (7, DefectKind::Duplicate),  // 120 again after line 6
-            (8, DefectKind::Backwards),  // 60 after 120
-            (9, DefectKind::ShortRow),   // 3 fields
-            (12, DefectKind::Malformed), // a date-time among elapsed seconds
-            (13, DefectKind::Malformed), // unquoted decimal comma shifts the columns
-            (15, DefectKind::Gap),       // 360 → 1200 s, median 120 s
-            (16, DefectKind::ShortRow),  // truncated last line, no line end
+            (4, DefectKind::Malformed),            // q_b_kvar "1,5"
+            (5, DefectKind::NotFinite),            // p_c_kw NaN
+            (7, DefectKind::ConflictingDuplicate), // 120 again after line 6, other values
+            (8, DefectKind::Backwards),            // 60 after 120
+            (9, DefectKind::ShortRow),             // 3 fields
+            (12, DefectKind::Malformed),           // a date-time among elapsed seconds
+            (13, DefectKind::Malformed),           // unquoted decimal comma shifts the columns
+            (15, DefectKind::Gap),                 // 360 → 1200 s, median 120 s
+            (16, DefectKind::TruncatedLastLine),   // no line end, cut short
         ]
     );
     assert_eq!(
@@ -421,8 +420,10 @@ fn every_defect_kind_under_skip() {
         DefectCounts {
             malformed: 3,
             not_finite: 1,
-            short_row: 2,
-            duplicate: 1,
+            short_row: 1,
+            truncated_last_line: 1,
+            duplicate: 0,
+            conflicting_duplicate: 1,
             backwards: 1,
             gap: 1,
         }
@@ -448,7 +449,8 @@ fn every_defect_kind_under_skip() {
     };
     assert_eq!(
         msg(4),
-        "line 4: q_b_kvar is \"1,5\", not a number; use a point as the decimal separator"
+        "line 4: q_b_kvar is \"1,5\", not a number; this looks like a decimal comma: use a \
+         point as the decimal separator, or set decimal = \",\" under [load]"
     );
     assert_eq!(msg(5), "line 5: p_c_kw is \"NaN\", not a finite number");
     assert!(msg(7).contains("time 120 s repeats the previous row's time (line 6)"));
@@ -479,14 +481,15 @@ fn first_defect_stops_under_stop() {
     assert_eq!(line, 4);
     assert_eq!(
         m,
-        "q_b_kvar is \"1,5\", not a number; use a point as the decimal separator"
+        "q_b_kvar is \"1,5\", not a number; this looks like a decimal comma: use a point as \
+         the decimal separator, or set decimal = \",\" under [load]"
     );
 }
 
 /// Each defect kind alone, after two good rows (so on line 4), under both policies.
 #[test]
 fn each_defect_kind_alone_with_its_line() {
-    let cases: [(&str, DefectKind, &str); 9] = [
+    let cases: [(&str, DefectKind, &str); 10] = [
         (
             "2,abc,1,1,1,1,1\n",
             DefectKind::Malformed,
@@ -508,7 +511,16 @@ fn each_defect_kind_alone_with_its_line() {
             DefectKind::ShortRow,
             "q_b_kvar, p_c_kw, q_c_kvar are missing",
         ),
-        ("1,1,1,1,1,1,1\n", DefectKind::Duplicate, "repeats"),
+        (
+            "1,1,1,1,1,1,1\n",
+            DefectKind::ConflictingDuplicate,
+            "repeats",
+        ),
+        (
+            "1,2,0.5,1.1,0.6,1.2,0.7\n",
+            DefectKind::Duplicate,
+            "same values",
+        ),
         (
             "0.5,1,1,1,1,1,1\n",
             DefectKind::Backwards,
@@ -547,7 +559,7 @@ fn trailing_empty_field_is_not_a_defect() {
 }
 
 #[test]
-fn truncated_last_line_is_a_short_row() {
+fn truncated_last_line_is_skipped_by_default() {
     let f = write(&format!(
         "{HEADER}{}{}2,1.5,0.",
         row("0", 1.0),
@@ -556,10 +568,12 @@ fn truncated_last_line_is_a_short_row() {
     let (line, m) = row_error(scan(f.path(), &stop()));
     assert_eq!(line, 4);
     assert!(m.contains("cut short"), "{m}");
-    let sc = scan(f.path(), &skip()).unwrap();
-    assert_eq!(sc.rows_used, 2);
-    assert_eq!(sc.defects[0].kind, DefectKind::ShortRow);
-    assert_eq!(sc.end_s, 2.0);
+    for opts in [skip(), CsvOptions::default()] {
+        let sc = scan(f.path(), &opts).unwrap();
+        assert_eq!(sc.rows_used, 2);
+        assert_eq!(sc.defects[0].kind, DefectKind::TruncatedLastLine);
+        assert_eq!(sc.end_s, 2.0);
+    }
 }
 
 #[test]

@@ -45,14 +45,67 @@ pub trait LoadSource {
     fn sample(&mut self, k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError>;
 }
 
-/// What to do with a defective CSV row (malformed or missing number, NaN, duplicate or
-/// backwards time).
+/// What to do with a defect in a CSV profile. Which policies apply depends on the kind
+/// of defect (see `csv::DefectKind::allowed`).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum DefectPolicy {
-    /// Stop with an error naming the line (the default: nothing is dropped unasked).
+    /// Stop with an error naming the line (nothing is dropped unasked).
     #[default]
     Stop,
-    /// Leave the row out, keep the previous sample, and list the row in the report.
+    /// Leave the row out (the previous row holds in its place) and list it in the report.
     Skip,
+    /// Keep the row's time and give it the previous good row's values; across a gap, hold
+    /// the row before the gap.
+    Hold,
+    /// Keep the row's time and give it values interpolated linearly between the good rows
+    /// before and after it (the nearest good row at either end of the file); across a
+    /// gap, interpolate between the rows on either side.
+    Interpolate,
+}
+
+impl DefectPolicy {
+    /// The lower-case name used in scenarios and reports.
+    pub fn name(self) -> &'static str {
+        match self {
+            DefectPolicy::Stop => "stop",
+            DefectPolicy::Skip => "skip",
+            DefectPolicy::Hold => "hold",
+            DefectPolicy::Interpolate => "interpolate",
+        }
+    }
+}
+
+impl std::fmt::Display for DefectPolicy {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+/// Policies for single kinds of CSV defect, as in a scenario's `[load.defects]` table;
+/// an unset kind takes `[load] on_defect`, else its own default (see
+/// `csv::DefectKind::default_policy`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct DefectPolicies {
+    /// Numbers or times that cannot be read, or fields beyond the header. Default `stop`.
+    pub malformed: Option<DefectPolicy>,
+    /// NaN or infinite numbers. Default `stop`.
+    pub not_finite: Option<DefectPolicy>,
+    /// Rows with too few fields. Default `stop`.
+    pub short_row: Option<DefectPolicy>,
+    /// A last line without a line end that is cut short. Default `skip` (a warning);
+    /// `stop` or `skip`.
+    pub truncated_last_line: Option<DefectPolicy>,
+    /// Rows repeating the previous row's time and values. Default `skip`; `stop` or
+    /// `skip`.
+    pub duplicate: Option<DefectPolicy>,
+    /// Rows repeating the previous row's time with other values. Default `stop`; `stop`
+    /// or `skip` (keep the first).
+    pub conflicting_duplicate: Option<DefectPolicy>,
+    /// Rows earlier than the previous row. Default `stop`; `stop` or `skip`.
+    pub backwards: Option<DefectPolicy>,
+    /// Spacings longer than `gap_factor` median spacings. Default `hold`; `stop`, `hold`
+    /// or `interpolate`.
+    pub gap: Option<DefectPolicy>,
 }

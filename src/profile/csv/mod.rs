@@ -1,39 +1,61 @@
 //! Load profiles read from CSV files (DOMAIN.md section 7).
 //!
-//! This module owns everything between a profile file on disk and the per-interval
+//! This module owns everything between a profile's bytes and the per-interval
 //! [`LoadSample`]s the engine asks for:
 //!
-//! - the header: required columns found by name (trimmed, case-insensitive, any order),
-//!   extra columns ignored;
-//! - the row rules: what makes a row defective (malformed or non-finite numbers, short
-//!   rows, duplicate or backwards times) and what the [`DefectPolicy`] does about it;
-//! - pass 1, [`scan`]: validates the whole file and collects its statistics (time kind,
-//!   row counts, median spacing, coverage end, defects with line numbers, gaps) in
-//!   [`CsvScan`], with memory that stays flat however long the file is;
-//! - pass 2, [`CsvScan::stream`]: reopens the file and yields samples on the simulation
-//!   grid by sample-and-hold, applying the same rules so that it skips exactly the rows
-//!   pass 1 skipped;
+//! - the source ([`CsvSource`]): a file, bytes in memory, or any reader that can start
+//!   again (e.g. a generated profile that never touches the disk);
+//! - the dialect: the column delimiter and the decimal mark ([`CsvOptions`]);
+//! - the header (`header.rs`): required columns found by base name, with or without a
+//!   unit (`p_a_kw`, `P_a [kW]`, `p_a_kw (kW)`), a contradicting unit being an error;
+//! - the row rules (`rules.rs`): what makes a row defective, by [`DefectKind`], and what
+//!   each kind's [`DefectPolicy`] does with it: stop, skip, hold or interpolate;
+//! - pass 1, [`scan`]: validates the whole source and collects its statistics (time
+//!   kind, row counts, median spacing, coverage end, defects with line numbers, gaps, the
+//!   [`DefectSummary`]) in [`CsvScan`], with memory that stays flat however long the file;
+//! - pass 2, [`CsvScan::stream`]: reads the source again and yields samples on the
+//!   simulation grid by sample-and-hold, applying the same rules so that it uses exactly
+//!   the rows pass 1 used;
 //! - [`CsvScan::load`] and [`MemoryProfile`]: the whole profile in memory, for many runs
 //!   over one profile, with a [`MemoryCursor`] that does the same sample-and-hold.
 //!
 //! Sample-and-hold: interval k, starting at t_k, takes the last row whose time is
 //! ≤ t_k (within [`time_tolerance`]), and the last row holds for the profile's median
-//! spacing, so N evenly spaced rows cover N spacings.
+//! spacing, so N evenly spaced rows cover N spacings. Across a gap the previous row holds
+//! (policy `hold`) or the load is interpolated linearly between the rows on either side
+//! (policy `interpolate`).
 //!
 //! Line numbers are 1-based physical lines of the file (the header is line 1), counted
 //! by line feeds, so they stay right across blank lines, CRLF line ends and quoted
 //! fields that contain line breaks.
+//!
+//! Bad input never panics and never makes memory grow without bound: records are capped
+//! in length and width, the spacing histogram is capped in size, and at most
+//! [`MAX_DEFECTS_KEPT`] defects are kept in full.
 
-use super::{DefectPolicy, LoadSample, LoadSource};
+mod header;
+mod rules;
+mod source;
+mod summary;
+
+pub use header::ColumnMatch;
+pub use rules::MAX_ELAPSED_S;
+pub use source::{CsvSource, OpenFn, MAX_FIELDS, MAX_RECORD_BYTES};
+pub use summary::{DefectSummary, KindSummary, FIRST_LINES_KEPT};
+
+use super::{DefectPolicies, DefectPolicy, LoadSample, LoadSource};
 use crate::error::ProfileError;
-use crate::timebase::{parse_iso8601, TimeKind};
+use crate::timebase::TimeKind;
+use header::{read_header, Columns};
+use rules::{Action, Fill, Rejection, Rules};
 use serde::{Deserialize, Serialize};
+use source::{ReadError, RecordReader};
 use std::collections::BTreeMap;
 use std::fmt;
-use std::fs::File;
-use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 use std::time::SystemTime;
+use summary::Tally;
 
 /// The required columns, in the order used internally: the time, then P and Q of
 /// phases a, b and c.
@@ -49,8 +71,9 @@ pub const MAX_DEFECTS_KEPT: usize = 1000;
 /// t ≤ t_k + tolerance, so that float grids such as 0.1·k do not miss a row.
 pub const TIME_TOL_S: f64 = 1e-9;
 
-/// Size of the read buffer, bytes.
-const READ_BUFFER_BYTES: usize = 64 * 1024;
+/// Most distinct spacings kept at full (1 µs) resolution; beyond this the histogram
+/// coarsens tenfold at a time, so that its memory stays bounded.
+const MAX_SPACING_BINS: usize = 1 << 16;
 
 /// Longest field text quoted in a message, characters.
 const MAX_QUOTED_CHARS: usize = 40;
@@ -63,78 +86,288 @@ pub fn time_tolerance(t_s: f64) -> f64 {
 }
 
 /// How to read a profile CSV. Deserializes from e.g. `{ on_defect = "skip",
-/// gap_factor = 5.0 }`, missing keys taking their defaults.
+/// gap_factor = 5.0, defects = { gap = "interpolate" }, delimiter = ";", decimal = "," }`,
+/// missing keys taking their defaults.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct CsvOptions {
-    /// What to do with a defective row: stop with an error, or skip it and record it.
-    pub on_defect: DefectPolicy,
+    /// One policy for every kind of row defect (not for gaps). A kind that cannot hold or
+    /// interpolate (duplicates, backwards times, a truncated last line) skips instead.
+    /// Default: none, so each kind takes its own default ([`DefectKind::default_policy`]).
+    pub on_defect: Option<DefectPolicy>,
+    /// Policies for single kinds; these win over `on_defect`. Default: none set.
+    pub defects: DefectPolicies,
     /// A spacing between rows longer than this many median spacings is reported as a
-    /// gap (a warning; the previous row holds across it). Must be ≥ 1. Default 3.
+    /// gap. Must be finite and ≥ 1. Default 3.
     pub gap_factor: f64,
+    /// Column delimiter: `,` (default), `;`, tab or `|`.
+    pub delimiter: char,
+    /// Decimal mark of the numbers: `.` (default) or `,`. With `,` a point in a number
+    /// is refused (no thousands separators).
+    pub decimal: char,
 }
 
 impl Default for CsvOptions {
     fn default() -> Self {
         CsvOptions {
-            on_defect: DefectPolicy::Stop,
+            on_defect: None,
+            defects: DefectPolicies::default(),
             gap_factor: 3.0,
+            delimiter: ',',
+            decimal: '.',
         }
     }
 }
 
-/// The kinds of defect a profile row can have.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+/// An invalid CSV option: its key (relative to `[load]`, e.g. `defects.gap`) and what is
+/// allowed.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct OptionError {
+    /// The key, e.g. `decimal` or `defects.duplicate`.
+    pub key: String,
+    /// What is wrong and what is allowed.
+    pub message: String,
+}
+
+/// The per-kind setting of a [`DefectPolicies`].
+fn configured(p: &DefectPolicies, kind: DefectKind) -> Option<DefectPolicy> {
+    match kind {
+        DefectKind::Malformed => p.malformed,
+        DefectKind::NotFinite => p.not_finite,
+        DefectKind::ShortRow => p.short_row,
+        DefectKind::TruncatedLastLine => p.truncated_last_line,
+        DefectKind::Duplicate => p.duplicate,
+        DefectKind::ConflictingDuplicate => p.conflicting_duplicate,
+        DefectKind::Backwards => p.backwards,
+        DefectKind::Gap => p.gap,
+    }
+}
+
+impl CsvOptions {
+    /// Options with one policy for every kind of row defect.
+    pub fn all(policy: DefectPolicy) -> Self {
+        CsvOptions {
+            on_defect: Some(policy),
+            ..CsvOptions::default()
+        }
+    }
+
+    /// The policy in force for a kind: its own setting, else `on_defect` (skip where
+    /// that policy does not apply to the kind; gaps ignore `on_defect`), else the kind's
+    /// default.
+    pub fn policy(&self, kind: DefectKind) -> DefectPolicy {
+        if let Some(p) = configured(&self.defects, kind) {
+            return p;
+        }
+        match self.on_defect {
+            Some(_) if kind == DefectKind::Gap => kind.default_policy(),
+            Some(p) if kind.allows(p) => p,
+            Some(_) => DefectPolicy::Skip,
+            None => kind.default_policy(),
+        }
+    }
+
+    /// The policy of every kind, by [`DefectKind::index`].
+    pub fn policies(&self) -> [DefectPolicy; DefectKind::COUNT] {
+        DefectKind::ALL.map(|k| self.policy(k))
+    }
+
+    /// Checks every option against its allowed values.
+    pub fn check(&self) -> Result<(), OptionError> {
+        let err = |key: &str, message: String| {
+            Err(OptionError {
+                key: key.to_string(),
+                message,
+            })
+        };
+        if !(self.gap_factor.is_finite() && self.gap_factor >= 1.0) {
+            return err(
+                "gap_factor",
+                format!(
+                    "{} is outside the allowed range: a finite number ≥ 1 (median spacings)",
+                    self.gap_factor
+                ),
+            );
+        }
+        if !matches!(self.delimiter, ',' | ';' | '\t' | '|') {
+            return err(
+                "delimiter",
+                format!(
+                    "{:?} is not an allowed delimiter; write \",\" (the default), \";\", \"\\t\" \
+                     (tab) or \"|\"",
+                    self.delimiter.to_string()
+                ),
+            );
+        }
+        if !matches!(self.decimal, '.' | ',') {
+            return err(
+                "decimal",
+                format!(
+                    "{:?} is not an allowed decimal mark; write \".\" (the default) or \",\"",
+                    self.decimal.to_string()
+                ),
+            );
+        }
+        for kind in DefectKind::ALL {
+            if let Some(p) = configured(&self.defects, kind) {
+                if !kind.allows(p) {
+                    let allowed: Vec<&str> = kind.allowed().iter().map(|p| p.name()).collect();
+                    return err(
+                        &format!("defects.{}", kind.name()),
+                        format!(
+                            "`{}` does not apply to {}; allowed: {}",
+                            p.name(),
+                            kind.plural(),
+                            allowed.join(", ")
+                        ),
+                    );
+                }
+            }
+        }
+        Ok(())
+    }
+}
+
+/// The kinds of defect a profile can have.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum DefectKind {
     /// A field that is not a number (or a time that is neither a number of seconds nor
-    /// an ISO 8601 date-time, or of the other kind than the file's), or non-empty
-    /// fields beyond the header's columns (columns shifted, e.g. by a decimal comma).
+    /// an ISO 8601 date-time, or of the other kind than the file's, or out of range), or
+    /// non-empty fields beyond the header's columns (columns shifted, e.g. by a decimal
+    /// comma). Default policy: stop.
     Malformed,
-    /// A number that is NaN or infinite.
+    /// A number that is NaN or infinite. Default policy: stop.
     NotFinite,
-    /// A row with fewer fields than the required columns need (e.g. a truncated line).
+    /// A row with fewer fields than the required columns need. Default policy: stop.
     ShortRow,
-    /// A row whose time equals the previous accepted row's time.
+    /// The last line of the file, without a line end, cut short or unreadable (the file
+    /// was copied while being written). Default policy: skip, with a warning.
+    TruncatedLastLine,
+    /// A row repeating the previous row's time and values exactly. Default: skip.
     Duplicate,
-    /// A row whose time is earlier than the previous accepted row's time.
+    /// A row repeating the previous row's time with other values. Default: stop.
+    ConflictingDuplicate,
+    /// A row whose time is earlier than the previous row's. Default: stop.
     Backwards,
-    /// A spacing longer than `gap_factor` median spacings: a warning, not a row defect.
+    /// A spacing longer than `gap_factor` median spacings. Default: hold.
     Gap,
 }
 
 impl DefectKind {
+    /// Number of kinds.
+    pub const COUNT: usize = 8;
+
     /// All kinds, in report order.
-    pub const ALL: [DefectKind; 6] = [
+    pub const ALL: [DefectKind; DefectKind::COUNT] = [
         DefectKind::Malformed,
         DefectKind::NotFinite,
         DefectKind::ShortRow,
+        DefectKind::TruncatedLastLine,
         DefectKind::Duplicate,
+        DefectKind::ConflictingDuplicate,
         DefectKind::Backwards,
         DefectKind::Gap,
     ];
 
-    /// True for kinds that are warnings (the row is used), false for row defects.
+    /// Position in [`DefectKind::ALL`].
+    #[inline]
+    pub fn index(self) -> usize {
+        self as usize
+    }
+
+    /// True for gaps: a warning about the time line, not about a row.
     pub fn is_warning(self) -> bool {
         self == DefectKind::Gap
     }
 
-    /// The snake_case name used in reports.
+    /// The snake_case name used in reports and as the scenario key under `[load.defects]`.
     pub fn name(self) -> &'static str {
         match self {
             DefectKind::Malformed => "malformed",
             DefectKind::NotFinite => "not_finite",
             DefectKind::ShortRow => "short_row",
+            DefectKind::TruncatedLastLine => "truncated_last_line",
             DefectKind::Duplicate => "duplicate",
+            DefectKind::ConflictingDuplicate => "conflicting_duplicate",
             DefectKind::Backwards => "backwards",
             DefectKind::Gap => "gap",
         }
+    }
+
+    fn plural(self) -> &'static str {
+        match self {
+            DefectKind::Malformed => "malformed rows",
+            DefectKind::NotFinite => "rows with NaN or infinite numbers",
+            DefectKind::ShortRow => "short rows",
+            DefectKind::TruncatedLastLine => "a truncated last line",
+            DefectKind::Duplicate => "duplicate rows",
+            DefectKind::ConflictingDuplicate => "conflicting duplicate rows",
+            DefectKind::Backwards => "rows with backwards times",
+            DefectKind::Gap => "gaps",
+        }
+    }
+
+    /// The policy used when neither `on_defect` nor the kind's own key is given: stop on
+    /// malformed numbers, NaN, short rows, conflicting duplicates and backwards times;
+    /// skip an exact duplicate and a truncated last line (with a warning); hold across
+    /// gaps.
+    pub fn default_policy(self) -> DefectPolicy {
+        match self {
+            DefectKind::TruncatedLastLine | DefectKind::Duplicate => DefectPolicy::Skip,
+            DefectKind::Gap => DefectPolicy::Hold,
+            _ => DefectPolicy::Stop,
+        }
+    }
+
+    /// The policies that apply to this kind. Rows with a readable time may be held or
+    /// interpolated; rows that repeat or precede the previous time have no time of their
+    /// own and may only stop the run or be skipped; a gap cannot be skipped.
+    pub fn allowed(self) -> &'static [DefectPolicy] {
+        use DefectPolicy::*;
+        match self {
+            DefectKind::Malformed | DefectKind::NotFinite | DefectKind::ShortRow => {
+                &[Stop, Skip, Hold, Interpolate]
+            }
+            DefectKind::Gap => &[Stop, Hold, Interpolate],
+            _ => &[Stop, Skip],
+        }
+    }
+
+    /// True when `policy` applies to this kind.
+    pub fn allows(self, policy: DefectPolicy) -> bool {
+        self.allowed().contains(&policy)
     }
 }
 
 impl fmt::Display for DefectKind {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         f.write_str(self.name())
+    }
+}
+
+/// What was done with one defect.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum DefectAction {
+    /// The row was left out (the row before it holds in its place).
+    Skipped,
+    /// The row stays in the profile with the last good row's values; for a gap, the row
+    /// before the gap holds across it.
+    Held,
+    /// The row stays in the profile with values interpolated between the good rows on
+    /// either side; for a gap, the load is interpolated across it.
+    Interpolated,
+}
+
+impl DefectAction {
+    /// Lower-case name for reports.
+    pub fn name(self) -> &'static str {
+        match self {
+            DefectAction::Skipped => "skipped",
+            DefectAction::Held => "held",
+            DefectAction::Interpolated => "interpolated",
+        }
     }
 }
 
@@ -146,6 +379,8 @@ pub struct Defect {
     pub line: u64,
     /// What kind of defect.
     pub kind: DefectKind,
+    /// What was done with it.
+    pub action: DefectAction,
     /// What is wrong, in plain words, without the line number (the `Display` form adds
     /// it: `line 7: q_b_kvar is "1,5", not a number`).
     pub message: String,
@@ -166,11 +401,15 @@ pub struct DefectCounts {
     pub not_finite: u64,
     /// Rows with missing fields.
     pub short_row: u64,
-    /// Rows repeating the previous time.
+    /// A truncated last line (0 or 1).
+    pub truncated_last_line: u64,
+    /// Rows repeating the previous row exactly.
     pub duplicate: u64,
+    /// Rows repeating the previous time with other values.
+    pub conflicting_duplicate: u64,
     /// Rows earlier than the previous row.
     pub backwards: u64,
-    /// Gaps (warnings).
+    /// Gaps.
     pub gap: u64,
 }
 
@@ -181,7 +420,9 @@ impl DefectCounts {
             DefectKind::Malformed => self.malformed,
             DefectKind::NotFinite => self.not_finite,
             DefectKind::ShortRow => self.short_row,
+            DefectKind::TruncatedLastLine => self.truncated_last_line,
             DefectKind::Duplicate => self.duplicate,
+            DefectKind::ConflictingDuplicate => self.conflicting_duplicate,
             DefectKind::Backwards => self.backwards,
             DefectKind::Gap => self.gap,
         }
@@ -192,21 +433,58 @@ impl DefectCounts {
             DefectKind::Malformed => &mut self.malformed,
             DefectKind::NotFinite => &mut self.not_finite,
             DefectKind::ShortRow => &mut self.short_row,
+            DefectKind::TruncatedLastLine => &mut self.truncated_last_line,
             DefectKind::Duplicate => &mut self.duplicate,
+            DefectKind::ConflictingDuplicate => &mut self.conflicting_duplicate,
             DefectKind::Backwards => &mut self.backwards,
             DefectKind::Gap => &mut self.gap,
         };
         *c += 1;
     }
 
-    /// Number of row defects (every kind except gaps): the rows left out under `Skip`.
+    /// Number of defective rows (every kind except gaps), whether left out, held or
+    /// interpolated.
     pub fn rows(&self) -> u64 {
-        self.malformed + self.not_finite + self.short_row + self.duplicate + self.backwards
+        self.total() - self.gap
     }
 
     /// All defects, gaps included.
     pub fn total(&self) -> u64 {
-        self.rows() + self.gap
+        DefectKind::ALL.iter().map(|&k| self.get(k)).sum()
+    }
+}
+
+/// What the second pass needs to read the source again exactly as the scan did.
+#[derive(Debug, Clone)]
+struct Plan {
+    source: CsvSource,
+    stamp: Option<FileStamp>,
+    columns: Columns,
+    time_kind: TimeKind,
+    kind_line: u64,
+    policies: [DefectPolicy; DefectKind::COUNT],
+    delimiter: char,
+    decimal: char,
+    rows_used: u64,
+    /// Spacings longer than this are gaps, µs.
+    gap_threshold_us: f64,
+}
+
+impl Plan {
+    fn name(&self) -> &Path {
+        self.source.name()
+    }
+
+    fn rules(&self, time_only: bool) -> Rules {
+        Rules::new(
+            self.columns,
+            Some(self.time_kind),
+            self.kind_line,
+            self.policies,
+            self.decimal,
+            self.delimiter,
+            time_only,
+        )
     }
 }
 
@@ -215,7 +493,7 @@ impl DefectCounts {
 /// for ISO 8601 timestamps; see `time_kind`).
 #[derive(Debug, Clone)]
 pub struct CsvScan {
-    /// The profile file.
+    /// The profile file (or the name given to an in-memory source).
     pub path: PathBuf,
     /// The options it was scanned with (pass 2 uses the same).
     pub options: CsvOptions,
@@ -223,9 +501,13 @@ pub struct CsvScan {
     pub time_kind: TimeKind,
     /// Data rows read (not counting the header or blank lines): `rows_used + rows_skipped`.
     pub rows_read: u64,
-    /// Rows that make up the profile.
+    /// Rows that make up the profile, held and interpolated ones included.
     pub rows_used: u64,
-    /// Rows left out as defective (always 0 under `DefectPolicy::Stop`).
+    /// Defective rows kept in the profile with the last good row's values.
+    pub rows_held: u64,
+    /// Defective rows kept in the profile with interpolated values.
+    pub rows_interpolated: u64,
+    /// Rows left out as defective (always 0 when every kind's policy is `stop`).
     pub rows_skipped: u64,
     /// Rows whose fields are all empty or white space (e.g. `,,,,,,` from a
     /// spreadsheet), ignored but counted here. Empty lines are skipped and not counted.
@@ -238,7 +520,8 @@ pub struct CsvScan {
     pub t_first_s: f64,
     /// Time of the last used row, s.
     pub t_last_s: f64,
-    /// Median spacing between consecutive used rows, s (resolution 1 µs).
+    /// Median spacing between consecutive used rows, s (resolution 1 µs, coarser only
+    /// for files with more than 65 536 distinct spacings).
     pub median_spacing_s: f64,
     /// Shortest spacing between consecutive used rows, s (resolution 1 µs).
     pub min_spacing_s: f64,
@@ -255,12 +538,9 @@ pub struct CsvScan {
     /// Time without data across gaps, s: for each gap, its spacing minus the median
     /// spacing (the part beyond the normal one-spacing hold of the previous row).
     pub gap_time_s: f64,
-    /// Column index of each of [`COLUMNS`] in the file, and the header's width.
-    columns: Columns,
-    /// Line of the row that decided the time kind (for messages).
-    kind_line: u64,
-    /// Size and modification time when scanned, to notice a file changed under us.
-    stamp: FileStamp,
+    /// What was wrong and what was done, per kind, for the reports.
+    pub summary: DefectSummary,
+    plan: Plan,
 }
 
 impl CsvScan {
@@ -269,23 +549,35 @@ impl CsvScan {
         (self.defects.len() as u64) < self.defect_counts.total()
     }
 
-    /// Pass 2: reopens the file and returns a source that yields samples on the
-    /// simulation grid, skipping exactly the rows this scan skipped.
+    /// Where each required column was found in the header.
+    pub fn columns(&self) -> &[ColumnMatch] {
+        &self.summary.columns
+    }
+
+    /// The source the profile is read from.
+    pub fn source(&self) -> &CsvSource {
+        &self.plan.source
+    }
+
+    /// Pass 2: reads the source again and returns a load source that yields samples on
+    /// the simulation grid, using exactly the rows this scan used.
     pub fn stream(&self) -> Result<CsvStream, ProfileError> {
-        let mut rows = AcceptedRows::open(self, false)?;
+        let mut rows = AcceptedRows::open(&self.plan, false, true)?;
         let mut cur = LoadSample::default();
         let cur_t = match rows.next(&mut cur)? {
             Some(t) => t,
-            None => return Err(changed_error(&self.path)),
+            None => return Err(changed_error(self.plan.name())),
         };
         let mut next = LoadSample::default();
         let next_t = rows.next(&mut next)?.unwrap_or(f64::INFINITY);
-        Ok(CsvStream {
+        let mut st = CsvStream {
             rows,
             cur,
             cur_t,
             next,
             next_t,
+            gap_us: self.gap_interpolation_us(),
+            cur_gap: false,
             t_first_s: self.t_first_s,
             end_s: self.end_s,
             median_spacing_s: self.median_spacing_s,
@@ -293,13 +585,15 @@ impl CsvScan {
             last_line: self.last_line,
             first_line: self.first_line,
             time_kind: self.time_kind,
-        })
+        };
+        st.update_gap();
+        Ok(st)
     }
 
     /// Reads the whole profile into memory (the used rows only), for many runs over one
     /// profile. Memory: 56 bytes per used row.
     pub fn load(&self) -> Result<MemoryProfile, ProfileError> {
-        let mut rows = AcceptedRows::open(self, false)?;
+        let mut rows = AcceptedRows::open(&self.plan, false, true)?;
         let n = usize::try_from(self.rows_used).unwrap_or(usize::MAX);
         let mut times = Vec::with_capacity(n);
         let mut samples = Vec::with_capacity(n);
@@ -313,37 +607,78 @@ impl CsvScan {
             samples,
             end_s: self.end_s,
             time_kind: self.time_kind,
+            gap_interpolation_us: self.gap_interpolation_us(),
             source: self.path.clone(),
         })
     }
+
+    /// Spacings longer than this (µs) are interpolated across, under the gap policy
+    /// `interpolate`.
+    fn gap_interpolation_us(&self) -> Option<f64> {
+        (self.plan.policies[DefectKind::Gap.index()] == DefectPolicy::Interpolate)
+            .then_some(self.plan.gap_threshold_us)
+    }
 }
 
-/// Pass 1: reads the whole file, validates every row and collects the profile's
-/// statistics. Memory stays flat: spacings are kept as a histogram at 1 µs resolution,
-/// bounded by the number of distinct spacings.
-///
-/// Errors: `Io` if the file cannot be read; `File` for a missing column, no data rows,
-/// fewer than two usable rows, or invalid options; `Row` for the first row defect under
-/// `DefectPolicy::Stop`. Gaps never stop the scan.
+/// Pass 1 over a profile file: see [`scan_source`].
 pub fn scan(path: &Path, opts: &CsvOptions) -> Result<CsvScan, ProfileError> {
-    if !(opts.gap_factor.is_finite() && opts.gap_factor >= 1.0) {
+    scan_source(&CsvSource::File(path.to_path_buf()), opts)
+}
+
+/// Pass 1 over CSV text in memory; `name` stands for the file in messages.
+pub fn scan_bytes(
+    name: impl Into<PathBuf>,
+    data: impl Into<Arc<[u8]>>,
+    opts: &CsvOptions,
+) -> Result<CsvScan, ProfileError> {
+    scan_source(&CsvSource::bytes(name, data), opts)
+}
+
+/// Counters of the first pass.
+#[derive(Debug, Default)]
+struct Counts {
+    used: u64,
+    good: u64,
+    held: u64,
+    interpolated: u64,
+    skipped: u64,
+    blank: u64,
+}
+
+/// Pass 1: reads the whole source, validates every row, applies the policies and
+/// collects the profile's statistics. Memory stays flat: spacings are kept as a
+/// histogram of bounded size, defects up to [`MAX_DEFECTS_KEPT`].
+///
+/// Errors: `Io` if the source cannot be read; `File` for invalid options, a missing or
+/// contradicting column, no data rows, fewer than two usable rows or no good row; `Row`
+/// for the first defect whose kind's policy is `stop` (gaps included), and for a record
+/// that is too long or too wide.
+pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, ProfileError> {
+    let name = source.name().to_path_buf();
+    if let Err(e) = opts.check() {
         return Err(file_error(
-            path,
-            format!(
-                "the CSV option gap_factor must be a finite number ≥ 1 (median spacings), not {}",
-                opts.gap_factor
-            ),
+            &name,
+            format!("the CSV option {}: {}", e.key, e.message),
         ));
     }
-    let stamp = FileStamp::of(path)?;
-    let mut rdr = RecordReader::open(path)?;
-    let columns = read_header(&mut rdr, path)?;
-    let mut rules = Rules::new(columns, None, 0, false);
+    let policies = opts.policies();
+    let stamp = FileStamp::of(source)?;
+    let mut rdr =
+        RecordReader::open(source, opts.delimiter as u8).map_err(|e| read_error(&name, e))?;
+    let (columns, matches) = read_header(&mut rdr, &name, opts)?;
+    let header_line = rdr.record_line;
+    let mut rules = Rules::new(
+        columns,
+        None,
+        0,
+        policies,
+        opts.decimal,
+        opts.delimiter,
+        false,
+    );
     let mut sample = LoadSample::default();
 
-    let mut rows_used: u64 = 0;
-    let mut rows_skipped: u64 = 0;
-    let mut blank_rows: u64 = 0;
+    let mut n = Counts::default();
     let mut first_line = 0;
     let mut last_line = 0;
     let mut t_first = 0.0;
@@ -351,64 +686,119 @@ pub fn scan(path: &Path, opts: &CsvOptions) -> Result<CsvScan, ProfileError> {
     let mut spacings = Spacings::default();
     let mut row_defects: Vec<Defect> = Vec::new();
     let mut counts = DefectCounts::default();
+    let mut tally = Tally::default();
 
-    while rdr.read().map_err(|e| io_error(path, e))? {
-        match rules.check(&rdr, &mut sample) {
-            Verdict::Accept(t) => {
-                if rows_used == 0 {
-                    t_first = t;
-                    first_line = rdr.record_line;
-                } else {
-                    spacings.add(spacing_key(t - t_last));
-                }
-                rows_used += 1;
-                t_last = t;
-                last_line = rdr.record_line;
+    while rdr.read().map_err(|e| read_error(&name, e))? {
+        let verdict = rules.check(&rdr, &mut sample);
+        let line = rdr.record_line;
+        let (t, fill, r) = match rules.decide(verdict) {
+            Action::Blank => {
+                n.blank += 1;
+                continue;
             }
-            Verdict::Blank => blank_rows += 1,
-            Verdict::Reject(p) => {
-                if opts.on_defect == DefectPolicy::Stop {
-                    return Err(ProfileError::Row {
-                        file: path.to_path_buf(),
-                        line: rdr.record_line,
-                        message: rules.describe(&rdr, &p),
-                    });
+            Action::Stop(r) => {
+                return Err(ProfileError::Row {
+                    file: name,
+                    line,
+                    message: rules.describe(&rdr, &r),
+                });
+            }
+            Action::Skip(r) => {
+                let kind = r.kind();
+                n.skipped += 1;
+                record_defect(
+                    &mut counts,
+                    &mut tally,
+                    &mut row_defects,
+                    &rules,
+                    &rdr,
+                    &r,
+                    DefectAction::Skipped,
+                );
+                match r.fill_t {
+                    Some(t) => tally.timed(t, Some(kind)),
+                    None => tally.untimed(kind),
                 }
-                rows_skipped += 1;
-                counts.add(p.kind());
-                if row_defects.len() < MAX_DEFECTS_KEPT {
-                    row_defects.push(Defect {
-                        line: rdr.record_line,
-                        kind: p.kind(),
-                        message: rules.describe(&rdr, &p),
-                    });
-                }
+                continue;
+            }
+            Action::Good(t) => (t, None, None),
+            Action::Fill(t, f, r) => (t, Some(f), Some(r)),
+        };
+        if n.used == 0 {
+            t_first = t;
+            first_line = line;
+        } else {
+            spacings.add(spacing_key(t - t_last));
+        }
+        n.used += 1;
+        t_last = t;
+        last_line = line;
+        match (fill, r) {
+            (Some(f), Some(r)) => {
+                let action = if f == Fill::Hold {
+                    n.held += 1;
+                    DefectAction::Held
+                } else {
+                    n.interpolated += 1;
+                    DefectAction::Interpolated
+                };
+                record_defect(
+                    &mut counts,
+                    &mut tally,
+                    &mut row_defects,
+                    &rules,
+                    &rdr,
+                    &r,
+                    action,
+                );
+                tally.timed(t, Some(r.kind()));
+                rules.commit(t, line, None);
+            }
+            _ => {
+                n.good += 1;
+                tally.timed(t, None);
+                rules.commit(t, line, Some(&sample));
             }
         }
     }
     spacings.flush();
 
-    let rows_read = rows_used + rows_skipped;
-    if rows_used == 0 {
+    let rows_read = n.used + n.skipped;
+    let first_defect = || {
+        row_defects
+            .first()
+            .map(|d| format!(" (the first: {d})"))
+            .unwrap_or_default()
+    };
+    if n.used == 0 {
         let message = if rows_read == 0 {
             format!(
-                "the file has a header but no data rows; add one row per sample with {}",
+                "the file has a header (line {}) but no data rows; add one row per sample \
+                 with {}",
+                header_line,
                 COLUMNS.join(", ")
             )
         } else {
-            let first = row_defects
-                .first()
-                .map(|d| format!(" (the first: {d})"))
-                .unwrap_or_default();
             format!(
-                "none of the {rows_read} data rows is usable; all were skipped as defective{first}"
+                "none of the {rows_read} data rows is usable; all were skipped as defective{}",
+                first_defect()
             )
         };
-        return Err(file_error(path, message));
+        return Err(file_error(&name, message));
     }
-    if rows_used == 1 {
+    if n.good == 0 {
         return Err(file_error(
-            path,
+            &name,
+            format!(
+                "none of the {rows_read} data rows has a full set of good values, so there is \
+                 nothing to hold or interpolate from{}",
+                first_defect()
+            ),
+        ));
+    }
+    if n.used == 1 {
+        return Err(file_error(
+            &name,
             format!(
                 "only one usable data row (line {first_line}); at least two rows are needed, \
                  because the last row holds for the median spacing between rows"
@@ -416,88 +806,181 @@ pub fn scan(path: &Path, opts: &CsvOptions) -> Result<CsvScan, ProfileError> {
         ));
     }
     let time_kind = rules.kind.unwrap_or(TimeKind::Elapsed);
-    let median_us = spacings.median_us(rows_used - 1);
+    let median_us = spacings.median_us();
     if median_us <= 0.0 {
         return Err(file_error(
-            path,
-            "the median spacing between rows is below 1 µs; the time column must be in \
-             seconds (elapsed) or ISO 8601 date-times"
-                .to_string(),
+            &name,
+            format!(
+                "the median spacing between rows (lines {first_line} to {last_line}) is below \
+                 1 µs; the time column must be in seconds (elapsed) or ISO 8601 date-times"
+            ),
         ));
     }
+    let median_s = median_us / 1e6;
     let gap_threshold_us = opts.gap_factor * median_us;
-    let mut gap_time_us = 0.0;
-    for (&key, &n) in spacings.hist.range(..) {
-        if key as f64 > gap_threshold_us {
-            gap_time_us += (key as f64 - median_us) * n as f64;
-        }
-    }
-
-    let mut partial = CsvScan {
-        path: path.to_path_buf(),
-        options: *opts,
-        time_kind,
-        rows_read,
-        rows_used,
-        rows_skipped,
-        blank_rows,
-        first_line,
-        last_line,
-        t_first_s: t_first,
-        t_last_s: t_last,
-        median_spacing_s: median_us / 1e6,
-        min_spacing_s: spacings.min_us() / 1e6,
-        max_spacing_s: spacings.max_us() / 1e6,
-        end_s: t_last + median_us / 1e6,
-        defects: Vec::new(),
-        defect_counts: counts,
-        gap_time_s: gap_time_us / 1e6,
-        columns,
-        kind_line: rules.kind_line,
+    let plan = Plan {
+        source: source.clone(),
         stamp,
+        columns,
+        time_kind,
+        kind_line: rules.kind_line,
+        policies,
+        delimiter: opts.delimiter,
+        decimal: opts.decimal,
+        rows_used: n.used,
+        gap_threshold_us,
     };
 
-    // Gaps need the median, so their line numbers come from a second pass, run only
-    // when the histogram shows a spacing above the threshold. With no skipped rows every
-    // row is used, and that pass need only read the time column.
+    // Gaps need the median, so they come from another pass, run only when some spacing
+    // is above the threshold. When every row was good, that pass reads only the times.
     let mut gaps = Vec::new();
-    if spacings.max_us() > gap_threshold_us {
-        let time_only = rows_skipped == 0;
-        let mut rows = AcceptedRows::open(&partial, time_only)?;
+    let mut gap_time_us = 0.0;
+    if spacings.max_us as f64 > gap_threshold_us {
+        let time_only = n.good == n.used && n.skipped == 0;
+        let mut rows = AcceptedRows::open(&plan, time_only, false)?;
         let mut s = LoadSample::default();
         let mut prev: Option<(f64, u64)> = None;
+        let gap_policy = policies[DefectKind::Gap.index()];
         while let Some(t) = rows.next(&mut s)? {
             let line = rows.row_line();
             if let Some((tp, lp)) = prev {
                 let key = spacing_key(t - tp);
                 if key as f64 > gap_threshold_us {
-                    partial.defect_counts.add(DefectKind::Gap);
-                    if gaps.len() < MAX_DEFECTS_KEPT {
-                        gaps.push(Defect {
+                    let dst = rules::dst_forward(tp, t, median_s, rows.naive_time());
+                    let mut message = gap_message(
+                        time_kind,
+                        tp,
+                        lp,
+                        t,
+                        key as f64 / 1e6,
+                        opts.gap_factor,
+                        median_s,
+                        gap_policy,
+                    );
+                    if dst {
+                        message.push_str(
+                            "; this looks like a daylight-saving change (clocks set forward one \
+                             hour with times in naive local time), so the profile's time line \
+                             has an hour that did not happen: give the times with their UTC \
+                             offset (e.g. +01:00)",
+                        );
+                        tally.dst_line(line);
+                    }
+                    if gap_policy == DefectPolicy::Stop {
+                        message.push_str(
+                            "; set gap = \"hold\" or \"interpolate\" under [load.defects] to \
+                             run across it",
+                        );
+                        return Err(ProfileError::Row {
+                            file: name,
                             line,
-                            kind: DefectKind::Gap,
-                            message: gap_message(
-                                time_kind,
-                                tp,
-                                lp,
-                                t,
-                                key as f64 / 1e6,
-                                opts.gap_factor,
-                                median_us / 1e6,
-                            ),
+                            message,
                         });
+                    }
+                    let action = if gap_policy == DefectPolicy::Interpolate {
+                        DefectAction::Interpolated
+                    } else {
+                        DefectAction::Held
+                    };
+                    counts.add(DefectKind::Gap);
+                    let extra_us = key as f64 - median_us;
+                    gap_time_us += extra_us;
+                    tally.gap_seconds(extra_us / 1e6);
+                    let d = Defect {
+                        line,
+                        kind: DefectKind::Gap,
+                        action,
+                        message,
+                    };
+                    tally.count(DefectKind::Gap, line, action, || d.to_string());
+                    if gaps.len() < MAX_DEFECTS_KEPT {
+                        gaps.push(d);
                     }
                 }
             }
             prev = Some((t, line));
         }
     }
-    partial.defects = merge_by_line(row_defects, gaps);
-    Ok(partial)
+    let defects = merge_by_line(row_defects, gaps);
+    let end_s = t_last + median_s;
+    let list_truncated = (defects.len() as u64) < counts.total();
+    let summary = tally.finish(
+        median_s,
+        end_s - t_first,
+        &policies,
+        opts.delimiter,
+        opts.decimal,
+        matches,
+        [
+            rows_read,
+            n.used,
+            n.held,
+            n.interpolated,
+            n.skipped,
+            n.blank,
+        ],
+        list_truncated,
+    );
+    Ok(CsvScan {
+        path: name,
+        options: *opts,
+        time_kind,
+        rows_read,
+        rows_used: n.used,
+        rows_held: n.held,
+        rows_interpolated: n.interpolated,
+        rows_skipped: n.skipped,
+        blank_rows: n.blank,
+        first_line,
+        last_line,
+        t_first_s: t_first,
+        t_last_s: t_last,
+        median_spacing_s: median_s,
+        min_spacing_s: spacings.min_us as f64 / 1e6,
+        max_spacing_s: spacings.max_us as f64 / 1e6,
+        end_s,
+        defects,
+        defect_counts: counts,
+        gap_time_s: gap_time_us / 1e6,
+        summary,
+        plan,
+    })
+}
+
+/// Counts a row defect, notes it in the tally and keeps it in full if there is room.
+fn record_defect(
+    counts: &mut DefectCounts,
+    tally: &mut Tally,
+    kept: &mut Vec<Defect>,
+    rules: &Rules,
+    rdr: &RecordReader,
+    r: &Rejection,
+    action: DefectAction,
+) {
+    let kind = r.kind();
+    let line = rdr.record_line;
+    counts.add(kind);
+    if r.dst() == rules::Dst::Starts {
+        tally.dst_line(line);
+    }
+    let mut message = None;
+    tally.count(kind, line, action, || {
+        let m = rules.describe(rdr, r);
+        message = Some(m.clone());
+        format!("line {line}: {m}")
+    });
+    if kept.len() < MAX_DEFECTS_KEPT {
+        kept.push(Defect {
+            line,
+            kind,
+            action,
+            message: message.unwrap_or_else(|| rules.describe(rdr, r)),
+        });
+    }
 }
 
 /// Pass 2 over a scanned CSV: yields samples on the simulation grid by sample-and-hold,
-/// reading the file forward once. Holds two rows at a time; memory is flat.
+/// reading the source forward once. Holds two rows at a time; memory is flat.
 #[derive(Debug)]
 pub struct CsvStream {
     rows: AcceptedRows,
@@ -507,6 +990,10 @@ pub struct CsvStream {
     /// The row after it, read ahead (time +∞ after the last row).
     next: LoadSample,
     next_t: f64,
+    /// Interpolate across spacings longer than this, µs (`None`: hold across gaps).
+    gap_us: Option<f64>,
+    /// The spacing from `cur` to `next` is such a gap.
+    cur_gap: bool,
     t_first_s: f64,
     end_s: f64,
     median_spacing_s: f64,
@@ -526,6 +1013,38 @@ impl CsvStream {
     pub fn t_first_s(&self) -> f64 {
         self.t_first_s
     }
+
+    #[inline]
+    fn update_gap(&mut self) {
+        self.cur_gap = match self.gap_us {
+            Some(thr) => self.next_t.is_finite() && is_gap(self.next_t - self.cur_t, thr),
+            None => false,
+        };
+    }
+}
+
+/// True when a spacing of `dt_s` is longer than `threshold_us`, compared at 1 µs as the
+/// scan compares them.
+#[inline]
+fn is_gap(dt_s: f64, threshold_us: f64) -> bool {
+    spacing_key(dt_s) as f64 > threshold_us
+}
+
+/// Linear interpolation between two samples at `t` (clamped to [ta, tb]).
+#[inline]
+fn lerp(a: &LoadSample, ta: f64, b: &LoadSample, tb: f64, t: f64) -> LoadSample {
+    let span = tb - ta;
+    let f = if span > 0.0 {
+        ((t - ta) / span).clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
+    let mut out = *a;
+    for i in 0..3 {
+        out.p_kw[i] += (b.p_kw[i] - a.p_kw[i]) * f;
+        out.q_kvar[i] += (b.q_kvar[i] - a.q_kvar[i]) * f;
+    }
+    out
 }
 
 impl LoadSource for CsvStream {
@@ -536,22 +1055,30 @@ impl LoadSource for CsvStream {
         }
         if tq < self.cur_t {
             return Err(ProfileError::Coverage {
-                file: self.rows.path.clone(),
+                file: self.rows.plan.name().to_path_buf(),
                 message: format!(
                     "the run asks for the load at {}, but the CSV stream has already moved \
-                     past it to {}; a stream only moves forward (load the profile into \
-                     memory to go back)",
+                     past it to {} (line {}); a stream only moves forward (load the profile \
+                     into memory to go back)",
                     fmt_time(self.time_kind, t_s),
-                    fmt_time(self.time_kind, self.cur_t)
+                    fmt_time(self.time_kind, self.cur_t),
+                    self.rows.row_line()
                 ),
             });
         }
-        while self.next_t <= tq {
-            self.cur = self.next;
-            self.cur_t = self.next_t;
-            self.next_t = self.rows.next(&mut self.next)?.unwrap_or(f64::INFINITY);
+        if self.next_t <= tq {
+            while self.next_t <= tq {
+                self.cur = self.next;
+                self.cur_t = self.next_t;
+                self.next_t = self.rows.next(&mut self.next)?.unwrap_or(f64::INFINITY);
+            }
+            self.update_gap();
         }
-        *out = self.cur;
+        *out = if self.cur_gap {
+            lerp(&self.cur, self.cur_t, &self.next, self.next_t, t_s)
+        } else {
+            self.cur
+        };
         Ok(())
     }
 }
@@ -580,7 +1107,7 @@ impl CsvStream {
             )
         };
         ProfileError::Coverage {
-            file: self.rows.path.clone(),
+            file: self.rows.plan.name().to_path_buf(),
             message,
         }
     }
@@ -598,6 +1125,9 @@ pub struct MemoryProfile {
     pub end_s: f64,
     /// What the times are.
     pub time_kind: TimeKind,
+    /// Interpolate linearly across spacings longer than this, µs (spacings compared at
+    /// 1 µs resolution). `None` (the default): every sample holds until the next.
+    pub gap_interpolation_us: Option<f64>,
     /// Where the profile came from, for error messages.
     pub source: PathBuf,
 }
@@ -652,6 +1182,7 @@ impl MemoryProfile {
             samples,
             end_s,
             time_kind: TimeKind::Elapsed,
+            gap_interpolation_us: None,
             source: PathBuf::from("(generated profile)"),
         })
     }
@@ -743,554 +1274,87 @@ impl LoadSource for MemoryCursor<'_> {
             }
         }
         self.idx = idx;
-        match p.samples.get(idx) {
-            Some(s) => {
-                *out = *s;
-                Ok(())
-            }
-            None => Err(file_error(
+        let (Some(s), Some(&ta)) = (p.samples.get(idx), times.get(idx)) else {
+            return Err(file_error(
                 &p.source,
                 format!(
                     "the profile has {} times but only {} samples",
                     n,
                     p.samples.len()
                 ),
-            )),
-        }
-    }
-}
-
-// ---------------------------------------------------------------------------------------
-// Record reading.
-
-/// Reads CSV records with `csv_core`, into reused buffers (no allocation per record once
-/// the buffers have grown to the longest record), counting physical lines by line feeds.
-/// (The `csv` crate's `Position::line` is not used: it is off after blank lines and in
-/// CRLF files.)
-struct RecordReader {
-    src: BufReader<File>,
-    core: csv_core::Reader,
-    /// Unescaped field bytes of the current record, contiguous.
-    out: Vec<u8>,
-    /// End offset in `out` of each field of the current record.
-    ends: Vec<usize>,
-    /// Number of fields in the current record.
-    len: usize,
-    /// Line number of the next unread byte.
-    line: u64,
-    /// Line on which the current record starts.
-    record_line: u64,
-}
-
-impl fmt::Debug for RecordReader {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.debug_struct("RecordReader")
-            .field("line", &self.line)
-            .field("record_line", &self.record_line)
-            .finish_non_exhaustive()
-    }
-}
-
-#[inline]
-fn count_lf(bytes: &[u8]) -> u64 {
-    bytes.iter().filter(|&&b| b == b'\n').count() as u64
-}
-
-impl RecordReader {
-    fn open(path: &Path) -> Result<Self, ProfileError> {
-        let file = File::open(path).map_err(|e| io_error(path, e))?;
-        Ok(RecordReader {
-            src: BufReader::with_capacity(READ_BUFFER_BYTES, file),
-            core: csv_core::Reader::new(),
-            out: vec![0; 1024],
-            ends: vec![0; 32],
-            len: 0,
-            line: 1,
-            record_line: 1,
-        })
-    }
-
-    /// Reads the next record; false at the end of the file.
-    fn read(&mut self) -> std::io::Result<bool> {
-        // Skip blank lines ourselves, so that the record's first line is known.
-        loop {
-            let buf = self.src.fill_buf()?;
-            if buf.is_empty() {
-                break;
-            }
-            let skip = buf
-                .iter()
-                .position(|&b| b != b'\n' && b != b'\r')
-                .unwrap_or(buf.len());
-            let lf = count_lf(&buf[..skip]);
-            let found = skip < buf.len();
-            self.src.consume(skip);
-            self.line += lf;
-            if found {
-                break;
-            }
-        }
-        self.record_line = self.line;
-        let (mut n_out, mut n_end) = (0, 0);
-        loop {
-            let input = self.src.fill_buf()?;
-            let (res, nin, nout, nend) =
-                self.core
-                    .read_record(input, &mut self.out[n_out..], &mut self.ends[n_end..]);
-            let lf = count_lf(&input[..nin]);
-            self.src.consume(nin);
-            self.line += lf;
-            n_out += nout;
-            n_end += nend;
-            match res {
-                csv_core::ReadRecordResult::InputEmpty => {}
-                csv_core::ReadRecordResult::OutputFull => {
-                    let n = self.out.len().max(1);
-                    self.out.resize(n * 2, 0);
-                }
-                csv_core::ReadRecordResult::OutputEndsFull => {
-                    let n = self.ends.len().max(1);
-                    self.ends.resize(n * 2, 0);
-                }
-                csv_core::ReadRecordResult::Record => {
-                    self.len = n_end;
-                    return Ok(true);
-                }
-                csv_core::ReadRecordResult::End => {
-                    self.len = 0;
-                    return Ok(false);
-                }
-            }
-        }
-    }
-
-    /// Field i of the current record (empty if there is no such field).
-    #[inline]
-    fn field(&self, i: usize) -> &[u8] {
-        if i >= self.len {
-            return &[];
-        }
-        let start = if i == 0 { 0 } else { self.ends[i - 1] };
-        self.out.get(start..self.ends[i]).unwrap_or(&[])
-    }
-
-    /// True when every field of the current record is empty or white space.
-    fn is_blank(&self) -> bool {
-        (0..self.len).all(|i| self.field(i).trim_ascii().is_empty())
-    }
-}
-
-/// Where the required columns are.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-struct Columns {
-    /// Field index of each of [`COLUMNS`].
-    idx: [usize; 7],
-    /// Fields a row needs: the largest index + 1.
-    min_fields: usize,
-    /// Fields in the header.
-    header_fields: usize,
-}
-
-/// Reads the header and finds the required columns.
-fn read_header(rdr: &mut RecordReader, path: &Path) -> Result<Columns, ProfileError> {
-    let required = COLUMNS.join(", ");
-    if !rdr.read().map_err(|e| io_error(path, e))? {
-        return Err(file_error(
-            path,
-            format!("the file is empty; it needs a header row naming the columns {required}"),
-        ));
-    }
-    let mut idx = [usize::MAX; 7];
-    for i in 0..rdr.len {
-        let name = rdr.field(i).trim_ascii();
-        for (c, want) in COLUMNS.iter().enumerate() {
-            if name.eq_ignore_ascii_case(want.as_bytes()) {
-                if idx[c] != usize::MAX {
-                    return Err(file_error(
-                        path,
-                        format!(
-                            "column {want} appears twice in the header (columns {} and {}); \
-                             keep only one",
-                            idx[c] + 1,
-                            i + 1
-                        ),
-                    ));
-                }
-                idx[c] = i;
-            }
-        }
-    }
-    let missing: Vec<&str> = COLUMNS
-        .iter()
-        .zip(idx)
-        .filter(|(_, i)| *i == usize::MAX)
-        .map(|(name, _)| *name)
-        .collect();
-    if !missing.is_empty() {
-        let found: Vec<String> = (0..rdr.len.min(12))
-            .map(|i| lossy(rdr.field(i).trim_ascii()))
-            .collect();
-        let mut found = found.join(", ");
-        if rdr.len > 12 {
-            found.push_str(", ...");
-        }
-        let mut message = format!(
-            "missing column{} {} in the header (line {}); the header must name all of {} \
-             (any order, not case-sensitive; other columns are ignored); found: {}",
-            if missing.len() == 1 { "" } else { "s" },
-            missing.join(", "),
-            rdr.record_line,
-            required,
-            found
-        );
-        let first = rdr.field(0);
-        if rdr.len == 1 && first.contains(&b';') {
-            message.push_str(
-                "; the header seems to use ';' between columns, but the file must be \
-                 comma-separated",
-            );
-        } else if rdr.len == 1 && first.contains(&b'\t') {
-            message.push_str(
-                "; the header seems to use tabs between columns, but the file must be \
-                 comma-separated",
-            );
-        } else if parse_f64(first.trim_ascii()).is_some() {
-            message.push_str("; the first line looks like data: add a header row");
-        }
-        return Err(file_error(path, message));
-    }
-    let min_fields = idx.iter().max().map_or(0, |m| m + 1);
-    Ok(Columns {
-        idx,
-        min_fields,
-        header_fields: rdr.len,
-    })
-}
-
-// ---------------------------------------------------------------------------------------
-// Row rules, shared by both passes so that they accept exactly the same rows.
-
-/// What is wrong with a rejected row; turned into a message only when needed.
-#[derive(Debug, Clone, Copy)]
-enum Problem {
-    /// Fewer fields than the required columns need.
-    Short,
-    /// Non-empty fields beyond the header's columns.
-    Extra,
-    /// Column c (index into [`COLUMNS`], 0 = time) is not a number / not a date-time.
-    Malformed(usize),
-    /// Column c is NaN or infinite.
-    NotFinite(usize),
-    /// The time is of the other kind than the file's.
-    KindMismatch,
-    /// The time equals the previous accepted row's.
-    Duplicate { prev_line: u64 },
-    /// The time is before the previous accepted row's.
-    Backwards { t: f64, prev_t: f64, prev_line: u64 },
-}
-
-impl Problem {
-    fn kind(&self) -> DefectKind {
-        match self {
-            Problem::Short => DefectKind::ShortRow,
-            Problem::Extra | Problem::Malformed(_) | Problem::KindMismatch => DefectKind::Malformed,
-            Problem::NotFinite(_) => DefectKind::NotFinite,
-            Problem::Duplicate { .. } => DefectKind::Duplicate,
-            Problem::Backwards { .. } => DefectKind::Backwards,
-        }
-    }
-}
-
-enum Verdict {
-    /// A blank row: ignored (counted by the scan).
-    Blank,
-    /// A good row at this time; its sample has been written.
-    Accept(f64),
-    /// A defective row.
-    Reject(Problem),
-}
-
-/// The row rules and the state they depend on (time kind, previous accepted row).
-#[derive(Debug, Clone)]
-struct Rules {
-    cols: Columns,
-    kind: Option<TimeKind>,
-    kind_line: u64,
-    prev_t: f64,
-    prev_line: u64,
-    has_prev: bool,
-    /// Check only the time column (valid only when no row was rejected in pass 1).
-    time_only: bool,
-}
-
-#[inline]
-fn parse_f64(bytes: &[u8]) -> Option<f64> {
-    std::str::from_utf8(bytes).ok()?.parse::<f64>().ok()
-}
-
-impl Rules {
-    fn new(cols: Columns, kind: Option<TimeKind>, kind_line: u64, time_only: bool) -> Self {
-        Rules {
-            cols,
-            kind,
-            kind_line,
-            prev_t: 0.0,
-            prev_line: 0,
-            has_prev: false,
-            time_only,
-        }
-    }
-
-    /// Applies the rules to the current record. On `Accept`, `out` holds the sample
-    /// (unless `time_only`); on `Reject`, `out` may be partly overwritten.
-    #[inline]
-    fn check(&mut self, rec: &RecordReader, out: &mut LoadSample) -> Verdict {
-        if rec.len < self.cols.min_fields {
-            return if rec.is_blank() {
-                Verdict::Blank
-            } else {
-                Verdict::Reject(Problem::Short)
-            };
-        }
-        let text = rec.field(self.cols.idx[0]).trim_ascii();
-        let t = match self.parse_time(text, rec.record_line) {
-            Ok(t) => t,
-            Err(p) => {
-                return if rec.is_blank() {
-                    Verdict::Blank
-                } else {
-                    Verdict::Reject(p)
-                };
-            }
+            ));
         };
-        if self.has_prev {
-            let dt = t - self.prev_t;
-            let tol = time_tolerance(t);
-            if dt.abs() <= tol {
-                return Verdict::Reject(Problem::Duplicate {
-                    prev_line: self.prev_line,
-                });
-            }
-            if dt < 0.0 {
-                return Verdict::Reject(Problem::Backwards {
-                    t,
-                    prev_t: self.prev_t,
-                    prev_line: self.prev_line,
-                });
-            }
-        }
-        if !self.time_only {
-            for c in 1..7 {
-                let v = match parse_f64(rec.field(self.cols.idx[c]).trim_ascii()) {
-                    Some(v) if v.is_finite() => v,
-                    Some(_) => return Verdict::Reject(Problem::NotFinite(c)),
-                    None => return Verdict::Reject(Problem::Malformed(c)),
-                };
-                let phase = (c - 1) / 2;
-                if c % 2 == 1 {
-                    out.p_kw[phase] = v;
-                } else {
-                    out.q_kvar[phase] = v;
-                }
-            }
-            if rec.len > self.cols.header_fields
-                && (self.cols.header_fields..rec.len).any(|i| !rec.field(i).trim_ascii().is_empty())
-            {
-                return Verdict::Reject(Problem::Extra);
-            }
-        }
-        self.prev_t = t;
-        self.prev_line = rec.record_line;
-        self.has_prev = true;
-        Verdict::Accept(t)
-    }
-
-    /// Reads a time; the first readable one decides the file's time kind.
-    #[inline]
-    fn parse_time(&mut self, text: &[u8], line: u64) -> Result<f64, Problem> {
-        match self.kind {
-            Some(TimeKind::Elapsed) => match parse_f64(text) {
-                Some(t) if t.is_finite() => Ok(t),
-                Some(_) => Err(Problem::NotFinite(0)),
-                None if iso(text).is_some() => Err(Problem::KindMismatch),
-                None => Err(Problem::Malformed(0)),
-            },
-            Some(TimeKind::Absolute) => match iso(text) {
-                Some(t) => Ok(t),
-                None if parse_f64(text).is_some() => Err(Problem::KindMismatch),
-                None => Err(Problem::Malformed(0)),
-            },
-            None => {
-                if let Some(t) = parse_f64(text) {
-                    self.kind = Some(TimeKind::Elapsed);
-                    self.kind_line = line;
-                    if t.is_finite() {
-                        Ok(t)
-                    } else {
-                        Err(Problem::NotFinite(0))
-                    }
-                } else if let Some(t) = iso(text) {
-                    self.kind = Some(TimeKind::Absolute);
-                    self.kind_line = line;
-                    Ok(t)
-                } else {
-                    Err(Problem::Malformed(0))
-                }
-            }
-        }
-    }
-
-    /// The message for a rejected row (the record must still be the current one).
-    fn describe(&self, rec: &RecordReader, p: &Problem) -> String {
-        let time_text = || quoted(rec.field(self.cols.idx[0]).trim_ascii());
-        match *p {
-            Problem::Short => {
-                let missing: Vec<&str> = COLUMNS
-                    .iter()
-                    .zip(self.cols.idx)
-                    .filter(|(_, i)| *i >= rec.len)
-                    .map(|(n, _)| *n)
-                    .collect();
-                format!(
-                    "the row has {} field{} but the header has {}, so {} {} missing; is the \
-                     line cut short?",
-                    rec.len,
-                    if rec.len == 1 { "" } else { "s" },
-                    self.cols.header_fields,
-                    missing.join(", "),
-                    if missing.len() == 1 { "is" } else { "are" }
-                )
-            }
-            Problem::Extra => format!(
-                "the row has {} fields but the header has {}; a comma inside a value (a \
-                 decimal comma?) shifts the columns; use a point as the decimal separator \
-                 or quote the value",
-                rec.len, self.cols.header_fields
-            ),
-            Problem::Malformed(0) => {
-                let text = rec.field(self.cols.idx[0]).trim_ascii();
-                let what = if text.is_empty() {
-                    "time is empty".to_string()
-                } else {
-                    format!("time is {}", quoted(text))
-                };
-                match self.kind {
-                    Some(TimeKind::Elapsed) => format!("{what}, not a number of seconds"),
-                    Some(TimeKind::Absolute) => {
-                        format!("{what}, not an ISO 8601 date-time such as 2026-03-02T08:00:00")
-                    }
-                    None => format!(
-                        "{what}, neither a number of seconds nor an ISO 8601 date-time such \
-                         as 2026-03-02T08:00:00"
-                    ),
-                }
-            }
-            Problem::Malformed(c) => {
-                let text = rec.field(self.cols.idx[c]).trim_ascii();
-                if text.is_empty() {
-                    format!("{} is empty, not a number", COLUMNS[c])
-                } else {
-                    let mut m = format!("{} is {}, not a number", COLUMNS[c], quoted(text));
-                    let fixed: Vec<u8> = text
-                        .iter()
-                        .map(|&b| if b == b',' { b'.' } else { b })
-                        .collect();
-                    if text.contains(&b',') && parse_f64(&fixed).is_some() {
-                        m.push_str("; use a point as the decimal separator");
-                    }
-                    m
-                }
-            }
-            Problem::NotFinite(c) => {
-                let text = rec.field(self.cols.idx[c]).trim_ascii();
-                format!("{} is {}, not a finite number", COLUMNS[c], quoted(text))
-            }
-            Problem::KindMismatch => match self.kind {
-                Some(TimeKind::Absolute) => format!(
-                    "time is {}, a number of seconds, but this file's times are ISO 8601 \
-                     date-times (set by the first data row, line {}); use one kind throughout",
-                    time_text(),
-                    self.kind_line
-                ),
-                _ => format!(
-                    "time is {}, a date-time, but this file's times are elapsed seconds (set \
-                     by the first data row, line {}); use one kind throughout",
-                    time_text(),
-                    self.kind_line
-                ),
-            },
-            Problem::Duplicate { prev_line } => match self.kind {
-                Some(TimeKind::Absolute) => format!(
-                    "time {} repeats the previous row's time (line {prev_line}); each time \
-                     may appear only once",
-                    time_text()
-                ),
-                _ => format!(
-                    "time {} s repeats the previous row's time (line {prev_line}); each time \
-                     may appear only once",
-                    fmt_secs(self.prev_t)
-                ),
-            },
-            Problem::Backwards {
-                t,
-                prev_t,
-                prev_line,
-            } => match self.kind {
-                Some(TimeKind::Absolute) => format!(
-                    "time {} is {} s earlier than the previous row (line {prev_line}); rows \
-                     must be in time order",
-                    time_text(),
-                    fmt_secs(prev_t - t)
-                ),
-                _ => format!(
-                    "time {} s is earlier than the previous row ({} s, line {prev_line}); \
-                     rows must be in time order",
-                    fmt_secs(t),
-                    fmt_secs(prev_t)
-                ),
-            },
-        }
+        *out = match (
+            p.gap_interpolation_us,
+            times.get(idx + 1),
+            p.samples.get(idx + 1),
+        ) {
+            (Some(thr), Some(&tb), Some(b)) if is_gap(tb - ta, thr) => lerp(s, ta, b, tb, t_s),
+            _ => *s,
+        };
+        Ok(())
     }
 }
 
-#[inline]
-fn iso(text: &[u8]) -> Option<f64> {
-    parse_iso8601(std::str::from_utf8(text).ok()?)
+// ---------------------------------------------------------------------------------------
+// Reading the used rows again.
+
+/// The next good row after the current one, found by looking ahead.
+#[derive(Debug, Clone, Copy)]
+enum Right {
+    /// Not looked for yet.
+    Unknown,
+    /// The next good row ends at this byte offset, at time `t` with sample `s`.
+    Good { end: u64, t: f64, s: LoadSample },
+    /// There is no good row after this byte offset.
+    NoneAfter(u64),
 }
 
-/// The used rows of a scanned file, one by one, re-applying the row rules.
+/// The used rows of a scanned source, one by one, re-applying the row rules and the
+/// policies, with the values of held and interpolated rows filled in.
 #[derive(Debug)]
 struct AcceptedRows {
     rdr: RecordReader,
     rules: Rules,
-    path: PathBuf,
-    policy: DefectPolicy,
+    plan: Plan,
     accepted: u64,
-    expected: u64,
+    /// Fill in the values of held and interpolated rows (false when only times matter).
+    values: bool,
+    last_good: LoadSample,
+    last_good_t: f64,
+    /// Second reader for looking ahead, made on first use.
+    look: Option<RecordReader>,
+    right: Right,
 }
 
 impl AcceptedRows {
-    /// Reopens the scanned file, checks it has not changed, and skips the header.
-    fn open(scan: &CsvScan, time_only: bool) -> Result<Self, ProfileError> {
-        if FileStamp::of(&scan.path)? != scan.stamp {
-            return Err(changed_error(&scan.path));
+    /// Opens the scanned source again, checks it has not changed, and skips the header.
+    fn open(plan: &Plan, time_only: bool, values: bool) -> Result<Self, ProfileError> {
+        let name = plan.name();
+        if FileStamp::of(&plan.source)? != plan.stamp {
+            return Err(changed_error(name));
         }
-        let mut rdr = RecordReader::open(&scan.path)?;
-        if read_header(&mut rdr, &scan.path)? != scan.columns {
-            return Err(changed_error(&scan.path));
+        let mut rdr = RecordReader::open(&plan.source, plan.delimiter as u8)
+            .map_err(|e| read_error(name, e))?;
+        let opts = CsvOptions {
+            delimiter: plan.delimiter,
+            decimal: plan.decimal,
+            ..CsvOptions::default()
+        };
+        match read_header(&mut rdr, name, &opts) {
+            Ok((cols, _)) if cols == plan.columns => {}
+            _ => return Err(changed_error(name)),
         }
         Ok(AcceptedRows {
             rdr,
-            rules: Rules::new(
-                scan.columns,
-                Some(scan.time_kind),
-                scan.kind_line,
-                time_only,
-            ),
-            path: scan.path.clone(),
-            policy: scan.options.on_defect,
+            rules: plan.rules(time_only),
+            plan: plan.clone(),
             accepted: 0,
-            expected: scan.rows_used,
+            values,
+            last_good: LoadSample::default(),
+            last_good_t: 0.0,
+            look: None,
+            right: Right::Unknown,
         })
     }
 
@@ -1298,32 +1362,112 @@ impl AcceptedRows {
     #[inline]
     fn next(&mut self, out: &mut LoadSample) -> Result<Option<f64>, ProfileError> {
         loop {
-            if !self.rdr.read().map_err(|e| io_error(&self.path, e))? {
-                if self.accepted != self.expected {
-                    return Err(changed_error(&self.path));
+            if !self
+                .rdr
+                .read()
+                .map_err(|e| read_error(self.plan.name(), e))?
+            {
+                if self.accepted != self.plan.rows_used {
+                    return Err(changed_error(self.plan.name()));
                 }
                 return Ok(None);
             }
-            match self.rules.check(&self.rdr, out) {
-                Verdict::Accept(t) => {
-                    self.accepted += 1;
-                    if self.accepted > self.expected {
-                        return Err(changed_error(&self.path));
-                    }
-                    return Ok(Some(t));
+            let verdict = self.rules.check(&self.rdr, out);
+            let line = self.rdr.record_line;
+            let t = match self.rules.decide(verdict) {
+                Action::Blank | Action::Skip(_) => continue,
+                Action::Stop(r) => {
+                    // Pass 1 stopped on any such defect, so the file changed.
+                    return Err(ProfileError::Row {
+                        file: self.plan.name().to_path_buf(),
+                        line,
+                        message: format!(
+                            "{} (this row passed the first reading: the file changed while \
+                             being read)",
+                            self.rules.describe(&self.rdr, &r)
+                        ),
+                    });
                 }
-                Verdict::Blank => {}
-                Verdict::Reject(p) => {
-                    // Pass 1 stopped on any defect under Stop, so a defect here means
-                    // the file changed; under Skip pass 1 recorded it already.
-                    if self.policy == DefectPolicy::Stop {
-                        return Err(ProfileError::Row {
-                            file: self.path.clone(),
-                            line: self.rdr.record_line,
-                            message: self.rules.describe(&self.rdr, &p),
-                        });
-                    }
+                Action::Good(t) => {
+                    self.rules.commit(t, line, Some(out));
+                    self.last_good = *out;
+                    self.last_good_t = t;
+                    t
                 }
+                Action::Fill(t, fill, _) => {
+                    if self.values {
+                        *out = match fill {
+                            Fill::Hold => self.last_good,
+                            Fill::Interpolate => self.interpolate(t)?,
+                        };
+                    }
+                    self.rules.commit(t, line, None);
+                    t
+                }
+            };
+            self.accepted += 1;
+            if self.accepted > self.plan.rows_used {
+                return Err(changed_error(self.plan.name()));
+            }
+            return Ok(Some(t));
+        }
+    }
+
+    /// The values of an interpolated row at time `t` (the current record).
+    fn interpolate(&mut self, t: f64) -> Result<LoadSample, ProfileError> {
+        let right = self.right_neighbour()?;
+        let left = self
+            .rules
+            .has_good
+            .then_some((self.last_good_t, self.last_good));
+        match (left, right) {
+            (Some((ta, a)), Some((tb, b))) => Ok(lerp(&a, ta, &b, tb, t)),
+            (Some((_, a)), None) => Ok(a),
+            (None, Some((_, b))) => Ok(b),
+            (None, None) => Err(changed_error(self.plan.name())),
+        }
+    }
+
+    /// The next good row after the current record, by looking ahead with a second reader
+    /// (once per run of interpolated rows; the answer is kept until it is passed).
+    fn right_neighbour(&mut self) -> Result<Option<(f64, LoadSample)>, ProfileError> {
+        let here = self.rdr.offset;
+        match self.right {
+            Right::Good { end, t, s } if end > here => return Ok(Some((t, s))),
+            Right::NoneAfter(o) if here >= o => return Ok(None),
+            _ => {}
+        }
+        let name = self.plan.name().to_path_buf();
+        let src = &self.plan.source;
+        let rerr = |e| read_error(&name, e);
+        let look = match &mut self.look {
+            Some(l) => l,
+            None => self
+                .look
+                .insert(RecordReader::open(src, self.plan.delimiter as u8).map_err(rerr)?),
+        };
+        look.reposition(src, here, self.rdr.next_line())
+            .map_err(rerr)?;
+        let mut rules = self.rules.clone();
+        let mut s = LoadSample::default();
+        loop {
+            if !look.read().map_err(rerr)? {
+                self.right = Right::NoneAfter(here);
+                return Ok(None);
+            }
+            let verdict = rules.check(look, &mut s);
+            match rules.decide(verdict) {
+                Action::Good(t) => {
+                    self.right = Right::Good {
+                        end: look.offset,
+                        t,
+                        s,
+                    };
+                    return Ok(Some((t, s)));
+                }
+                Action::Fill(t, _, _) => rules.commit(t, look.record_line, None),
+                Action::Blank | Action::Skip(_) => {}
+                Action::Stop(_) => return Err(changed_error(&name)),
             }
         }
     }
@@ -1331,6 +1475,11 @@ impl AcceptedRows {
     /// Line of the row last returned.
     fn row_line(&self) -> u64 {
         self.rdr.record_line
+    }
+
+    /// True when the row last returned has a naive ISO 8601 time (no UTC offset).
+    fn naive_time(&self) -> bool {
+        self.rules.naive(&self.rdr)
     }
 }
 
@@ -1344,17 +1493,40 @@ fn spacing_key(dt_s: f64) -> i64 {
 }
 
 /// Histogram of spacings in µs, with a run-length front so that the common case (the
-/// same spacing again) does not touch the map.
-#[derive(Debug, Default)]
+/// same spacing again) does not touch the map. Exact while there are at most
+/// [`MAX_SPACING_BINS`] distinct spacings; beyond that the bins widen tenfold at a time.
+#[derive(Debug)]
 struct Spacings {
     hist: BTreeMap<i64, u64>,
+    /// Bin width, µs.
+    res_us: i64,
     run_key: i64,
     run_len: u64,
+    n: u64,
+    min_us: i64,
+    max_us: i64,
+}
+
+impl Default for Spacings {
+    fn default() -> Self {
+        Spacings {
+            hist: BTreeMap::new(),
+            res_us: 1,
+            run_key: 0,
+            run_len: 0,
+            n: 0,
+            min_us: i64::MAX,
+            max_us: i64::MIN,
+        }
+    }
 }
 
 impl Spacings {
     #[inline]
     fn add(&mut self, key: i64) {
+        self.n += 1;
+        self.min_us = self.min_us.min(key);
+        self.max_us = self.max_us.max(key);
         if self.run_len > 0 && key == self.run_key {
             self.run_len += 1;
         } else {
@@ -1364,15 +1536,34 @@ impl Spacings {
         }
     }
 
+    fn bin(&self, key: i64) -> i64 {
+        key.div_euclid(self.res_us)
+    }
+
     fn flush(&mut self) {
         if self.run_len > 0 {
-            *self.hist.entry(self.run_key).or_insert(0) += self.run_len;
+            let b = self.bin(self.run_key);
+            *self.hist.entry(b).or_insert(0) += self.run_len;
             self.run_len = 0;
+            if self.hist.len() > MAX_SPACING_BINS {
+                self.coarsen();
+            }
         }
     }
 
-    /// Median of the `n` spacings, µs (mean of the two middle ones for even n).
-    fn median_us(&self, n: u64) -> f64 {
+    /// Widens the bins tenfold.
+    fn coarsen(&mut self) {
+        let old = std::mem::take(&mut self.hist);
+        for (b, c) in old {
+            *self.hist.entry(b.div_euclid(10)).or_insert(0) += c;
+        }
+        self.res_us = self.res_us.saturating_mul(10);
+    }
+
+    /// Median of the spacings, µs (mean of the two middle ones for an even count; a bin
+    /// stands for its middle when the bins are wider than 1 µs). Call after `flush`.
+    fn median_us(&self) -> f64 {
+        let n = self.n;
         if n == 0 {
             return 0.0;
         }
@@ -1389,18 +1580,17 @@ impl Spacings {
                 break;
             }
         }
+        let value = |bin: i64| {
+            if self.res_us == 1 {
+                bin as f64
+            } else {
+                (bin as f64 + 0.5) * self.res_us as f64
+            }
+        };
         match (a, b) {
-            (Some(a), Some(b)) => (a as f64 + b as f64) / 2.0,
+            (Some(a), Some(b)) => (value(a) + value(b)) / 2.0,
             _ => 0.0,
         }
-    }
-
-    fn min_us(&self) -> f64 {
-        self.hist.keys().next().map_or(0.0, |&k| k as f64)
-    }
-
-    fn max_us(&self) -> f64 {
-        self.hist.keys().next_back().map_or(0.0, |&k| k as f64)
     }
 }
 
@@ -1411,13 +1601,14 @@ fn merge_by_line(a: Vec<Defect>, b: Vec<Defect>) -> Vec<Defect> {
     }
     let mut all = a;
     all.extend(b);
-    // A stable sort keeps a row defect before a gap on the same line (which cannot
-    // happen: a gap's line is a used row) and is cheap at this size.
+    // A stable sort keeps a row defect before a gap on the same line and is cheap at
+    // this size.
     all.sort_by_key(|d| d.line);
     all.truncate(MAX_DEFECTS_KEPT);
     all
 }
 
+#[allow(clippy::too_many_arguments)]
 fn gap_message(
     kind: TimeKind,
     t_prev: f64,
@@ -1426,15 +1617,25 @@ fn gap_message(
     spacing_s: f64,
     factor: f64,
     median_s: f64,
+    policy: DefectPolicy,
 ) -> String {
+    let across = match policy {
+        DefectPolicy::Interpolate => format!(
+            "the load is interpolated across the gap between that row and the row at {}",
+            fmt_time(kind, t)
+        ),
+        _ => format!(
+            "that row's load is held across the gap until {}",
+            fmt_time(kind, t)
+        ),
+    };
     format!(
         "gap of {} s after the row at {} (line {line_prev}), more than {} × the median \
-         spacing of {} s; that row's load is held across the gap until {}",
+         spacing of {} s; {across}",
         fmt_secs(spacing_s),
         fmt_time(kind, t_prev),
         fmt_secs(factor),
         fmt_secs(median_s),
-        fmt_time(kind, t)
     )
 }
 
@@ -1449,12 +1650,16 @@ struct FileStamp {
 }
 
 impl FileStamp {
-    fn of(path: &Path) -> Result<Self, ProfileError> {
+    /// The stamp of a file source; `None` for other sources.
+    fn of(src: &CsvSource) -> Result<Option<Self>, ProfileError> {
+        let CsvSource::File(path) = src else {
+            return Ok(None);
+        };
         let m = std::fs::metadata(path).map_err(|e| io_error(path, e))?;
-        Ok(FileStamp {
+        Ok(Some(FileStamp {
             len: m.len(),
             modified: m.modified().ok(),
-        })
+        }))
     }
 }
 
@@ -1462,6 +1667,29 @@ fn io_error(path: &Path, source: std::io::Error) -> ProfileError {
     ProfileError::Io {
         file: path.to_path_buf(),
         source,
+    }
+}
+
+fn read_error(path: &Path, e: ReadError) -> ProfileError {
+    match e {
+        ReadError::Io(source) => io_error(path, source),
+        ReadError::TooLong { line } => ProfileError::Row {
+            file: path.to_path_buf(),
+            line,
+            message: format!(
+                "the record starting on this line is longer than {} bytes; is this a CSV \
+                 profile? (a quote that is never closed makes the rest of the file one field)",
+                MAX_RECORD_BYTES
+            ),
+        },
+        ReadError::TooManyFields { line } => ProfileError::Row {
+            file: path.to_path_buf(),
+            line,
+            message: format!(
+                "the record starting on this line has more than {MAX_FIELDS} fields; is the \
+                 delimiter right?"
+            ),
+        },
     }
 }
 
@@ -1475,17 +1703,19 @@ fn file_error(path: &Path, message: String) -> ProfileError {
 fn changed_error(path: &Path) -> ProfileError {
     file_error(
         path,
-        "the file changed after it was scanned; scan it again".to_string(),
+        "the file changed after it was scanned (its rows no longer match the first \
+         reading, from line 1 on); scan it again"
+            .to_string(),
     )
-}
-
-fn lossy(bytes: &[u8]) -> String {
-    String::from_utf8_lossy(bytes).into_owned()
 }
 
 /// Field text in double quotes, shortened if long.
 fn quoted(bytes: &[u8]) -> String {
-    let s = String::from_utf8_lossy(bytes);
+    quoted_str(&String::from_utf8_lossy(bytes))
+}
+
+/// Text in double quotes, shortened if long.
+fn quoted_str(s: &str) -> String {
     if s.chars().count() > MAX_QUOTED_CHARS {
         let short: String = s.chars().take(MAX_QUOTED_CHARS).collect();
         format!("\"{short}...\"")
@@ -1552,27 +1782,6 @@ mod tests {
     }
 
     #[test]
-    fn record_reader_counts_physical_lines() {
-        // Blank lines, CRLF ends and a quoted field with a line break inside.
-        let f = write("h1,h2\r\n1,2\r\n\r\n\r\n3,4\r\n\"a\nb\",5\n6,7");
-        let mut r = RecordReader::open(f.path()).unwrap();
-        let mut lines = Vec::new();
-        while r.read().unwrap() {
-            lines.push((r.record_line, lossy(r.field(0)), lossy(r.field(1))));
-        }
-        assert_eq!(
-            lines,
-            vec![
-                (1, "h1".into(), "h2".into()),
-                (2, "1".into(), "2".into()),
-                (5, "3".into(), "4".into()),
-                (6, "a\nb".into(), "5".into()),
-                (8, "6".into(), "7".into()),
-            ]
-        );
-    }
-
-    #[test]
     fn median_of_histogram() {
         let mut s = Spacings::default();
         for k in [10, 10, 30, 20, 10, 40] {
@@ -1580,13 +1789,14 @@ mod tests {
         }
         s.flush();
         // Sorted: 10 10 10 20 30 40 → median (10 + 20) / 2.
-        assert_eq!(s.median_us(6), 15.0);
+        assert_eq!(s.median_us(), 15.0);
+        assert_eq!((s.min_us, s.max_us), (10, 40));
         let mut s = Spacings::default();
         for k in [5, 1, 9] {
             s.add(k);
         }
         s.flush();
-        assert_eq!(s.median_us(3), 5.0);
+        assert_eq!(s.median_us(), 5.0);
     }
 
     #[test]
@@ -1659,9 +1869,91 @@ mod tests {
     #[test]
     fn options_deserialize_with_defaults() {
         let o: CsvOptions = serde_json::from_str(r#"{"on_defect": "skip"}"#).unwrap();
-        assert_eq!(o.on_defect, DefectPolicy::Skip);
+        assert_eq!(o.on_defect, Some(DefectPolicy::Skip));
         assert_eq!(o.gap_factor, 3.0);
+        assert_eq!((o.delimiter, o.decimal), (',', '.'));
         assert!(serde_json::from_str::<CsvOptions>(r#"{"gap": 2}"#).is_err());
+        let o: CsvOptions = toml::from_str(
+            "delimiter = \";\"\ndecimal = \",\"\n[defects]\ngap = \"interpolate\"\n",
+        )
+        .unwrap();
+        assert_eq!((o.delimiter, o.decimal), (';', ','));
+        assert_eq!(o.policy(DefectKind::Gap), DefectPolicy::Interpolate);
+    }
+
+    #[test]
+    fn policies_resolve_kind_then_all_then_default() {
+        let d = CsvOptions::default();
+        use DefectKind as K;
+        use DefectPolicy as P;
+        let want = [
+            P::Stop,
+            P::Stop,
+            P::Stop,
+            P::Skip,
+            P::Skip,
+            P::Stop,
+            P::Stop,
+            P::Hold,
+        ];
+        assert_eq!(d.policies(), want);
+        // One policy for all: kinds that cannot hold skip; gaps keep their own.
+        let all = CsvOptions::all(P::Hold);
+        assert_eq!(all.policy(K::NotFinite), P::Hold);
+        assert_eq!(all.policy(K::Duplicate), P::Skip);
+        assert_eq!(all.policy(K::Gap), P::Hold);
+        assert_eq!(
+            CsvOptions::all(P::Stop).policy(K::TruncatedLastLine),
+            P::Stop
+        );
+        assert_eq!(CsvOptions::all(P::Stop).policy(K::Gap), P::Hold);
+        let mut o = CsvOptions::all(P::Skip);
+        o.defects.not_finite = Some(P::Interpolate);
+        assert_eq!(o.policy(K::NotFinite), P::Interpolate);
+        assert_eq!(o.policy(K::Malformed), P::Skip);
+        assert!(o.check().is_ok());
+        o.defects.backwards = Some(P::Hold);
+        let e = o.check().unwrap_err();
+        assert_eq!(e.key, "defects.backwards");
+        assert_eq!(
+            e.message,
+            "`hold` does not apply to rows with backwards times; allowed: stop, skip"
+        );
+        let o = CsvOptions {
+            decimal: ';',
+            ..CsvOptions::default()
+        };
+        assert_eq!(o.check().unwrap_err().key, "decimal");
+    }
+
+    #[test]
+    fn bytes_and_files_scan_alike() {
+        let text = format!(
+            "{HEADER}{}{}{}",
+            row("0", 1.0),
+            row("10", 2.0),
+            row("20", 3.0)
+        );
+        let f = write(&text);
+        let a = scan(f.path(), &CsvOptions::default()).unwrap();
+        let b = scan_bytes("mem.csv", text.into_bytes(), &CsvOptions::default()).unwrap();
+        assert_eq!(a.end_s, b.end_s);
+        assert_eq!(b.path, Path::new("mem.csv"));
+        assert_eq!(a.load().unwrap().samples, b.load().unwrap().samples);
+    }
+
+    #[test]
+    fn histogram_memory_is_bounded() {
+        let mut s = Spacings::default();
+        for k in 0..(3 * MAX_SPACING_BINS as i64) {
+            s.add(1_000_000 + k);
+        }
+        s.flush();
+        assert!(s.hist.len() <= MAX_SPACING_BINS);
+        assert!(s.res_us > 1);
+        // The spacings are 1 s + 0 … 196 607 µs, median about 1.098 s.
+        let m = s.median_us();
+        assert!((m - 1_098_303.5).abs() < 10.0, "{m}");
     }
 
     #[test]
