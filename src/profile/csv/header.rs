@@ -108,33 +108,61 @@ fn right_unit(quantity: usize, u: &str) -> bool {
     }
 }
 
-/// How `cell` relates to required column `quantity` (index into [`COLUMNS`]).
-fn match_cell(cell: &str, quantity: usize) -> CellMatch {
-    let (name, bracket) = split_brackets(cell);
-    let name = normalise(name);
-    let base = BASES[quantity];
-    let suffix = if name == base {
-        None
-    } else if let Some(rest) = name.strip_prefix(base).and_then(|r| r.strip_prefix('_')) {
-        if !is_unit_word(quantity, rest) {
-            return CellMatch::No;
+/// A header cell split into its lower-cased name and the unit in brackets, if any.
+struct Cell {
+    name: String,
+    bracket: Option<String>,
+}
+
+impl Cell {
+    fn new(cell: &str) -> Cell {
+        let (name, bracket) = split_brackets(cell);
+        Cell {
+            name: normalise(name),
+            bracket: bracket.map(normalise),
         }
-        Some(rest.to_string())
-    } else {
-        return CellMatch::No;
-    };
-    // Text in brackets that is not a unit (e.g. `p_a_kw (phase L1)`) is a comment.
-    let bracket = bracket.map(normalise).filter(|u| is_unit_word(quantity, u));
-    let unit = match (suffix, bracket) {
-        (Some(s), Some(b)) if s != b => return CellMatch::Contradiction(s, b),
-        (Some(u), _) | (None, Some(u)) => u,
-        (None, None) if quantity == 0 => return CellMatch::Yes,
-        (None, None) => return CellMatch::NoUnit,
-    };
-    if right_unit(quantity, &unit) {
-        CellMatch::Yes
-    } else {
-        CellMatch::WrongUnit(unit)
+    }
+}
+
+/// How `cell` relates to required column `quantity` (index into [`COLUMNS`]).
+#[cfg(test)]
+fn match_cell(cell: &str, quantity: usize) -> CellMatch {
+    Cell::new(cell).relation(quantity)
+}
+
+impl Cell {
+    /// How this cell relates to required column `quantity` (index into [`COLUMNS`]).
+    fn relation(&self, quantity: usize) -> CellMatch {
+        let name = self.name.as_str();
+        let base = BASES[quantity];
+        let suffix = if name == base {
+            None
+        } else if let Some(rest) = name.strip_prefix(base).and_then(|r| r.strip_prefix('_')) {
+            if !is_unit_word(quantity, rest) {
+                return CellMatch::No;
+            }
+            Some(rest)
+        } else {
+            return CellMatch::No;
+        };
+        // Text in brackets that is not a unit (e.g. `p_a_kw (phase L1)`) is a comment.
+        let bracket = self
+            .bracket
+            .as_deref()
+            .filter(|u| is_unit_word(quantity, u));
+        let unit = match (suffix, bracket) {
+            (Some(s), Some(b)) if s != b => {
+                return CellMatch::Contradiction(s.to_string(), b.to_string())
+            }
+            (Some(u), _) | (None, Some(u)) => u,
+            (None, None) if quantity == 0 => return CellMatch::Yes,
+            (None, None) => return CellMatch::NoUnit,
+        };
+        if right_unit(quantity, unit) {
+            CellMatch::Yes
+        } else {
+            CellMatch::WrongUnit(unit.to_string())
+        }
     }
 }
 
@@ -179,8 +207,9 @@ pub(super) fn read_header(
         .map(|i| String::from_utf8_lossy(rdr.field(i).trim_ascii()).into_owned())
         .collect();
     for (i, cell) in cells.iter().enumerate() {
+        let parsed = Cell::new(cell);
         for (c, want) in COLUMNS.iter().enumerate() {
-            match match_cell(cell, c) {
+            match parsed.relation(c) {
                 CellMatch::No => {}
                 CellMatch::Yes => {
                     if idx[c] != usize::MAX {

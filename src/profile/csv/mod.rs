@@ -39,7 +39,7 @@ mod source;
 mod summary;
 
 pub use header::ColumnMatch;
-pub use rules::MAX_ELAPSED_S;
+pub use rules::{MAX_ELAPSED_S, MAX_POWER};
 pub use source::{CsvSource, OpenFn, MAX_FIELDS, MAX_RECORD_BYTES};
 pub use summary::{DefectSummary, KindSummary, FIRST_LINES_KEPT};
 
@@ -233,7 +233,8 @@ impl CsvOptions {
 #[serde(rename_all = "snake_case")]
 pub enum DefectKind {
     /// A field that is not a number (or a time that is neither a number of seconds nor
-    /// an ISO 8601 date-time, or of the other kind than the file's, or out of range), or
+    /// an ISO 8601 date-time, or of the other kind than the file's), a number out of range
+    /// (±[`MAX_POWER`], ±[`MAX_ELAPSED_S`]), or
     /// non-empty fields beyond the header's columns (columns shifted, e.g. by a decimal
     /// comma). Default policy: stop.
     Malformed,
@@ -1395,13 +1396,14 @@ impl AcceptedRows {
                     t
                 }
                 Action::Fill(t, fill, _) => {
+                    // Commit first: the look-ahead goes on from the state after this row.
+                    self.rules.commit(t, line, None);
                     if self.values {
                         *out = match fill {
                             Fill::Hold => self.last_good,
                             Fill::Interpolate => self.interpolate(t)?,
                         };
                     }
-                    self.rules.commit(t, line, None);
                     t
                 }
             };

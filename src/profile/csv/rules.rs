@@ -15,6 +15,10 @@ use chrono::{Datelike, Timelike};
 /// that no arithmetic on times overflows.
 pub const MAX_ELAPSED_S: f64 = 1e11;
 
+/// Largest power accepted in a value column, kW or kvar (1 TW, far beyond any site);
+/// larger values are refused so that interpolation and sums never overflow.
+pub const MAX_POWER: f64 = 1e9;
+
 /// Tolerance when matching a jump of one hour, s.
 const DST_TOLERANCE_S: f64 = 1e-3;
 
@@ -104,6 +108,8 @@ pub(super) enum Problem {
     Malformed(usize),
     /// Column c is NaN or infinite.
     NotFinite(usize),
+    /// Column c (1..7) is beyond ±[`MAX_POWER`].
+    ValueRange(usize),
     /// The elapsed time is beyond ±[`MAX_ELAPSED_S`].
     TimeRange,
     /// The time is of the other kind than the file's.
@@ -141,9 +147,11 @@ impl Rejection {
         }
         match self.problem {
             Problem::Short => DefectKind::ShortRow,
-            Problem::Extra | Problem::Malformed(_) | Problem::KindMismatch | Problem::TimeRange => {
-                DefectKind::Malformed
-            }
+            Problem::Extra
+            | Problem::Malformed(_)
+            | Problem::ValueRange(_)
+            | Problem::KindMismatch
+            | Problem::TimeRange => DefectKind::Malformed,
             Problem::NotFinite(_) => DefectKind::NotFinite,
             Problem::Duplicate { .. } => DefectKind::Duplicate,
             Problem::Conflicting { .. } => DefectKind::ConflictingDuplicate,
@@ -275,6 +283,7 @@ impl Rules {
                             | Problem::Extra
                             | Problem::Malformed(_)
                             | Problem::NotFinite(_)
+                            | Problem::ValueRange(_)
                             | Problem::TimeRange
                             | Problem::KindMismatch
                     ),
@@ -352,7 +361,8 @@ impl Rules {
     fn read_values(&self, rec: &RecordReader, out: &mut LoadSample) -> Result<(), Problem> {
         for c in 1..7 {
             let v = match parse_number(rec.field(self.cols.idx[c]).trim_ascii(), self.decimal) {
-                Some(v) if v.is_finite() => v,
+                Some(v) if v.abs() <= MAX_POWER => v,
+                Some(v) if v.is_finite() => return Err(Problem::ValueRange(c)),
                 Some(_) => return Err(Problem::NotFinite(c)),
                 None => return Err(Problem::Malformed(c)),
             };
@@ -576,6 +586,14 @@ impl Rules {
                 let text = rec.field(self.cols.idx[c]).trim_ascii();
                 format!("{} is {}, not a finite number", COLUMNS[c], quoted(text))
             }
+            Problem::ValueRange(c) => format!(
+                "{} is {}, outside the allowed range -{} to {} {}",
+                COLUMNS[c],
+                quoted(rec.field(self.cols.idx[c]).trim_ascii()),
+                fmt_secs(MAX_POWER),
+                fmt_secs(MAX_POWER),
+                if c % 2 == 1 { "kW" } else { "kvar" }
+            ),
             Problem::TimeRange => format!(
                 "time is {}, outside the allowed range -{} to {} s",
                 time_text(),

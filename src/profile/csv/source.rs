@@ -11,6 +11,7 @@
 //! Records are bounded: a record longer than [`MAX_RECORD_BYTES`] or with more than
 //! [`MAX_FIELDS`] fields is an error, so no input can make the buffers grow without limit.
 
+use std::cell::RefCell;
 use std::fmt;
 use std::fs::File;
 use std::io::{self, BufRead, BufReader, Read, Seek, SeekFrom};
@@ -202,7 +203,8 @@ impl From<io::Error> for ReadError {
 /// CRLF files.)
 pub(super) struct RecordReader {
     input: Input,
-    core: csv_core::Reader,
+    /// The parser (always `Some` until the reader is dropped and gives it back).
+    core: Option<csv_core::Reader>,
     delimiter: u8,
     /// Unescaped field bytes of the current record, contiguous.
     out: Vec<u8>,
@@ -235,13 +237,61 @@ fn count_lf(bytes: &[u8]) -> u64 {
     bytes.iter().filter(|&&b| b == b'\n').count() as u64
 }
 
-/// A CSV parser that has "already read", so that it never strips a byte-order mark:
+/// Marks a parser as having "already read", so that it never strips a byte-order mark:
 /// the reader strips the one at the start of the source itself, and a parser started in
 /// the middle of a file must read exactly as one that has been running from the start.
-fn parser(delimiter: u8) -> csv_core::Reader {
-    let mut core = csv_core::ReaderBuilder::new().delimiter(delimiter).build();
+fn prime(core: &mut csv_core::Reader) {
     let _ = core.read_record(b"\n", &mut [0u8; 1], &mut [0usize; 1]);
+}
+
+/// Most parsers kept for reuse per thread.
+const POOL_MAX: usize = 8;
+
+thread_local! {
+    /// Parsers by delimiter, kept for reuse: building one (its DFA) costs far more than
+    /// resetting one. (Cloning is no way round it: csv_core 0.1's `Clone` for its DFA
+    /// copies only the transition table, and the clone misreads.)
+    static PARSERS: RefCell<Vec<(u8, csv_core::Reader)>> = const { RefCell::new(Vec::new()) };
+}
+
+/// A primed parser for `delimiter`, reused from the pool when there is one.
+fn take_parser(delimiter: u8) -> csv_core::Reader {
+    let pooled = PARSERS
+        .try_with(|p| {
+            let mut p = p.try_borrow_mut().ok()?;
+            let i = p.iter().position(|(d, _)| *d == delimiter)?;
+            Some(p.swap_remove(i).1)
+        })
+        .ok()
+        .flatten();
+    let mut core = match pooled {
+        Some(mut core) => {
+            core.reset();
+            core
+        }
+        None => csv_core::ReaderBuilder::new().delimiter(delimiter).build(),
+    };
+    prime(&mut core);
     core
+}
+
+/// Gives a parser back to the pool.
+fn give_parser(delimiter: u8, core: csv_core::Reader) {
+    let _ = PARSERS.try_with(|p| {
+        if let Ok(mut p) = p.try_borrow_mut() {
+            if p.len() < POOL_MAX {
+                p.push((delimiter, core));
+            }
+        }
+    });
+}
+
+impl Drop for RecordReader {
+    fn drop(&mut self) {
+        if let Some(core) = self.core.take() {
+            give_parser(self.delimiter, core);
+        }
+    }
 }
 
 impl RecordReader {
@@ -255,7 +305,7 @@ impl RecordReader {
         }
         Ok(RecordReader {
             input,
-            core: parser(delimiter),
+            core: Some(take_parser(delimiter)),
             delimiter,
             out: vec![0; 1024],
             ends: vec![0; 32],
@@ -276,7 +326,10 @@ impl RecordReader {
         line: u64,
     ) -> Result<(), ReadError> {
         self.input.reposition(src, offset)?;
-        self.core = parser(self.delimiter);
+        if let Some(core) = self.core.as_mut() {
+            core.reset();
+            prime(core);
+        }
         self.offset = offset;
         self.line = line;
         self.record_line = line;
@@ -312,13 +365,15 @@ impl RecordReader {
             }
         }
         self.record_line = self.line;
+        let Some(core) = self.core.as_mut() else {
+            return Ok(false);
+        };
         let (mut n_out, mut n_end) = (0, 0);
         loop {
             let input = self.input.fill_buf()?;
             let at_end = input.is_empty();
             let (res, nin, nout, nend) =
-                self.core
-                    .read_record(input, &mut self.out[n_out..], &mut self.ends[n_end..]);
+                core.read_record(input, &mut self.out[n_out..], &mut self.ends[n_end..]);
             let lf = count_lf(&input[..nin]);
             self.input.consume(nin);
             self.offset += nin as u64;
@@ -426,6 +481,24 @@ mod tests {
         la.reposition(&src, off, line).unwrap();
         assert!(la.read().unwrap());
         assert_eq!((la.record_line, la.field(0)), (2, &b"\xef\xbb\xbfc"[..]));
+    }
+
+    #[test]
+    fn a_reused_parser_reads_like_a_new_one() {
+        // The first reader stops inside a quoted field and gives its parser back.
+        let src = CsvSource::bytes("t.csv", b"a,\"open".to_vec());
+        let mut r = RecordReader::open(&src, b',').unwrap();
+        assert!(r.read().unwrap());
+        drop(r);
+        for _ in 0..3 {
+            assert_eq!(
+                records(b"x,y\n\"p\nq\",z\n"),
+                vec![
+                    (1, vec!["x".to_string(), "y".to_string()], false),
+                    (2, vec!["p\nq".to_string(), "z".to_string()], false),
+                ]
+            );
+        }
     }
 
     #[test]
