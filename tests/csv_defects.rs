@@ -447,13 +447,13 @@ fn contradicting_units_name_the_column() {
     let m = file_error(mem_scan(&h("p_a_w"), &CsvOptions::default()));
     assert_eq!(
         m,
-        "column 2 of the header (line 1), \"p_a_w\", gives p_a in w, but the profile must give \
+        "column 2 of the header (line 1), \"p_a_w\", gives p_a in W, but the profile must give \
          p_a in kW; convert the values and name the column p_a_kw"
     );
     let m = file_error(mem_scan(&h("p_a_kw [W]"), &CsvOptions::default()));
     assert_eq!(
         m,
-        "column 2 of the header (line 1), \"p_a_kw [W]\", gives two units: kw in the name and w \
+        "column 2 of the header (line 1), \"p_a_kw [W]\", gives two units: kW in the name and W \
          in brackets; p_a_kw must be in kW"
     );
     // A column in W beside one in kW is just an extra column.

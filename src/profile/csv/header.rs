@@ -166,6 +166,28 @@ impl Cell {
     }
 }
 
+/// A unit as it is usually written, for messages (`kw` → `kW`).
+fn display_unit(u: &str) -> String {
+    let known = [
+        ("kw", "kW"),
+        ("w", "W"),
+        ("mw", "MW"),
+        ("gw", "GW"),
+        ("kva", "kVA"),
+        ("va", "VA"),
+        ("mva", "MVA"),
+        ("mvar", "Mvar"),
+        ("kwh", "kWh"),
+        ("wh", "Wh"),
+        ("mwh", "MWh"),
+        ("a", "A"),
+    ];
+    known
+        .iter()
+        .find(|(k, _)| *k == u)
+        .map_or_else(|| u.to_string(), |(_, d)| d.to_string())
+}
+
 /// The unit a column must be in, for messages.
 fn wanted_unit(quantity: usize) -> &'static str {
     match quantity {
@@ -229,10 +251,11 @@ pub(super) fn read_header(
                 }
                 CellMatch::WrongUnit(u) => {
                     if wrong[c].is_none() {
-                        wrong[c] = Some((i, u));
+                        wrong[c] = Some((i, display_unit(&u)));
                     }
                 }
                 CellMatch::Contradiction(a, b) => {
+                    let (a, b) = (display_unit(&a), display_unit(&b));
                     return Err(file_error(
                         name,
                         format!(

@@ -271,7 +271,9 @@ impl Rules {
         if short && rec.is_blank() {
             return Verdict::Blank;
         }
-        let truncated = rec.unterminated;
+        // A record that ends without a line end is a truncated last line only when it is
+        // one physical line; one over several lines is an unclosed quote, which is worse.
+        let truncated = rec.unterminated && rec.inner_lf == 0;
         let reject = |problem, fill_t| {
             Verdict::Reject(Rejection {
                 problem,
@@ -493,13 +495,30 @@ impl Rules {
                  the logger was writing?): {m}"
             );
         }
+        if rec.inner_lf > 0 {
+            let (a, b) = (rec.record_line, rec.record_line + rec.inner_lf);
+            m.push_str(&format!(
+                "; the record runs from line {a} to line {b}: is a quote not closed?"
+            ));
+        } else if r.problem == Problem::Short && !r.truncated {
+            m.push_str("; is the line cut short?");
+        }
         match r.dst() {
-            Dst::Starts => m.push_str(
-                "; this looks like a daylight-saving change (clocks set back one hour with times \
-                 in naive local time, so an hour repeats): give the times with their UTC offset \
-                 (e.g. +01:00), or set backwards = \"skip\" under [load.defects] to drop the \
-                 repeated hour",
-            ),
+            Dst::Starts => {
+                m.push_str(
+                    "; this looks like a daylight-saving change (clocks set back one hour with \
+                     times in naive local time, so an hour repeats): give the times with their \
+                     UTC offset (e.g. +01:00)",
+                );
+                m.push_str(
+                    if self.policies[DefectKind::Backwards.index()] == DefectPolicy::Stop {
+                        ", or set backwards = \"skip\" under [load.defects] to drop the \
+                         repeated hour"
+                    } else {
+                        "; the rows of the repeated hour are left out"
+                    },
+                );
+            }
             Dst::Within(line) => m.push_str(&format!(
                 "; part of the hour repeated by the daylight-saving change at line {line}"
             )),
@@ -520,8 +539,7 @@ impl Rules {
                     .map(|(n, _)| *n)
                     .collect();
                 format!(
-                    "the row has {} field{} but the header has {}, so {} {} missing; is the \
-                     line cut short?",
+                    "the row has {} field{} but the header has {}, so {} {} missing",
                     rec.len,
                     if rec.len == 1 { "" } else { "s" },
                     self.cols.header_fields,
@@ -587,18 +605,14 @@ impl Rules {
                 format!("{} is {}, not a finite number", COLUMNS[c], quoted(text))
             }
             Problem::ValueRange(c) => format!(
-                "{} is {}, outside the allowed range -{} to {} {}",
+                "{} is {}, outside the allowed range -{MAX_POWER:e} to {MAX_POWER:e} {}",
                 COLUMNS[c],
                 quoted(rec.field(self.cols.idx[c]).trim_ascii()),
-                fmt_secs(MAX_POWER),
-                fmt_secs(MAX_POWER),
                 if c % 2 == 1 { "kW" } else { "kvar" }
             ),
             Problem::TimeRange => format!(
-                "time is {}, outside the allowed range -{} to {} s",
+                "time is {}, outside the allowed range -{MAX_ELAPSED_S:e} to {MAX_ELAPSED_S:e} s",
                 time_text(),
-                fmt_secs(MAX_ELAPSED_S),
-                fmt_secs(MAX_ELAPSED_S)
             ),
             Problem::KindMismatch => match self.kind {
                 Some(TimeKind::Absolute) => format!(

@@ -220,6 +220,8 @@ pub(super) struct RecordReader {
     pub(super) offset: u64,
     /// True when the current record ended at the end of the input with no line end.
     pub(super) unterminated: bool,
+    /// Line feeds inside the current record (in quoted fields), not counting its end.
+    pub(super) inner_lf: u64,
 }
 
 impl fmt::Debug for RecordReader {
@@ -314,6 +316,7 @@ impl RecordReader {
             record_line: 1,
             offset,
             unterminated: false,
+            inner_lf: 0,
         })
     }
 
@@ -335,6 +338,7 @@ impl RecordReader {
         self.record_line = line;
         self.len = 0;
         self.unterminated = false;
+        self.inner_lf = 0;
         Ok(())
     }
 
@@ -369,12 +373,17 @@ impl RecordReader {
             return Ok(false);
         };
         let (mut n_out, mut n_end) = (0, 0);
+        let (mut lf_total, mut last) = (0, 0u8);
         loop {
             let input = self.input.fill_buf()?;
             let at_end = input.is_empty();
             let (res, nin, nout, nend) =
                 core.read_record(input, &mut self.out[n_out..], &mut self.ends[n_end..]);
             let lf = count_lf(&input[..nin]);
+            if nin > 0 {
+                last = input[nin - 1];
+            }
+            lf_total += lf;
             self.input.consume(nin);
             self.offset += nin as u64;
             self.line += lf;
@@ -403,6 +412,8 @@ impl RecordReader {
                 csv_core::ReadRecordResult::Record => {
                     self.len = n_end;
                     self.unterminated = at_end;
+                    let ended_by_lf = !at_end && last == b'\n';
+                    self.inner_lf = lf_total - u64::from(ended_by_lf && lf_total > 0);
                     return Ok(true);
                 }
                 csv_core::ReadRecordResult::End => {
@@ -433,6 +444,20 @@ impl RecordReader {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn counts_line_feeds_inside_records() {
+        let src = CsvSource::bytes(
+            "t.csv",
+            b"a,\"x\ny\"\r\nb,c\n\"open\nrest\nof file".to_vec(),
+        );
+        let mut r = RecordReader::open(&src, b',').unwrap();
+        let mut got = Vec::new();
+        while r.read().unwrap() {
+            got.push((r.record_line, r.inner_lf, r.unterminated));
+        }
+        assert_eq!(got, vec![(1, 1, false), (3, 0, false), (4, 2, true)]);
+    }
 
     fn records(text: &[u8]) -> Vec<(u64, Vec<String>, bool)> {
         let src = CsvSource::bytes("t.csv", text.to_vec());
