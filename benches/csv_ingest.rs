@@ -1,15 +1,22 @@
-//! Ingest speed of load-profile CSVs: writes a one-week, 1-s profile (604 800 rows,
-//! elapsed seconds, invented but plausible per-phase P and Q) to a temporary file, then
-//! times the first pass (`scan`) and a full second pass (`stream` sampled on the 1-s
-//! grid), several times each, and prints rows/s, ns/row and the peak resident set size.
-//! For comparison it also times `load` into memory and a pass of the memory cursor, and
-//! a scan of a shorter ISO 8601 profile.
+//! Ingest speed and memory of load-profile CSVs.
 //!
-//! Run with `cargo bench --bench csv_ingest`.
+//! 1. Memory: profiles of 1, 2, 4 and 8 million rows and a whole year at 1 s (31.5 million
+//!    rows, about 1.6 GB of text) are generated on the fly by a reader that never touches
+//!    the disk, scanned and streamed on the 1-s grid; the peak resident set size of each
+//!    length (reset between lengths) shows that memory stays flat as the length doubles.
+//! 2. Speed: a one-week, 1-s profile (604 800 rows, elapsed seconds, invented but
+//!    plausible per-phase P and Q) is written to a temporary file; the first pass (`scan`)
+//!    and a full second pass (`stream` sampled on the 1-s grid) are timed several times
+//!    each, with rows/s, ns/row and the peak resident set size. For comparison it also
+//!    times `load` into memory and a pass of the memory cursor, and a scan of a shorter
+//!    ISO 8601 profile.
+//!
+//! Run with `cargo bench --bench csv_ingest` (about a minute and a half; set
+//! `CSV_INGEST_SKIP_LONG=1` to time part 2 only).
 
-use bankstep::profile::csv::{scan, CsvOptions};
+use bankstep::profile::csv::{scan, scan_source, CsvOptions, CsvSource};
 use bankstep::profile::{LoadSample, LoadSource};
-use std::io::{BufWriter, Write};
+use std::io::{BufWriter, Read, Write};
 use std::path::Path;
 use std::time::Instant;
 
@@ -60,6 +67,138 @@ fn write_profile(path: &Path, rows: u64, iso: bool) -> std::io::Result<()> {
     w.flush()
 }
 
+/// A profile generated on the fly: `rows` rows at 1-s spacing, elapsed seconds, with the
+/// values cycling through a table of pre-written rows (so that the generator costs little
+/// next to the reader).
+struct GenReader {
+    rows: u64,
+    next_row: u64,
+    buf: Vec<u8>,
+    pos: usize,
+    tails: Vec<Vec<u8>>,
+}
+
+impl GenReader {
+    fn new(rows: u64) -> Self {
+        let mut rng = XorShift(0x2545_F491_4F6C_DD1D);
+        let tails = (0..4096)
+            .map(|i| {
+                let shift = if (i / 512) % 2 == 0 { 1.0 } else { 0.35 };
+                let mut t = Vec::new();
+                for phase in 0..3 {
+                    let p = 60.0 * shift + 4.0 * rng.next_f64() + phase as f64 * 3.0;
+                    let q = p * (0.58 + 0.1 * rng.next_f64());
+                    let _ = write!(t, ",{p:.3},{q:.3}");
+                }
+                t.push(b'\n');
+                t
+            })
+            .collect();
+        let mut buf = Vec::with_capacity(1 << 16);
+        buf.extend_from_slice(b"time,p_a_kw,q_a_kvar,p_b_kw,q_b_kvar,p_c_kw,q_c_kvar\n");
+        GenReader {
+            rows,
+            next_row: 0,
+            buf,
+            pos: 0,
+            tails,
+        }
+    }
+
+    fn refill(&mut self) {
+        self.buf.clear();
+        self.pos = 0;
+        let mut digits = [0u8; 20];
+        while self.buf.len() < (1 << 16) - 128 && self.next_row < self.rows {
+            let mut t = self.next_row;
+            let mut i = digits.len();
+            loop {
+                i -= 1;
+                digits[i] = b'0' + (t % 10) as u8;
+                t /= 10;
+                if t == 0 {
+                    break;
+                }
+            }
+            self.buf.extend_from_slice(&digits[i..]);
+            let k = (self.next_row.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 52) as usize;
+            self.buf
+                .extend_from_slice(&self.tails[k % self.tails.len()]);
+            self.next_row += 1;
+        }
+    }
+}
+
+/// Bytes handed out by the last generated reader to finish a pass.
+static GENERATED_BYTES: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+
+impl Read for GenReader {
+    fn read(&mut self, out: &mut [u8]) -> std::io::Result<usize> {
+        if self.pos == self.buf.len() {
+            self.refill();
+        }
+        let n = out.len().min(self.buf.len() - self.pos);
+        out[..n].copy_from_slice(&self.buf[self.pos..self.pos + n]);
+        self.pos += n;
+        GENERATED_BYTES.fetch_add(n as u64, std::sync::atomic::Ordering::Relaxed);
+        Ok(n)
+    }
+}
+
+/// Resets the peak resident set size to the current size (Linux; ignored elsewhere).
+fn reset_peak_rss() {
+    let _ = std::fs::write("/proc/self/clear_refs", "5");
+}
+
+fn current_rss_kib() -> Option<u64> {
+    let status = std::fs::read_to_string("/proc/self/status").ok()?;
+    let line = status.lines().find(|l| l.starts_with("VmRSS:"))?;
+    line.split_whitespace().nth(1)?.parse().ok()
+}
+
+/// Scans and streams generated profiles of growing length, printing time and peak RSS.
+fn memory_flat_as_length_doubles() -> Result<(), Box<dyn std::error::Error>> {
+    println!("long profiles generated in memory (no disk): scan, then stream on the 1-s grid");
+    let opts = CsvOptions::default();
+    for rows in [1_000_000u64, 2_000_000, 4_000_000, 8_000_000, 365 * 86_400] {
+        reset_peak_rss();
+        GENERATED_BYTES.store(0, std::sync::atomic::Ordering::Relaxed);
+        let before = current_rss_kib().unwrap_or(0);
+        let src = CsvSource::reader(format!("generated-{rows}.csv"), move || {
+            Ok(Box::new(GenReader::new(rows)) as Box<dyn Read + Send>)
+        });
+        let t0 = Instant::now();
+        let sc = scan_source(&src, &opts)?;
+        let t_scan = t0.elapsed().as_secs_f64();
+        assert_eq!(sc.rows_used, rows);
+        let bytes = GENERATED_BYTES.load(std::sync::atomic::Ordering::Relaxed);
+        let t1 = Instant::now();
+        let mut st = sc.stream()?;
+        let mut s = LoadSample::default();
+        let mut sum = 0.0;
+        for k in 0..rows {
+            st.sample(k, k as f64, &mut s)?;
+            sum += s.q_total();
+        }
+        std::hint::black_box(sum);
+        let t_stream = t1.elapsed().as_secs_f64();
+        println!(
+            "  {:>9} rows ({:>6.0} MB of text): scan {:>5.2} s ({:>4.2} M rows/s), stream {:>5.2} s \
+             ({:>4.2} M rows/s); RSS before {} KiB, peak {} KiB",
+            rows,
+            bytes as f64 / 1e6,
+            t_scan,
+            rows as f64 / t_scan / 1e6,
+            t_stream,
+            rows as f64 / t_stream / 1e6,
+            before,
+            peak_rss_kib().unwrap_or(0)
+        );
+    }
+    println!("  (times include generating the text)");
+    Ok(())
+}
+
 fn peak_rss_kib() -> Option<u64> {
     let status = std::fs::read_to_string("/proc/self/status").ok()?;
     let line = status.lines().find(|l| l.starts_with("VmHWM:"))?;
@@ -82,6 +221,11 @@ fn report(name: &str, rows: u64, secs: &mut [f64]) {
 }
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
+    if std::env::var_os("CSV_INGEST_SKIP_LONG").is_none() {
+        memory_flat_as_length_doubles()?;
+        reset_peak_rss();
+    }
+
     let dir = tempfile::tempdir()?;
     let path = dir.path().join("week_1s.csv");
     write_profile(&path, ROWS, false)?;

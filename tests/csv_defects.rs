@@ -610,3 +610,32 @@ fn summary_counts_rows_and_time_per_kind() {
     assert_eq!(json["kinds"][1]["policy"], "hold");
     assert_eq!(json["columns"][0]["column"], "time");
 }
+
+// ---------------------------------------------------------------------------------------
+// Scenario keys under [load].
+
+#[test]
+fn load_keys_become_csv_options() {
+    use bankstep::scenario::{LoadSpec, Scenario};
+    let text = "[[steps]]\nkvar = 10\n[load]\ncsv = \"p.csv\"\non_defect = \"skip\"\n\
+                gap_factor = 5\ndelimiter = \"tab\"\ndecimal = \",\"\n\
+                [load.defects]\nnot_finite = \"interpolate\"\ngap = \"interpolate\"\n";
+    let s = Scenario::from_str(text, std::path::Path::new("s.toml")).unwrap();
+    let LoadSpec::Csv { options: o, .. } = s.load else {
+        panic!("expected a CSV load");
+    };
+    assert_eq!((o.delimiter, o.decimal, o.gap_factor), ('\t', ',', 5.0));
+    assert_eq!(o.policy(DefectKind::NotFinite), DefectPolicy::Interpolate);
+    assert_eq!(o.policy(DefectKind::Malformed), DefectPolicy::Skip);
+    assert_eq!(o.policy(DefectKind::Gap), DefectPolicy::Interpolate);
+    // Without any key, each kind has its default.
+    let s = Scenario::from_str(
+        "[[steps]]\nkvar = 10\n[load]\ncsv = \"p.csv\"\n",
+        std::path::Path::new("s.toml"),
+    )
+    .unwrap();
+    let LoadSpec::Csv { options: o, .. } = s.load else {
+        panic!("expected a CSV load");
+    };
+    assert_eq!(o, CsvOptions::default());
+}

@@ -47,7 +47,7 @@ use super::{DefectPolicies, DefectPolicy, LoadSample, LoadSource};
 use crate::error::ProfileError;
 use crate::timebase::TimeKind;
 use header::{read_header, Columns};
-use rules::{Action, Fill, Rejection, Rules};
+use rules::{Action, Fill, Rejection, Rules, Verdict};
 use serde::{Deserialize, Serialize};
 use source::{ReadError, RecordReader};
 use std::collections::BTreeMap;
@@ -692,6 +692,22 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
     while rdr.read().map_err(|e| read_error(&name, e))? {
         let verdict = rules.check(&rdr, &mut sample);
         let line = rdr.record_line;
+        // The common case first, without going through the policies.
+        if let Verdict::Accept(t) = verdict {
+            if n.used == 0 {
+                t_first = t;
+                first_line = line;
+            } else {
+                spacings.add(spacing_key(t - t_last));
+            }
+            n.used += 1;
+            n.good += 1;
+            t_last = t;
+            last_line = line;
+            tally.timed(t, None);
+            rules.commit(t, line, Some(&sample));
+            continue;
+        }
         let (t, fill, r) = match rules.decide(verdict) {
             Action::Blank => {
                 n.blank += 1;
@@ -1321,8 +1337,6 @@ struct AcceptedRows {
     accepted: u64,
     /// Fill in the values of held and interpolated rows (false when only times matter).
     values: bool,
-    last_good: LoadSample,
-    last_good_t: f64,
     /// Second reader for looking ahead, made on first use.
     look: Option<RecordReader>,
     right: Right,
@@ -1352,8 +1366,6 @@ impl AcceptedRows {
             plan: plan.clone(),
             accepted: 0,
             values,
-            last_good: LoadSample::default(),
-            last_good_t: 0.0,
             look: None,
             right: Right::Unknown,
         })
@@ -1391,17 +1403,15 @@ impl AcceptedRows {
                 }
                 Action::Good(t) => {
                     self.rules.commit(t, line, Some(out));
-                    self.last_good = *out;
-                    self.last_good_t = t;
                     t
                 }
                 Action::Fill(t, fill, _) => {
                     // Commit first: the look-ahead goes on from the state after this row.
                     self.rules.commit(t, line, None);
                     if self.values {
-                        *out = match fill {
-                            Fill::Hold => self.last_good,
-                            Fill::Interpolate => self.interpolate(t)?,
+                        *out = match (fill, self.rules.last_good()) {
+                            (Fill::Hold, Some((_, s))) => *s,
+                            _ => self.interpolate(t)?,
                         };
                     }
                     t
@@ -1418,10 +1428,7 @@ impl AcceptedRows {
     /// The values of an interpolated row at time `t` (the current record).
     fn interpolate(&mut self, t: f64) -> Result<LoadSample, ProfileError> {
         let right = self.right_neighbour()?;
-        let left = self
-            .rules
-            .has_good
-            .then_some((self.last_good_t, self.last_good));
+        let left = self.rules.last_good().map(|(t, s)| (t, *s));
         match (left, right) {
             (Some((ta, a)), Some((tb, b))) => Ok(lerp(&a, ta, &b, tb, t)),
             (Some((_, a)), None) => Ok(a),

@@ -36,8 +36,16 @@ pub(super) fn parse_f64(bytes: &[u8]) -> Option<f64> {
 #[inline]
 pub(super) fn parse_number(bytes: &[u8], decimal: u8) -> Option<f64> {
     if decimal == b'.' {
-        return parse_f64(bytes);
+        parse_f64(bytes)
+    } else {
+        parse_with_mark(bytes, decimal)
     }
+}
+
+/// [`parse_number`] for a decimal mark other than the point, kept out of line so that
+/// the common path stays small.
+#[inline(never)]
+fn parse_with_mark(bytes: &[u8], decimal: u8) -> Option<f64> {
     if bytes.len() > MAX_NUMBER_BYTES || bytes.contains(&b'.') {
         return None;
     }
@@ -223,9 +231,11 @@ pub(super) struct Rules {
     has_prev: bool,
     /// Spacing before the previous used row, s (0 if none).
     prev_dt: f64,
-    /// Values of the previous used row, when it was a good row.
+    /// Values of the last good row (those of the previous used row when `prev_vals_ok`).
     prev_vals: LoadSample,
     prev_vals_ok: bool,
+    /// Time of the last good row, s.
+    last_good_t: f64,
     /// A good row has been used.
     pub(super) has_good: bool,
     /// An hour repeated by a daylight-saving change: it ends at this time; found at this line.
@@ -256,6 +266,7 @@ impl Rules {
             prev_dt: 0.0,
             prev_vals: LoadSample::default(),
             prev_vals_ok: false,
+            last_good_t: 0.0,
             has_good: false,
             dst_back: None,
         }
@@ -405,6 +416,7 @@ impl Rules {
                 self.prev_vals = *v;
                 self.prev_vals_ok = true;
                 self.has_good = true;
+                self.last_good_t = t;
             }
             None => self.prev_vals_ok = false,
         }
@@ -413,6 +425,12 @@ impl Rules {
                 self.dst_back = None;
             }
         }
+    }
+
+    /// The last good row's time and values, if there was one.
+    #[inline]
+    pub(super) fn last_good(&self) -> Option<(f64, &LoadSample)> {
+        self.has_good.then_some((self.last_good_t, &self.prev_vals))
     }
 
     /// Reads a time; the first readable one decides the file's time kind.
