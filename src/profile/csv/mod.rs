@@ -635,6 +635,33 @@ pub fn scan_bytes(
     scan_source(&CsvSource::bytes(name, data), opts)
 }
 
+/// The used rows of the first pass as a time line: first and last row, and spacings.
+#[derive(Debug, Default)]
+struct Timeline {
+    used: u64,
+    t_first: f64,
+    first_line: u64,
+    t_last: f64,
+    last_line: u64,
+    spacings: Spacings,
+}
+
+impl Timeline {
+    /// A used row at time `t` on `line`.
+    #[inline]
+    fn add(&mut self, t: f64, line: u64) {
+        if self.used == 0 {
+            self.t_first = t;
+            self.first_line = line;
+        } else {
+            self.spacings.add(spacing_key(t - self.t_last));
+        }
+        self.used += 1;
+        self.t_last = t;
+        self.last_line = line;
+    }
+}
+
 /// Counters of the first pass.
 #[derive(Debug, Default)]
 struct Counts {
@@ -680,11 +707,7 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
     let mut sample = LoadSample::default();
 
     let mut n = Counts::default();
-    let mut first_line = 0;
-    let mut last_line = 0;
-    let mut t_first = 0.0;
-    let mut t_last = 0.0;
-    let mut spacings = Spacings::default();
+    let mut line_of_time = Timeline::default();
     let mut row_defects: Vec<Defect> = Vec::new();
     let mut counts = DefectCounts::default();
     let mut tally = Tally::default();
@@ -693,26 +716,18 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
         let verdict = rules.check(&rdr, &mut sample);
         let line = rdr.record_line;
         // The common case first, without going through the policies.
-        if let Verdict::Accept(t) = verdict {
-            if n.used == 0 {
-                t_first = t;
-                first_line = line;
-            } else {
-                spacings.add(spacing_key(t - t_last));
-            }
-            n.used += 1;
-            n.good += 1;
-            t_last = t;
-            last_line = line;
-            tally.timed(t, None);
-            rules.commit(t, line, Some(&sample));
-            continue;
-        }
-        let (t, fill, r) = match rules.decide(verdict) {
-            Action::Blank => {
-                n.blank += 1;
+        let verdict = match verdict {
+            Verdict::Accept(t) => {
+                line_of_time.add(t, line);
+                n.good += 1;
+                tally.timed(t, None);
+                rules.commit(t, line, Some(&sample));
                 continue;
             }
+            v => v,
+        };
+        match rules.decide(verdict) {
+            Action::Blank => n.blank += 1,
             Action::Stop(r) => {
                 return Err(ProfileError::Row {
                     file: name,
@@ -736,23 +751,17 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
                     Some(t) => tally.timed(t, Some(kind)),
                     None => tally.untimed(kind),
                 }
-                continue;
             }
-            Action::Good(t) => (t, None, None),
-            Action::Fill(t, f, r) => (t, Some(f), Some(r)),
-        };
-        if n.used == 0 {
-            t_first = t;
-            first_line = line;
-        } else {
-            spacings.add(spacing_key(t - t_last));
-        }
-        n.used += 1;
-        t_last = t;
-        last_line = line;
-        match (fill, r) {
-            (Some(f), Some(r)) => {
-                let action = if f == Fill::Hold {
+            // Good rows took the path above; this arm only keeps the match complete.
+            Action::Good(t) => {
+                line_of_time.add(t, line);
+                n.good += 1;
+                tally.timed(t, None);
+                rules.commit(t, line, Some(&sample));
+            }
+            Action::Fill(t, fill, r) => {
+                line_of_time.add(t, line);
+                let action = if fill == Fill::Hold {
                     n.held += 1;
                     DefectAction::Held
                 } else {
@@ -771,13 +780,17 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
                 tally.timed(t, Some(r.kind()));
                 rules.commit(t, line, None);
             }
-            _ => {
-                n.good += 1;
-                tally.timed(t, None);
-                rules.commit(t, line, Some(&sample));
-            }
         }
     }
+    let Timeline {
+        used,
+        t_first,
+        first_line,
+        t_last,
+        last_line,
+        mut spacings,
+    } = line_of_time;
+    n.used = used;
     spacings.flush();
 
     let rows_read = n.used + n.skipped;
