@@ -237,6 +237,7 @@ impl Simulation {
                 p_kw: reading.p_kw[0] + reading.p_kw[1] + reading.p_kw[2],
                 q_kvar: reading.q_kvar[0] + reading.q_kvar[1] + reading.q_kvar[2],
                 load_q_kvar: sample.q_total(),
+                load_p_kw: sample.p_total(),
                 fixed_q_kvar: fixed_q,
                 v_ll_min: v_min * sqrt3,
                 v_ll_max: v_max * sqrt3,

@@ -140,6 +140,10 @@ pub struct ControllerSection {
     pub disconnect_delay_s: Option<f64>,
     /// Discharge time, s. Default 60.
     pub discharge_time_s: Option<f64>,
+    /// Time the steps' discharge devices need to bring a capacitor down to a voltage at
+    /// which it may be reclosed (maker's figure), s. Optional; only used to check the
+    /// discharge time.
+    pub capacitor_discharge_s: Option<f64>,
     /// `sequential` (default), `rotating` or `best-fit`.
     pub ordering: Option<OrderingKind>,
     /// `three-phase` (default) or `single-phase`.
@@ -296,6 +300,8 @@ pub struct Scenario {
     pub overcorrection_min_s: f64,
     /// Hunting window, s.
     pub hunting_window_s: f64,
+    /// Discharge-device time of the capacitors, s, if given.
+    pub capacitor_discharge_s: Option<f64>,
     /// SHA-256 of the scenario text, lowercase hex, for provenance.
     pub content_sha256: String,
 }
@@ -841,6 +847,10 @@ impl Scenario {
             overcorrection_threshold_kvar,
             overcorrection_min_s,
             hunting_window_s,
+            capacitor_discharge_s: c
+                .capacitor_discharge_s
+                .map(|x| range("controller.capacitor_discharge_s", x, 0.0, 3600.0, "s"))
+                .transpose()?,
             content_sha256: String::new(),
         })
     }

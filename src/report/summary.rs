@@ -36,6 +36,7 @@ impl ReportWriter for Summary {
         let mut t = String::with_capacity(8 * 1024);
         header(ctx, &mut t);
         top_findings(ctx, &mut t);
+        settings_to_check(ctx, &mut t);
         study(ctx, &mut t);
         pf_energy(ctx, &mut t);
         switching(ctx, &mut t);
@@ -132,6 +133,18 @@ fn num_short(x: f64) -> String {
     let s = format!("{x:.3}");
     let s = s.trim_end_matches('0').trim_end_matches('.');
     s.to_string()
+}
+
+/// Settings that are legal but unwise, with the key to change.
+fn settings_to_check(ctx: &ReportContext<'_>, t: &mut String) {
+    let list = crate::advice::review(ctx.scenario(), ctx.result);
+    if list.is_empty() {
+        return;
+    }
+    heading(t, "Settings to check");
+    for a in &list {
+        wrap(t, "  - ", "    ", &format!("{}: {}.", a.key, a.message));
+    }
 }
 
 fn top_findings(ctx: &ReportContext<'_>, t: &mut String) {
