@@ -335,3 +335,65 @@ fn single_phase_measurement_misses_other_phases() {
     let (r, _) = record_with(&four_fast(""), one_phase());
     assert_eq!(r.metrics.switching.total_operations, 2);
 }
+
+// Overcorrection episodes, on paper: a fixed 50 kvar step with 20 kvar of load leaves the
+// supply 30 kvar leading, beyond the default threshold (the smallest switched step,
+// 25 kvar, strict) for 300 s: one episode, caused by the fixed step at light load. A
+// second leading spell of 30 s is shorter than the 60 s minimum and does not count. The
+// run starts on Monday 2026-01-05 (the default calendar), so the time falls on a Monday.
+#[test]
+fn overcorrection_by_fixed_step() {
+    let toml = r#"
+[[steps]]
+kvar = 50
+fixed = true
+[[steps]]
+kvar = 25
+count = 4
+[controller]
+target_pf = 1.0
+switching_delay_s = 60
+[load.synthetic]
+[run]
+duration_s = 600
+"#;
+    let load = Pieces(vec![
+        (0.0, 100.0, 20.0),
+        (300.0, 100.0, 80.0),
+        (330.0, 100.0, 20.0),
+        (360.0, 100.0, 80.0),
+    ]);
+    let (r, rec) = record_with(toml, load);
+    let o = &r.metrics.overcorrection;
+    assert_eq!((o.episodes, o.total_s, o.longest_s), (1, 300.0, 300.0));
+    assert!((o.worst_leading_kvar - 30.0).abs() < 1e-9);
+    assert_eq!(
+        o.dominant_cause,
+        Some(bankstep::metrics::OvercorrectionCause::FixedSteps)
+    );
+    assert_eq!(o.by_weekday_s[0], 300.0);
+    assert_eq!(rec.ops, vec![op(420.0, 2, true)]);
+    // Fixed steps never appear among the switched steps but do in the wear list.
+    assert_eq!(r.metrics.switching.per_step.len(), 4);
+    assert_eq!(r.metrics.wear.len(), 5);
+    assert!(r.metrics.wear[0].fixed && r.metrics.wear[0].years_to_rated_life.is_none());
+    assert!((r.metrics.wear[0].energized_h - 600.0 / 3600.0).abs() < 1e-12);
+}
+
+// An episode still open at the end of the run counts.
+#[test]
+fn overcorrection_open_at_the_end_counts() {
+    let toml = r#"
+[[steps]]
+kvar = 50
+fixed = true
+[[steps]]
+kvar = 25
+[load.synthetic]
+[run]
+duration_s = 120
+"#;
+    let (r, _) = record_with(toml, Pieces(vec![(0.0, 100.0, 60.0), (40.0, 100.0, 10.0)]));
+    let o = &r.metrics.overcorrection;
+    assert_eq!((o.episodes, o.total_s), (1, 80.0));
+}
