@@ -15,26 +15,38 @@
 //! effect is integrated exactly over the interval: a 1 s weld inside a 15 min interval
 //! adds 1/900 of its power to that sample, so energy is right at any Δt. The PV day curve
 //! is smooth and is taken at the interval's midpoint. Measurement noise is drawn afresh
-//! for every sample.
+//! for every sample. Intervals must be asked for in order (the engine does).
+//!
+//! # Units switching at random
+//!
+//! Units with exponential run and stand times are simulated as the number of running
+//! units, which is then exactly a birth–death process (a unit stops at rate k/on, one
+//! starts at rate (n − k)/off): one waiting time and one choice per switching, whatever
+//! the number of units. While a group's gate is shut its units stand; when it opens they
+//! start afresh in the long-run odds. Fixed cycles start each unit at a random point of
+//! its cycle.
 //!
 //! # Reproducibility
 //!
-//! The same configuration, seed, calendar, start and Δt give bit-identical samples. Every
-//! unit, every cloud process and the noise draw from their own random stream derived from
-//! the seed and the part's place in the file, so adding a welder group or changing Δt does
-//! not change when the compressors run.
+//! The same configuration, seed, calendar, start and Δt give bit-identical samples. Each
+//! machine group, welder group, cloud process and the noise draw from their own random
+//! stream derived from the seed and the part's place in the file, so adding a welder
+//! group, resizing the PV or changing Δt does not change when the compressors run.
 //!
 //! # Speed
 //!
 //! Per-sample work is a comparison against the next event time when nothing switches;
-//! only when an event falls inside the interval are the affected groups integrated. PV
-//! evaluates a short polynomial for its day curve against a cached day start; noise
-//! takes six quantised normal draws from two random numbers (see `noise`). Groups that
-//! switch often compared with Δt (welders) are summed every sample; the others are kept
-//! in a running sum refreshed only when one of them switches. `sample` never allocates.
+//! only when an event falls inside the interval are the affected parts integrated.
+//! Groups that switch often compared with Δt (welders) are summed every sample with
+//! their switchings prepared ahead in small batches; the others are kept in a running
+//! sum refreshed only when one of them switches, and groups shut by their gate cost
+//! nothing. PV evaluates a short polynomial for its day curve against a cached day start
+//! and is skipped through the night. Noise takes six quantised normal draws from two
+//! random numbers, and spell lengths use a table-based exponential (see `draws`).
+//! `sample` never allocates.
 
 mod config;
-mod noise;
+mod draws;
 mod schedule;
 
 pub use config::{
@@ -46,9 +58,8 @@ use crate::error::ProfileError;
 use crate::pf::tan_phi_of;
 use crate::profile::{LoadSample, LoadSource};
 use crate::timebase::{Calendar, DAY_S};
-use noise::FastNormal;
+use draws::{FastExp, FastNormal};
 use rand::{Rng, SeedableRng};
-use rand_distr::Exp1;
 use rand_xoshiro::Xoshiro256PlusPlus;
 use schedule::{week_intervals, Clock, WeekTable};
 
@@ -122,6 +133,26 @@ fn axpy(v: &mut [f64; 6], a: f64, x: &[f64; 6]) {
     }
 }
 
+/// The smaller of two numbers that are never NaN (a plain `minsd`).
+#[inline(always)]
+fn fmin(a: f64, b: f64) -> f64 {
+    if a < b {
+        a
+    } else {
+        b
+    }
+}
+
+/// The larger of two numbers that are never NaN (a plain `maxsd`).
+#[inline(always)]
+fn fmax(a: f64, b: f64) -> f64 {
+    if a > b {
+        a
+    } else {
+        b
+    }
+}
+
 /// Clamps a positive duration from an unvalidated config into a range that cannot hang
 /// the generator.
 fn sane_on(x: f64) -> f64 {
@@ -150,88 +181,148 @@ fn finite_or(x: f64, dflt: f64) -> f64 {
     }
 }
 
-/// How a unit alternates between running and standing.
-#[derive(Debug, Clone, Copy)]
-enum Cycle {
-    /// Exponential run and stand times with these means, s.
-    Random { on: f64, off: f64 },
-    /// Exactly these run and stand times, s.
-    Fixed { on: f64, off: f64 },
-}
+/// Switchings a group draws ahead of time, so that the per-sample test only compares
+/// the next prepared time.
+const EVENT_BATCH: usize = 32;
 
-impl Cycle {
-    /// Mean run and stand times, s.
-    fn times(self) -> (f64, f64) {
-        match self {
-            Cycle::Random { on, off } | Cycle::Fixed { on, off } => (on, off),
-        }
-    }
-
-    /// Length of the next spell in the given state, s.
-    #[inline]
-    fn spell(self, running: bool, rng: &mut Xoshiro256PlusPlus) -> f64 {
-        match self {
-            Cycle::Random { on, off } => {
-                let mean = if running { on } else { off };
-                let e: f64 = rng.sample(Exp1);
-                mean * e
-            }
-            Cycle::Fixed { on, off } => {
-                if running {
-                    on
-                } else {
-                    off
-                }
-            }
-        }
-    }
-
-    /// A unit's state at the start of a run period beginning at `t`, and its first
-    /// switching time.
-    fn start(self, t: f64, rng: &mut Xoshiro256PlusPlus) -> (bool, f64) {
-        let (on, off) = self.times();
-        if off <= 0.0 {
-            return (true, f64::INFINITY);
-        }
-        match self {
-            Cycle::Random { .. } => {
-                // Start in the long-run odds; spells are memoryless, so the rest of the
-                // first spell is a full exponential spell.
-                let running = rng.random::<f64>() * (on + off) < on;
-                (running, t + self.spell(running, rng))
-            }
-            Cycle::Fixed { .. } => {
-                // Start at a random point of the cycle.
-                let phase = rng.random::<f64>() * (on + off);
-                if phase < on {
-                    (true, t + (on - phase))
-                } else {
-                    (false, t + (on + off - phase))
-                }
-            }
-        }
-    }
-
-    /// Expected switchings per second of one unit.
-    fn event_rate(self) -> f64 {
-        let (on, off) = self.times();
-        if off <= 0.0 {
-            0.0
-        } else {
-            2.0 / (on + off)
-        }
-    }
-}
-
-/// One machine or welder unit.
+/// How the units of a group alternate between running and standing, as one process over
+/// the number of running units. It prepares the group's switchings in batches; each is
+/// made in O(1), whatever the number of units.
 #[derive(Debug, Clone)]
-struct Unit {
-    /// Whether it runs (or welds) now.
-    on: bool,
-    /// Run time of its next switching (infinite while it cannot switch).
-    next: f64,
-    /// Its own random stream.
-    rng: Xoshiro256PlusPlus,
+enum Process {
+    /// The units never stop: all run whenever the gate is open.
+    NonStop,
+    /// Independent units with exponential run and stand times. The number running is
+    /// then exactly a birth–death process: a unit stops at rate k/on and one starts at
+    /// rate (n − k)/off, so one waiting time and one choice per switching suffice.
+    Random {
+        /// Long-run share of time a unit runs, on/(on + off).
+        p_on: f64,
+        /// For each number of running units k: 1/λ_k, the mean time to the next
+        /// switching, s, with λ_k = k/on + (n − k)/off.
+        mean_wait: Vec<f64>,
+        /// For each k: the chance (k/on)/λ_k that the next switching stops a unit.
+        p_stop: Vec<f64>,
+        /// Units running and run time after the last prepared switching.
+        k: u32,
+        t: f64,
+        exp: FastExp,
+        rng: Xoshiro256PlusPlus,
+    },
+    /// Exactly `on` running then `off` standing, each unit from its own random point of
+    /// the cycle: the switchings of all units repeat every period, so they are kept as
+    /// one sorted list of offsets walked in order.
+    Fixed {
+        on: f64,
+        period: f64,
+        /// (offset from the cycle origin, +1 starts a unit or −1 stops one), sorted.
+        offsets: Vec<(f64, f64)>,
+        /// Index in `offsets` of the next switching to prepare.
+        ptr: usize,
+        /// Run time the offsets count from, and the number of whole periods since.
+        origin: f64,
+        periods: f64,
+        rng: Xoshiro256PlusPlus,
+    },
+}
+
+impl Process {
+    /// Draws the state of `n` units starting afresh at `t`; returns how many run.
+    fn start(&mut self, n: u32, t: f64) -> u32 {
+        match self {
+            Process::NonStop => n,
+            Process::Random {
+                p_on,
+                k,
+                t: tk,
+                rng,
+                ..
+            } => {
+                // Each unit runs with the long-run probability; spells are memoryless,
+                // so no unit is part-way through one.
+                let p = *p_on;
+                *k = (0..n).filter(|_| rng.random::<f64>() < p).count() as u32;
+                *tk = t;
+                *k
+            }
+            Process::Fixed {
+                on,
+                period,
+                offsets,
+                ptr,
+                origin,
+                periods,
+                rng,
+            } => {
+                // A unit at point φ of its cycle (on while φ < on) stops after on − φ
+                // (or on + period − φ) and starts after period − φ; both lie in
+                // (0, period].
+                offsets.clear();
+                let mut running = 0;
+                for _ in 0..n {
+                    let phi = rng.random::<f64>() * *period;
+                    let stop = if phi < *on {
+                        running += 1;
+                        *on - phi
+                    } else {
+                        *on + *period - phi
+                    };
+                    offsets.push((*period - phi, 1.0));
+                    offsets.push((stop, -1.0));
+                }
+                offsets.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+                *ptr = 0;
+                *origin = t;
+                *periods = 0.0;
+                running
+            }
+        }
+    }
+
+    /// Prepares the next switchings, as (run time, +1 or −1), after those already
+    /// prepared.
+    fn prepare(&mut self, out: &mut [(f64, f64); EVENT_BATCH]) {
+        match self {
+            Process::NonStop => out.fill((f64::INFINITY, 0.0)),
+            Process::Random {
+                mean_wait,
+                p_stop,
+                k,
+                t,
+                exp,
+                rng,
+                ..
+            } => {
+                for slot in out.iter_mut() {
+                    let e = exp.draw(rng);
+                    *t += e * mean_wait[*k as usize];
+                    let stops = rng.random::<f64>() < p_stop[*k as usize];
+                    // −1 when a unit stops, +1 when one starts, without a branch.
+                    let step = 1 - 2 * i32::from(stops);
+                    *k = (*k as i32 + step) as u32;
+                    *slot = (*t, f64::from(step));
+                }
+            }
+            Process::Fixed {
+                period,
+                offsets,
+                ptr,
+                origin,
+                periods,
+                ..
+            } => {
+                for slot in out.iter_mut() {
+                    let (off, step) = offsets[*ptr];
+                    *slot = (*origin + *periods * *period + off, step);
+                    *ptr += 1;
+                    if *ptr == offsets.len() {
+                        *ptr = 0;
+                        *periods += 1.0;
+                    }
+                }
+            }
+        }
+    }
 }
 
 /// A group of identical units that switch independently while a gate lets them run.
@@ -241,31 +332,73 @@ struct Unit {
 struct Group {
     /// `[Pa, Pb, Pc, Qa, Qb, Qc]` of one running unit.
     unit: [f64; 6],
+    /// Units running now (0 while the gate is shut), as a number.
+    n_on: f64,
+    /// Earliest of the next switching and the gate's next change.
+    next_ev: f64,
+    /// Prepared switchings; the next one is at `pos`.
+    events: [(f64, f64); EVENT_BATCH],
+    pos: usize,
     /// When the group may run (state 1) or not (0).
     gate: Clock,
-    cycle: Cycle,
-    units: Vec<Unit>,
-    /// Units running now (0 while the gate is shut).
-    n_on: u32,
-    /// Earliest next switching of any unit.
-    units_next: f64,
-    /// Earliest of `units_next` and the gate's next change.
-    next_ev: f64,
-    /// `n_on` as a number, for the per-sample sum.
-    n_on_f: f64,
+    process: Process,
+    /// Number of units.
+    n: u32,
+    /// Expected switchings per second while running, all units together.
+    event_rate: f64,
 }
 
 impl Group {
-    fn new(unit: [f64; 6], gate: Clock, cycle: Cycle, units: Vec<Unit>, t0: f64) -> Self {
+    #[allow(clippy::too_many_arguments)]
+    fn new(
+        unit: [f64; 6],
+        gate: Clock,
+        cycle: DutyCycle,
+        n: u32,
+        on_s: f64,
+        off_s: f64,
+        rng: Xoshiro256PlusPlus,
+        t0: f64,
+    ) -> Self {
+        let (process, event_rate) = if off_s <= 0.0 || n == 0 {
+            (Process::NonStop, 0.0)
+        } else {
+            let rate = 2.0 * f64::from(n) / (on_s + off_s);
+            let p = match cycle {
+                DutyCycle::Random => {
+                    let lam = |k: u32| f64::from(k) / on_s + f64::from(n - k) / off_s;
+                    Process::Random {
+                        p_on: on_s / (on_s + off_s),
+                        mean_wait: (0..=n).map(|k| 1.0 / lam(k)).collect(),
+                        p_stop: (0..=n).map(|k| f64::from(k) / on_s / lam(k)).collect(),
+                        k: 0,
+                        t: t0,
+                        exp: FastExp::new(),
+                        rng,
+                    }
+                }
+                DutyCycle::Fixed => Process::Fixed {
+                    on: on_s,
+                    period: on_s + off_s,
+                    offsets: Vec::with_capacity(2 * n as usize),
+                    ptr: 0,
+                    origin: t0,
+                    periods: 0.0,
+                    rng,
+                },
+            };
+            (p, rate)
+        };
         let mut g = Group {
             unit,
-            gate,
-            cycle,
-            units,
-            n_on: 0,
-            units_next: f64::INFINITY,
+            n_on: 0.0,
             next_ev: f64::INFINITY,
-            n_on_f: 0.0,
+            events: [(f64::INFINITY, 0.0); EVENT_BATCH],
+            pos: 0,
+            gate,
+            process,
+            n,
+            event_rate,
         };
         if g.gate.state != 0 {
             g.start_units(t0);
@@ -276,66 +409,46 @@ impl Group {
 
     /// The gate opens at `t`: every unit starts afresh.
     fn start_units(&mut self, t: f64) {
-        let cycle = self.cycle;
-        let mut n_on = 0;
-        let mut next = f64::INFINITY;
-        for u in &mut self.units {
-            let (on, first) = cycle.start(t, &mut u.rng);
-            u.on = on;
-            u.next = first;
-            n_on += u32::from(on);
-            next = next.min(first);
-        }
-        self.n_on = n_on;
-        self.units_next = next;
+        self.n_on = f64::from(self.process.start(self.n, t));
+        self.process.prepare(&mut self.events);
+        self.pos = 0;
     }
 
     /// The gate shuts: every unit stands.
     fn stop_units(&mut self) {
-        for u in &mut self.units {
-            u.on = false;
-            u.next = f64::INFINITY;
-        }
-        self.n_on = 0;
-        self.units_next = f64::INFINITY;
+        self.n_on = 0.0;
+        self.events.fill((f64::INFINITY, 0.0));
+        self.pos = 0;
     }
 
-    /// Refreshes the cached next event and running count after a change.
+    /// Refreshes the cached next event after a change.
+    #[inline]
     fn settle(&mut self) {
-        self.next_ev = self.units_next.min(self.gate.next);
-        self.n_on_f = f64::from(self.n_on);
+        self.next_ev = fmin(self.events[self.pos].0, self.gate.next);
     }
 
-    /// Unit-seconds of running over [x, y), switching every unit whose time comes
-    /// before y.
+    /// Unit-seconds of running over [x, y), making every switching that comes before y.
+    #[inline]
     fn run_units(&mut self, x: f64, y: f64) -> f64 {
-        let mut integral = f64::from(self.n_on) * (y - x);
-        if self.units_next < y {
-            let cycle = self.cycle;
-            let mut n_on = self.n_on;
-            let mut next = f64::INFINITY;
-            for u in &mut self.units {
-                while u.next < y {
-                    let te = u.next.max(x);
-                    if u.on {
-                        integral -= y - te;
-                        n_on -= 1;
-                    } else {
-                        integral += y - te;
-                        n_on += 1;
-                    }
-                    u.on = !u.on;
-                    u.next += cycle.spell(u.on, &mut u.rng);
-                }
-                next = next.min(u.next);
+        let mut integral = self.n_on * (y - x);
+        loop {
+            let (te, step) = self.events[self.pos];
+            if te >= y {
+                break;
             }
-            self.n_on = n_on;
-            self.units_next = next;
+            integral += step * (y - fmax(te, x));
+            self.n_on += step;
+            self.pos += 1;
+            if self.pos == EVENT_BATCH {
+                self.process.prepare(&mut self.events);
+                self.pos = 0;
+            }
         }
         integral
     }
 
-    /// Mean number of running units over [t0, t1); afterwards the group stands at t1.
+    /// Mean number of running units over [t0, t1), gate changes included; afterwards the
+    /// group stands at t1.
     #[inline(never)]
     fn integrate(&mut self, cal: &Calendar, t0: f64, t1: f64) -> f64 {
         let mut acc = 0.0;
@@ -351,7 +464,7 @@ impl Group {
                     self.stop_units();
                 }
             }
-            let y = self.gate.next.min(t1);
+            let y = fmin(self.gate.next, t1);
             acc += self.run_units(x, y);
             if y >= t1 {
                 break;
@@ -362,15 +475,30 @@ impl Group {
         acc / (t1 - t0)
     }
 
-    /// Mean number of running units over [t0, t1), integrating only when an event falls
-    /// inside.
+    /// Mean number of running units over [t0, t1) for a group summed every sample; Δt
+    /// is t1 − t0 and `inv_dt` its inverse. The usual cases (no switching, or one) take
+    /// no unpredictable branch.
     #[inline]
-    fn mean(&mut self, cal: &Calendar, t0: f64, t1: f64) -> f64 {
-        if self.next_ev < t1 {
-            self.integrate(cal, t0, t1)
-        } else {
-            self.n_on_f
+    fn mean_every_sample(&mut self, cal: &Calendar, t0: f64, t1: f64, inv_dt: f64) -> f64 {
+        if self.gate.next < t1 {
+            return self.integrate(cal, t0, t1);
         }
+        let start = self.n_on;
+        let (te, step) = self.events[self.pos];
+        let hit = te < t1;
+        let d = if hit { step } else { 0.0 };
+        let mut corr = d * (t1 - fmin(fmax(te, t0), t1));
+        self.n_on += d;
+        self.pos += usize::from(hit);
+        if self.pos == EVENT_BATCH {
+            self.process.prepare(&mut self.events);
+            self.pos = 0;
+        }
+        if self.events[self.pos].0 < t1 {
+            let before = self.n_on;
+            corr += self.run_units(t0, t1) - before * (t1 - t0);
+        }
+        start + corr * inv_dt
     }
 }
 
@@ -392,7 +520,7 @@ impl Base {
             if self.clock.next <= x {
                 self.clock.set(cal, x);
             }
-            let y = self.clock.next.min(t1);
+            let y = fmin(self.clock.next, t1);
             let w = (y - x) * inv_span;
             let lv = &self.levels[usize::from(self.clock.state)];
             for i in 0..6 {
@@ -421,6 +549,7 @@ struct CloudState {
     clear_s: f64,
     shade_s: f64,
     depth: f64,
+    exp: FastExp,
     rng: Xoshiro256PlusPlus,
 }
 
@@ -433,7 +562,7 @@ impl CloudState {
         }
         let mut shaded_t = if self.shaded { t1 - t0 } else { 0.0 };
         while self.next < t1 {
-            let te = self.next.max(t0);
+            let te = fmax(self.next, t0);
             if self.shaded {
                 shaded_t -= t1 - te;
             } else {
@@ -445,8 +574,7 @@ impl CloudState {
             } else {
                 self.clear_s
             };
-            let e: f64 = self.rng.sample(Exp1);
-            self.next += mean * e;
+            self.next += mean * self.exp.draw(&mut self.rng);
         }
         1.0 - self.depth * (shaded_t * inv_dt).clamp(0.0, 1.0)
     }
@@ -469,8 +597,9 @@ fn pv_bell(y: f64) -> f64 {
 struct Pv {
     /// `[Pa, Pb, Pc, Qa, Qb, Qc]` at peak output (P negative: generation).
     peak: [f64; 6],
-    /// Solar noon, seconds of the day.
+    /// Solar noon and sunrise, seconds of the day.
     noon_s: f64,
+    rise_s: f64,
     /// 1 / (sunset − sunrise), 1/s.
     inv_len: f64,
     clouds: Option<CloudState>,
@@ -490,10 +619,15 @@ pub struct SyntheticProfile {
     next_event: f64,
     /// Groups that switch often compared with Δt, summed every sample.
     fast: Vec<Group>,
+    /// Run time before which every group in `fast` is shut by its gate (and so
+    /// contributes nothing), or −∞.
+    fast_idle_until: f64,
     pv: Vec<Pv>,
     /// Run time of the start and end of the day holding the last PV midpoint.
     day_start: f64,
     day_end: f64,
+    /// Run time before which every PV array is in its night, or −∞.
+    pv_idle_until: f64,
     /// Relative noise, one standard deviation (0 for none).
     noise_sigma: f64,
     noise: FastNormal,
@@ -583,48 +717,35 @@ impl SyntheticProfile {
             let pf = finite_or(pf, 1.0).clamp(0.05, 1.0);
             phase_vector(phase, p, p * tan_phi_of(pf))
         };
-        let units = |family: u64, g: usize, n: u32| -> Vec<Unit> {
-            (0..n as usize)
-                .map(|u| Unit {
-                    on: false,
-                    next: f64::INFINITY,
-                    rng: stream(seed, family, g, u),
-                })
-                .collect()
-        };
         let (mut fast, mut slow) = (Vec::new(), Vec::new());
         let mut place = |g: Group| {
-            let rate = g.cycle.event_rate() * g.units.len() as f64;
-            if rate * dt > FAST_EVENTS_PER_INTERVAL {
+            if g.event_rate * dt > FAST_EVENTS_PER_INTERVAL {
                 fast.push(g);
             } else {
                 slow.push(g);
             }
         };
         for (g, m) in cfg.machines.iter().enumerate() {
-            let (on, off) = (sane_on(m.on_s), sane_off(m.off_s));
-            let cycle = match m.cycle {
-                DutyCycle::Random => Cycle::Random { on, off },
-                DutyCycle::Fixed => Cycle::Fixed { on, off },
-            };
             place(Group::new(
                 unit_vector(m.phase, m.kw, m.pf),
                 gate_for(m.runs, &m.window, &m.window_days),
-                cycle,
-                units(STREAM_MACHINE, g, m.units),
+                m.cycle,
+                m.units,
+                sane_on(m.on_s),
+                sane_off(m.off_s),
+                stream(seed, STREAM_MACHINE, g, 0),
                 t0,
             ));
         }
         for (g, w) in cfg.welders.iter().enumerate() {
-            let cycle = Cycle::Random {
-                on: sane_on(w.burst_s),
-                off: sane_off(w.pause_s),
-            };
             place(Group::new(
                 unit_vector(w.phase, w.kw, w.pf),
                 gate_for(w.runs, &w.window, &w.window_days),
-                cycle,
-                units(STREAM_WELDER, g, w.units),
+                DutyCycle::Random,
+                w.units,
+                sane_on(w.burst_s),
+                sane_off(w.pause_s),
+                stream(seed, STREAM_WELDER, g, 0),
                 t0,
             ));
         }
@@ -647,14 +768,15 @@ impl SyntheticProfile {
                     let clear_s = sane_on(c.clear_s);
                     let shade_s = sane_on(c.shade_s);
                     let shaded = rng.random::<f64>() * (clear_s + shade_s) < shade_s;
-                    let e: f64 = rng.sample(Exp1);
-                    let next = t0 + e * if shaded { shade_s } else { clear_s };
+                    let exp = FastExp::new();
+                    let next = t0 + exp.draw(&mut rng) * if shaded { shade_s } else { clear_s };
                     CloudState {
                         shaded,
                         next,
                         clear_s,
                         shade_s,
                         depth: finite_or(c.depth, 0.0).clamp(0.0, 1.0),
+                        exp,
                         rng,
                     }
                 });
@@ -666,6 +788,11 @@ impl SyntheticProfile {
                         [0.0; 6]
                     },
                     noon_s: 0.5 * (rise_s + set_s),
+                    rise_s: if set_s > rise_s {
+                        rise_s
+                    } else {
+                        f64::INFINITY
+                    },
                     inv_len: if set_s > rise_s {
                         1.0 / (set_s - rise_s)
                     } else {
@@ -682,9 +809,11 @@ impl SyntheticProfile {
             steady: [0.0; 6],
             next_event: f64::INFINITY,
             fast,
+            fast_idle_until: f64::NEG_INFINITY,
             pv,
             day_start: f64::INFINITY,
             day_end: f64::NEG_INFINITY,
+            pv_idle_until: f64::NEG_INFINITY,
             noise_sigma: finite_or(cfg.noise_percent, 0.0).clamp(0.0, 100.0) / 100.0,
             noise: FastNormal::new(),
             noise_rng: stream(seed, STREAM_NOISE, 0, 0),
@@ -701,8 +830,8 @@ impl SyntheticProfile {
         let mut s = *self.base.steady();
         let mut next = self.base.clock.next;
         for g in &self.slow {
-            axpy(&mut s, g.n_on_f, &g.unit);
-            next = next.min(g.next_ev);
+            axpy(&mut s, g.n_on, &g.unit);
+            next = fmin(next, g.next_ev);
         }
         self.steady = s;
         self.next_event = next;
@@ -722,7 +851,7 @@ impl SyntheticProfile {
         }
         for g in &mut self.slow {
             if g.next_ev < t1 {
-                let before = g.n_on_f;
+                let before = g.n_on;
                 let d = g.integrate(&self.cal, t0, t1) - before;
                 axpy(v, d, &g.unit);
             }
@@ -734,6 +863,9 @@ impl SyntheticProfile {
     #[inline]
     fn add_pv(&mut self, t0: f64, t1: f64, v: &mut [f64; 6]) {
         let tm = t0 + 0.5 * self.dt;
+        if tm < self.pv_idle_until {
+            return;
+        }
         if !(tm >= self.day_start && tm < self.day_end) {
             let day = (self.cal.epoch(tm) / DAY_S).floor();
             self.day_start = day * DAY_S - self.cal.offset_s;
@@ -741,15 +873,28 @@ impl SyntheticProfile {
         }
         let sod = tm - self.day_start;
         let inv_dt = self.inv_dt;
+        let mut all_dark = true;
         for a in &mut self.pv {
             let y = (sod - a.noon_s) * a.inv_len;
-            let mut f = if y.abs() < 0.5 { pv_bell(y) } else { 0.0 };
-            if let Some(c) = &mut a.clouds {
-                f *= c.factor(t0, t1, inv_dt);
-            }
-            if f > 0.0 {
+            if y.abs() < 0.5 {
+                all_dark = false;
+                let mut f = pv_bell(y);
+                // Clouds keep passing at night; their switchings are caught up here,
+                // clamped to the interval start, which leaves the same realisation.
+                if let Some(c) = &mut a.clouds {
+                    f *= c.factor(t0, t1, inv_dt);
+                }
                 axpy(v, f, &a.peak);
             }
+        }
+        if all_dark {
+            // Nothing to do until the next sunrise of any array.
+            let mut next = f64::INFINITY;
+            for a in &self.pv {
+                let rise = self.day_start + a.rise_s;
+                next = next.min(if rise > tm { rise } else { rise + DAY_S });
+            }
+            self.pv_idle_until = next;
         }
     }
 }
@@ -765,9 +910,21 @@ impl LoadSource for SyntheticProfile {
         if t1 > self.next_event {
             self.integrate_slow(t0, t1, &mut v);
         }
-        for g in &mut self.fast {
-            let m = g.mean(&self.cal, t0, t1);
-            axpy(&mut v, m, &g.unit);
+        if t1 > self.fast_idle_until {
+            let mut idle_until = f64::INFINITY;
+            for g in &mut self.fast {
+                let m = g.mean_every_sample(&self.cal, t0, t1, self.inv_dt);
+                axpy(&mut v, m, &g.unit);
+                idle_until = fmin(
+                    idle_until,
+                    if g.gate.state == 0 {
+                        g.gate.next
+                    } else {
+                        f64::NEG_INFINITY
+                    },
+                );
+            }
+            self.fast_idle_until = idle_until;
         }
         if !self.pv.is_empty() {
             self.add_pv(t0, t1, &mut v);
