@@ -593,3 +593,47 @@ fn samples_stay_finite_over_a_long_run_at_a_late_start() {
         assert!(s.q_total() > 0.0);
     }
 }
+
+/// The example in the module documentation must stay a valid scenario table.
+#[test]
+fn documented_example_parses_and_validates() {
+    #[derive(Deserialize)]
+    struct Load {
+        synthetic: SyntheticConfig,
+    }
+    #[derive(Deserialize)]
+    struct Scenario {
+        load: Load,
+    }
+    let src = include_str!("../src/profile/synthetic.rs");
+    let block: String = src
+        .lines()
+        .skip_while(|l| !l.starts_with("//! ```toml"))
+        .skip(1)
+        .take_while(|l| !l.starts_with("//! ```"))
+        .map(|l| format!("{}\n", l.trim_start_matches("//!").trim_start()))
+        .collect();
+    assert!(block.contains("[[load.synthetic.machines]]"));
+    let s: Scenario = toml::from_str(&block).unwrap();
+    let c = s.load.synthetic;
+    c.validate("load.synthetic").unwrap();
+    assert_eq!(c.machines[0].units, 3);
+    assert_eq!(c.welders[0].burst_s, 1.5);
+    assert!(c.pv[0].clouds.is_some());
+    // It produces a plausible week.
+    let v = run(&c, 1, 60.0, 7.0 * DAY_S);
+    assert!(v.iter().all(|(_, s)| s.q_total() > 0.0));
+    assert!(v.iter().any(|(_, s)| s.p_total() < 60.0));
+}
+
+#[test]
+fn unequal_duty_cycles_give_their_share_of_power() {
+    // Running 200 s of every 800 s: a quarter of 6 × 8 kW = 12 kW on average.
+    for cycle in ["random", "fixed"] {
+        let c = cfg(&format!(
+            "[base]\nkw = 0\n[[machines]]\nunits = 6\nkw = 8\ncycle = \"{cycle}\"\non_s = 200\noff_s = 600\n"
+        ));
+        let m = mean_p(&run(&c, 13, 20.0, 20.0 * DAY_S));
+        assert!((m - 12.0).abs() < 0.02 * 12.0, "{cycle}: {m}");
+    }
+}

@@ -5,7 +5,61 @@
 //!
 //! This module owns the `[load.synthetic]` scenario table ([`SyntheticConfig`] and its
 //! parts, validated by [`SyntheticConfig::validate`]) and the generator
-//! ([`SyntheticProfile`], a [`LoadSource`]).
+//! ([`SyntheticProfile`], a [`LoadSource`]). Load sign convention throughout: P > 0 is
+//! import, Q > 0 inductive; PV generation is negative P.
+//!
+//! # The scenario table
+//!
+//! Every key has a default; an empty `[load.synthetic]` is a steady 100 kW at 0.85 lag.
+//! All figures below are invented for illustration.
+//!
+//! ```toml
+//! [load.synthetic]
+//! noise_percent = 0.5              # relative σ on each phase's P and Q, %
+//!
+//! [load.synthetic.base]
+//! kw = 140                         # three-phase, during shifts
+//! pf = 0.88                        # lagging
+//! night_kw = 60                    # working days outside shifts
+//! weekend_kw = 35                  # other days
+//! phase_shares = [0.36, 0.32, 0.32]
+//!
+//! [load.synthetic.shifts]
+//! days = "mon-fri"                 # or ["mon", "tue", "sat"], "fri-mon", "all"
+//! hours = ["06:00-14:00", "14:00-22:00"]   # "22:00-06:00" runs past midnight
+//!
+//! [[load.synthetic.machines]]
+//! name = "air compressors"
+//! units = 3                        # each switches by itself
+//! kw = 30                          # per running unit
+//! pf = 0.82
+//! phase = "abc"                    # or "a", "b", "c", "ab", "bc", "ca"
+//! runs = "always"                  # or "shifts", or "window" with window = "07:00-19:00"
+//! cycle = "random"                 # exponential spells; "fixed" for an exact cycle
+//! on_s = 900                       # mean running time
+//! off_s = 600                      # mean standing time; 0 = runs without a break
+//!
+//! [[load.synthetic.welders]]
+//! name = "spot welders"
+//! units = 4
+//! kw = 40                          # while welding
+//! pf = 0.55
+//! phase = "ab"                     # line to line
+//! runs = "shifts"
+//! burst_s = 1.5                    # mean burst
+//! pause_s = 12                     # mean pause
+//!
+//! [[load.synthetic.pv]]
+//! peak_kw = 120                    # at solar noon, clear sky
+//! sunrise_h = 6.5
+//! sunset_h = 19.5
+//! pf = 1.0                         # below 1: reactive = "absorb" or "supply"
+//!
+//! [load.synthetic.pv.clouds]       # optional
+//! clear_s = 1800                   # mean clear spell
+//! shade_s = 300                    # mean shaded spell
+//! depth = 0.7                      # share of output lost while shaded
+//! ```
 //!
 //! # What a sample means
 //!
@@ -13,25 +67,38 @@
 //! and welder units, shift and window boundaries, base-load level changes and cloud
 //! shading are events at exact times, drawn from the seed independently of Δt, and their
 //! effect is integrated exactly over the interval: a 1 s weld inside a 15 min interval
-//! adds 1/900 of its power to that sample, so energy is right at any Δt. The PV day curve
-//! is smooth and is taken at the interval's midpoint. Measurement noise is drawn afresh
-//! for every sample. Intervals must be asked for in order (the engine does).
+//! adds 1/900 of its power to that sample, so energy is right at any Δt. The PV clear-sky
+//! curve is taken at the interval's midpoint. Measurement noise is drawn afresh for
+//! every sample. Intervals must be asked for in order (the engine does).
+//!
+//! # Schedules
+//!
+//! Weekdays and times of day come from the run's [`Calendar`]. A shift belongs to the
+//! day it starts on. While a group's gate (always, shifts, or its own window) is shut,
+//! its units stand; when the gate opens they start afresh.
 //!
 //! # Units switching at random
 //!
 //! Units with exponential run and stand times are simulated as the number of running
 //! units, which is then exactly a birth–death process (a unit stops at rate k/on, one
 //! starts at rate (n − k)/off): one waiting time and one choice per switching, whatever
-//! the number of units. While a group's gate is shut its units stand; when it opens they
-//! start afresh in the long-run odds. Fixed cycles start each unit at a random point of
-//! its cycle.
+//! the number of units, and each gate opening starts the units in the long-run odds.
+//! Fixed cycles start each unit at a random point of its cycle.
+//!
+//! # Line-to-line loads
+//!
+//! A load S = P + jQ connected between phases x and y (in the order ab, bc, ca) shows
+//! on the per-phase meters as S/√3·e^(−j30°) on x and S/√3·e^(+j30°) on y: the totals are
+//! the configured P and Q, but the two phases see different power factors, as in the
+//! two-wattmeter method.
 //!
 //! # Reproducibility
 //!
 //! The same configuration, seed, calendar, start and Δt give bit-identical samples. Each
 //! machine group, welder group, cloud process and the noise draw from their own random
 //! stream derived from the seed and the part's place in the file, so adding a welder
-//! group, resizing the PV or changing Δt does not change when the compressors run.
+//! group or resizing the PV does not change when the compressors run, and the switching
+//! times do not depend on Δt (only their averaging does).
 //!
 //! # Speed
 //!
@@ -40,10 +107,9 @@
 //! Groups that switch often compared with Δt (welders) are summed every sample with
 //! their switchings prepared ahead in small batches; the others are kept in a running
 //! sum refreshed only when one of them switches, and groups shut by their gate cost
-//! nothing. PV evaluates a short polynomial for its day curve against a cached day start
-//! and is skipped through the night. Noise takes six quantised normal draws from two
-//! random numbers, and spell lengths use a table-based exponential (see `draws`).
-//! `sample` never allocates.
+//! nothing. The PV curve is drawn in straight one-minute pieces and skipped through the
+//! night. Noise takes six quantised normal draws from two random numbers, and spell
+//! lengths use a table-based exponential (see `draws`). `sample` never allocates.
 
 mod config;
 mod draws;
