@@ -152,9 +152,10 @@ fn mix64(mut z: u64) -> u64 {
     z ^ (z >> 31)
 }
 
-/// The random stream of one part: `family` says the kind, `group` and `unit` its place.
-fn stream(seed: u64, family: u64, group: usize, unit: usize) -> Xoshiro256PlusPlus {
-    let id = (family << 56) ^ ((group as u64) << 28) ^ (unit as u64);
+/// The random stream of one part: `family` says its kind and `index` its place in the
+/// file among parts of that kind.
+fn stream(seed: u64, family: u64, index: usize) -> Xoshiro256PlusPlus {
+    let id = (family << 56) ^ (index as u64);
     Xoshiro256PlusPlus::seed_from_u64(mix64(mix64(seed) ^ mix64(id)))
 }
 
@@ -835,7 +836,7 @@ impl SyntheticProfile {
                 m.units,
                 sane_on(m.on_s),
                 sane_off(m.off_s),
-                stream(seed, STREAM_MACHINE, g, 0),
+                stream(seed, STREAM_MACHINE, g),
                 t0,
             ));
         }
@@ -847,7 +848,7 @@ impl SyntheticProfile {
                 w.units,
                 sane_on(w.burst_s),
                 sane_off(w.pause_s),
-                stream(seed, STREAM_WELDER, g, 0),
+                stream(seed, STREAM_WELDER, g),
                 t0,
             ));
         }
@@ -866,7 +867,7 @@ impl SyntheticProfile {
                 let rise_s = finite_or(a.sunrise_h, 6.0).clamp(0.0, 24.0) * 3600.0;
                 let set_s = finite_or(a.sunset_h, 20.0).clamp(0.0, 24.0) * 3600.0;
                 let clouds = a.clouds.as_ref().map(|c| {
-                    let mut rng = stream(seed, STREAM_CLOUD, i, 0);
+                    let mut rng = stream(seed, STREAM_CLOUD, i);
                     let clear_s = sane_on(c.clear_s);
                     let shade_s = sane_on(c.shade_s);
                     let shaded = rng.random::<f64>() * (clear_s + shade_s) < shade_s;
@@ -922,7 +923,7 @@ impl SyntheticProfile {
             pv_idle_until: f64::NEG_INFINITY,
             noise_sigma: finite_or(cfg.noise_percent, 0.0).clamp(0.0, 100.0) / 100.0,
             noise: FastNormal::new(),
-            noise_rng: stream(seed, STREAM_NOISE, 0, 0),
+            noise_rng: stream(seed, STREAM_NOISE, 0),
             cal,
             base,
             slow,
@@ -1085,10 +1086,10 @@ mod tests {
 
     #[test]
     fn streams_differ_by_part_and_seed() {
-        let mut a = stream(1, STREAM_MACHINE, 0, 0);
-        let mut b = stream(1, STREAM_MACHINE, 0, 1);
-        let mut c = stream(1, STREAM_WELDER, 0, 0);
-        let mut d = stream(2, STREAM_MACHINE, 0, 0);
+        let mut a = stream(1, STREAM_MACHINE, 0);
+        let mut b = stream(1, STREAM_MACHINE, 1);
+        let mut c = stream(1, STREAM_WELDER, 0);
+        let mut d = stream(2, STREAM_MACHINE, 0);
         let x: Vec<u64> = [&mut a, &mut b, &mut c, &mut d]
             .into_iter()
             .map(|r| r.random())
