@@ -182,7 +182,7 @@ impl Simulation {
         };
 
         let mut sample = LoadSample::default();
-        let mut b = bank.susceptance(ctl.mask());
+        solver.set_bank(&bank.susceptance(ctl.mask()));
         let mut b_fixed = bank.susceptance(bank.fixed_mask);
         let mut thd = thd_of(ctl.mask());
         let sqrt3 = 3f64.sqrt();
@@ -194,11 +194,11 @@ impl Simulation {
             let t = t0 + k as f64 * dt;
             let t_next = t0 + (k + 1) as f64 * dt;
             if bank.advance_faults(k as f64 * dt) {
-                b = bank.susceptance(ctl.mask());
+                solver.set_bank(&bank.susceptance(ctl.mask()));
                 b_fixed = bank.susceptance(bank.fixed_mask);
             }
             source.sample(k, t, &mut sample)?;
-            let sol = solver.solve(&sample.p_kw, &sample.q_kvar, &b);
+            let sol = solver.solve(&sample.p_kw, &sample.q_kvar);
             let mut v_min = sol[0].v_ln;
             let mut v_max = sol[0].v_ln;
             let mut i2_max: f64 = 0.0;
@@ -253,7 +253,7 @@ impl Simulation {
             })?;
             if d.closed | d.opened != 0 {
                 met.record_ops(k, &d, t_next);
-                b = bank.susceptance(ctl.mask());
+                solver.set_bank(&bank.susceptance(ctl.mask()));
                 thd = thd_of(ctl.mask());
             }
             if (k + 1) % PROGRESS_EVERY == 0 {

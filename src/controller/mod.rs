@@ -387,6 +387,7 @@ impl Controller {
     /// Reads the measurement of interval k, advances the timers by Δt and makes at most
     /// one ordinary operation (or a protection trip). `t_next` is t_{k+1}, the time the
     /// new state takes effect.
+    #[inline]
     pub fn decide(&mut self, r: &Reading, t_next: f64) -> Decision {
         let (p_raw, q_raw) = match self.params.measurement {
             Measurement::ThreePhase => (
