@@ -214,7 +214,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
         },
         run: &m.run,
         findings: findings(ctx),
-        settings_to_check: crate::advice::review(sc, &ctx.result),
+        settings_to_check: crate::advice::review(sc, ctx.result),
         pf: &m.pf,
         switching: &m.switching,
         overcorrection: &m.overcorrection,
