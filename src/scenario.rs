@@ -313,6 +313,15 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
     d.iter().map(|b| format!("{b:02x}")).collect()
 }
 
+/// A value with its unit, e.g. `400 V`, or the bare value for a ratio.
+fn with_unit(x: f64, unit: &str) -> String {
+    if unit.is_empty() {
+        format!("{x}")
+    } else {
+        format!("{x} {unit}")
+    }
+}
+
 /// Checks `lo ≤ x ≤ hi` (and finiteness), naming key, range and unit.
 fn range(key: &str, x: f64, lo: f64, hi: f64, unit: &str) -> Result<f64, FieldError> {
     if x.is_finite() && x >= lo && x <= hi {
@@ -320,7 +329,7 @@ fn range(key: &str, x: f64, lo: f64, hi: f64, unit: &str) -> Result<f64, FieldEr
     } else {
         Err(FieldError::new(
             key,
-            format!("{x} {unit} is outside the allowed range {lo} to {hi} {unit}"),
+            format!("{} is outside the allowed range {lo} to {}", with_unit(x, unit), with_unit(hi, unit)),
         ))
     }
 }
@@ -333,7 +342,9 @@ fn range_open(key: &str, x: f64, lo: f64, hi: f64, unit: &str) -> Result<f64, Fi
         Err(FieldError::new(
             key,
             format!(
-                "{x} {unit} is outside the allowed range: more than {lo} and at most {hi} {unit}"
+                "{} is outside the allowed range: more than {lo} and at most {}",
+                with_unit(x, unit),
+                with_unit(hi, unit)
             ),
         ))
     }
