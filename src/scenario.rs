@@ -939,6 +939,33 @@ count = 4
     }
 
     #[test]
+    fn harmonic_keys_parse_and_check_their_ranges() {
+        let s = parse(&format!(
+            "{MINIMAL}[harmonics]\npreset = \"single-phase-electronic\"\nreference_kva = 40\n\
+             voltage_limits = \"en-50160\"\ncapacitor_limits = \"ieee-18\"\ndamping_kw = 20\n"
+        ))
+        .unwrap();
+        assert_eq!(s.spectrum.orders[0], (3.0, 81.0));
+        assert_eq!(s.harmonics.voltage_limits, VoltageLimits::En50160);
+        assert_eq!(s.harmonics.capacitor_limits, CapacitorLimits::Ieee18);
+        assert_eq!(s.harmonics.damping_kw, 20.0);
+        let e = parse(&MINIMAL.replace(
+            "count = 4",
+            "count = 4\ndetuning_pct = 7\ncapacitor_rated_voltage_v = 40",
+        ))
+        .unwrap_err()
+        .to_string();
+        assert!(
+            e.contains("steps[0].capacitor_rated_voltage_v") && e.contains("320 to 1200 V"),
+            "{e}"
+        );
+        let e = parse(&format!("{MINIMAL}[harmonics]\ndamping_kw = -1\n"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("harmonics.damping_kw"), "{e}");
+    }
+
+    #[test]
     fn csv_path_is_relative_to_the_scenario() {
         let s = Scenario::from_str(
             "[[steps]]\nkvar = 10\n[load]\ncsv = \"p.csv\"\n",
