@@ -185,7 +185,7 @@ struct ResonanceArgs {
     )]
     detuning: Vec<f64>,
 
-    /// Highest harmonic order scanned (more than 2, at most 200).
+    /// Highest harmonic order scanned (more than 1, at most 200).
     #[arg(long, value_name = "ORDER", default_value_t = 50.0)]
     max_order: f64,
 

@@ -776,9 +776,9 @@ mod tests {
         assert!(zt < 0.2 * m.supply_impedance(3.78).norm());
     }
 
-    // THD of a known spectrum worked by hand: a stiff-ish resistive check is hard, so use
-    // the definition on the model's own harmonic voltages: sqrt(Σ v_h²) (IEEE Std 519
-    // definition, read).
+    // THD is the root sum of squares of the harmonic voltages over the fundamental,
+    // sqrt(Σ v_h²) (IEEE Std 519 definition, read); the engine's cheap THD agrees with the
+    // full state solution. A hand-worked spectrum is in tests/harmonics_checks.rs.
     #[test]
     fn thd_is_the_root_sum_of_squares() {
         let spectrum = Spectrum {

@@ -709,14 +709,22 @@ fn detuning_advice(ctx: &ReportContext<'_>) -> String {
     let all = hm.all_mask();
     let full = detuned.resonance_order(all);
     let u = sc.supply.nominal_voltage_v;
-    let mut text = format!(
+    let mixed = sc.steps.iter().any(|s| s.detuning.is_some());
+    let mut text = String::new();
+    if mixed {
+        text.push_str(
+            "Plain steps beside detuned ones resonate with the detuned steps' reactors as well \
+             as with the supply: detune every step. ",
+        );
+    }
+    text.push_str(&format!(
         "Detuned steps (a series reactor on each step that tunes it below the lowest harmonic \
          present) move the resonance out of the way: with {} % on every step (same kvar), the \
          full bank would resonate at order {}, below the {}",
         num(p * 100.0, 0),
         full.map_or("n/a".to_string(), |o| num(o, 1)),
         harmonic_name(lowest),
-    );
+    ));
     text.push_str(&format!(
         "; its capacitors then see U/(1 − p) = {} V and need a higher rating (e.g. {} V). \
          `bankstep resonance` compares 5.67 %, 7 % and 14 % state by state.",

@@ -167,7 +167,7 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         if sv.states.len() == 1 { "" } else { "s" }
     ));
     let mut head = format!(
-        "  {:<18}  {:>6}  {:>6}  {:>6}  {:>5}  {:>7}",
+        "  {:<20}  {:>6}  {:>6}  {:>6}  {:>5}  {:>7}",
         "steps on", "kvar", "order", "peak", "f Hz", "|Z| ohm"
     );
     for h in &amp_orders {
@@ -187,7 +187,7 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         }
         let peak = s.harmonics.peaks.first();
         let mut row = format!(
-            "  {:<18}  {:>6}  {:>6}  {:>6}  {:>5}  {:>7}",
+            "  {:<20}  {:>6}  {:>6}  {:>6}  {:>5}  {:>7}",
             label,
             num(s.kvar, 0),
             s.harmonics.order.map_or("none".to_string(), |o| num(o, 2)),
@@ -292,7 +292,7 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         ));
     }
     t.push('\n');
-    let mut head = format!("  {:<18}  {:>8}", "steps on", "as built");
+    let mut head = format!("  {:<20}  {:>8}", "steps on", "as built");
     for d in &sv.detuning {
         head.push_str(&format!("  {:>8}", format!("{} %", num(d.p * 100.0, 2))));
     }
@@ -306,7 +306,7 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
             label.push_str(&format!(" (+{} alike)", members.len() - 1));
         }
         let mut row = format!(
-            "  {:<18}  {:>8}",
+            "  {:<20}  {:>8}",
             label,
             s.harmonics.order.map_or("none".to_string(), |o| num(o, 2))
         );
