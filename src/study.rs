@@ -132,6 +132,7 @@ impl Study {
             },
             spectrum: scenario.spectrum.clone(),
             resonance_tolerance: scenario.resonance_tolerance,
+            harmonics: scenario.harmonics,
             calendar,
             t_first_s: t_first,
             dt_s: dt,
