@@ -343,7 +343,11 @@ fn range(key: &str, x: f64, lo: f64, hi: f64, unit: &str) -> Result<f64, FieldEr
     } else {
         Err(FieldError::new(
             key,
-            format!("{} is outside the allowed range {lo} to {}", with_unit(x, unit), with_unit(hi, unit)),
+            format!(
+                "{} is outside the allowed range {lo} to {}",
+                with_unit(x, unit),
+                with_unit(hi, unit)
+            ),
         ))
     }
 }
