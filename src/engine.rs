@@ -319,9 +319,14 @@ impl Simulation {
         let run_s = m.run.duration_s.max(1e-9);
         let mut states = Vec::with_capacity(m.states.len());
         let mut warnings = Vec::new();
-        for st in &m.states {
-            // Each state reached appears once here, so each is solved once.
-            let h = hm.state(st.mask);
+        // Each state reached appears once here, so each is solved once; the states are
+        // independent, so they are solved in parallel, and collected in their order, so
+        // the report does not depend on the number of threads.
+        let solved: Vec<_> = {
+            use rayon::prelude::*;
+            m.states.par_iter().map(|st| hm.state(st.mask)).collect()
+        };
+        for (st, h) in m.states.iter().zip(solved) {
             let hours_per_year = st.time_s / run_s * HOURS_PER_YEAR;
             // A warning where the resonant order, or any other peak of the scan, lies within
             // the tolerance of a harmonic present; the worst such harmonic is named.

@@ -126,6 +126,11 @@ persons, to local codes and licensed practice.
 #[derive(Debug, Parser)]
 #[command(name = "bankstep", version, after_help = TOP_AFTER_HELP)]
 struct Cli {
+    /// Worker threads for the parts that run in parallel (default: one per core). Results
+    /// are the same for any number.
+    #[arg(long, global = true, value_name = "N")]
+    threads: Option<usize>,
+
     #[command(subcommand)]
     command: Command,
 }
@@ -265,6 +270,19 @@ impl Failure {
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
+    if let Some(n) = cli.threads {
+        if n == 0 {
+            eprintln!("error: --threads must be at least 1");
+            return ExitCode::from(2);
+        }
+        if let Err(e) = rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global()
+        {
+            eprintln!("error: cannot start {n} worker threads: {e}");
+            return ExitCode::from(1);
+        }
+    }
     let outcome = match cli.command {
         Command::Simulate(args) => simulate(&args),
         Command::Resonance(args) => resonance(&args),

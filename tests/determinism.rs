@@ -29,3 +29,43 @@ fn same_seed_same_bytes() {
     assert_eq!(a, report(11));
     assert_ne!(a, report(12));
 }
+
+// The states of a run are solved in parallel; the report must not depend on the number of
+// threads.
+#[test]
+fn one_and_two_threads_give_the_same_bytes() {
+    let pool = |n| {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build()
+            .unwrap()
+    };
+    let one = pool(1).install(|| report(11));
+    let two = pool(2).install(|| report(11));
+    assert_eq!(one, two);
+}
+
+// The same through the command line: `--threads 1` and `--threads 2` write the same JSON.
+#[test]
+fn cli_thread_count_does_not_change_the_report() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut outs = Vec::new();
+    for n in ["1", "2"] {
+        let path = dir.path().join(format!("r{n}.json"));
+        assert_cmd::Command::cargo_bin("bankstep")
+            .unwrap()
+            .args([
+                "--threads",
+                n,
+                "simulate",
+                "scenarios/pumping-station.toml",
+                "--quiet",
+                "--json",
+            ])
+            .arg(&path)
+            .assert()
+            .success();
+        outs.push(std::fs::read(&path).unwrap());
+    }
+    assert_eq!(outs[0], outs[1]);
+}
