@@ -28,8 +28,6 @@ switching_delay_s = 20
 discharge_time_s = 60
 ordering = "rotating"
 averaging_s = 5
-[load.synthetic]
-__SYNTH__
 [harmonics]
 preset = "six-pulse"
 reference_kva = 300
@@ -37,6 +35,9 @@ reference_kva = 300
 duration_days = __DAYS__
 time_step_s = 1
 seed = 7
+
+[load.synthetic]
+__SYNTH__
 "#;
 
 /// A plant-like generator section; kept in one place so the bench and the docs agree.

@@ -52,6 +52,11 @@ pub struct StepSpec {
     pub detuning: Option<f64>,
     /// Rated electrical life of the contactor, operations.
     pub rated_operations: f64,
+    /// Rated voltage of the step's capacitors, V (line to line for a three-phase step,
+    /// line to neutral for a single-phase one). `None`: the default of
+    /// [`crate::harmonics::limits::default_rated_voltage`] (U_n for a plain step, the next
+    /// standard rating above U/(1 − p) for a detuned one).
+    pub capacitor_rated_voltage_v: Option<f64>,
     /// Fault injection, if any.
     pub fault: Option<Fault>,
 }
@@ -228,6 +233,7 @@ mod tests {
             fixed: false,
             detuning: None,
             rated_operations: 100_000.0,
+            capacitor_rated_voltage_v: None,
             fault: None,
         }
     }

@@ -13,7 +13,7 @@
 use crate::bank::{Bank, StepSpec};
 use crate::controller::{Controller, ControllerParams, Decision, Reading};
 use crate::error::RunError;
-use crate::harmonics::{HarmonicModel, Spectrum};
+use crate::harmonics::{HarmonicModel, HarmonicOptions, HarmonicVoltage, Spectrum, StepStress};
 use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
 use crate::profile::{LoadSample, LoadSource};
 use crate::supply::{BusSolver, PhaseSolution, SupplyParams};
@@ -37,6 +37,9 @@ pub struct Simulation {
     /// A resonance within this many orders of a harmonic in the spectrum is a warning.
     /// Default 0.5.
     pub resonance_tolerance: f64,
+    /// Harmonic limits and damping. Default IEEE Std 519 and IEC 60831-1 limits, no
+    /// damping.
+    pub harmonics: HarmonicOptions,
     /// Calendar of the run's time base.
     pub calendar: Calendar,
     /// Start of the first interval, s (profile time base).
@@ -79,6 +82,9 @@ pub trait Observer {
 pub struct Quiet;
 impl Observer for Quiet {}
 
+/// Hours in a 365-day year, h.
+pub const HOURS_PER_YEAR: f64 = 8760.0;
+
 /// Resonance of one bank state reached.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct StateResonance {
@@ -86,14 +92,39 @@ pub struct StateResonance {
     pub steps: Vec<usize>,
     /// Nominal kvar connected.
     pub kvar: f64,
-    /// Parallel-resonance order; `null` with nothing connected or a stiff supply.
+    /// Parallel-resonance order: sqrt(S_sc/Q_c) when every connected step is plain, else
+    /// the strongest peak of the impedance scan; `null` with nothing connected or a stiff
+    /// supply.
     pub order: Option<f64>,
     /// Resonance frequency, Hz.
     pub frequency_hz: Option<f64>,
+    /// Order of the strongest peak of the impedance scan (orders 1 to 50 by 0.01,
+    /// refined); `null` when there is none inside the scan.
+    pub peak_order: Option<f64>,
+    /// |Z| at that peak, ohm per phase.
+    pub peak_impedance_ohm: Option<f64>,
+    /// The order of the load spectrum nearest to `order`, however far (`null` without a
+    /// spectrum or a resonance).
+    pub nearest_harmonic: Option<f64>,
     /// Time in the state, s.
     pub time_s: f64,
+    /// Time in the state extrapolated to a 365-day year (the run's share of time × 8760 h),
+    /// h.
+    pub hours_per_year: f64,
     /// Estimated voltage THD at the bus in this state, %.
     pub thd_pct: f64,
+    /// THD limit of the chosen table, %.
+    pub thd_limit_pct: f64,
+    /// The bus at each order of the load spectrum.
+    pub harmonics: Vec<HarmonicVoltage>,
+    /// Current and voltage stress of each connected step.
+    pub step_stress: Vec<StepStress>,
+    /// Largest of the harmonic voltages, the THD and the step stresses over their limits
+    /// (≥ 1: a limit is exceeded).
+    pub limit_ratio: f64,
+    /// Severity: the square of `limit_ratio` (heating grows with the square of current
+    /// and voltage); `hours_per_year × severity` ranks the states.
+    pub severity: f64,
 }
 
 /// A state resonating near a harmonic present in the load.
@@ -107,10 +138,20 @@ pub struct ResonanceWarning {
     pub near_harmonic: f64,
     /// Time in the state, s.
     pub time_s: f64,
+    /// Time in the state extrapolated to a 365-day year, h.
+    pub hours_per_year: f64,
     /// Estimated bus voltage at that harmonic, % of U_n.
     pub v_h_pct: f64,
+    /// Limit for that harmonic, % (`null` where the chosen table gives none).
+    pub v_h_limit_pct: Option<f64>,
+    /// |Z| with the bank over |Z| without it at that harmonic.
+    pub amplification: f64,
     /// Estimated voltage THD at the bus, %.
     pub thd_pct: f64,
+    /// THD limit, %.
+    pub thd_limit_pct: f64,
+    /// The state's severity (see [`StateResonance::severity`]).
+    pub severity: f64,
 }
 
 /// Resonance section of a run.
@@ -120,6 +161,12 @@ pub struct ResonanceReport {
     pub short_circuit_kva: Option<f64>,
     /// Tolerance used, orders.
     pub tolerance_orders: f64,
+    /// Harmonic-voltage limits used, e.g. `IEEE Std 519-2014 Table 1`.
+    pub voltage_limits: &'static str,
+    /// Capacitor limits used, e.g. `IEC 60831-1`.
+    pub capacitor_limits: &'static str,
+    /// Damping load assumed at the bus, kW (0: none, the estimate errs high).
+    pub damping_kw: f64,
     /// Every state reached, longest first.
     pub states: Vec<StateResonance>,
     /// States near a harmonic of the load, longest first.
@@ -146,11 +193,10 @@ impl Simulation {
     /// The harmonic model of the site.
     pub fn harmonic_model(&self) -> HarmonicModel {
         HarmonicModel::new(
-            self.supply.nominal_voltage_v,
-            self.supply.impedance_ohm(),
-            self.supply.short_circuit_kva(),
+            &self.supply,
             &self.steps,
             self.spectrum.clone(),
+            self.harmonics,
         )
     }
 
@@ -176,13 +222,11 @@ impl Simulation {
             if !thd_wanted {
                 return 0.0;
             }
-            *thd_cache
-                .entry(mask)
-                .or_insert_with(|| hm.state(mask).thd_pct)
+            *thd_cache.entry(mask).or_insert_with(|| hm.thd_pct(mask))
         };
 
         let mut sample = LoadSample::default();
-        let mut b = bank.susceptance(ctl.mask());
+        solver.set_bank(&bank.susceptance(ctl.mask()));
         let mut b_fixed = bank.susceptance(bank.fixed_mask);
         let mut thd = thd_of(ctl.mask());
         let sqrt3 = 3f64.sqrt();
@@ -194,11 +238,11 @@ impl Simulation {
             let t = t0 + k as f64 * dt;
             let t_next = t0 + (k + 1) as f64 * dt;
             if bank.advance_faults(k as f64 * dt) {
-                b = bank.susceptance(ctl.mask());
+                solver.set_bank(&bank.susceptance(ctl.mask()));
                 b_fixed = bank.susceptance(bank.fixed_mask);
             }
             source.sample(k, t, &mut sample)?;
-            let sol = solver.solve(&sample.p_kw, &sample.q_kvar, &b);
+            let sol = solver.solve(&sample.p_kw, &sample.q_kvar);
             let mut v_min = sol[0].v_ln;
             let mut v_max = sol[0].v_ln;
             let mut i2_max: f64 = 0.0;
@@ -237,6 +281,7 @@ impl Simulation {
                 p_kw: reading.p_kw[0] + reading.p_kw[1] + reading.p_kw[2],
                 q_kvar: reading.q_kvar[0] + reading.q_kvar[1] + reading.q_kvar[2],
                 load_q_kvar: sample.q_total(),
+                load_p_kw: sample.p_total(),
                 fixed_q_kvar: fixed_q,
                 v_ll_min: v_min * sqrt3,
                 v_ll_max: v_max * sqrt3,
@@ -252,7 +297,7 @@ impl Simulation {
             })?;
             if d.closed | d.opened != 0 {
                 met.record_ops(k, &d, t_next);
-                b = bank.susceptance(ctl.mask());
+                solver.set_bank(&bank.susceptance(ctl.mask()));
                 thd = thd_of(ctl.mask());
             }
             if (k + 1) % PROGRESS_EVERY == 0 {
@@ -271,36 +316,73 @@ impl Simulation {
 
     fn resonance_report(&self, hm: &HarmonicModel, bank: &Bank, m: &RunMetrics) -> ResonanceReport {
         let f = self.supply.frequency_hz;
+        let run_s = m.run.duration_s.max(1e-9);
         let mut states = Vec::with_capacity(m.states.len());
         let mut warnings = Vec::new();
-        for st in &m.states {
-            let h = hm.state(st.mask);
+        // Each state reached appears once here, so each is solved once; the states are
+        // independent, so they are solved in parallel, and collected in their order, so
+        // the report does not depend on the number of threads.
+        let solved: Vec<_> = {
+            use rayon::prelude::*;
+            m.states.par_iter().map(|st| hm.state(st.mask)).collect()
+        };
+        for (st, h) in m.states.iter().zip(solved) {
+            let hours_per_year = st.time_s / run_s * HOURS_PER_YEAR;
+            // A warning where the resonant order, or any other peak of the scan, lies within
+            // the tolerance of a harmonic present; the worst such harmonic is named.
+            let mut best: Option<(f64, &HarmonicVoltage)> = None;
+            for order in h.order.into_iter().chain(h.peaks.iter().map(|p| p.order)) {
+                let Some(near) = hm.near_harmonic(order, self.resonance_tolerance) else {
+                    continue;
+                };
+                let Some(hv) = h.harmonics.iter().find(|x| x.order == near) else {
+                    continue;
+                };
+                if best.is_none_or(|b| hv.v_pct > b.1.v_pct) {
+                    best = Some((order, hv));
+                }
+            }
+            if let Some((order, hv)) = best {
+                warnings.push(ResonanceWarning {
+                    steps: st.steps.clone(),
+                    order,
+                    near_harmonic: hv.order,
+                    time_s: st.time_s,
+                    hours_per_year,
+                    v_h_pct: hv.v_pct,
+                    v_h_limit_pct: hv.limit_pct,
+                    amplification: hv.amplification,
+                    thd_pct: h.thd_pct,
+                    thd_limit_pct: h.thd_limit_pct,
+                    severity: h.severity,
+                });
+            }
+            let peak = h.peaks.first();
             states.push(StateResonance {
                 steps: st.steps.clone(),
                 kvar: bank.nominal_kvar(st.mask),
                 order: h.order,
                 frequency_hz: h.order.map(|o| o * f),
+                peak_order: peak.map(|p| p.order),
+                peak_impedance_ohm: peak.map(|p| p.impedance_ohm),
+                nearest_harmonic: h.order.and_then(|o| hm.nearest_harmonic(o)),
                 time_s: st.time_s,
+                hours_per_year,
                 thd_pct: h.thd_pct,
+                thd_limit_pct: h.thd_limit_pct,
+                harmonics: h.harmonics,
+                step_stress: h.steps,
+                limit_ratio: h.limit_ratio,
+                severity: h.severity,
             });
-            if let Some(order) = h.order {
-                if let Some(near) = hm.near_harmonic(order, self.resonance_tolerance) {
-                    let v_h = h.v_h_pct.iter().find(|x| x.0 == near).map_or(0.0, |x| x.1);
-                    warnings.push(ResonanceWarning {
-                        steps: st.steps.clone(),
-                        order,
-                        near_harmonic: near,
-                        time_s: st.time_s,
-                        v_h_pct: v_h,
-                        thd_pct: h.thd_pct,
-                    });
-                }
-            }
         }
         let s_sc = self.supply.short_circuit_kva();
         ResonanceReport {
             short_circuit_kva: s_sc.is_finite().then_some(s_sc),
             tolerance_orders: self.resonance_tolerance,
+            voltage_limits: self.harmonics.voltage_limits.name(),
+            capacitor_limits: self.harmonics.capacitor_limits.values().standard,
+            damping_kw: self.harmonics.damping_kw,
             states,
             warnings,
         }

@@ -7,6 +7,7 @@
 //! writers ([`report`]). It never prints and knows nothing of the command line; the
 //! `bankstep` binary is a thin shell around it.
 
+pub mod advice;
 pub mod bank;
 pub mod controller;
 pub mod engine;

@@ -14,6 +14,10 @@
 use anyhow::Context;
 use bankstep::engine::{IntervalRecord, Observer};
 use bankstep::error::RunError;
+use bankstep::harmonics::scan::ScanGrid;
+use bankstep::harmonics::survey::{self, Selection, Survey};
+use bankstep::harmonics::HarmonicModel;
+use bankstep::report::resonance::{self as resonance_report, ResonanceContext};
 use bankstep::report::{
     JsonReport, ReportContext, ReportError, ReportWriter, Summary, TimeseriesWriter,
 };
@@ -44,7 +48,8 @@ const TOP_AFTER_HELP: &str = concat!(
     "Example:
   bankstep simulate site.toml --json site.json
 
-Run `bankstep simulate --help` for the options and the time-series columns.
+Run `bankstep simulate --help` for the options and the time-series columns, and
+`bankstep resonance --help` for the impedance scan and the detuning comparison.
 
 ",
     exit_codes!()
@@ -73,6 +78,44 @@ Examples:
     exit_codes!()
 );
 
+const RESONANCE_AFTER_HELP: &str = concat!(
+    "What it shows, per bank state (a set of connected steps; fixed steps are always in):
+  order    parallel-resonance order of the bank with the supply: sqrt(S_sc/Q_c) for plain
+           steps (S_sc the short-circuit power at the bus, kVA; Q_c the kvar connected),
+           the peak of the impedance scan for detuned ones; x 50 Hz (or 60) gives f_r
+  peak     order of the strongest peak of |Z(h)|, the impedance the load's harmonic
+           currents see, ohm per phase; the supply resistance moves it slightly
+  xhN      amplification at harmonic N of the load: |Z| with the state over |Z| with no
+           step connected (above 1 the bank makes that harmonic worse)
+  THD_V    estimated bus voltage THD, %, with the harmonic load at its rating
+  status   `near hN` when a resonance lies within the scenario's tolerance of harmonic N
+  h/year   with --states reached: time in the state extrapolated to a 365-day year
+
+Then \"what detuning would do\": the same kvar per step, every step with a detuning
+reactor of ratio p (default 5.67 %, 7 %, 14 %: tuned to orders 4.20, 3.78, 2.67), and the
+resonant order of the full bank and of each state, so you see whether the peak moves
+below the lowest harmonic of the load. A detuned step's capacitors see U/(1 - p) (430 V
+for 7 % at 400 V) and need a rating above it.
+
+CSV (--csv): a column h (harmonic order), supply_only_ohm, then z_<steps>_ohm per state:
+|Z(h)| in ohm per phase, one row per order of the scan.
+JSON (--json): the states (order, peaks, harmonic voltages, step current and capacitor
+voltage against their limits), the detuning comparison, and the curves.
+
+Examples:
+  bankstep resonance site.toml
+  bankstep resonance site.toml --states 1+2,1+2+3 --csv z.csv
+  bankstep resonance site.toml --states reached --json resonance.json
+  bankstep resonance site.toml --detuning 7,14 --max-order 25 --resolution 0.005
+
+Caution: capacitors hold their charge after they are switched off; resonance can destroy
+capacitors, fuses and drives. Changes to steps, reactors or wiring are for qualified
+persons, to local codes and licensed practice.
+
+",
+    exit_codes!()
+);
+
 /// Simulates automatic capacitor-bank step control on a site's load.
 ///
 /// A scenario file (TOML) describes the supply, the bank steps, the controller settings
@@ -83,6 +126,11 @@ Examples:
 #[derive(Debug, Parser)]
 #[command(name = "bankstep", version, after_help = TOP_AFTER_HELP)]
 struct Cli {
+    /// Worker threads for the parts that run in parallel (default: one per core). Results
+    /// are the same for any number.
+    #[arg(long, global = true, value_name = "N")]
+    threads: Option<usize>,
+
     #[command(subcommand)]
     command: Command,
 }
@@ -97,6 +145,62 @@ enum Command {
     /// every power factor with its quadrant (lag or lead).
     #[command(after_help = SIMULATE_AFTER_HELP)]
     Simulate(SimulateArgs),
+    /// Scan the impedance of bank states and compare detuning ratios.
+    ///
+    /// For each chosen bank state, scans |Z(h)|, the impedance the load's harmonic
+    /// currents see at the bus, over harmonic orders h, finds the parallel-resonance peak
+    /// with the supply, and estimates how much each harmonic of the load is amplified and
+    /// the bus voltage THD. Then shows what detuning every step would do to the resonance.
+    /// The scan needs no load profile, except with `--states reached`, which runs the
+    /// simulation first.
+    #[command(after_help = RESONANCE_AFTER_HELP)]
+    Resonance(ResonanceArgs),
+}
+
+/// Options of `bankstep resonance`.
+#[derive(Debug, Args)]
+struct ResonanceArgs {
+    /// Scenario file (TOML).
+    #[arg(value_name = "SCENARIO")]
+    scenario: PathBuf,
+
+    /// Which bank states: `all` (every combination of the switched steps, at most 16 of
+    /// them), `reached` (the states a simulation of the scenario reaches, with their time),
+    /// or a list of step numbers joined by `+` and separated by commas, e.g.
+    /// `1+2,1+2+3` (`none` for no switched step). Fixed steps are added to every state.
+    #[arg(long, value_name = "STATES", default_value = "all")]
+    states: String,
+
+    /// Also write the impedance curves (|Z| in ohm per state, one row per order) as CSV to
+    /// FILE. `-` writes to standard output instead of the tables.
+    #[arg(long, value_name = "FILE")]
+    csv: Option<PathBuf>,
+
+    /// Also write the whole scan (states, detuning comparison, curves) as one JSON object
+    /// to FILE. `-` writes to standard output instead of the tables.
+    #[arg(long, value_name = "FILE")]
+    json: Option<PathBuf>,
+
+    /// Detuning ratios to compare, % (comma-separated, each more than 0 and at most 20).
+    #[arg(
+        long,
+        value_name = "P,...",
+        default_value = "5.67,7,14",
+        value_delimiter = ','
+    )]
+    detuning: Vec<f64>,
+
+    /// Highest harmonic order scanned (more than 1, at most 200).
+    #[arg(long, value_name = "ORDER", default_value_t = 50.0)]
+    max_order: f64,
+
+    /// Spacing of the scan, orders (0.0001 to 1); peaks are refined between grid points.
+    #[arg(long, value_name = "ORDERS", default_value_t = 0.01)]
+    resolution: f64,
+
+    /// No notes on standard error.
+    #[arg(long, short)]
+    quiet: bool,
 }
 
 /// Options of `bankstep simulate`.
@@ -166,8 +270,22 @@ impl Failure {
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
+    if let Some(n) = cli.threads {
+        if n == 0 {
+            eprintln!("error: --threads must be at least 1");
+            return ExitCode::from(2);
+        }
+        if let Err(e) = rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global()
+        {
+            eprintln!("error: cannot start {n} worker threads: {e}");
+            return ExitCode::from(1);
+        }
+    }
     let outcome = match cli.command {
         Command::Simulate(args) => simulate(&args),
+        Command::Resonance(args) => resonance(&args),
     };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,
@@ -321,6 +439,133 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
         Summary
             .write(&ctx, &mut out)
             .map_err(|e| Failure::report(e, || "cannot write the summary".to_string()))?;
+    }
+    Ok(())
+}
+
+/// Writes one output of the resonance command to FILE or standard output (`-`).
+fn write_output(
+    path: &Path,
+    what: &str,
+    quiet: bool,
+    write: impl FnOnce(&mut dyn std::io::Write) -> Result<(), ReportError>,
+) -> Result<(), Failure> {
+    let text = || format!("cannot write the {what} {}", path.display());
+    if is_stdout(path) {
+        let stdout = std::io::stdout();
+        let mut out = stdout.lock();
+        return write(&mut out).map_err(|e| Failure::report(e, text));
+    }
+    let f = File::create(path)
+        .with_context(text)
+        .map_err(Failure::run)?;
+    let mut out = BufWriter::new(f);
+    write(&mut out).map_err(|e| Failure::report(e, text))?;
+    if !quiet {
+        eprintln!("{what} written to {}", path.display());
+    }
+    Ok(())
+}
+
+fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
+    let file = args.scenario.display().to_string();
+    let scenario = Scenario::from_file(&args.scenario)
+        .context("cannot load the scenario")
+        .map_err(Failure::input)?;
+    let grid = ScanGrid {
+        to: args.max_order,
+        step: args.resolution,
+        ..ScanGrid::default()
+    };
+    grid.check()
+        .map_err(|m| Failure::input(anyhow::anyhow!("--max-order/--resolution: {m}")))?;
+    if args.resolution > 1.0 {
+        return Err(Failure::input(anyhow::anyhow!(
+            "--resolution {}: allowed 0.0001 to 1 orders",
+            args.resolution
+        )));
+    }
+    let mut detunings = Vec::with_capacity(args.detuning.len());
+    for &p in &args.detuning {
+        if !(p.is_finite() && p > 0.0 && p <= 20.0) {
+            return Err(Failure::input(anyhow::anyhow!(
+                "--detuning {p}: each ratio must be more than 0 and at most 20 %"
+            )));
+        }
+        detunings.push(p / 100.0);
+    }
+    let model = HarmonicModel::new(
+        &scenario.supply,
+        &scenario.steps,
+        scenario.spectrum.clone(),
+        scenario.harmonics,
+    );
+    let fixed: u64 = scenario
+        .steps
+        .iter()
+        .enumerate()
+        .filter(|(_, s)| s.fixed)
+        .fold(0, |m, (i, _)| m | 1 << i);
+    let switched = model.all_mask() & !fixed;
+    let mut run_s = None;
+    let selection = match args.states.trim() {
+        "all" => Selection::All,
+        "reached" => {
+            let study = Study::prepare(scenario.clone())
+                .with_context(|| format!("cannot prepare the study of {file}"))
+                .map_err(Failure::input)?;
+            let result = study.run(&mut bankstep::engine::Quiet).map_err(|e| {
+                let code = match e {
+                    RunError::Profile(_) => 2,
+                    RunError::Config(_) => 1,
+                };
+                Failure {
+                    code,
+                    error: anyhow::Error::new(e).context(format!("the run of {file} failed")),
+                }
+            })?;
+            run_s = Some(result.metrics.run.duration_s);
+            Selection::Masks(
+                result
+                    .metrics
+                    .states
+                    .iter()
+                    .map(|s| (s.mask, Some(s.time_s)))
+                    .collect(),
+            )
+        }
+        list => Selection::Masks(
+            survey::parse_states(list, scenario.steps.len(), fixed)
+                .map_err(|m| Failure::input(anyhow::anyhow!("--states: {m}")))?
+                .into_iter()
+                .map(|m| (m, None))
+                .collect(),
+        ),
+    };
+    let sv = Survey::build(&model, fixed, switched, &selection, grid, &detunings)
+        .map_err(|m| Failure::input(anyhow::anyhow!("--states: {m}")))?;
+    let ctx = ResonanceContext {
+        scenario: &scenario,
+        survey: &sv,
+        run_s,
+    };
+    let mut to_stdout = false;
+    if let Some(path) = &args.csv {
+        to_stdout |= is_stdout(path);
+        write_output(path, "impedance curves (CSV)", args.quiet, |out| {
+            resonance_report::write_csv(&ctx, out)
+        })?;
+    }
+    if let Some(path) = &args.json {
+        to_stdout |= is_stdout(path);
+        write_output(path, "resonance scan (JSON)", args.quiet, |out| {
+            resonance_report::write_json(&ctx, out)
+        })?;
+    }
+    if !to_stdout {
+        write_output(Path::new("-"), "tables", true, |out| {
+            resonance_report::write_text(&ctx, out)
+        })?;
     }
     Ok(())
 }

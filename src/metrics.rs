@@ -45,6 +45,8 @@ pub struct IntervalObs<'a> {
     pub q_kvar: f64,
     /// Three-phase load reactive power, kvar.
     pub load_q_kvar: f64,
+    /// Three-phase load active power, kW.
+    pub load_p_kw: f64,
     /// Reactive power delivered by the fixed steps, kvar.
     pub fixed_q_kvar: f64,
     /// Lowest and highest line-to-line-equivalent bus voltage over the phases, V.
@@ -247,6 +249,17 @@ pub struct VoltageMetrics {
     pub above_110pct_s: f64,
 }
 
+/// Extremes of the load itself (before correction).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LoadMetrics {
+    /// Largest three-phase load reactive power, kvar.
+    pub max_q_kvar: f64,
+    /// Largest three-phase load active power, kW.
+    pub max_p_kw: f64,
+    /// Smallest three-phase load active power, kW.
+    pub min_p_kw: f64,
+}
+
 /// Everything a run measured (the resonance section is added by the engine).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct RunMetrics {
@@ -264,6 +277,8 @@ pub struct RunMetrics {
     pub wear: Vec<StepWear>,
     /// Bus voltage.
     pub voltage: VoltageMetrics,
+    /// Load extremes.
+    pub load: LoadMetrics,
 }
 
 #[derive(Debug, Clone, Copy, Default)]
@@ -352,6 +367,9 @@ pub struct Metrics {
     v_max: f64,
     over_110_n: u64,
     v_110: f64,
+    load_q_max: f64,
+    load_p_max: f64,
+    load_p_min: f64,
 }
 
 impl Metrics {
@@ -403,6 +421,9 @@ impl Metrics {
             v_max: 0.0,
             over_110_n: 0,
             v_110: 1.1 * u_n_v,
+            load_q_max: f64::NEG_INFINITY,
+            load_p_max: f64::NEG_INFINITY,
+            load_p_min: f64::INFINITY,
         }
     }
 
@@ -430,6 +451,15 @@ impl Metrics {
         }
         if o.v_ll_max > self.v_max {
             self.v_max = o.v_ll_max;
+        }
+        if o.load_q_kvar > self.load_q_max {
+            self.load_q_max = o.load_q_kvar;
+        }
+        if o.load_p_kw > self.load_p_max {
+            self.load_p_max = o.load_p_kw;
+        }
+        if o.load_p_kw < self.load_p_min {
+            self.load_p_min = o.load_p_kw;
         }
         if o.v_ll_max > self.v_110 {
             self.over_110_n += 1;
@@ -660,6 +690,11 @@ impl Metrics {
                 },
                 max_v: self.v_max,
                 above_110pct_s: self.over_110_n as f64 * dt,
+            },
+            load: LoadMetrics {
+                max_q_kvar: if n > 0 { self.load_q_max } else { 0.0 },
+                max_p_kw: if n > 0 { self.load_p_max } else { 0.0 },
+                min_p_kw: if n > 0 { self.load_p_min } else { 0.0 },
             },
         }
     }

@@ -10,7 +10,8 @@
 use crate::bank::{Fault, FaultKind, StepPhase, StepSpec, MAX_STEPS};
 use crate::controller::{ControllerParams, Measurement, OrderingKind, ProtectionParams};
 use crate::error::{FieldError, ScenarioError};
-use crate::harmonics::{Spectrum, SpectrumPreset};
+use crate::harmonics::limits::{CapacitorLimits, VoltageLimits};
+use crate::harmonics::{HarmonicOptions, Spectrum, SpectrumPreset};
 use crate::pf::PfTarget;
 use crate::profile::csv::CsvOptions;
 use crate::profile::synthetic::SyntheticConfig;
@@ -105,6 +106,10 @@ pub struct StepSection {
     pub detuning_pct: Option<f64>,
     /// Rated electrical life of the contactor, operations. Default 100 000.
     pub rated_operations: Option<f64>,
+    /// Rated voltage of the step's capacitors, V (line to line; line to neutral for a
+    /// single-phase step). Default: U_n for a plain step; for a detuned step the smallest
+    /// common rating at or above U/(1 − p), e.g. 440 V for 7 % at 400 V.
+    pub capacitor_rated_voltage_v: Option<f64>,
     /// Repeat this step this many times (consecutive numbers). Default 1.
     pub count: Option<u32>,
     /// Fault injection.
@@ -141,6 +146,10 @@ pub struct ControllerSection {
     pub disconnect_delay_s: Option<f64>,
     /// Discharge time, s. Default 60.
     pub discharge_time_s: Option<f64>,
+    /// Time the steps' discharge devices need to bring a capacitor down to a voltage at
+    /// which it may be reclosed (maker's figure), s. Optional; only used to check the
+    /// discharge time.
+    pub capacitor_discharge_s: Option<f64>,
     /// `sequential` (default), `rotating` or `best-fit`.
     pub ordering: Option<OrderingKind>,
     /// `three-phase` (default) or `single-phase`.
@@ -252,7 +261,7 @@ impl LoadSection {
 #[derive(Debug, Clone, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct HarmonicsSection {
-    /// Named spectrum: `six-pulse` or `twelve-pulse`.
+    /// Named spectrum: `six-pulse`, `twelve-pulse` or `single-phase-electronic`.
     pub preset: Option<SpectrumPreset>,
     /// Extra or overriding orders: `[[5, 20.0], [7, 14.3]]` (order, % of fundamental).
     pub orders: Option<Vec<(f64, f64)>>,
@@ -260,6 +269,13 @@ pub struct HarmonicsSection {
     pub reference_kva: Option<f64>,
     /// Tolerance for resonance warnings, orders. Default 0.5.
     pub resonance_tolerance_orders: Option<f64>,
+    /// Harmonic-voltage limits: `ieee-519` (IEEE Std 519-2014 Table 1, default) or
+    /// `en-50160`.
+    pub voltage_limits: Option<VoltageLimits>,
+    /// Capacitor limits: `iec-60831-1` (default) or `ieee-18`.
+    pub capacitor_limits: Option<CapacitorLimits>,
+    /// Linear resistive load at the bus that damps resonance, kW. Default 0 (none).
+    pub damping_kw: Option<f64>,
 }
 
 /// `[run]`.
@@ -339,6 +355,8 @@ pub struct Scenario {
     pub spectrum: Spectrum,
     /// Resonance warning tolerance, orders.
     pub resonance_tolerance: f64,
+    /// Harmonic limits and damping.
+    pub harmonics: HarmonicOptions,
     /// Requested run length, s (`None`: the whole CSV profile, or 7 days synthetic).
     pub duration_s: Option<f64>,
     /// Time step, s.
@@ -355,6 +373,8 @@ pub struct Scenario {
     pub overcorrection_min_s: f64,
     /// Hunting window, s.
     pub hunting_window_s: f64,
+    /// Discharge-device time of the capacitors, s, if given.
+    pub capacitor_discharge_s: Option<f64>,
     /// SHA-256 of the scenario text, lowercase hex, for provenance.
     pub content_sha256: String,
 }
@@ -366,6 +386,15 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
     d.iter().map(|b| format!("{b:02x}")).collect()
 }
 
+/// A value with its unit, e.g. `400 V`, or the bare value for a ratio.
+fn with_unit(x: f64, unit: &str) -> String {
+    if unit.is_empty() {
+        format!("{x}")
+    } else {
+        format!("{x} {unit}")
+    }
+}
+
 /// Checks `lo ≤ x ≤ hi` (and finiteness), naming key, range and unit.
 fn range(key: &str, x: f64, lo: f64, hi: f64, unit: &str) -> Result<f64, FieldError> {
     if x.is_finite() && x >= lo && x <= hi {
@@ -373,7 +402,11 @@ fn range(key: &str, x: f64, lo: f64, hi: f64, unit: &str) -> Result<f64, FieldEr
     } else {
         Err(FieldError::new(
             key,
-            format!("{x} {unit} is outside the allowed range {lo} to {hi} {unit}"),
+            format!(
+                "{} is outside the allowed range {lo} to {}",
+                with_unit(x, unit),
+                with_unit(hi, unit)
+            ),
         ))
     }
 }
@@ -386,7 +419,9 @@ fn range_open(key: &str, x: f64, lo: f64, hi: f64, unit: &str) -> Result<f64, Fi
         Err(FieldError::new(
             key,
             format!(
-                "{x} {unit} is outside the allowed range: more than {lo} and at most {hi} {unit}"
+                "{} is outside the allowed range: more than {lo} and at most {}",
+                with_unit(x, unit),
+                with_unit(hi, unit)
             ),
         ))
     }
@@ -556,6 +591,20 @@ impl Scenario {
                     Some(Fault { kind, from_s: from })
                 }
             };
+            let u_conn = match phase {
+                StepPhase::Three => u_n,
+                StepPhase::Single(_) => u_n / 3f64.sqrt(),
+            };
+            let capacitor_rated_voltage_v = match st.capacitor_rated_voltage_v {
+                None => None,
+                Some(v) => Some(range(
+                    &key("capacitor_rated_voltage_v"),
+                    v,
+                    (0.8 * u_conn).round(),
+                    (3.0 * u_conn).round(),
+                    "V",
+                )?),
+            };
             let count = st.count.unwrap_or(1);
             if count == 0 || count as usize > MAX_STEPS {
                 return Err(FieldError::new(
@@ -570,6 +619,7 @@ impl Scenario {
                     fixed: st.fixed.unwrap_or(false),
                     detuning,
                     rated_operations,
+                    capacitor_rated_voltage_v,
                     fault,
                 });
             }
@@ -795,6 +845,18 @@ impl Scenario {
             "orders",
         )?;
 
+        let harmonics = HarmonicOptions {
+            voltage_limits: h.voltage_limits.unwrap_or_default(),
+            capacitor_limits: h.capacitor_limits.unwrap_or_default(),
+            damping_kw: range(
+                "harmonics.damping_kw",
+                h.damping_kw.unwrap_or(0.0),
+                0.0,
+                1e6,
+                "kW",
+            )?,
+        };
+
         let r = &f.run;
         let dt_s = range_open(
             "run.time_step_s",
@@ -887,8 +949,10 @@ impl Scenario {
             spectrum: Spectrum {
                 orders,
                 reference_kva,
+                preset: h.preset,
             },
             resonance_tolerance,
+            harmonics,
             duration_s,
             dt_s,
             start,
@@ -897,6 +961,10 @@ impl Scenario {
             overcorrection_threshold_kvar,
             overcorrection_min_s,
             hunting_window_s,
+            capacitor_discharge_s: c
+                .capacitor_discharge_s
+                .map(|x| range("controller.capacitor_discharge_s", x, 0.0, 3600.0, "s"))
+                .transpose()?,
             content_sha256: String::new(),
         })
     }
@@ -949,6 +1017,33 @@ count = 4
         assert!(e.contains("swiching_delay_s") && e.contains("line"), "{e}");
         let e = parse("[load.synthetic]\n").unwrap_err().to_string();
         assert!(e.contains("`steps`"), "{e}");
+    }
+
+    #[test]
+    fn harmonic_keys_parse_and_check_their_ranges() {
+        let s = parse(&format!(
+            "{MINIMAL}[harmonics]\npreset = \"single-phase-electronic\"\nreference_kva = 40\n\
+             voltage_limits = \"en-50160\"\ncapacitor_limits = \"ieee-18\"\ndamping_kw = 20\n"
+        ))
+        .unwrap();
+        assert_eq!(s.spectrum.orders[0], (3.0, 81.0));
+        assert_eq!(s.harmonics.voltage_limits, VoltageLimits::En50160);
+        assert_eq!(s.harmonics.capacitor_limits, CapacitorLimits::Ieee18);
+        assert_eq!(s.harmonics.damping_kw, 20.0);
+        let e = parse(&MINIMAL.replace(
+            "count = 4",
+            "count = 4\ndetuning_pct = 7\ncapacitor_rated_voltage_v = 40",
+        ))
+        .unwrap_err()
+        .to_string();
+        assert!(
+            e.contains("steps[0].capacitor_rated_voltage_v") && e.contains("320 to 1200 V"),
+            "{e}"
+        );
+        let e = parse(&format!("{MINIMAL}[harmonics]\ndamping_kw = -1\n"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("harmonics.damping_kw"), "{e}");
     }
 
     #[test]

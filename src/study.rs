@@ -57,7 +57,7 @@ pub enum Source {
     /// Streaming CSV.
     Csv(Box<CsvStream>),
     /// Synthetic generator.
-    Synthetic(SyntheticProfile),
+    Synthetic(Box<SyntheticProfile>),
 }
 
 impl LoadSource for Source {
@@ -126,6 +126,7 @@ impl Study {
             },
             spectrum: scenario.spectrum.clone(),
             resonance_tolerance: scenario.resonance_tolerance,
+            harmonics: scenario.harmonics,
             calendar,
             t_first_s: t_first,
             dt_s: dt,
@@ -147,7 +148,7 @@ impl Study {
     pub fn source(&self) -> Result<Source, RunError> {
         match (&self.scenario.load, &self.csv) {
             (LoadSpec::Csv { .. }, Some(scan)) => Ok(Source::Csv(Box::new(scan.stream()?))),
-            (LoadSpec::Synthetic(cfg), _) => Ok(Source::Synthetic(self.synthetic(cfg))),
+            (LoadSpec::Synthetic(cfg), _) => Ok(Source::Synthetic(Box::new(self.synthetic(cfg)))),
             (LoadSpec::Csv { .. }, None) => {
                 Err(RunError::Config("the CSV profile was not scanned".into()))
             }

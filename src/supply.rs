@@ -167,22 +167,24 @@ impl BusSolver {
         };
     }
 
-    /// Solves the three phases for a load of `p_kw`/`q_kvar` per phase and a shunt
-    /// capacitive susceptance `b_s` (siemens) per phase.
+    /// Sets the shunt capacitive susceptance (siemens) per phase of the connected steps;
+    /// call it whenever the bank state or a step's health changes.
+    pub fn set_bank(&mut self, b_s: &[f64; 3]) {
+        for (ph, b) in b_s.iter().enumerate() {
+            if self.eq[ph].b != *b {
+                self.fold(ph, *b);
+            }
+        }
+    }
+
+    /// Solves the three phases for a load of `p_kw`/`q_kvar` per phase with the bank set
+    /// by [`BusSolver::set_bank`].
     #[inline]
-    pub fn solve(
-        &mut self,
-        p_kw: &[f64; 3],
-        q_kvar: &[f64; 3],
-        b_s: &[f64; 3],
-    ) -> [PhaseSolution; 3] {
+    pub fn solve(&mut self, p_kw: &[f64; 3], q_kvar: &[f64; 3]) -> [PhaseSolution; 3] {
         let mut out = [PhaseSolution::default(); 3];
         for ph in 0..3 {
-            if self.eq[ph].b != b_s[ph] {
-                self.fold(ph, b_s[ph]);
-            }
             let w = self.squared_voltage(ph, p_kw[ph] * 1e3, q_kvar[ph] * 1e3);
-            let q_bank = b_s[ph] * w * 1e-3;
+            let q_bank = self.eq[ph].b * w * 1e-3;
             out[ph] = PhaseSolution {
                 v_ln: w.sqrt(),
                 p_kw: p_kw[ph],
@@ -211,8 +213,7 @@ impl BusSolver {
 
     /// Complex bus voltage of one phase in its own angle reference (for checks and
     /// reports, not the per-sample loop).
-    pub fn phasor(&mut self, ph: usize, p_kw: f64, q_kvar: f64, b_s: f64) -> Complex64 {
-        self.fold(ph, b_s);
+    pub fn phasor(&mut self, ph: usize, p_kw: f64, q_kvar: f64) -> Complex64 {
         let w = self.squared_voltage(ph, p_kw * 1e3, q_kvar * 1e3);
         let a = self.eq[ph].z * Complex64::new(p_kw * 1e3, -q_kvar * 1e3);
         ((Complex64::new(w, 0.0) + a) / self.eq[ph].e).conj()
@@ -255,7 +256,8 @@ mod tests {
     #[test]
     fn stiff_bus_stays_at_nominal() {
         let mut b = BusSolver::new(&SupplyParams::default());
-        let r = b.solve(&[100.0; 3], &[50.0; 3], &[1e-3; 3]);
+        b.set_bank(&[1e-3; 3]);
+        let r = b.solve(&[100.0; 3], &[50.0; 3]);
         assert!((r[0].v_ln - 230.940_107_675_850_3).abs() < 1e-9);
     }
 
@@ -263,9 +265,10 @@ mod tests {
     fn solution_satisfies_the_circuit() {
         let s = site();
         let mut b = BusSolver::new(&s);
-        let r = b.solve(&[200.0; 3], &[150.0; 3], &[2e-3; 3]);
+        b.set_bank(&[2e-3; 3]);
+        let r = b.solve(&[200.0; 3], &[150.0; 3]);
         // The voltage drop across Z equals Z times the supply current (Kirchhoff).
-        let v = b.phasor(0, 200.0, 150.0, 2e-3);
+        let v = b.phasor(0, 200.0, 150.0);
         assert!((v.norm() - r[0].v_ln).abs() < 1e-9);
         let i = (Complex64::new(200e3, 150e3) / v).conj() + Complex64::new(0.0, 2e-3) * v;
         let e = Complex64::new(s.nominal_ln_v(), 0.0);

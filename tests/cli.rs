@@ -307,3 +307,167 @@ fn help_teaches_the_subcommand_and_an_example() {
         .stdout(predicate::str::contains("kvar"))
         .stdout(predicate::str::contains("Exit codes"));
 }
+
+/// The bundled pumping station (six plain 50 kvar steps, six-pulse drives).
+fn pumping_station() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios/pumping-station.toml")
+}
+
+#[test]
+fn simulate_names_resonating_states_with_hours_a_year() {
+    let dir = TempDir::new().unwrap();
+    let json = dir.path().join("ps.json");
+    let out = bankstep()
+        .arg("simulate")
+        .arg(pumping_station())
+        .arg("--json")
+        .arg(&json)
+        .arg("--quiet")
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let text = String::from_utf8(out).unwrap();
+    // The summary leads with the worst harmonic state, in plain words.
+    let top = text.split("Top findings").nth(1).unwrap();
+    let first = top
+        .lines()
+        .find(|l| l.trim_start().starts_with("1."))
+        .unwrap();
+    assert!(first.contains("Worst harmonic state"), "{text}");
+    assert!(text.contains("near the 7th harmonic") && text.contains("h a year"));
+    assert!(text.contains("THD_V") && text.contains("Caution: capacitors hold"));
+    let v: Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
+    let run_s = at(&v, "run.duration_s").as_f64().unwrap();
+    let warnings = at(&v, "resonance.warnings").as_array().unwrap();
+    assert!(!warnings.is_empty());
+    for w in warnings {
+        assert!(w["steps"].is_array());
+        for k in [
+            "order",
+            "near_harmonic",
+            "time_s",
+            "hours_per_year",
+            "thd_pct",
+        ] {
+            assert!(w[k].is_number(), "resonance.warnings[].{k}");
+        }
+        // Hours a year: the run's share of time extrapolated to 8760 h.
+        let h = w["time_s"].as_f64().unwrap() / run_s * 8760.0;
+        assert!((w["hours_per_year"].as_f64().unwrap() - h).abs() < 1e-6);
+    }
+    let states = at(&v, "resonance.states").as_array().unwrap();
+    assert!(states
+        .iter()
+        .any(|s| s["step_stress"].as_array().is_some_and(|a| !a.is_empty())));
+}
+
+#[test]
+fn resonance_shows_detuning_moving_the_peak_below_the_5th() {
+    let out = bankstep()
+        .arg("resonance")
+        .arg(pumping_station())
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let text = String::from_utf8(out).unwrap();
+    assert!(text.contains("What detuning would do"), "{text}");
+    assert!(text.contains("all below the 5th harmonic?"), "{text}");
+    let row = |p: &str| {
+        text.lines()
+            .find(|l| l.trim_start().starts_with(p))
+            .unwrap_or_else(|| panic!("no `{p}` row in\n{text}"))
+            .to_string()
+    };
+    assert!(row("as built").trim_end().ends_with("no"));
+    for p in ["5.67 %", "7.00 %", "14.00 %"] {
+        assert!(row(p).trim_end().ends_with("yes"), "{}", row(p));
+    }
+    // Tuning orders 1/sqrt(p): 4.20, 3.78, 2.67 (REFERENCES.md, read).
+    assert!(row("7.00 %").contains("3.78"));
+    assert!(text.contains("near h7"));
+}
+
+#[test]
+fn resonance_writes_csv_curves_and_json() {
+    let dir = TempDir::new().unwrap();
+    let csv = dir.path().join("z.csv");
+    let json = dir.path().join("z.json");
+    bankstep()
+        .arg("resonance")
+        .arg(pumping_station())
+        .args(["--states", "1+2,1+2+3+4", "--quiet"])
+        .arg("--csv")
+        .arg(&csv)
+        .arg("--json")
+        .arg(&json)
+        .assert()
+        .success();
+    let text = std::fs::read_to_string(&csv).unwrap();
+    let mut lines = text.lines();
+    assert_eq!(
+        lines.next().unwrap(),
+        "h,supply_only_ohm,z_1+2_ohm,z_1+2+3+4_ohm"
+    );
+    // Orders 1 to 50 by 0.01: 4,901 rows.
+    assert_eq!(lines.clone().count(), 4901);
+    assert!(lines.next().unwrap().starts_with("1.00,"));
+    let v: Value = serde_json::from_slice(&std::fs::read(&json).unwrap()).unwrap();
+    let states = v["states"].as_array().unwrap();
+    assert_eq!(states.len(), 2);
+    // 200 kvar on 9,813 kVA: sqrt(9813/200) = 7.00 (IEEE Std 519 estimate, from memory).
+    let order = states[1]["order"].as_f64().unwrap();
+    assert!(
+        (order - (v["supply"]["short_circuit_kva"].as_f64().unwrap() / 200.0).sqrt()).abs() < 1e-9
+    );
+    assert_eq!(states[1]["near_harmonic"], 7.0);
+    for d in v["detuning"].as_array().unwrap() {
+        assert!(d["full_bank_order"].as_f64().unwrap() < 5.0);
+    }
+    assert_eq!(v["curves"]["h"].as_array().unwrap().len(), 4901);
+    assert_eq!(
+        v["curves"]["states"][0]["impedance_ohm"]
+            .as_array()
+            .unwrap()
+            .len(),
+        4901
+    );
+}
+
+#[test]
+fn resonance_bad_states_exit_2() {
+    bankstep()
+        .arg("resonance")
+        .arg(pumping_station())
+        .args(["--states", "1+9"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("steps 1 to 6"));
+    bankstep()
+        .arg("resonance")
+        .arg(pumping_station())
+        .args(["--resolution", "0"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("resolution"));
+}
+
+#[test]
+fn resonance_help_teaches_units_example_and_exit_codes() {
+    bankstep()
+        .args(["resonance", "--help"])
+        .assert()
+        .success()
+        .stdout(
+            predicate::str::contains("Exit codes")
+                .and(predicate::str::contains(
+                    "bankstep resonance site.toml --states 1+2,1+2+3",
+                ))
+                .and(predicate::str::contains("sqrt(S_sc/Q_c)"))
+                .and(predicate::str::contains("ohm"))
+                .and(predicate::str::contains("U/(1 - p)")),
+        );
+}

@@ -275,3 +275,125 @@ duration_s = 100
     let (r, _) = record_with(toml, Pieces(vec![(0.0, 50.0, 12.001)]));
     assert_eq!(r.metrics.switching.total_operations, 1);
 }
+
+/// Four 25 kvar steps, target 1.0, T_sw 5 s, with extra controller lines.
+fn four_fast(extra: &str) -> String {
+    format!(
+        r#"
+[[steps]]
+kvar = 25
+count = 4
+[controller]
+target_pf = 1.0
+switching_delay_s = 5
+{extra}
+[load.synthetic]
+[run]
+duration_s = 200
+"#
+    )
+}
+
+// A 10 s averaging window with a 5 s delay, on paper (Q steps from 0 to 60 kvar at 50 s,
+// P = 100 kW, dead band 16.25 kvar): the average first exceeds the band at k = 52
+// (3 × 60 / 10 = 18), so step 1 closes at 57. The average still holds the old 60 kvar
+// samples, so step 2 closes at 62 and step 3 at 67 (average 22.5 kvar at k = 66 although
+// the supply is at 10 kvar): the averaging lag overshoots to −15 kvar, inside the band.
+#[test]
+fn averaging_window_lags_and_overshoots() {
+    let (_, rec) = record_with(
+        &four_fast("averaging_s = 10"),
+        Pieces(vec![(0.0, 100.0, 0.0), (50.0, 100.0, 60.0)]),
+    );
+    assert_eq!(
+        rec.ops,
+        vec![op(57.0, 1, true), op(62.0, 2, true), op(67.0, 3, true)]
+    );
+    assert!((rec.q[199] + 15.0).abs() < 1e-9);
+}
+
+// Single-phase measurement on phase a assumes balance and multiplies by 3: a load whose
+// reactive power is all on phase b is invisible to it, so nothing switches, while a
+// three-phase measurement sees 60 kvar and closes two steps.
+#[test]
+fn single_phase_measurement_misses_other_phases() {
+    use bankstep::profile::LoadSample;
+    let one_phase = || {
+        common::Listed(vec![
+            LoadSample {
+                p_kw: [30.0, 40.0, 30.0],
+                q_kvar: [0.0, 60.0, 0.0],
+            };
+            200
+        ])
+    };
+    let (r, _) = record_with(
+        &four_fast("measurement = \"single-phase\"\nmeasurement_phase = \"a\""),
+        one_phase(),
+    );
+    assert_eq!(r.metrics.switching.total_operations, 0);
+    let (r, _) = record_with(&four_fast(""), one_phase());
+    assert_eq!(r.metrics.switching.total_operations, 2);
+}
+
+// Overcorrection episodes, on paper: a fixed 50 kvar step with 20 kvar of load leaves the
+// supply 30 kvar leading, beyond the default threshold (the smallest switched step,
+// 25 kvar, strict) for 300 s: one episode, caused by the fixed step at light load. A
+// second leading spell of 30 s is shorter than the 60 s minimum and does not count. The
+// run starts on Monday 2026-01-05 (the default calendar), so the time falls on a Monday.
+#[test]
+fn overcorrection_by_fixed_step() {
+    let toml = r#"
+[[steps]]
+kvar = 50
+fixed = true
+[[steps]]
+kvar = 25
+count = 4
+[controller]
+target_pf = 1.0
+switching_delay_s = 60
+[load.synthetic]
+[run]
+duration_s = 600
+"#;
+    let load = Pieces(vec![
+        (0.0, 100.0, 20.0),
+        (300.0, 100.0, 80.0),
+        (330.0, 100.0, 20.0),
+        (360.0, 100.0, 80.0),
+    ]);
+    let (r, rec) = record_with(toml, load);
+    let o = &r.metrics.overcorrection;
+    assert_eq!((o.episodes, o.total_s, o.longest_s), (1, 300.0, 300.0));
+    assert!((o.worst_leading_kvar - 30.0).abs() < 1e-9);
+    assert_eq!(
+        o.dominant_cause,
+        Some(bankstep::metrics::OvercorrectionCause::FixedSteps)
+    );
+    assert_eq!(o.by_weekday_s[0], 300.0);
+    assert_eq!(rec.ops, vec![op(420.0, 2, true)]);
+    // Fixed steps never appear among the switched steps but do in the wear list.
+    assert_eq!(r.metrics.switching.per_step.len(), 4);
+    assert_eq!(r.metrics.wear.len(), 5);
+    assert!(r.metrics.wear[0].fixed && r.metrics.wear[0].years_to_rated_life.is_none());
+    assert!((r.metrics.wear[0].energized_h - 600.0 / 3600.0).abs() < 1e-12);
+}
+
+// An episode still open at the end of the run counts.
+#[test]
+fn overcorrection_open_at_the_end_counts() {
+    let toml = r#"
+[[steps]]
+kvar = 50
+fixed = true
+[[steps]]
+kvar = 25
+[load.synthetic]
+[run]
+duration_s = 120
+"#;
+    let (r, _) = record_with(toml, Pieces(vec![(0.0, 100.0, 60.0), (40.0, 100.0, 10.0)]));
+    let o = &r.metrics.overcorrection;
+    assert_eq!((o.episodes, o.total_s), (1, 80.0));
+}

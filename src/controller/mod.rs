@@ -387,6 +387,7 @@ impl Controller {
     /// Reads the measurement of interval k, advances the timers by Δt and makes at most
     /// one ordinary operation (or a protection trip). `t_next` is t_{k+1}, the time the
     /// new state takes effect.
+    #[inline]
     pub fn decide(&mut self, r: &Reading, t_next: f64) -> Decision {
         let (p_raw, q_raw) = match self.params.measurement {
             Measurement::ThreePhase => (
@@ -447,6 +448,7 @@ impl Controller {
             if let Some(t) = trip_all {
                 if on_switched != 0 {
                     self.open_mask(on_switched, t_next);
+                    self.count = 0;
                     d.opened = on_switched;
                     d.trip = Some(t);
                     return d;
@@ -455,6 +457,7 @@ impl Controller {
             if ov_fire && on_switched != 0 {
                 let i = self.largest(on_switched);
                 self.open_mask(1 << i, t_next);
+                self.count = 0;
                 d.opened = 1 << i;
                 d.trip = Some(Trip::Overvoltage);
                 return d;
@@ -534,9 +537,9 @@ impl Controller {
         out
     }
 
-    /// Largest connected step of `mask` by nominal kvar; ties to the higher number.
+    /// Largest connected step of `mask` by nominal kvar; ties to the lower number.
     fn largest(&self, mask: u64) -> usize {
-        let mut best = 63 - mask.leading_zeros() as usize;
+        let mut best = mask.trailing_zeros() as usize;
         let mut m = mask;
         while m != 0 {
             let i = m.trailing_zeros() as usize;

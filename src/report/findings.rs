@@ -9,14 +9,20 @@
 //!
 //! Thresholds used for the severity (our own engineering choices, written here so that a
 //! reader can weigh them): contactor life within 1 year is critical, within 5 years a
-//! warning and within 10 years a note; a resonance warning is critical when the state
-//! lasts at least 1 % of the run or the estimated harmonic voltage is at least 3 % or the
-//! THD at least 5 %; an estimated THD of 8 % or more in a state that lasts 1 % of the run
-//! is a warning, and of 5 % a note; hunting of 10 cycles per day or more is a warning;
+//! warning and within 10 years a note. Harmonics: the worst bank state is the one with the
+//! largest hours a year × severity, the severity being the square of the largest of its
+//! harmonic voltages, THD and step currents and voltages over their limits (≥ 1: a limit
+//! is exceeded; squared because heating grows with the square); it is critical when it resonates near a harmonic of the load and either
+//! exceeds a limit or lasts at least 1 % of the run, or when a capacitor limit is exceeded;
+//! a warning when another limit is exceeded or any state resonates near a harmonic; a note
+//! from 0.8 of a limit. A detuned step whose capacitors are rated below U/(1 − p) is a
+//! warning. An estimated THD at or above the limit in another state that lasts 1 % of the
+//! run is a warning, and from 5/8 of the limit a note; hunting of 10 cycles per day or more is a warning;
 //! overcorrection is a warning from 1 % of the run time or a worst leading kvar of twice
 //! the threshold; a bus voltage above 110 % of nominal is a warning and below 90 % a note.
 
 use crate::bank::FaultKind;
+use crate::engine::StateResonance;
 use crate::metrics::OvercorrectionCause;
 use crate::pf::{format_pf, Quadrant};
 use crate::report::{
@@ -58,7 +64,7 @@ pub struct Finding {
     /// How much it matters.
     pub severity: Severity,
     /// What part of the result it is about: `pf`, `wear`, `overcorrection`, `hunting`,
-    /// `resonance`, `voltage`, `supply`, `protection` or `fault`.
+    /// `resonance`, `capacitor`, `voltage`, `supply`, `protection` or `fault`.
     pub topic: &'static str,
     /// The finding, one or two sentences.
     pub text: String,
@@ -514,92 +520,284 @@ fn hunting(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
 
 fn resonance(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
     let r = &ctx.result.resonance;
-    let run_s = ctx.result.metrics.run.duration_s.max(1e-9);
-    thd(ctx, out);
-    let Some(w) = r.warnings.first() else {
-        if ctx.scenario().spectrum.orders.is_empty() {
-            let lowest = r
-                .states
-                .iter()
-                .filter_map(|s| s.order)
-                .min_by(f64::total_cmp);
-            if let Some(h) = lowest {
-                out.push(Finding::new(
-                    Severity::Info,
-                    "resonance",
-                    0.0,
-                    format!(
-                        "The scenario gives no load harmonics, so resonance is not checked \
-                         against any; the lowest resonant order reached is {}.",
-                        num(h, 1)
-                    ),
-                ));
-            }
+    capacitor_ratings(ctx, out);
+    if ctx.scenario().spectrum.orders.is_empty() {
+        let lowest = r
+            .states
+            .iter()
+            .filter_map(|s| s.order)
+            .min_by(f64::total_cmp);
+        if let Some(h) = lowest {
+            out.push(Finding::new(
+                Severity::Info,
+                "resonance",
+                0.0,
+                format!(
+                    "The scenario gives no load harmonics, so resonance is not checked \
+                     against any; the lowest resonant order reached is {}.",
+                    num(h, 1)
+                ),
+            ));
         }
         return;
-    };
-    let critical = r
-        .warnings
-        .iter()
-        .any(|w| w.time_s / run_s >= 0.01 || w.v_h_pct >= 3.0 || w.thd_pct >= 5.0);
-    let kvar = r
-        .states
-        .iter()
-        .find(|s| s.steps == w.steps)
-        .map(|s| format!(" ({} kvar)", num(s.kvar, 0)))
-        .unwrap_or_default();
-    let h = harmonic_name(w.near_harmonic);
-    let mut text = format!(
-        "Bank state {}{kvar} resonates at order {}, near the {h} of the load, for {} ({} of the \
-         run); estimated voltage at the {h} {} % and THD {} % at the bus.",
-        steps_label(&w.steps),
-        num(w.order, 1),
-        duration(w.time_s),
-        pct(w.time_s / run_s),
-        num(w.v_h_pct, 1),
-        num(w.thd_pct, 1),
-    );
-    if r.warnings.len() > 1 {
-        let n = r.warnings.len() - 1;
-        text.push_str(&format!(
-            " {n} more state{} resonate{} near a harmonic (see the resonance section).",
-            if n == 1 { "" } else { "s" },
-            if n == 1 { "s" } else { "" }
-        ));
     }
-    let detuned = ctx.scenario().steps.iter().any(|s| s.detuning.is_some());
-    let advice = if detuned {
-        "Check the detuning ratio of the steps against the harmonics present, and avoid the \
-         resonating states."
-    } else {
-        "Detuned steps (a series reactor that tunes each step below the lowest harmonic \
-         present, e.g. 7 % for a load with a 5th harmonic) move the resonance out of the way."
-    };
-    let severity = if critical {
-        Severity::Critical
-    } else {
-        Severity::Warning
-    };
-    out.push(
-        Finding::new(severity, "resonance", w.time_s / run_s + w.v_h_pct, text)
-            .advise(advice, true),
-    );
+    let worst = worst_state(ctx);
+    thd(ctx, worst, out);
+    let Some(w) = worst else { return };
+    out.push(worst_state_finding(ctx, w));
 }
 
-/// Estimated voltage distortion in the states where the bank spends real time.
-fn thd(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+/// The worst bank state with at least one step connected, by hours a year × severity.
+fn worst_state<'a>(ctx: &ReportContext<'a>) -> Option<&'a StateResonance> {
+    ctx.result
+        .resonance
+        .states
+        .iter()
+        .filter(|s| !s.steps.is_empty())
+        .max_by(|a, b| {
+            (a.hours_per_year * a.severity)
+                .total_cmp(&(b.hours_per_year * b.severity))
+                .then(b.steps.len().cmp(&a.steps.len()))
+        })
+}
+
+/// "5th-harmonic voltage 24.3 % (limit 5 %)".
+fn voltage_words(order: f64, v_pct: f64, limit: Option<f64>) -> String {
+    let name = harmonic_name(order);
+    let short = name.strip_suffix(" harmonic").unwrap_or(&name);
+    match limit {
+        Some(l) => format!(
+            "{short}-harmonic voltage {} % (limit {} %)",
+            num(v_pct, 1),
+            num(l, 1)
+        ),
+        None => format!("{short}-harmonic voltage {} %", num(v_pct, 1)),
+    }
+}
+
+fn worst_state_finding(ctx: &ReportContext<'_>, w: &StateResonance) -> Finding {
     let r = &ctx.result.resonance;
     let run_s = ctx.result.metrics.run.duration_s.max(1e-9);
-    let worst = r
+    let warning = r.warnings.iter().find(|x| x.steps == w.steps);
+    let share = w.time_s / run_s;
+    let mut text = format!(
+        "Worst harmonic state: steps {} ({} kvar), about {} h a year ({} of the run)",
+        steps_label(&w.steps),
+        num(w.kvar, 0),
+        approx(w.hours_per_year),
+        pct(share),
+    );
+    match (warning, w.order) {
+        (Some(wr), _) => {
+            let h = harmonic_name(wr.near_harmonic);
+            text.push_str(&format!(
+                ". It resonates at order {}, next to the {h} of the load, which it amplifies \
+                 {} times",
+                num(wr.order, 1),
+                num(wr.amplification, 1)
+            ));
+        }
+        (None, Some(o)) => {
+            let near = w
+                .nearest_harmonic
+                .map(|h| format!(" (nearest harmonic of the load: the {})", harmonic_name(h)))
+                .unwrap_or_default();
+            text.push_str(&format!(". It resonates at order {}{near}", num(o, 1)));
+        }
+        (None, None) => text.push_str(". No parallel resonance lies inside orders 1 to 50"),
+    }
+    let shown = warning
+        .and_then(|wr| w.harmonics.iter().find(|h| h.order == wr.near_harmonic))
+        .or_else(|| {
+            w.harmonics.iter().max_by(|a, b| {
+                let ka = a.limit_pct.map_or(0.0, |l| a.v_pct / l);
+                let kb = b.limit_pct.map_or(0.0, |l| b.v_pct / l);
+                ka.total_cmp(&kb)
+            })
+        });
+    text.push_str("; estimated ");
+    if let Some(h) = shown {
+        text.push_str(&voltage_words(h.order, h.v_pct, h.limit_pct));
+        text.push_str(" and ");
+    }
+    text.push_str(&format!(
+        "THD_V {} % (limit {} %, {})",
+        num(w.thd_pct, 1),
+        num(w.thd_limit_pct, 1),
+        r.voltage_limits
+    ));
+    if let Some(st) = w
+        .step_stress
+        .iter()
+        .max_by(|a, b| a.limit_ratio.total_cmp(&b.limit_ratio))
+    {
+        text.push_str(&format!(
+            "; step {} current {} × rated (limit {} ×, {}), capacitor voltage {} V rms on a {} V \
+             rating",
+            st.step,
+            num(st.current_ratio, 2),
+            num(st.current_limit, 2),
+            r.capacitor_limits,
+            num(st.voltage_v, 0),
+            num(st.rated_voltage_v, 0)
+        ));
+    }
+    text.push('.');
+    let others: Vec<String> = r
+        .warnings
+        .iter()
+        .filter(|x| x.steps != w.steps)
+        .take(3)
+        .map(|x| {
+            format!(
+                "{} (order {}, near the {}, about {} h a year, THD_V {} %)",
+                steps_label(&x.steps),
+                num(x.order, 1),
+                harmonic_name(x.near_harmonic),
+                approx(x.hours_per_year),
+                num(x.thd_pct, 1)
+            )
+        })
+        .collect();
+    let n_others = r.warnings.iter().filter(|x| x.steps != w.steps).count();
+    if !others.is_empty() {
+        text.push_str(&format!(" Also near a harmonic: {}", others.join("; ")));
+        if n_others > others.len() {
+            text.push_str(&format!(
+                "; and {} more (see the resonance section)",
+                n_others - others.len()
+            ));
+        }
+        text.push('.');
+    }
+    let step_over = w.step_stress.iter().any(|s| s.limit_ratio >= 1.0);
+    let severity = if (warning.is_some() && (w.severity >= 1.0 || share >= 0.01)) || step_over {
+        Severity::Critical
+    } else if w.severity >= 1.0 || warning.is_some() || n_others > 0 {
+        Severity::Warning
+    } else if w.limit_ratio >= 0.8 {
+        Severity::Note
+    } else {
+        Severity::Info
+    };
+    if severity == Severity::Info {
+        text.push_str(" Every state reached stays within the harmonic and capacitor limits.");
+        return Finding::new(severity, "resonance", 0.0, text);
+    }
+    let advice = detuning_advice(ctx);
+    Finding::new(severity, "resonance", w.hours_per_year * w.severity, text).advise(advice, true)
+}
+
+/// What to do about a resonance: detune (with the order the full bank would then have),
+/// or check the existing detuning.
+fn detuning_advice(ctx: &ReportContext<'_>) -> String {
+    let sc = ctx.scenario();
+    let hm = ctx.study.simulation.harmonic_model();
+    let lowest = hm.lowest_harmonic().unwrap_or(5.0);
+    if sc.steps.iter().all(|s| s.detuning.is_some()) {
+        return format!(
+            "Check the detuning ratio of the steps against the harmonics present (the tuning \
+             order 1/sqrt(p) must lie below the {}, the lowest in the load), and avoid the \
+             resonating states.",
+            harmonic_name(lowest)
+        );
+    }
+    // The usual ratio that tunes below the lowest harmonic with a margin: 7 % (3.78) below a
+    // 5th, 14 % (2.67) below a 3rd (common practice).
+    let p = if lowest > 4.5 { 0.07 } else { 0.14 };
+    let detuned = hm.with_detuning(p);
+    let all = hm.all_mask();
+    let full = detuned.resonance_order(all);
+    let u = sc.supply.nominal_voltage_v;
+    let mixed = sc.steps.iter().any(|s| s.detuning.is_some());
+    let mut text = String::new();
+    if mixed {
+        text.push_str(
+            "Plain steps beside detuned ones resonate with the detuned steps' reactors as well \
+             as with the supply: detune every step. ",
+        );
+    }
+    text.push_str(&format!(
+        "Detuned steps (a series reactor on each step that tunes it below the lowest harmonic \
+         present) move the resonance out of the way: with {} % on every step (same kvar), the \
+         full bank would resonate at order {}, below the {}",
+        num(p * 100.0, 0),
+        full.map_or("n/a".to_string(), |o| num(o, 1)),
+        harmonic_name(lowest),
+    ));
+    text.push_str(&format!(
+        "; its capacitors then see U/(1 − p) = {} V and need a higher rating (e.g. {} V). \
+         `bankstep resonance` compares 5.67 %, 7 % and 14 % state by state.",
+        num(u / (1.0 - p), 0),
+        num(
+            crate::harmonics::limits::default_rated_voltage(u, Some(p)),
+            0
+        )
+    ));
+    text
+}
+
+/// Detuned steps whose capacitors are rated below the voltage the reactor puts on them.
+fn capacitor_ratings(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+    let hm = ctx.study.simulation.harmonic_model();
+    let u_n = ctx.scenario().supply.nominal_voltage_v;
+    for (i, s) in ctx.scenario().steps.iter().enumerate() {
+        let Some(p) = s.detuning else { continue };
+        let u_conn = match s.phase {
+            crate::bank::StepPhase::Three => u_n,
+            crate::bank::StepPhase::Single(_) => u_n / 3f64.sqrt(),
+        };
+        let u_c = u_conn / (1.0 - p);
+        let rated = hm.rated_voltage_v(i);
+        if rated >= u_c * (1.0 - 1e-9) {
+            continue;
+        }
+        out.push(
+            Finding::new(
+                Severity::Warning,
+                "capacitor",
+                u_c / rated,
+                format!(
+                    "Step {}'s capacitors are rated {} V but see {} V at the fundamental behind \
+                     the {} % detuning reactor (U/(1 − p)), {} % of their rating before any \
+                     harmonic.",
+                    i + 1,
+                    num(rated, 0),
+                    num(u_c, 0),
+                    num(p * 100.0, 2),
+                    num(100.0 * u_c / rated, 0)
+                ),
+            )
+            .advise(
+                format!(
+                    "Use capacitors rated at least {} V for this step.",
+                    num(
+                        crate::harmonics::limits::default_rated_voltage(u_conn, Some(p)),
+                        0
+                    )
+                ),
+                true,
+            ),
+        );
+    }
+}
+
+/// Estimated voltage distortion in the states where the bank spends real time, other than
+/// the worst state and the states near a harmonic (those have their own finding).
+fn thd(ctx: &ReportContext<'_>, worst: Option<&StateResonance>, out: &mut Vec<Finding>) {
+    let r = &ctx.result.resonance;
+    let run_s = ctx.result.metrics.run.duration_s.max(1e-9);
+    let pick = r
         .states
         .iter()
         .filter(|s| s.time_s / run_s >= 0.01)
         .filter(|s| !r.warnings.iter().any(|w| w.steps == s.steps))
-        .max_by(|a, b| a.thd_pct.total_cmp(&b.thd_pct));
-    let Some(s) = worst else { return };
-    let severity = if s.thd_pct >= 8.0 {
+        .filter(|s| worst.is_none_or(|w| w.steps != s.steps))
+        .max_by(|a, b| (a.thd_pct / a.thd_limit_pct).total_cmp(&(b.thd_pct / b.thd_limit_pct)));
+    let Some(s) = pick else { return };
+    let severity = if s.thd_pct >= s.thd_limit_pct {
         Severity::Warning
-    } else if s.thd_pct >= 5.0 {
+    } else if s.thd_pct >= 0.625 * s.thd_limit_pct {
         Severity::Note
     } else {
         return;
@@ -607,17 +805,24 @@ fn thd(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
     out.push(Finding::new(
         severity,
         "resonance",
-        s.thd_pct,
+        s.hours_per_year * s.thd_pct / s.thd_limit_pct,
         format!(
-            "The estimated bus voltage THD reaches {} % {} ({} of the run); the estimate \
-             neglects the load's own damping, so it errs high.",
+            "The estimated bus voltage THD reaches {} % (limit {} %) {} (about {} h a year, {} \
+             of the run); the estimate runs the harmonic load at its rating{}, so it errs high.",
             num(s.thd_pct, 1),
+            num(s.thd_limit_pct, 1),
             match s.steps.len() {
                 0 => "with no step connected".to_string(),
                 1 => format!("with step {} connected", s.steps[0]),
                 _ => format!("with steps {} connected", steps_label(&s.steps)),
             },
+            approx(s.hours_per_year),
             pct(s.time_s / run_s),
+            if r.damping_kw > 0.0 {
+                ""
+            } else {
+                " and neglects the load's own damping"
+            }
         ),
     ));
 }
@@ -738,7 +943,7 @@ fn faults(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::{Quiet, ResonanceWarning, StateResonance};
+    use crate::engine::{Quiet, ResonanceWarning};
     use crate::scenario::Scenario;
     use crate::study::Study;
     use std::path::Path;
@@ -754,7 +959,10 @@ mod tests {
 
     #[test]
     fn ranks_the_serious_first_in_plain_words() {
-        let st = study();
+        let mut st = study();
+        // A load spectrum, so that resonance is checked (ideal six-pulse, read).
+        st.scenario.spectrum.orders = vec![(5.0, 20.0), (7.0, 14.3)];
+        st.scenario.spectrum.reference_kva = 100.0;
         let mut r = st.run(&mut Quiet).unwrap();
         r.metrics.run.duration_s = 7.0 * DAY_S;
         let w = &mut r.metrics.wear[2];
@@ -764,21 +972,44 @@ mod tests {
         r.metrics.switching.hunting_cycles = 112;
         r.metrics.switching.per_step[1].hunting_cycles = 80;
         r.metrics.switching.per_step[2].hunting_cycles = 32;
+        // Invented figures: 31 h of a 7-day run is 1,616 h a year.
+        let hours = 31.0 / (7.0 * 24.0) * 8760.0;
         r.resonance.states.push(StateResonance {
             steps: vec![1, 2, 3],
             kvar: 150.0,
             order: Some(4.9),
             frequency_hz: Some(245.0),
+            peak_order: Some(4.88),
+            peak_impedance_ohm: Some(0.5),
+            nearest_harmonic: Some(5.0),
             time_s: 31.0 * 3600.0,
+            hours_per_year: hours,
             thd_pct: 4.1,
+            thd_limit_pct: 8.0,
+            harmonics: vec![crate::harmonics::HarmonicVoltage {
+                order: 5.0,
+                current_pct: 20.0,
+                impedance_ohm: 0.5,
+                amplification: 9.0,
+                v_pct: 3.2,
+                limit_pct: Some(5.0),
+            }],
+            step_stress: Vec::new(),
+            limit_ratio: 0.64,
+            severity: 0.4096,
         });
         r.resonance.warnings.push(ResonanceWarning {
             steps: vec![1, 2, 3],
             order: 4.9,
             near_harmonic: 5.0,
             time_s: 31.0 * 3600.0,
+            hours_per_year: hours,
             v_h_pct: 3.2,
+            v_h_limit_pct: Some(5.0),
+            amplification: 9.0,
             thd_pct: 4.1,
+            thd_limit_pct: 8.0,
+            severity: 0.64,
         });
         let ctx = ReportContext::new(&st, &r);
         let f = findings(&ctx);
@@ -786,8 +1017,10 @@ mod tests {
         assert_eq!(f[0].severity, Severity::Critical);
         assert!(
             f[0].text.starts_with(
-                "Bank state 1+2+3 (150 kvar) resonates at order 4.9, near the 5th harmonic of \
-                 the load, for 31 h"
+                "Worst harmonic state: steps 1+2+3 (150 kvar), about 1,620 h a year (18 % of \
+                 the run). It resonates at order 4.9, next to the 5th harmonic of the load, \
+                 which it amplifies 9.0 times; estimated 5th-harmonic voltage 3.2 % (limit \
+                 5.0 %) and THD_V 4.1 % (limit 8.0 %"
             ),
             "{}",
             f[0].text

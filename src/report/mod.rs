@@ -10,12 +10,15 @@
 //! - [`timeseries::TimeseriesWriter`]: not a [`ReportWriter`] but an engine
 //!   [`crate::engine::Observer`] that writes one CSV row per interval while the run goes.
 //!
+//! - [`resonance`]: the tables, CSV curves and JSON of `bankstep resonance`.
+//!
 //! The ranking of findings, shared by the text and JSON reports, lives in [`findings`].
 //! The small helpers at the bottom of this file format numbers, durations and step sets
 //! the same way in every human-facing output.
 
 pub mod findings;
 pub mod json;
+pub mod resonance;
 pub mod summary;
 pub mod timeseries;
 
@@ -248,6 +251,27 @@ pub(crate) fn harmonic_name(h: f64) -> String {
         _ => "th",
     };
     format!("{n}{suffix} harmonic")
+}
+
+/// Wraps `text` to 90 columns, every line starting with `indent`, and appends it to `t`.
+pub(crate) fn wrap_plain(t: &mut String, indent: &str, text: &str) {
+    let mut line = String::from(indent);
+    for word in text.split_whitespace() {
+        let empty = line.len() == indent.len();
+        if !empty && line.chars().count() + 1 + word.chars().count() > 90 {
+            t.push_str(&line);
+            t.push('\n');
+            line = String::from(indent);
+        }
+        if line.len() > indent.len() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    if line.len() > indent.len() {
+        t.push_str(&line);
+        t.push('\n');
+    }
 }
 
 /// The caution printed wherever a report recommends a change to hardware.

@@ -36,6 +36,7 @@ impl ReportWriter for Summary {
         let mut t = String::with_capacity(8 * 1024);
         header(ctx, &mut t);
         top_findings(ctx, &mut t);
+        settings_to_check(ctx, &mut t);
         study(ctx, &mut t);
         pf_energy(ctx, &mut t);
         switching(ctx, &mut t);
@@ -132,6 +133,18 @@ fn num_short(x: f64) -> String {
     let s = format!("{x:.3}");
     let s = s.trim_end_matches('0').trim_end_matches('.');
     s.to_string()
+}
+
+/// Settings that are legal but unwise, with the key to change.
+fn settings_to_check(ctx: &ReportContext<'_>, t: &mut String) {
+    let list = crate::advice::review(ctx.scenario(), ctx.result);
+    if list.is_empty() {
+        return;
+    }
+    heading(t, "Settings to check");
+    for a in &list {
+        wrap(t, "  - ", "    ", &format!("{}: {}.", a.key, a.message));
+    }
 }
 
 fn top_findings(ctx: &ReportContext<'_>, t: &mut String) {
@@ -516,6 +529,13 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
             ),
         );
     }
+    if let Some(p) = spectrum.preset {
+        field(
+            t,
+            "Spectrum source",
+            &format!("{} preset: {}", p.name(), p.source()),
+        );
+    }
     field(
         t,
         "Warning tolerance",
@@ -524,23 +544,69 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
             num(r.tolerance_orders, 2)
         ),
     );
+    field(
+        t,
+        "Limits",
+        &format!(
+            "bus voltage {}; capacitors {}",
+            r.voltage_limits, r.capacitor_limits
+        ),
+    );
+    field(
+        t,
+        "Model",
+        &if r.damping_kw > 0.0 {
+            format!(
+                "harmonic load at its rating in every state; {} kW resistive load damps it",
+                num(r.damping_kw, 0)
+            )
+        } else {
+            "harmonic load at its rating in every state, no load damping (errs high)".to_string()
+        },
+    );
     t.push_str(&format!(
-        "    {:<20}  {:>9}  {:>6}  {:>10}  {:>10}  {:>7}\n",
-        "steps on", "kvar", "order", "frequency", "time", "THD"
+        "    {:<16}  {:>7}  {:>6}  {:>6}  {:>9}  {:>9}  {:>17}  {:>7}  {:>8}\n",
+        "steps on", "kvar", "order", "near", "time", "h/year", "worst harmonic", "THD_V", "I/I_N"
     ));
     for s in r.states.iter().take(MAX_STATES) {
-        let (order, freq) = match (s.order, s.frequency_hz) {
-            (Some(o), Some(f)) => (num(o, 2), format!("{} Hz", num(f, 0))),
-            _ => ("none".to_string(), "-".to_string()),
-        };
+        let order = s.order.map_or("none".to_string(), |o| num(o, 2));
+        let near = s.nearest_harmonic.map_or("-".to_string(), |h| num(h, 0));
+        let worst = s
+            .harmonics
+            .iter()
+            .max_by(|a, b| {
+                let ka = a.limit_pct.map_or(0.0, |l| a.v_pct / l);
+                let kb = b.limit_pct.map_or(0.0, |l| b.v_pct / l);
+                ka.total_cmp(&kb)
+            })
+            .map_or("-".to_string(), |h| {
+                format!(
+                    "h{} {} %{}",
+                    num(h.order, 0),
+                    num(h.v_pct, 1),
+                    match h.limit_pct {
+                        Some(l) if h.v_pct > l => " over",
+                        _ => "",
+                    }
+                )
+            });
+        let current = s
+            .step_stress
+            .iter()
+            .map(|x| x.current_ratio)
+            .reduce(f64::max)
+            .map_or("-".to_string(), |c| format!("{} ×", num(c, 2)));
         t.push_str(&format!(
-            "    {:<20}  {:>9}  {:>6}  {:>10}  {:>10}  {:>7}\n",
+            "    {:<16}  {:>7}  {:>6}  {:>6}  {:>9}  {:>9}  {:>17}  {:>7}  {:>8}\n",
             steps_label(&s.steps),
-            num(s.kvar, 1),
+            num(s.kvar, 0),
             order,
-            freq,
+            near,
             duration(s.time_s),
-            format!("{} %", num(s.thd_pct, 1))
+            approx(s.hours_per_year),
+            worst,
+            format!("{} %", num(s.thd_pct, 1)),
+            current
         ));
     }
     if r.states.len() > MAX_STATES {
@@ -549,6 +615,54 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
             r.states.len() - MAX_STATES
         ));
     }
+    wrap(
+        t,
+        "  ",
+        "  ",
+        "Order: sqrt(S_sc/Q_c) for plain steps, the impedance-scan peak otherwise; near: the \
+         load harmonic nearest to it; h/year: time in the state extrapolated to a 365-day \
+         year; I/I_N: the most loaded step's rms current over its rated current.",
+    );
+    // One line per state with a step over a capacitor limit (its most loaded step), the
+    // most stressed first.
+    let mut over: Vec<_> = r
+        .states
+        .iter()
+        .filter_map(|s| {
+            s.step_stress
+                .iter()
+                .filter(|x| x.limit_ratio >= 1.0)
+                .max_by(|a, b| a.limit_ratio.total_cmp(&b.limit_ratio))
+                .map(|x| (s, x))
+        })
+        .collect();
+    over.sort_by(|a, b| b.1.limit_ratio.total_cmp(&a.1.limit_ratio));
+    let stressed: Vec<String> = over
+        .iter()
+        .take(6)
+        .map(|(s, x)| {
+            format!(
+                "state {} (about {} h a year): step {} at {} × rated current (limit {} ×), {} V \
+                 rms on its {} V capacitors",
+                steps_label(&s.steps),
+                approx(s.hours_per_year),
+                x.step,
+                num(x.current_ratio, 2),
+                num(x.current_limit, 2),
+                num(x.voltage_v, 0),
+                num(x.rated_voltage_v, 0)
+            )
+        })
+        .collect();
+    if !stressed.is_empty() {
+        t.push_str(&format!(
+            "  Capacitor limits exceeded ({}):\n",
+            r.capacitor_limits
+        ));
+        for line in stressed {
+            wrap(t, "    - ", "      ", &format!("{line}."));
+        }
+    }
     if r.warnings.is_empty() {
         t.push_str("  No state reached resonates near a harmonic present in the load.\n");
         return;
@@ -556,18 +670,26 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
     t.push_str("  Warnings:\n");
     for w in &r.warnings {
         let h = harmonic_name(w.near_harmonic);
+        let limit = w
+            .v_h_limit_pct
+            .map(|l| format!(" (limit {} %)", num(l, 1)))
+            .unwrap_or_default();
         wrap(
             t,
             "    - ",
             "      ",
             &format!(
-                "state {} resonates at order {}, near the {h}, for {}; estimated voltage at the \
-                 {h} {} % and THD {} % at the bus.",
+                "state {} resonates at order {}, near the {h}, for {} (about {} h a year); it \
+                 amplifies the {h} {} times: estimated {} %{limit} at the bus, THD_V {} % \
+                 (limit {} %).",
                 steps_label(&w.steps),
                 num(w.order, 2),
                 duration(w.time_s),
+                approx(w.hours_per_year),
+                num(w.amplification, 1),
                 num(w.v_h_pct, 1),
-                num(w.thd_pct, 1)
+                num(w.thd_pct, 1),
+                num(w.thd_limit_pct, 1)
             ),
         );
     }

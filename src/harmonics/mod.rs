@@ -1,0 +1,813 @@
+//! Harmonic resonance of the bank with the supply: the impedance the load's harmonic
+//! currents see for every bank state, the parallel-resonance order, the harmonic bus
+//! voltages and THD, and the current and voltage stress of each connected step.
+//!
+//! The model is the usual balanced positive-sequence (star-equivalent, per phase)
+//! circuit, solved in the harmonic domain one order h at a time:
+//!
+//! - **Supply** (grid plus transformer): Z_s(h) = R·sqrt(h) + j·h·X, from the
+//!   fundamental impedance R + jX of [`SupplyParams::impedance_ohm`]. The reactance grows
+//!   with h; the resistance grows with sqrt(h), a common skin-effect allowance (common
+//!   practice; a constant R would give sharper peaks, R ∝ h blunter ones).
+//! - **Steps**: a plain step is a capacitor, Z = −j·X_C/h; a detuned step is the capacitor
+//!   in series with its reactor, Z = j·(h·X_L − X_C/h) with X_L = p·X_C. The scenario's
+//!   kvar is the step's effective output at U_n, so X_C·(1 − p) = U_n²/Q. Capacitor and
+//!   reactor losses are neglected (they would only damp the peaks). Single-phase steps
+//!   enter with their kvar as if spread over the three phases.
+//! - **Load**: the harmonic-producing load is an ideal current source at each order of
+//!   the spectrum, I_h = (% of the fundamental) × S_ref/(sqrt(3)·U_n), running at its
+//!   rating in every state (a worst case). Its own damping is neglected unless the
+//!   scenario gives `harmonics.damping_kw`: a linear resistive load of that many kW at
+//!   the bus, a constant conductance P/U_n² per phase at every order. Off by default, so
+//!   the estimate errs high.
+//! - **Bus**: V_h = Z(h)·I_h with Z(h) = 1/(1/Z_s(h) + G_damp + Σ 1/Z_step(h)); THD_V is
+//!   sqrt(Σ V_h²) over the nominal phase voltage. Each step's current is V_h/Z_step(h)
+//!   at every order plus its fundamental current at U_n; its capacitor voltage is
+//!   I_h·X_C/h, U/(1 − p) at the fundamental.
+//!
+//! Every order is treated with this one circuit. In a balanced system the triplen orders
+//! of single-phase loads are zero-sequence, which a delta-connected bank does not carry,
+//! so for them the estimate is only indicative.
+//!
+//! The resonant order reported for a state (`order`) is h_r = sqrt(S_sc/Q_c) when every
+//! connected step is plain (the domain contract's formula), else the order of the
+//! strongest parallel-resonance peak of an impedance scan ([`scan`]); the scan's own peak
+//! is reported for every state as `peak_order`.
+
+pub mod limits;
+pub mod scan;
+pub mod survey;
+
+use crate::bank::{StepPhase, StepSpec};
+use crate::supply::SupplyParams;
+use limits::{default_rated_voltage, CapacitorLimits, VoltageLimits};
+use num_complex::Complex64;
+use scan::{Peak, ScanGrid};
+use serde::{Deserialize, Serialize};
+
+/// A named load spectrum.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum SpectrumPreset {
+    /// Ideal six-pulse rectifier (drives with a diode front end): orders 6k ± 1 up to 25,
+    /// I_h/I_1 = 1/h (read); real drives are lower at the high orders.
+    SixPulse,
+    /// Ideal twelve-pulse rectifier: orders 12k ± 1 up to 49, I_h/I_1 = 1/h (read).
+    TwelvePulse,
+    /// Single-phase electronic loads (switch-mode power supplies of PCs, LED drivers,
+    /// without power-factor correction): 3rd 81 %, 5th 61 %, 7th 37 %, 9th 16 %, 11th
+    /// 2.4 %, 13th 6.3 %, 15th 7.9 % (from memory; typical of published switch-mode
+    /// spectra, common practice).
+    SinglePhaseElectronic,
+}
+
+impl SpectrumPreset {
+    /// Orders and currents in % of the fundamental.
+    pub fn orders(self) -> Vec<(f64, f64)> {
+        let (step, top) = match self {
+            SpectrumPreset::SixPulse => (6, 25),
+            SpectrumPreset::TwelvePulse => (12, 49),
+            SpectrumPreset::SinglePhaseElectronic => {
+                return vec![
+                    (3.0, 81.0),
+                    (5.0, 61.0),
+                    (7.0, 37.0),
+                    (9.0, 16.0),
+                    (11.0, 2.4),
+                    (13.0, 6.3),
+                    (15.0, 7.9),
+                ]
+            }
+        };
+        let mut out = Vec::new();
+        let mut k = 1;
+        while step * k - 1 <= top {
+            for h in [step * k - 1, step * k + 1] {
+                if h <= top {
+                    out.push((h as f64, 100.0 / h as f64));
+                }
+            }
+            k += 1;
+        }
+        out
+    }
+
+    /// The scenario name of the preset, e.g. `six-pulse`.
+    pub fn name(self) -> &'static str {
+        match self {
+            SpectrumPreset::SixPulse => "six-pulse",
+            SpectrumPreset::TwelvePulse => "twelve-pulse",
+            SpectrumPreset::SinglePhaseElectronic => "single-phase-electronic",
+        }
+    }
+
+    /// Where the preset's values come from.
+    pub fn source(self) -> &'static str {
+        match self {
+            SpectrumPreset::SixPulse | SpectrumPreset::TwelvePulse => {
+                "ideal rectifier, I_h/I_1 = 1/h (read)"
+            }
+            SpectrumPreset::SinglePhaseElectronic => {
+                "typical switch-mode supply (from memory, common practice)"
+            }
+        }
+    }
+}
+
+/// The harmonic currents the load injects at the bus.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Spectrum {
+    /// (order, current in % of the reference fundamental current), orders > 1, ascending.
+    pub orders: Vec<(f64, f64)>,
+    /// Apparent power of the harmonic-producing load whose fundamental current the
+    /// percentages refer to, kVA.
+    pub reference_kva: f64,
+    /// The preset the orders started from, if any (orders given in the scenario may have
+    /// added to it or overridden it).
+    pub preset: Option<SpectrumPreset>,
+}
+
+/// Harmonic settings beside the spectrum.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct HarmonicOptions {
+    /// Harmonic-voltage limits of the bus. Default IEEE Std 519-2014 Table 1.
+    pub voltage_limits: VoltageLimits,
+    /// Continuous limits of the capacitors. Default IEC 60831-1.
+    pub capacitor_limits: CapacitorLimits,
+    /// Linear resistive load at the bus that damps the resonance, kW. Default 0 (none).
+    pub damping_kw: f64,
+}
+
+/// One step as the harmonic model sees it.
+#[derive(Debug, Clone, PartialEq)]
+struct StepModel {
+    /// Effective output at U_n, kvar.
+    kvar: f64,
+    /// Detuning ratio p (0 for a plain step).
+    p: f64,
+    /// Capacitor reactance at the fundamental, star equivalent, ohm.
+    x_c: f64,
+    /// Voltage the step is connected to (U_n, or U_n/sqrt(3) for a single-phase step), V.
+    u_conn: f64,
+    /// Rated voltage of the capacitors, V.
+    u_rated: f64,
+    /// True for a plain step.
+    plain: bool,
+}
+
+/// Harmonic model of one site: supply and bank impedances versus order.
+#[derive(Debug, Clone, PartialEq)]
+pub struct HarmonicModel {
+    u_n: f64,
+    frequency_hz: f64,
+    /// Fundamental supply resistance and reactance, ohm.
+    r1: f64,
+    x1: f64,
+    s_sc_kva: f64,
+    /// Damping conductance per phase, siemens.
+    g_damp: f64,
+    steps: Vec<StepModel>,
+    /// The load spectrum.
+    pub spectrum: Spectrum,
+    /// Limits and damping.
+    pub options: HarmonicOptions,
+}
+
+/// The bus at one order of the load spectrum, for one bank state.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct HarmonicVoltage {
+    /// Harmonic order.
+    pub order: f64,
+    /// Load current at this order, % of the reference fundamental current.
+    pub current_pct: f64,
+    /// |Z(h)| seen by the load, ohm per phase.
+    pub impedance_ohm: f64,
+    /// |Z(h)| with the bank state over |Z(h)| without any step (> 1: the bank amplifies).
+    pub amplification: f64,
+    /// Estimated bus voltage at this order, % of the nominal phase voltage.
+    pub v_pct: f64,
+    /// Limit for this order, % (`null` where the chosen table gives none).
+    pub limit_pct: Option<f64>,
+}
+
+/// Current and voltage stress of one connected step's capacitors in one bank state.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StepStress {
+    /// Step number (from 1).
+    pub step: usize,
+    /// Detuning ratio, % (`null` for a plain step).
+    pub detuning_pct: Option<f64>,
+    /// Rated voltage of the capacitors, V.
+    pub rated_voltage_v: f64,
+    /// Rated current of the capacitors at their rated voltage, A.
+    pub rated_current_a: f64,
+    /// Rms current, fundamental at U_n plus the harmonics, A.
+    pub current_a: f64,
+    /// Current over rated current.
+    pub current_ratio: f64,
+    /// Permissible current over rated current (1.30 IEC 60831-1, 1.35 IEEE Std 18).
+    pub current_limit: f64,
+    /// Capacitor voltage at the fundamental, U/(1 − p), V.
+    pub fundamental_voltage_v: f64,
+    /// Rms capacitor voltage with the harmonics, V.
+    pub voltage_v: f64,
+    /// Rms capacitor voltage over rated voltage.
+    pub voltage_ratio: f64,
+    /// Permissible rms voltage over rated voltage (1.10).
+    pub voltage_limit: f64,
+    /// Peak capacitor voltage (arithmetic sum of the peaks of every order), V.
+    pub peak_voltage_v: f64,
+    /// Peak voltage over the rated voltage's peak.
+    pub peak_ratio: f64,
+    /// Permissible peak ratio (1.20 IEEE Std 18; `null` when not checked).
+    pub peak_limit: Option<f64>,
+    /// Reactive power over rated kvar.
+    pub kvar_ratio: f64,
+    /// Permissible kvar ratio (1.35 IEEE Std 18; `null` when not checked).
+    pub kvar_limit: Option<f64>,
+    /// Largest of the ratios over their limits (≥ 1: a limit is exceeded).
+    pub limit_ratio: f64,
+}
+
+/// Resonance and distortion of one bank state.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StateHarmonics {
+    /// Parallel-resonance order with the supply: sqrt(S_sc/Q_c) when every connected step
+    /// is plain, else the strongest scan peak; `None` with no capacitance connected or an
+    /// infinitely stiff supply.
+    pub order: Option<f64>,
+    /// Parallel-resonance peaks of the impedance scan, strongest first.
+    pub peaks: Vec<Peak>,
+    /// The bus at each order of the spectrum.
+    pub harmonics: Vec<HarmonicVoltage>,
+    /// Estimated voltage THD at the bus, %.
+    pub thd_pct: f64,
+    /// THD limit of the chosen table, %.
+    pub thd_limit_pct: f64,
+    /// Stress of each connected step.
+    pub steps: Vec<StepStress>,
+    /// Largest of every harmonic voltage, the THD and every step stress over its limit
+    /// (≥ 1: a limit is exceeded). 0 when nothing is estimated.
+    pub limit_ratio: f64,
+    /// Severity of the state: the square of `limit_ratio`, since the heating of
+    /// capacitors, reactors and transformers grows with the square of current and voltage
+    /// (our choice). Hours in the state × severity ranks states.
+    pub severity: f64,
+}
+
+impl StateHarmonics {
+    /// The strongest scan peak's order.
+    pub fn peak_order(&self) -> Option<f64> {
+        self.peaks.first().map(|p| p.order)
+    }
+
+    /// The order of the spectrum whose voltage is worst against its limit (or largest,
+    /// when no order has a limit).
+    pub fn worst_harmonic(&self) -> Option<&HarmonicVoltage> {
+        self.harmonics.iter().max_by(|a, b| {
+            let ka = a.limit_pct.map_or(a.v_pct * 1e-3, |l| a.v_pct / l);
+            let kb = b.limit_pct.map_or(b.v_pct * 1e-3, |l| b.v_pct / l);
+            ka.total_cmp(&kb)
+        })
+    }
+
+    /// The most stressed step.
+    pub fn worst_step(&self) -> Option<&StepStress> {
+        self.steps
+            .iter()
+            .max_by(|a, b| a.limit_ratio.total_cmp(&b.limit_ratio))
+    }
+}
+
+/// Smallest |h·X_L − X_C/h| relative to X_C: keeps a series-tuned branch at its exact
+/// tuning order finite (it then nearly shorts the bus, as it physically would).
+const MIN_BRANCH_REACTANCE: f64 = 1e-9;
+
+impl HarmonicModel {
+    /// Builds the model of a site from its supply, its steps (in number order), the load
+    /// spectrum and the options.
+    pub fn new(
+        supply: &SupplyParams,
+        steps: &[StepSpec],
+        spectrum: Spectrum,
+        options: HarmonicOptions,
+    ) -> Self {
+        let u_n = supply.nominal_voltage_v;
+        let z1 = supply.impedance_ohm();
+        let u2 = u_n * u_n;
+        let steps = steps
+            .iter()
+            .map(|s| {
+                let p = s.detuning.unwrap_or(0.0);
+                let u_conn = match s.phase {
+                    StepPhase::Three => u_n,
+                    StepPhase::Single(_) => u_n / 3f64.sqrt(),
+                };
+                StepModel {
+                    kvar: s.kvar,
+                    p,
+                    x_c: u2 / (s.kvar * 1e3 * (1.0 - p)),
+                    u_conn,
+                    u_rated: s
+                        .capacitor_rated_voltage_v
+                        .unwrap_or_else(|| default_rated_voltage(u_conn, s.detuning)),
+                    plain: s.detuning.is_none(),
+                }
+            })
+            .collect();
+        HarmonicModel {
+            u_n,
+            frequency_hz: supply.frequency_hz,
+            r1: z1.re,
+            x1: z1.im,
+            s_sc_kva: supply.short_circuit_kva(),
+            g_damp: options.damping_kw.max(0.0) * 1e3 / u2,
+            steps,
+            spectrum,
+            options,
+        }
+    }
+
+    /// The same site with every step detuned at ratio `p` (a fraction, e.g. 0.07), each
+    /// keeping its effective kvar at U_n, and capacitors at their default rating for p.
+    pub fn with_detuning(&self, p: f64) -> HarmonicModel {
+        let mut m = self.clone();
+        for s in &mut m.steps {
+            s.p = p;
+            s.plain = false;
+            s.x_c = self.u_n * self.u_n / (s.kvar * 1e3 * (1.0 - p));
+            s.u_rated = default_rated_voltage(s.u_conn, Some(p));
+        }
+        m
+    }
+
+    /// Number of steps.
+    pub fn len(&self) -> usize {
+        self.steps.len()
+    }
+
+    /// True when the bank has no steps.
+    pub fn is_empty(&self) -> bool {
+        self.steps.is_empty()
+    }
+
+    /// Nominal voltage U_n, line to line, V.
+    pub fn nominal_voltage_v(&self) -> f64 {
+        self.u_n
+    }
+
+    /// System frequency, Hz.
+    pub fn frequency_hz(&self) -> f64 {
+        self.frequency_hz
+    }
+
+    /// Short-circuit power at the bus, kVA (infinite for a stiff bus).
+    pub fn short_circuit_kva(&self) -> f64 {
+        self.s_sc_kva
+    }
+
+    /// True when the supply has no impedance (no transformer, infinite grid): the bus is
+    /// stiff at every order and nothing resonates.
+    pub fn is_stiff(&self) -> bool {
+        self.r1 == 0.0 && self.x1 == 0.0
+    }
+
+    /// Detuning ratio of step index `i` (0 for a plain step).
+    pub fn detuning(&self, i: usize) -> f64 {
+        self.steps[i].p
+    }
+
+    /// Rated voltage of the capacitors of step index `i`, V.
+    pub fn rated_voltage_v(&self, i: usize) -> f64 {
+        self.steps[i].u_rated
+    }
+
+    /// Series-resonance (tuning) order of step index `i`, 1/sqrt(p); `None` for a plain
+    /// step.
+    pub fn tuning_order(&self, i: usize) -> Option<f64> {
+        let p = self.steps[i].p;
+        (p > 0.0).then(|| 1.0 / p.sqrt())
+    }
+
+    /// Supply impedance at order h, ohm per phase: R·sqrt(h) + j·h·X.
+    pub fn supply_impedance(&self, h: f64) -> Complex64 {
+        Complex64::new(self.r1 * h.sqrt(), self.x1 * h)
+    }
+
+    /// Admittance at order h of everything but the bank (supply and damping), siemens;
+    /// `None` for a stiff bus.
+    pub fn base_admittance(&self, h: f64) -> Option<Complex64> {
+        if self.is_stiff() {
+            return None;
+        }
+        Some(self.supply_impedance(h).inv() + Complex64::new(self.g_damp, 0.0))
+    }
+
+    /// Susceptance of step index `i` at order h, siemens (> 0 capacitive):
+    /// 1/(X_C/h − h·X_L).
+    pub fn step_susceptance(&self, i: usize, h: f64) -> f64 {
+        let s = &self.steps[i];
+        let mut d = s.x_c / h - h * s.p * s.x_c;
+        let floor = MIN_BRANCH_REACTANCE * s.x_c;
+        if d.abs() < floor {
+            d = if d < 0.0 { -floor } else { floor };
+        }
+        1.0 / d
+    }
+
+    /// Total susceptance of the steps in `mask` at order h, siemens.
+    pub fn bank_susceptance(&self, mask: u64, h: f64) -> f64 {
+        let mut b = 0.0;
+        let mut m = mask & self.all_mask();
+        while m != 0 {
+            let i = m.trailing_zeros() as usize;
+            m &= m - 1;
+            b += self.step_susceptance(i, h);
+        }
+        b
+    }
+
+    /// Mask of every step.
+    pub fn all_mask(&self) -> u64 {
+        if self.steps.len() >= 64 {
+            u64::MAX
+        } else {
+            (1u64 << self.steps.len()) - 1
+        }
+    }
+
+    /// Impedance seen by the load at order h with the steps in `mask` connected, ohm.
+    pub fn impedance(&self, mask: u64, h: f64) -> Complex64 {
+        match self.base_admittance(h) {
+            None => Complex64::new(0.0, 0.0),
+            Some(y) => (y + Complex64::new(0.0, self.bank_susceptance(mask, h))).inv(),
+        }
+    }
+
+    /// Impedance seen by the load at order h with no step connected, ohm.
+    pub fn impedance_without_bank(&self, h: f64) -> Complex64 {
+        self.impedance(0, h)
+    }
+
+    /// Nominal kvar of the steps in `mask`.
+    pub fn q_c(&self, mask: u64) -> f64 {
+        self.steps
+            .iter()
+            .enumerate()
+            .filter(|(i, _)| mask & (1 << i) != 0)
+            .map(|(_, s)| s.kvar)
+            .sum()
+    }
+
+    /// True when every step in `mask` is plain.
+    pub fn all_plain(&self, mask: u64) -> bool {
+        self.steps
+            .iter()
+            .enumerate()
+            .all(|(i, s)| mask & (1 << i) == 0 || s.plain)
+    }
+
+    /// The textbook estimate h_r = sqrt(S_sc/Q_c) (IEEE Std 519, IEEE Std 1531); `None`
+    /// with nothing connected or a stiff bus.
+    pub fn plain_order(&self, mask: u64) -> Option<f64> {
+        let q_c = self.q_c(mask);
+        (q_c > 0.0 && self.s_sc_kva.is_finite()).then(|| (self.s_sc_kva / q_c).sqrt())
+    }
+
+    /// Parallel-resonance order of a state: sqrt(S_sc/Q_c) when every connected step is
+    /// plain, else the strongest peak of an impedance scan.
+    pub fn resonance_order(&self, mask: u64) -> Option<f64> {
+        if self.all_plain(mask) {
+            return self.plain_order(mask);
+        }
+        self.scan_peak(mask)
+    }
+
+    /// Order of the strongest parallel-resonance peak of an impedance scan on the
+    /// default grid (orders 1 to 50 by 0.01, refined), or `None` if there is none inside.
+    pub fn scan_peak(&self, mask: u64) -> Option<f64> {
+        scan::peaks(self, mask, &ScanGrid::default())
+            .first()
+            .map(|p| p.order)
+    }
+
+    /// Harmonic load current at the reference, A: S_ref/(sqrt(3)·U_n).
+    fn reference_current_a(&self) -> f64 {
+        self.spectrum.reference_kva * 1e3 / (3f64.sqrt() * self.u_n)
+    }
+
+    /// Estimated voltage THD at the bus for a state, % (no scan; cheap enough for the
+    /// engine's per-state cache).
+    pub fn thd_pct(&self, mask: u64) -> f64 {
+        let i_ref = self.reference_current_a();
+        let u_ln = self.u_n / 3f64.sqrt();
+        let sum2: f64 = self
+            .spectrum
+            .orders
+            .iter()
+            .map(|&(h, pct)| {
+                let v = 100.0 * self.impedance(mask, h).norm() * i_ref * pct / 100.0 / u_ln;
+                v * v
+            })
+            .sum();
+        sum2.sqrt()
+    }
+
+    /// Resonance, harmonic voltages, THD and step stress for a state (scans the default
+    /// grid for the peaks).
+    pub fn state(&self, mask: u64) -> StateHarmonics {
+        let peaks = scan::peaks(self, mask, &ScanGrid::default());
+        self.state_with_peaks(mask, peaks)
+    }
+
+    /// As [`HarmonicModel::state`], with the scan peaks already found.
+    pub fn state_with_peaks(&self, mask: u64, peaks: Vec<Peak>) -> StateHarmonics {
+        let mask = mask & self.all_mask();
+        let u_ln = self.u_n / 3f64.sqrt();
+        let i_ref = self.reference_current_a();
+        let lim = self.options.voltage_limits;
+        let mut harmonics = Vec::with_capacity(self.spectrum.orders.len());
+        let mut sum2 = 0.0;
+        let mut severity: f64 = 0.0;
+        for &(h, pct) in &self.spectrum.orders {
+            let z = self.impedance(mask, h).norm();
+            let z0 = self.impedance_without_bank(h).norm();
+            let v_pct = 100.0 * z * i_ref * pct / 100.0 / u_ln;
+            sum2 += v_pct * v_pct;
+            let limit_pct = lim.individual_pct(self.u_n, h);
+            if let Some(l) = limit_pct {
+                severity = severity.max(v_pct / l);
+            }
+            harmonics.push(HarmonicVoltage {
+                order: h,
+                current_pct: pct,
+                impedance_ohm: z,
+                amplification: if z0 > 0.0 { z / z0 } else { 1.0 },
+                v_pct,
+                limit_pct,
+            });
+        }
+        let thd_pct = sum2.sqrt();
+        let thd_limit_pct = lim.thd_pct(self.u_n);
+        severity = severity.max(thd_pct / thd_limit_pct);
+        let steps = self.step_stresses(mask, &harmonics);
+        for s in &steps {
+            severity = severity.max(s.limit_ratio);
+        }
+        let order = if self.all_plain(mask) {
+            self.plain_order(mask)
+        } else {
+            peaks.first().map(|p| p.order)
+        };
+        StateHarmonics {
+            order,
+            peaks,
+            harmonics,
+            thd_pct,
+            thd_limit_pct,
+            steps,
+            limit_ratio: severity,
+            severity: severity * severity,
+        }
+    }
+
+    /// Current and voltage of each connected step's capacitors, in per unit of the
+    /// fundamental, then in amperes and volts.
+    fn step_stresses(&self, mask: u64, harmonics: &[HarmonicVoltage]) -> Vec<StepStress> {
+        let lim = self.options.capacitor_limits.values();
+        let mut out = Vec::new();
+        let mut m = mask;
+        while m != 0 {
+            let i = m.trailing_zeros() as usize;
+            m &= m - 1;
+            let s = &self.steps[i];
+            // Branch current at order h over its fundamental current at U_n:
+            // r_h = u_h·|Z_step(1)|/|Z_step(h)|; capacitor voltage c_h = r_h/h.
+            let (mut sum_r2, mut sum_c2, mut sum_c, mut sum_cr) = (0.0, 0.0, 0.0, 0.0);
+            for hv in harmonics {
+                let u_h = hv.v_pct / 100.0;
+                let r = u_h * s.x_c * (1.0 - s.p) * self.step_susceptance(i, hv.order).abs();
+                let c = r / hv.order;
+                sum_r2 += r * r;
+                sum_c2 += c * c;
+                sum_c += c;
+                sum_cr += c * r;
+            }
+            let i1 = match s.u_conn {
+                u if (u - self.u_n).abs() < 1e-9 => s.kvar * 1e3 / (3f64.sqrt() * self.u_n),
+                u => s.kvar * 1e3 / u,
+            };
+            // Rated kvar of the capacitors at their rated voltage:
+            // Q_R = Q·(1 − p)·(U_R/U)², so Q = Q_R·(U/U_R)²/(1 − p).
+            let i_n = i1 * s.u_rated * (1.0 - s.p) / s.u_conn;
+            let u_c1 = s.u_conn / (1.0 - s.p);
+            let current_a = i1 * (1.0 + sum_r2).sqrt();
+            let voltage_v = u_c1 * (1.0 + sum_c2).sqrt();
+            let peak_ratio = u_c1 * (1.0 + sum_c) / s.u_rated;
+            let base = s.u_conn / (s.u_rated * (1.0 - s.p));
+            let kvar_ratio = base * base * (1.0 + sum_cr);
+            let current_ratio = current_a / i_n;
+            let voltage_ratio = voltage_v / s.u_rated;
+            let mut severity = (current_ratio / lim.current).max(voltage_ratio / lim.voltage_rms);
+            if let Some(l) = lim.voltage_peak {
+                severity = severity.max(peak_ratio / l);
+            }
+            if let Some(l) = lim.kvar {
+                severity = severity.max(kvar_ratio / l);
+            }
+            out.push(StepStress {
+                step: i + 1,
+                detuning_pct: (!s.plain).then_some(s.p * 100.0),
+                rated_voltage_v: s.u_rated,
+                rated_current_a: i_n,
+                current_a,
+                current_ratio,
+                current_limit: lim.current,
+                fundamental_voltage_v: u_c1,
+                voltage_v,
+                voltage_ratio,
+                voltage_limit: lim.voltage_rms,
+                peak_voltage_v: 2f64.sqrt() * u_c1 * (1.0 + sum_c),
+                peak_ratio,
+                peak_limit: lim.voltage_peak,
+                kvar_ratio,
+                kvar_limit: lim.kvar,
+                limit_ratio: severity,
+            });
+        }
+        out
+    }
+
+    /// The spectrum order nearest to `order`, if any lies within `tolerance` orders.
+    pub fn near_harmonic(&self, order: f64, tolerance: f64) -> Option<f64> {
+        self.nearest_harmonic(order)
+            .filter(|h| (h - order).abs() <= tolerance)
+    }
+
+    /// The spectrum order nearest to `order`, however far.
+    pub fn nearest_harmonic(&self, order: f64) -> Option<f64> {
+        self.spectrum
+            .orders
+            .iter()
+            .map(|&(h, _)| h)
+            .min_by(|a, b| (a - order).abs().total_cmp(&(b - order).abs()))
+    }
+
+    /// The lowest order present in the load spectrum.
+    pub fn lowest_harmonic(&self) -> Option<f64> {
+        self.spectrum.orders.iter().map(|x| x.0).reduce(f64::min)
+    }
+}
+
+/// THD of a set of harmonic magnitudes relative to the fundamental, %.
+pub fn thd_pct(fundamental: f64, harmonics: &[f64]) -> f64 {
+    100.0 * harmonics.iter().map(|v| v * v).sum::<f64>().sqrt() / fundamental
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::supply::Transformer;
+
+    fn step(kvar: f64, detuning: Option<f64>) -> StepSpec {
+        StepSpec {
+            kvar,
+            phase: StepPhase::Three,
+            fixed: false,
+            detuning,
+            rated_operations: 1e5,
+            capacitor_rated_voltage_v: None,
+            fault: None,
+        }
+    }
+
+    fn site(kva: f64, uk: f64, xr: f64) -> SupplyParams {
+        SupplyParams {
+            transformer: Some(Transformer {
+                rated_kva: kva,
+                impedance_pct: uk,
+                x_over_r: xr,
+            }),
+            ..SupplyParams::default()
+        }
+    }
+
+    fn model(steps: &[StepSpec], spectrum: Spectrum) -> HarmonicModel {
+        HarmonicModel::new(
+            &site(1000.0, 6.0, 8.0),
+            steps,
+            spectrum,
+            HarmonicOptions::default(),
+        )
+    }
+
+    // Worked example: 1000 kVA, u_k 6 %, 300 kvar on an infinite grid gives
+    // h_r = sqrt(S_sc/Q_c) = 7.454 (IEEE Std 519 / IEEE Std 1531 estimate, from memory).
+    #[test]
+    fn plain_bank_order() {
+        let m = model(&[step(300.0, None)], Spectrum::default());
+        assert!((m.resonance_order(1).unwrap() - 7.454).abs() < 1e-3);
+        // The impedance scan of the same circuit peaks at the same order, within the
+        // shift that the supply resistance causes (stated tolerance 1 %).
+        let scanned = m.scan_peak(1).unwrap();
+        assert!(
+            (scanned - 7.454).abs() / 7.454 < 0.01,
+            "scan peak {scanned}"
+        );
+    }
+
+    // Impedance-scan peak against sqrt(S_sc/Q_c) over a range of transformer and bank
+    // sizes (IEEE Std 519 / IEEE Std 1531 estimate, from memory). Tolerance 2 %, stated:
+    // the supply resistance lowers the peak slightly (by about 1/(2·Q²) for a quality
+    // factor Q), and the estimate uses |Z| where the resonance depends on X alone.
+    #[test]
+    fn scan_peak_matches_the_estimate_over_sizes() {
+        for &(kva, uk, xr) in &[
+            (400.0, 4.0, 4.0),
+            (630.0, 6.0, 6.0),
+            (1000.0, 6.0, 8.0),
+            (1600.0, 6.0, 10.0),
+            (2500.0, 7.0, 12.0),
+        ] {
+            for &share in &[0.1, 0.25, 0.4] {
+                let q = kva * share;
+                let m = HarmonicModel::new(
+                    &site(kva, uk, xr),
+                    &[step(q, None)],
+                    Spectrum::default(),
+                    HarmonicOptions::default(),
+                );
+                let est = (kva / (uk / 100.0) / q).sqrt();
+                let scan = m.scan_peak(1).unwrap();
+                assert!(
+                    (scan - est).abs() / est < 0.02,
+                    "{kva} kVA {uk} % X/R {xr}, {q} kvar: scan {scan}, estimate {est}"
+                );
+            }
+        }
+    }
+
+    // Ideal six-pulse rectifier currents I_h/I_1 = 1/h at 6k ± 1 (read in public texts).
+    #[test]
+    fn six_pulse_preset() {
+        let o = SpectrumPreset::SixPulse.orders();
+        assert_eq!(o[0], (5.0, 20.0));
+        assert!((o[1].1 - 14.2857).abs() < 1e-3);
+        assert_eq!(
+            o.iter().map(|x| x.0).collect::<Vec<_>>(),
+            vec![5.0, 7.0, 11.0, 13.0, 17.0, 19.0, 23.0, 25.0]
+        );
+        // Ideal twelve-pulse: 12k ± 1, 1/h (read): 11th 9.09 %, 13th 7.69 %.
+        let t = SpectrumPreset::TwelvePulse.orders();
+        assert_eq!(t[0].0, 11.0);
+        assert!((t[1].1 - 100.0 / 13.0).abs() < 1e-12);
+    }
+
+    // A 7 % detuned bank resonates with the supply below its tuning order
+    // 1/sqrt(0.07) = 3.78 (REFERENCES.md, read; common practice).
+    #[test]
+    fn detuned_bank_resonates_below_tuning() {
+        let m = model(&[step(300.0, Some(0.07))], Spectrum::default());
+        let h = m.resonance_order(1).unwrap();
+        assert!(h < 1.0 / 0.07f64.sqrt(), "{h}");
+        // At the tuning order the branch is a series resonance: |Z| dips far below the
+        // supply's own impedance there.
+        let zt = m.impedance(1, 1.0 / 0.07f64.sqrt()).norm();
+        assert!(zt < 0.2 * m.supply_impedance(3.78).norm());
+    }
+
+    // THD is the root sum of squares of the harmonic voltages over the fundamental,
+    // sqrt(Σ v_h²) (IEEE Std 519 definition, read); the engine's cheap THD agrees with the
+    // full state solution. A hand-worked spectrum is in tests/harmonics_checks.rs.
+    #[test]
+    fn thd_is_the_root_sum_of_squares() {
+        let spectrum = Spectrum {
+            orders: SpectrumPreset::SixPulse.orders(),
+            reference_kva: 200.0,
+            preset: Some(SpectrumPreset::SixPulse),
+        };
+        let m = model(&[step(100.0, None)], spectrum);
+        let st = m.state(1);
+        let by_hand = st
+            .harmonics
+            .iter()
+            .map(|h| h.v_pct * h.v_pct)
+            .sum::<f64>()
+            .sqrt();
+        assert!((st.thd_pct - by_hand).abs() < 1e-12);
+        assert!((m.thd_pct(1) - st.thd_pct).abs() < 1e-12);
+    }
+
+    // A plain step with no harmonics carries its rated current at U_n, and its capacitors
+    // see U_n (definition of rated kvar, read).
+    #[test]
+    fn plain_step_without_harmonics_is_at_rating() {
+        let m = model(&[step(50.0, None)], Spectrum::default());
+        let s = &m.state(1).steps[0];
+        assert!((s.current_ratio - 1.0).abs() < 1e-12);
+        assert!((s.voltage_v - 400.0).abs() < 1e-9);
+        // 50 kvar at 400 V: I = 50 000/(sqrt(3)·400) = 72.17 A (definition).
+        assert!((s.current_a - 72.168_783_648_703_22).abs() < 1e-9);
+        assert!(s.limit_ratio < 1.0);
+    }
+}
