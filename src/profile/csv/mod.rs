@@ -469,6 +469,9 @@ struct Plan {
     rows_used: u64,
     /// Spacings longer than this are gaps, µs.
     gap_threshold_us: f64,
+    /// Later passes must keep each good row's values: pass 1 found duplicate times
+    /// (compared by value) or rows to hold or interpolate (filled from good rows).
+    keep_values: bool,
 }
 
 impl Plan {
@@ -477,7 +480,7 @@ impl Plan {
     }
 
     fn rules(&self, time_only: bool) -> Rules {
-        Rules::new(
+        let mut r = Rules::new(
             self.columns,
             Some(self.time_kind),
             self.kind_line,
@@ -485,7 +488,9 @@ impl Plan {
             self.decimal,
             self.delimiter,
             time_only,
-        )
+        );
+        r.keep_values = self.keep_values;
+        r
     }
 }
 
@@ -859,6 +864,7 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
         decimal: opts.decimal,
         rows_used: n.used,
         gap_threshold_us,
+        keep_values: n.held + n.interpolated + counts.duplicate + counts.conflicting_duplicate > 0,
     };
 
     // Gaps need the median, so they come from another pass, run only when some spacing
@@ -1314,14 +1320,14 @@ impl LoadSource for MemoryCursor<'_> {
                 ),
             ));
         };
-        *out = match (
-            p.gap_interpolation_us,
-            times.get(idx + 1),
-            p.samples.get(idx + 1),
-        ) {
-            (Some(thr), Some(&tb), Some(b)) if is_gap(tb - ta, thr) => lerp(s, ta, b, tb, t_s),
-            _ => *s,
-        };
+        *out = *s;
+        if let Some(thr) = p.gap_interpolation_us {
+            if let (Some(&tb), Some(b)) = (times.get(idx + 1), p.samples.get(idx + 1)) {
+                if is_gap(tb - ta, thr) {
+                    *out = lerp(s, ta, b, tb, t_s);
+                }
+            }
+        }
         Ok(())
     }
 }

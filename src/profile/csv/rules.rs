@@ -238,6 +238,10 @@ pub(super) struct Rules {
     last_good_t: f64,
     /// A good row has been used.
     pub(super) has_good: bool,
+    /// Keep each good row's values (for duplicates and filled rows). Pass 1 always does;
+    /// later passes only when pass 1 found a use for them, so that a clean file's stream
+    /// copies nothing it does not need.
+    pub(super) keep_values: bool,
     /// An hour repeated by a daylight-saving change: it ends at this time; found at this line.
     dst_back: Option<(f64, u64)>,
 }
@@ -268,6 +272,7 @@ impl Rules {
             prev_vals_ok: false,
             last_good_t: 0.0,
             has_good: false,
+            keep_values: true,
             dst_back: None,
         }
     }
@@ -413,7 +418,9 @@ impl Rules {
         self.has_prev = true;
         match good {
             Some(v) => {
-                self.prev_vals = *v;
+                if self.keep_values {
+                    self.prev_vals = *v;
+                }
                 self.prev_vals_ok = true;
                 self.has_good = true;
                 self.last_good_t = t;
