@@ -15,6 +15,9 @@ use crate::timebase::{Calendar, TimeKind, DAY_S};
 /// Default length of a synthetic run: one week, s.
 pub const DEFAULT_SYNTHETIC_S: f64 = 7.0 * DAY_S;
 
+/// Largest number of intervals in one run.
+pub const MAX_INTERVALS: f64 = 1e10;
+
 /// Runs shorter than this are billed as one window even with monthly billing, s.
 pub const SHORT_RUN_S: f64 = 30.0 * DAY_S;
 
@@ -99,7 +102,13 @@ impl Study {
             (None, Some(a)) => a,
             (None, None) => DEFAULT_SYNTHETIC_S,
         };
-        let intervals = (duration / dt + 1e-9).floor() as u64;
+        let n = (duration / dt + 1e-9).floor();
+        if n > MAX_INTERVALS {
+            return Err(RunError::Config(format!(
+                "the run would have {n:.3e} intervals ({duration} s at {dt} s); at most {MAX_INTERVALS:e} are allowed: use a longer run.time_step_s or a shorter run"
+            )));
+        }
+        let intervals = n as u64;
         if intervals == 0 {
             return Err(RunError::Config(format!(
                 "the run is shorter than one time step ({dt} s)"

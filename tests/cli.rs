@@ -471,3 +471,39 @@ fn resonance_help_teaches_units_example_and_exit_codes() {
                 .and(predicate::str::contains("U/(1 - p)")),
         );
 }
+
+// What the reader did with defective rows is stated in the summary and in the JSON report.
+#[test]
+fn profile_defects_are_reported() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(
+        dir.path().join("p.csv"),
+        "time,p_a_kw,q_a_kvar,p_b_kw,q_b_kvar,p_c_kw,q_c_kvar\n0,100,60,100,60,100,60\n60,100,NaN,100,40,100,40\n120,50,30,50,30,50,30\n180,50,30,50,30,50,30\n",
+    )
+    .unwrap();
+    let sc = dir.path().join("s.toml");
+    std::fs::write(&sc, "[[steps]]\nkvar = 25\ncount = 4\n[load]\ncsv = \"p.csv\"\n[load.defects]\nnot_finite = \"hold\"\n").unwrap();
+    let out = assert_cmd::Command::cargo_bin("bankstep")
+        .unwrap()
+        .arg("simulate")
+        .arg(&sc)
+        .arg("--quiet")
+        .assert()
+        .success();
+    let text = String::from_utf8(out.get_output().stdout.clone()).unwrap();
+    assert!(
+        text.contains("Load profile")
+            && text.contains("not_finite: 1 row")
+            && text.contains("line 3"),
+        "{text}"
+    );
+    let out = assert_cmd::Command::cargo_bin("bankstep")
+        .unwrap()
+        .args(["simulate", "--quiet", "--json", "-"])
+        .arg(&sc)
+        .assert()
+        .success();
+    let v: serde_json::Value = serde_json::from_slice(&out.get_output().stdout).unwrap();
+    assert_eq!(v["profile"]["rows_held"], 1);
+    assert_eq!(v["profile"]["kinds"][0]["kind"], "not_finite");
+}

@@ -130,6 +130,8 @@ struct Document<'a> {
     run: &'a RunInfo,
     findings: Vec<Finding>,
     settings_to_check: Vec<crate::advice::Advice>,
+    /// For a CSV profile: the rows used and what was done with defective ones.
+    profile: Option<&'a crate::profile::csv::DefectSummary>,
     pf: &'a PfMetrics,
     switching: &'a SwitchingMetrics,
     overcorrection: &'a OvercorrectionMetrics,
@@ -215,6 +217,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
         run: &m.run,
         findings: findings(ctx),
         settings_to_check: crate::advice::review(sc, ctx.result),
+        profile: ctx.study.csv.as_ref().map(|c| &c.summary),
         pf: &m.pf,
         switching: &m.switching,
         overcorrection: &m.overcorrection,

@@ -37,6 +37,7 @@ impl ReportWriter for Summary {
         header(ctx, &mut t);
         top_findings(ctx, &mut t);
         settings_to_check(ctx, &mut t);
+        profile_defects(ctx, &mut t);
         study(ctx, &mut t);
         pf_energy(ctx, &mut t);
         switching(ctx, &mut t);
@@ -126,6 +127,21 @@ fn header(ctx: &ReportContext<'_>, t: &mut String) {
             cal.datetime(run.t_first_s).format("%Y-%m-%d %H:%M"),
         ),
     );
+}
+
+/// What the CSV reader found wrong with the profile and what it did about it.
+fn profile_defects(ctx: &ReportContext<'_>, t: &mut String) {
+    let Some(scan) = &ctx.study.csv else {
+        return;
+    };
+    let s = &scan.summary;
+    if s.is_clean() {
+        return;
+    }
+    heading(t, "Load profile");
+    for line in s.lines() {
+        wrap(t, "  - ", "    ", &line);
+    }
 }
 
 /// A number with as few decimals as it needs (at most 3).
