@@ -27,8 +27,7 @@ fn advice(key: &str, message: String) -> Advice {
 pub fn review_settings(sc: &Scenario) -> Vec<Advice> {
     let mut out = Vec::new();
     let c = &sc.controller;
-    let smallest = crate::bank::Bank::new(sc.steps.clone(), sc.supply.nominal_voltage_v)
-        .smallest_switched_kvar();
+    let smallest = crate::bank::smallest_switched_kvar(&sc.steps);
     let switched = sc.steps.iter().any(|s| !s.fixed);
     if switched && c.dead_band_kvar < 0.5 * smallest {
         out.push(advice(

@@ -61,7 +61,39 @@ pub struct StepSpec {
     pub fault: Option<Fault>,
 }
 
+/// Smallest switched step, kvar; the smallest step of all if none is switched. This is the
+/// step the default dead band and overcorrection threshold are measured against.
+pub fn smallest_switched_kvar(steps: &[StepSpec]) -> f64 {
+    let pick = |only_switched: bool| {
+        steps
+            .iter()
+            .filter(|s| !only_switched || !s.fixed)
+            .map(|s| s.kvar)
+            .fold(f64::INFINITY, f64::min)
+    };
+    let q = pick(true);
+    if q.is_finite() {
+        q
+    } else {
+        pick(false)
+    }
+}
+
 impl StepSpec {
+    /// A plain (undetuned) switched three-phase step of `kvar` with a contactor life of
+    /// 100 000 operations (the scenario default), no fault and the default capacitor rating.
+    pub fn plain(kvar: f64) -> Self {
+        StepSpec {
+            kvar,
+            phase: StepPhase::Three,
+            fixed: false,
+            detuning: None,
+            rated_operations: 100_000.0,
+            capacitor_rated_voltage_v: None,
+            fault: None,
+        }
+    }
+
     /// Nominal susceptance per phase at U_n, siemens: Q per phase / U_ln^2.
     pub fn susceptance(&self, u_n_v: f64) -> [f64; 3] {
         let u_ln2 = u_n_v * u_n_v / 3.0;
@@ -206,19 +238,7 @@ impl Bank {
 
     /// Smallest switched step, kvar; the smallest step of all if none is switched.
     pub fn smallest_switched_kvar(&self) -> f64 {
-        let pick = |fixed: Option<bool>| {
-            self.steps
-                .iter()
-                .filter(|s| fixed.is_none_or(|f| s.fixed == f))
-                .map(|s| s.kvar)
-                .fold(f64::INFINITY, f64::min)
-        };
-        let q = pick(Some(false));
-        if q.is_finite() {
-            q
-        } else {
-            pick(None)
-        }
+        smallest_switched_kvar(&self.steps)
     }
 }
 
@@ -227,15 +247,7 @@ mod tests {
     use super::*;
 
     fn step(kvar: f64) -> StepSpec {
-        StepSpec {
-            kvar,
-            phase: StepPhase::Three,
-            fixed: false,
-            detuning: None,
-            rated_operations: 100_000.0,
-            capacitor_rated_voltage_v: None,
-            fault: None,
-        }
+        StepSpec::plain(kvar)
     }
 
     #[test]

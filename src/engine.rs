@@ -276,7 +276,6 @@ impl Simulation {
             let mask = ctl.mask();
             let d = ctl.decide(&reading, t_next);
             met.record(&IntervalObs {
-                k,
                 t_s: t,
                 p_kw: reading.p_kw[0] + reading.p_kw[1] + reading.p_kw[2],
                 q_kvar: reading.q_kvar[0] + reading.q_kvar[1] + reading.q_kvar[2],

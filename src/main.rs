@@ -255,6 +255,19 @@ impl Failure {
         Failure { code: 1, error }
     }
 
+    /// The engine stopped: a profile defect met while streaming is bad input (exit code
+    /// 2), anything else a failed run (exit code 1).
+    fn simulation(e: RunError, file: &str) -> Self {
+        let code = match e {
+            RunError::Profile(_) => 2,
+            RunError::Config(_) => 1,
+        };
+        Failure {
+            code,
+            error: anyhow::Error::new(e).context(format!("the run of {file} failed")),
+        }
+    }
+
     /// A report could not be written: exit code 1, or a quiet end if the reader went away.
     fn report(e: ReportError, what: impl FnOnce() -> String) -> Self {
         if e.is_broken_pipe() {
@@ -387,16 +400,7 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     if let Some(bar) = &observer.bar {
         bar.finish_and_clear();
     }
-    let result = result.map_err(|e| {
-        let code = match e {
-            RunError::Profile(_) => 2,
-            RunError::Config(_) => 1,
-        };
-        Failure {
-            code,
-            error: anyhow::Error::new(e).context(format!("the run of {file} failed")),
-        }
-    })?;
+    let result = result.map_err(|e| Failure::simulation(e, &file))?;
     if let (Some(series), Some(path)) = (observer.series.take(), &args.timeseries) {
         let rows = series.rows();
         series.finish().map_err(|e| {
@@ -514,16 +518,9 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
             let study = Study::prepare(scenario.clone())
                 .with_context(|| format!("cannot prepare the study of {file}"))
                 .map_err(Failure::input)?;
-            let result = study.run(&mut bankstep::engine::Quiet).map_err(|e| {
-                let code = match e {
-                    RunError::Profile(_) => 2,
-                    RunError::Config(_) => 1,
-                };
-                Failure {
-                    code,
-                    error: anyhow::Error::new(e).context(format!("the run of {file} failed")),
-                }
-            })?;
+            let result = study
+                .run(&mut bankstep::engine::Quiet)
+                .map_err(|e| Failure::simulation(e, &file))?;
             run_s = Some(result.metrics.run.duration_s);
             Selection::Masks(
                 result

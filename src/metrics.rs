@@ -35,8 +35,6 @@ pub struct MetricParams {
 /// What the engine tells the metrics about one interval.
 #[derive(Debug, Clone, Copy)]
 pub struct IntervalObs<'a> {
-    /// Interval index k.
-    pub k: u64,
     /// Start of the interval t_k, s.
     pub t_s: f64,
     /// Three-phase supply active power, kW.
@@ -70,6 +68,18 @@ pub enum OvercorrectionCause {
     /// The controller saw no need to open (dead band, averaging or single-phase
     /// measurement hid the leading power).
     NotSeenByController,
+}
+
+impl OvercorrectionCause {
+    /// The snake_case name used as a key in reports.
+    pub fn name(self) -> &'static str {
+        match self {
+            OvercorrectionCause::Export => "export",
+            OvercorrectionCause::FixedSteps => "fixed_steps",
+            OvercorrectionCause::StepNotOpened => "step_not_opened",
+            OvercorrectionCause::NotSeenByController => "not_seen_by_controller",
+        }
+    }
 }
 
 const CAUSES: [OvercorrectionCause; 4] = [
@@ -627,11 +637,7 @@ impl Metrics {
         let mut dominant = None;
         let mut best = 0;
         for (c, nc) in CAUSES.iter().zip(self.cause_n) {
-            let name = serde_json::to_value(c)
-                .ok()
-                .and_then(|v| v.as_str().map(str::to_owned))
-                .unwrap_or_default();
-            cause_s.insert(name, nc as f64 * dt);
+            cause_s.insert(c.name().to_string(), nc as f64 * dt);
             if nc > best {
                 best = nc;
                 dominant = Some(*c);

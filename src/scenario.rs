@@ -382,8 +382,12 @@ pub struct Scenario {
 /// Lowercase hex SHA-256 of some bytes.
 pub fn sha256_hex(bytes: &[u8]) -> String {
     use sha2::{Digest, Sha256};
-    let d = Sha256::digest(bytes);
-    d.iter().map(|b| format!("{b:02x}")).collect()
+    hex_lower(&Sha256::digest(bytes))
+}
+
+/// Lowercase hex of a digest.
+pub fn hex_lower(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
 }
 
 /// A value with its unit, e.g. `400 V`, or the bare value for a ratio.
@@ -636,7 +640,7 @@ impl Scenario {
                 format!("{} steps; at most {MAX_STEPS} are supported", steps.len()),
             ));
         }
-        let smallest = crate::bank::Bank::new(steps.clone(), u_n).smallest_switched_kvar();
+        let smallest = crate::bank::smallest_switched_kvar(&steps);
 
         let c = &f.controller;
         let target = c.target_pf.unwrap_or(PfTarget::lag(0.95));

@@ -52,7 +52,7 @@ fn file_sha256(path: &std::path::Path) -> Result<String, ProfileError> {
         }
         h.update(&buf[..n]);
     }
-    Ok(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
+    Ok(crate::scenario::hex_lower(&h.finalize()))
 }
 
 /// The load source of one run.

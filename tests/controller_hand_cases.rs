@@ -5,7 +5,7 @@
 //! kvar and the arithmetic stays exact.
 
 mod common;
-use common::{record_with, Op, Pieces};
+use common::{op, record_with, Pieces};
 
 /// Four 25 kvar steps, target 1.0, T_sw = 10 s, T_d = 60 s, Δt = 1 s, 400 s.
 fn four_equal(ordering: &str) -> String {
@@ -33,10 +33,6 @@ fn staircase() -> Pieces {
         (100.0, 100.0, 10.0),
         (300.0, 100.0, 80.0),
     ])
-}
-
-fn op(t: f64, step: usize, close: bool) -> Op {
-    Op { t, step, close }
 }
 
 // Worked on paper: dead band 0.65 × 25 = 16.25 kvar (default, common practice).

@@ -2,11 +2,7 @@
 //! per hour, overvoltage trips one step per delay.
 
 mod common;
-use common::{record_with, Op, Pieces};
-
-fn op(t: f64, step: usize, close: bool) -> Op {
-    Op { t, step, close }
-}
+use common::{op, record_with, Pieces};
 
 // Export release with a 5 s delay, on paper: Q = 60 kvar at P = 100 kW closes steps 1 and
 // 2 at 10 s and 20 s (ΔQ 60 → 35 → 10, dead band 16.25 kvar). From 100 s the site exports

@@ -671,13 +671,8 @@ mod tests {
 
     fn step(kvar: f64, detuning: Option<f64>) -> StepSpec {
         StepSpec {
-            kvar,
-            phase: StepPhase::Three,
-            fixed: false,
             detuning,
-            rated_operations: 1e5,
-            capacitor_rated_voltage_v: None,
-            fault: None,
+            ..StepSpec::plain(kvar)
         }
     }
 

@@ -333,7 +333,7 @@ impl Scanner {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::bank::{StepPhase, StepSpec};
+    use crate::bank::StepSpec;
     use crate::harmonics::{HarmonicOptions, Spectrum};
     use crate::supply::{SupplyParams, Transformer};
 
@@ -350,13 +350,8 @@ mod tests {
         let steps: Vec<StepSpec> = kvars
             .iter()
             .map(|&(kvar, detuning)| StepSpec {
-                kvar,
-                phase: StepPhase::Three,
-                fixed: false,
                 detuning,
-                rated_operations: 1e5,
-                capacitor_rated_voltage_v: None,
-                fault: None,
+                ..StepSpec::plain(kvar)
             })
             .collect();
         HarmonicModel::new(

@@ -69,20 +69,7 @@ impl<'a> ReportContext<'a> {
 
     /// Smallest switched step, kvar (the smallest step of all if none is switched).
     pub fn smallest_switched_kvar(&self) -> f64 {
-        let steps = &self.study.scenario.steps;
-        let pick = |only_switched: bool| {
-            steps
-                .iter()
-                .filter(|s| !only_switched || !s.fixed)
-                .map(|s| s.kvar)
-                .fold(f64::INFINITY, f64::min)
-        };
-        let q = pick(true);
-        if q.is_finite() {
-            q
-        } else {
-            pick(false)
-        }
+        crate::bank::smallest_switched_kvar(&self.study.scenario.steps)
     }
 }
 

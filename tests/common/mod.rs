@@ -48,6 +48,11 @@ pub struct Op {
     pub close: bool,
 }
 
+/// An expected operation: at `t` (s), step number `step`, closing or opening.
+pub fn op(t: f64, step: usize, close: bool) -> Op {
+    Op { t, step, close }
+}
+
 /// Records operations and per-interval bus voltage and supply Q.
 #[derive(Default)]
 pub struct Recorder {
