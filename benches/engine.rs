@@ -62,7 +62,7 @@ fn main() {
         .replace("__SYNTH__", SYNTH);
     let sc = Scenario::from_str(&text, Path::new("bench.toml")).expect("bench scenario");
     let study = Study::prepare(sc).expect("bench study");
-    let n = study.simulation.intervals;
+    let n = study.plan.intervals;
     let rss_before = peak_rss_kb();
     let t = Instant::now();
     let r = study.run(&mut Quiet).expect("bench run");
@@ -76,7 +76,7 @@ fn main() {
         r.metrics.switching.total_operations,
         r.metrics.pf.energy_pf,
         r.metrics.pf.energy_pf_quadrant.word(),
-        r.resonance.states.len()
+        r.metrics.states.len()
     );
     if let (Some(a), Some(b)) = (rss_before, peak_rss_kb()) {
         println!(

@@ -39,7 +39,7 @@ duration_s = 60
 fn main() {
     let sc = Scenario::from_str(SCENARIO, Path::new("bench.toml")).expect("bench scenario");
     let study = Study::prepare(sc).expect("bench study");
-    let model = study.simulation.harmonic_model();
+    let model = study.harmonic_model();
     let grid = ScanGrid::default();
     let rounds = 5;
     let mut best = (f64::INFINITY, f64::INFINITY, f64::INFINITY);

@@ -9,6 +9,148 @@ use serde::Serialize;
 /// Largest number of steps in one bank (the width of a state mask).
 pub const MAX_STEPS: usize = 64;
 
+/// A bank state: the set of connected steps.
+///
+/// Steps are numbered from 1 in scenario order, fixed steps included; internally bit i
+/// stands for step i + 1, so a bank has at most [`MAX_STEPS`] steps. Iteration yields step
+/// numbers in ascending order.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Default)]
+pub struct BankState(u64);
+
+impl BankState {
+    /// No step connected.
+    pub const EMPTY: BankState = BankState(0);
+
+    /// The state whose bit i stands for step i + 1.
+    pub const fn from_bits(bits: u64) -> Self {
+        BankState(bits)
+    }
+
+    /// The bits of the state (bit i: step i + 1).
+    pub const fn bits(self) -> u64 {
+        self.0
+    }
+
+    /// Every one of the first `n` steps.
+    pub fn first(n: usize) -> Self {
+        if n >= 64 {
+            BankState(u64::MAX)
+        } else {
+            BankState((1u64 << n) - 1)
+        }
+    }
+
+    /// The state with the given step numbers (from 1).
+    pub fn of_steps(numbers: &[usize]) -> Self {
+        numbers.iter().fold(Self::EMPTY, |s, &n| s.with(n))
+    }
+
+    /// True when step `number` (from 1) is connected.
+    pub fn contains(self, number: usize) -> bool {
+        number >= 1 && number <= MAX_STEPS && self.0 & (1u64 << (number - 1)) != 0
+    }
+
+    /// The state with step `number` (from 1) connected as well.
+    pub fn with(self, number: usize) -> Self {
+        BankState(self.0 | (1u64 << (number - 1)))
+    }
+
+    /// The state with step `number` (from 1) open.
+    pub fn without(self, number: usize) -> Self {
+        BankState(self.0 & !(1u64 << (number - 1)))
+    }
+
+    /// Number of connected steps.
+    pub fn len(self) -> usize {
+        self.0.count_ones() as usize
+    }
+
+    /// True when no step is connected.
+    pub fn is_empty(self) -> bool {
+        self.0 == 0
+    }
+
+    /// Steps in both states.
+    pub fn and(self, other: BankState) -> Self {
+        BankState(self.0 & other.0)
+    }
+
+    /// Steps in either state.
+    pub fn or(self, other: BankState) -> Self {
+        BankState(self.0 | other.0)
+    }
+
+    /// Steps in `self` but not in `other`.
+    pub fn minus(self, other: BankState) -> Self {
+        BankState(self.0 & !other.0)
+    }
+
+    /// The connected step numbers (from 1), ascending.
+    pub fn iter(self) -> StepNumbers {
+        StepNumbers(self.0)
+    }
+
+    /// The connected step numbers (from 1) as a vector.
+    pub fn numbers(self) -> Vec<usize> {
+        self.iter().collect()
+    }
+
+    /// Nominal kvar at U_n of the connected steps of `steps` (what the controller
+    /// believes the state delivers).
+    pub fn kvar(self, steps: &[StepSpec]) -> f64 {
+        self.iter()
+            .filter_map(|n| steps.get(n - 1))
+            .map(|s| s.kvar)
+            .sum()
+    }
+
+    /// The state as people write it: step numbers joined by `+` (`1+2+5`), or `none`.
+    pub fn label(self) -> String {
+        if self.is_empty() {
+            return "none".to_string();
+        }
+        let mut s = String::with_capacity(self.len() * 3);
+        for (i, n) in self.iter().enumerate() {
+            if i > 0 {
+                s.push('+');
+            }
+            s.push_str(&n.to_string());
+        }
+        s
+    }
+}
+
+impl std::fmt::Display for BankState {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.label())
+    }
+}
+
+/// Iterator over the step numbers (from 1) of a [`BankState`], ascending.
+#[derive(Debug, Clone)]
+pub struct StepNumbers(u64);
+
+impl Iterator for StepNumbers {
+    type Item = usize;
+    #[inline]
+    fn next(&mut self) -> Option<usize> {
+        if self.0 == 0 {
+            return None;
+        }
+        let i = self.0.trailing_zeros() as usize;
+        self.0 &= self.0 - 1;
+        Some(i + 1)
+    }
+}
+
+impl IntoIterator for BankState {
+    type Item = usize;
+    type IntoIter = StepNumbers;
+    fn into_iter(self) -> StepNumbers {
+        self.iter()
+    }
+}
+
 /// Where a step is connected.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]

@@ -3,11 +3,11 @@
 //! The library owns the physics and the bookkeeping: scenario parsing and validation
 //! ([`scenario`]), load profiles ([`profile`]), the supply and bank model ([`supply`],
 //! [`bank`]), the step controller ([`controller`]), the time-stepping engine ([`engine`]),
-//! the run metrics ([`metrics`]), harmonic resonance ([`harmonics`]) and the report
-//! writers ([`report`]). It never prints and knows nothing of the command line; the
-//! `bankstep` binary is a thin shell around it.
+//! the run metrics ([`metrics`]), harmonic resonance ([`harmonics`]), the analysis that
+//! judges a run ([`analysis`]) and the report writers ([`report`]). It never prints and
+//! knows nothing of the command line; the `bankstep` binary is a thin shell around it.
 
-pub mod advice;
+pub mod analysis;
 pub mod bank;
 pub mod controller;
 pub mod engine;
@@ -20,4 +20,5 @@ pub mod report;
 pub mod scenario;
 pub mod study;
 pub mod supply;
+pub mod text;
 pub mod timebase;

@@ -379,7 +379,7 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     let study = Study::prepare(scenario)
         .with_context(|| format!("cannot prepare the study of {file}"))
         .map_err(Failure::input)?;
-    let sim = &study.simulation;
+    let sim = &study.plan;
 
     let series = match &args.timeseries {
         None => None,
@@ -413,7 +413,8 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
         }
     }
 
-    let ctx = ReportContext::new(&study, &result);
+    let assessment = bankstep::analysis::assess(&study, &result);
+    let ctx = ReportContext::new(&study, &result, &assessment);
     let mut json_to_stdout = false;
     if let Some(path) = &args.json {
         let what = || format!("cannot write the JSON report {}", path.display());

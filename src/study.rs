@@ -1,16 +1,24 @@
-//! A study: a validated scenario joined to its load profile. This is where the library
-//! opens files (the engine never does): it scans a CSV profile once, works out the time
-//! base, the run length and the billing windows, builds the [`Simulation`], and hands out
-//! a fresh load source for each run.
+//! A study: the validated settings of one run joined to a prepared load profile.
+//!
+//! This is where the library opens files (the engine never does). Preparing a profile
+//! scans and hashes a CSV file once, or notes that the load is synthetic; the result, a
+//! [`PreparedProfile`], is its own value that many studies can share (a sweep changes the
+//! settings and reuses the profile without reading the file again). A [`Study`] then works
+//! out the time base of one run ([`RunPlan`]: first interval, Δt, number of intervals,
+//! billing windows) and hands out a fresh load source for each run.
+//!
+//! The settings exist once: [`Study::scenario`] is what the engine runs and what every
+//! report prints.
 
-use crate::engine::{Observer, RunResult, Simulation};
+use crate::engine::{self, Observer, RunResult};
 use crate::error::{ProfileError, RunError};
-use crate::metrics::MetricParams;
+use crate::harmonics::HarmonicModel;
 use crate::profile::csv::{self, CsvScan, CsvStream};
-use crate::profile::synthetic::{SyntheticConfig, SyntheticProfile};
+use crate::profile::synthetic::SyntheticProfile;
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::{BillingWindows, LoadSpec, Scenario};
 use crate::timebase::{Calendar, TimeKind, DAY_S};
+use std::sync::Arc;
 
 /// Default length of a synthetic run: one week, s.
 pub const DEFAULT_SYNTHETIC_S: f64 = 7.0 * DAY_S;
@@ -21,17 +29,50 @@ pub const MAX_INTERVALS: f64 = 1e10;
 /// Runs shorter than this are billed as one window even with monthly billing, s.
 pub const SHORT_RUN_S: f64 = 30.0 * DAY_S;
 
-/// A scenario with its profile located and scanned.
+/// A load profile made ready for runs: scanned and hashed once, shared by every run.
 #[derive(Debug, Clone)]
-pub struct Study {
-    /// The scenario.
-    pub scenario: Scenario,
-    /// The simulation built from it.
-    pub simulation: Simulation,
-    /// The CSV scan, for a CSV profile.
-    pub csv: Option<CsvScan>,
+pub struct PreparedProfile {
+    /// The CSV scan, for a CSV profile; `None` for the synthetic generator.
+    pub csv: Option<Arc<CsvScan>>,
     /// SHA-256 of the CSV profile file, lowercase hex (none for a synthetic profile).
-    pub profile_sha256: Option<String>,
+    pub sha256: Option<String>,
+    /// Time of the first sample in the profile's own time base, s (0 for synthetic).
+    pub t_first_s: f64,
+    /// Time the profile covers, s (`None`: the generator runs as long as asked).
+    pub available_s: Option<f64>,
+    /// Calendar of the profile's time base.
+    pub calendar: Calendar,
+}
+
+impl PreparedProfile {
+    /// Prepares the load profile a scenario names: scans and hashes a CSV file, or sets up
+    /// the calendar of the synthetic generator.
+    pub fn prepare(scenario: &Scenario) -> Result<PreparedProfile, RunError> {
+        match &scenario.load {
+            LoadSpec::Csv { path, options } => {
+                let scan = csv::scan(path, options)?;
+                let calendar = match scan.time_kind {
+                    TimeKind::Absolute => Calendar::absolute(),
+                    TimeKind::Elapsed => Calendar::elapsed_from(scenario.start),
+                };
+                let sha256 = file_sha256(path)?;
+                Ok(PreparedProfile {
+                    t_first_s: scan.t_first_s,
+                    available_s: Some(scan.end_s - scan.t_first_s),
+                    calendar,
+                    sha256: Some(sha256),
+                    csv: Some(Arc::new(scan)),
+                })
+            }
+            LoadSpec::Synthetic(_) => Ok(PreparedProfile {
+                csv: None,
+                sha256: None,
+                t_first_s: 0.0,
+                available_s: None,
+                calendar: Calendar::elapsed_from(scenario.start),
+            }),
+        }
+    }
 }
 
 /// Hashes a file by streaming it.
@@ -55,6 +96,28 @@ fn file_sha256(path: &std::path::Path) -> Result<String, ProfileError> {
     Ok(crate::scenario::hex_lower(&h.finalize()))
 }
 
+/// The time base of one run, derived from the settings and the profile.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RunPlan {
+    /// Calendar of the run's time base.
+    pub calendar: Calendar,
+    /// Start of the first interval, s (profile time base).
+    pub t_first_s: f64,
+    /// Time step Δt, s.
+    pub dt_s: f64,
+    /// Number of intervals.
+    pub intervals: u64,
+    /// Run times at which a new billing window starts (after the first), ascending.
+    pub billing_starts: Vec<f64>,
+}
+
+impl RunPlan {
+    /// Length of the run, s.
+    pub fn duration_s(&self) -> f64 {
+        self.intervals as f64 * self.dt_s
+    }
+}
+
 /// The load source of one run.
 pub enum Source {
     /// Streaming CSV.
@@ -73,105 +136,148 @@ impl LoadSource for Source {
     }
 }
 
+/// Validated settings joined to a prepared profile: everything one run needs.
+#[derive(Debug, Clone)]
+pub struct Study {
+    /// The settings: what the engine runs and what every report prints.
+    pub scenario: Scenario,
+    /// The prepared load profile, shared with other studies of the same profile.
+    pub profile: Arc<PreparedProfile>,
+    /// The time base of the run.
+    pub plan: RunPlan,
+}
+
 impl Study {
-    /// Prepares a study: scans the CSV profile if there is one and builds the simulation.
+    /// Prepares a study: prepares its profile (scanning a CSV file if there is one) and
+    /// works out the time base.
     pub fn prepare(scenario: Scenario) -> Result<Study, RunError> {
-        let dt = scenario.dt_s;
-        let (csv, t_first, calendar, available) = match &scenario.load {
-            LoadSpec::Csv { path, options } => {
-                let scan = csv::scan(path, options)?;
-                let cal = match scan.time_kind {
-                    TimeKind::Absolute => Calendar::absolute(),
-                    TimeKind::Elapsed => Calendar::elapsed_from(scenario.start),
-                };
-                let avail = scan.end_s - scan.t_first_s;
-                (Some(scan.clone()), scan.t_first_s, cal, Some(avail))
+        let profile = Arc::new(PreparedProfile::prepare(&scenario)?);
+        Study::with_profile(scenario, profile)
+    }
+
+    /// A study of `scenario` on a profile prepared before, without reading it again. The
+    /// scenario must name the same load as the one the profile was prepared from (a sweep
+    /// varies the bank and the controller, not the load file).
+    pub fn with_profile(
+        scenario: Scenario,
+        profile: Arc<PreparedProfile>,
+    ) -> Result<Study, RunError> {
+        match (&scenario.load, &profile.csv) {
+            (LoadSpec::Csv { path, .. }, Some(scan)) if *path == scan.path => {}
+            (LoadSpec::Synthetic(_), None) => {}
+            _ => {
+                return Err(RunError::Config(
+                    "the prepared load profile is not the one the scenario names".into(),
+                ))
             }
-            LoadSpec::Synthetic(_) => (None, 0.0, Calendar::elapsed_from(scenario.start), None),
-        };
-        let duration = match (scenario.duration_s, available) {
-            (Some(d), Some(a)) if d > a + 1e-9 => {
-                return Err(RunError::Profile(ProfileError::Coverage {
-                    file: csv.as_ref().map(|c| c.path.clone()).unwrap_or_default(),
-                    message: format!(
-                        "the run asks for {d} s (run.duration_*) but the profile covers only {a} s; shorten the run or extend the profile"
-                    ),
-                }))
-            }
-            (Some(d), _) => d,
-            (None, Some(a)) => a,
-            (None, None) => DEFAULT_SYNTHETIC_S,
-        };
-        let n = (duration / dt + 1e-9).floor();
-        if n > MAX_INTERVALS {
-            return Err(RunError::Config(format!(
-                "the run would have {n:.3e} intervals ({duration} s at {dt} s); at most {MAX_INTERVALS:e} are allowed: use a longer run.time_step_s or a shorter run"
-            )));
         }
-        let intervals = n as u64;
-        if intervals == 0 {
-            return Err(RunError::Config(format!(
-                "the run is shorter than one time step ({dt} s)"
-            )));
-        }
-        let t_end = t_first + intervals as f64 * dt;
-        let billing_starts = match scenario.billing {
-            BillingWindows::Run => Vec::new(),
-            // A run shorter than a (30-day) month is billed as one window.
-            BillingWindows::Month if t_end - t_first < SHORT_RUN_S => Vec::new(),
-            BillingWindows::Month => calendar.month_starts(t_first, t_end),
-        };
-        let c = &scenario.controller;
-        let simulation = Simulation {
-            supply: scenario.supply,
-            steps: scenario.steps.clone(),
-            controller: *c,
-            metrics: MetricParams {
-                target: c.target,
-                overcorrection_threshold_kvar: scenario.overcorrection_threshold_kvar,
-                overcorrection_min_s: scenario.overcorrection_min_s,
-                hunting_window_s: scenario.hunting_window_s,
-                billing_starts,
-            },
-            spectrum: scenario.spectrum.clone(),
-            resonance_tolerance: scenario.resonance_tolerance,
-            harmonics: scenario.harmonics,
-            calendar,
-            t_first_s: t_first,
-            dt_s: dt,
-            intervals,
-        };
-        let profile_sha256 = match &scenario.load {
-            LoadSpec::Csv { path, .. } => Some(file_sha256(path)?),
-            LoadSpec::Synthetic(_) => None,
-        };
+        let plan = plan(&scenario, &profile)?;
         Ok(Study {
             scenario,
-            simulation,
-            csv,
-            profile_sha256,
+            profile,
+            plan,
         })
+    }
+
+    /// The CSV scan, for a CSV profile.
+    pub fn csv(&self) -> Option<&CsvScan> {
+        self.profile.csv.as_deref()
     }
 
     /// A fresh load source positioned at the start of the run.
     pub fn source(&self) -> Result<Source, RunError> {
-        match (&self.scenario.load, &self.csv) {
+        match (&self.scenario.load, &self.profile.csv) {
             (LoadSpec::Csv { .. }, Some(scan)) => Ok(Source::Csv(Box::new(scan.stream()?))),
-            (LoadSpec::Synthetic(cfg), _) => Ok(Source::Synthetic(Box::new(self.synthetic(cfg)))),
+            (LoadSpec::Synthetic(cfg), _) => {
+                let p = &self.plan;
+                Ok(Source::Synthetic(Box::new(SyntheticProfile::new(
+                    cfg,
+                    self.scenario.seed,
+                    p.calendar,
+                    p.t_first_s,
+                    p.dt_s,
+                ))))
+            }
             (LoadSpec::Csv { .. }, None) => {
                 Err(RunError::Config("the CSV profile was not scanned".into()))
             }
         }
     }
 
-    fn synthetic(&self, cfg: &SyntheticConfig) -> SyntheticProfile {
-        let s = &self.simulation;
-        SyntheticProfile::new(cfg, self.scenario.seed, s.calendar, s.t_first_s, s.dt_s)
+    /// The harmonic model of the site: supply, steps, load spectrum and limits.
+    pub fn harmonic_model(&self) -> HarmonicModel {
+        let sc = &self.scenario;
+        HarmonicModel::new(&sc.supply, &sc.steps, sc.spectrum.clone(), sc.harmonics)
     }
 
-    /// Runs the study once.
+    /// Runs the study once on its own profile.
     pub fn run<O: Observer + ?Sized>(&self, observer: &mut O) -> Result<RunResult, RunError> {
         let mut src = self.source()?;
-        self.simulation.run(&mut src, observer)
+        self.run_on(&mut src, observer)
     }
+
+    /// Runs the study's settings and time base over any load source (tests and library
+    /// users drive the engine with sources of their own).
+    pub fn run_on<S: LoadSource + ?Sized, O: Observer + ?Sized>(
+        &self,
+        source: &mut S,
+        observer: &mut O,
+    ) -> Result<RunResult, RunError> {
+        engine::run(&self.scenario, &self.plan, source, observer)
+    }
+}
+
+/// Works out the time base of a run of `scenario` on `profile`.
+fn plan(scenario: &Scenario, profile: &PreparedProfile) -> Result<RunPlan, RunError> {
+    let dt = scenario.dt_s;
+    let t_first = profile.t_first_s;
+    let duration = match (scenario.duration_s, profile.available_s) {
+        (Some(d), Some(a)) if d > a + 1e-9 => {
+            return Err(RunError::Profile(ProfileError::Coverage {
+                file: profile
+                    .csv
+                    .as_ref()
+                    .map(|c| c.path.clone())
+                    .unwrap_or_default(),
+                message: format!(
+                    "the run asks for {d} s (run.duration_*) but the profile covers only {a} s; shorten the run or extend the profile"
+                ),
+            }))
+        }
+        (Some(d), _) => d,
+        (None, Some(a)) => a,
+        (None, None) => DEFAULT_SYNTHETIC_S,
+    };
+    let n = (duration / dt + 1e-9).floor();
+    if n > MAX_INTERVALS {
+        return Err(RunError::Config(format!(
+            "the run would have {n:.3e} intervals ({duration} s at {dt} s); at most {MAX_INTERVALS:e} are allowed: use a longer run.time_step_s or a shorter run"
+        )));
+    }
+    let intervals = n as u64;
+    if intervals == 0 {
+        return Err(RunError::Config(format!(
+            "the run is shorter than one time step ({dt} s)"
+        )));
+    }
+    let t_end = t_first + intervals as f64 * dt;
+    // An absolute time base carries its own calendar; elapsed seconds and the generator
+    // count from the scenario's start.
+    let calendar = match profile.csv.as_ref().map(|c| c.time_kind) {
+        Some(TimeKind::Absolute) => profile.calendar,
+        _ => Calendar::elapsed_from(scenario.start),
+    };
+    let billing_starts = match scenario.billing {
+        BillingWindows::Run => Vec::new(),
+        // A run shorter than a (30-day) month is billed as one window.
+        BillingWindows::Month if t_end - t_first < SHORT_RUN_S => Vec::new(),
+        BillingWindows::Month => calendar.month_starts(t_first, t_end),
+    };
+    Ok(RunPlan {
+        calendar,
+        t_first_s: t_first,
+        dt_s: dt,
+        intervals,
+        billing_starts,
+    })
 }

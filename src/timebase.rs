@@ -12,6 +12,8 @@ use chrono::{DateTime, Datelike, NaiveDate, NaiveDateTime, TimeZone, Utc};
 pub const DAY_S: f64 = 86_400.0;
 /// Seconds in the year used for extrapolation (365 days).
 pub const YEAR_S: f64 = 365.0 * DAY_S;
+/// Hours in the year used for extrapolation (365 days), h.
+pub const HOURS_PER_YEAR: f64 = 8760.0;
 
 /// What the numbers in a time column mean.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

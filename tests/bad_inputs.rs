@@ -176,7 +176,7 @@ fn every_bad_input_gives_its_expected_message() {
         let (error, warnings) = match Scenario::from_file(&dir().join(&case.file)) {
             Err(e) => (Some(scenario_error(&e, fragments)), Vec::new()),
             Ok(s) => match Study::prepare(s) {
-                Ok(st) => (None, st.csv.as_ref().map(warnings_of).unwrap_or_default()),
+                Ok(st) => (None, st.csv().map(warnings_of).unwrap_or_default()),
                 Err(RunError::Profile(e)) => (Some(profile_error(&e)), Vec::new()),
                 Err(e) => panic!("{}: unexpected study error {e}", case.file),
             },

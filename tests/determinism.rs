@@ -16,9 +16,10 @@ fn report(seed: u64) -> Vec<u8> {
     let sc = Scenario::from_str(&text, Path::new("scenarios/compressor-plant.toml")).unwrap();
     let study = Study::prepare(sc).unwrap();
     let r = study.run(&mut Quiet).unwrap();
+    let a = bankstep::analysis::assess(&study, &r);
     let mut out = Vec::new();
     JsonReport
-        .write(&ReportContext::new(&study, &r), &mut out)
+        .write(&ReportContext::new(&study, &r, &a), &mut out)
         .unwrap();
     out
 }

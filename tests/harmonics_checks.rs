@@ -7,14 +7,14 @@ use bankstep::harmonics::scan::{peaks, ScanGrid, Scanner};
 use bankstep::harmonics::{thd_pct, HarmonicModel, SpectrumPreset};
 use bankstep::scenario::Scenario;
 use bankstep::study::Study;
-use common::{run_with, study, Pieces};
+use common::{study, Pieces};
 use nalgebra::{DMatrix, DVector};
 use num_complex::Complex64;
 use std::path::Path;
 
 /// The harmonic model of a scenario given as TOML text.
 fn model(toml: &str) -> HarmonicModel {
-    study(toml).simulation.harmonic_model()
+    study(toml).harmonic_model()
 }
 
 /// A site: 1000 kVA transformer at u_k 6 %, X/R 8, on an infinite grid, with `steps`
@@ -298,8 +298,9 @@ duration_s = 60
 fn pumping_station_warns_near_the_7th_and_detuning_cures_it() {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios/pumping-station.toml");
     let st = Study::prepare(Scenario::from_file(&path).unwrap()).unwrap();
-    let r = st.run(&mut bankstep::engine::Quiet).unwrap();
-    let run_s = r.metrics.run.duration_s;
+    let raw = st.run(&mut bankstep::engine::Quiet).unwrap();
+    let run_s = raw.metrics.run.duration_s;
+    let r = bankstep::analysis::assess(&st, &raw);
     let near: Vec<_> = r
         .resonance
         .warnings
@@ -312,7 +313,7 @@ fn pumping_station_warns_near_the_7th_and_detuning_cures_it() {
         assert!(w.thd_pct > w.v_h_pct * 0.99 && w.thd_pct > 0.0);
         assert!((w.order - w.near_harmonic).abs() <= 0.5);
     }
-    let hm = st.simulation.harmonic_model();
+    let hm = st.harmonic_model();
     let detuned = hm.with_detuning(0.07);
     let sc = Scanner::new(detuned, ScanGrid::default());
     for (_, pk) in sc.scan_all(0, hm.all_mask()) {
@@ -351,11 +352,11 @@ reference_kva = 150
 duration_s = 1800
 "#;
     let load = || Pieces(vec![(0.0, 400.0, 280.0)]);
-    let r = run_with(toml, load());
-    assert!(r.metrics.switching.trips.distortion >= 1);
-    let free = run_with(&toml.replace("thd_limit_pct = 10\n", ""), load());
-    assert_eq!(free.metrics.switching.trips.distortion, 0);
-    let time_in = |res: &bankstep::engine::RunResult| {
+    let (raw, r) = common::assess_with(toml, load());
+    assert!(raw.metrics.switching.trips.distortion >= 1);
+    let (raw_free, free) = common::assess_with(&toml.replace("thd_limit_pct = 10\n", ""), load());
+    assert_eq!(raw_free.metrics.switching.trips.distortion, 0);
+    let time_in = |res: &bankstep::analysis::Assessment| {
         res.resonance
             .states
             .iter()

@@ -2,7 +2,7 @@
 
 mod common;
 use bankstep::pf::kvar_to_correct;
-use common::{record_with, run_with, Pieces};
+use common::{assess_with, record_with, run_with, Pieces};
 
 // kW multipliers for power-factor correction, Q_c = P·(tan φ1 − tan φ2): IEEE Std 141
 // (Red Book), chapter on power factor (table from memory; the formula is read). Printed
@@ -94,7 +94,7 @@ duration_s = 300
 // IEEE Std 1531 estimate, textbook form; from memory).
 #[test]
 fn resonance_order_of_the_full_bank() {
-    let r = run_with(&transformer_site(""), Pieces(vec![(0.0, 300.0, 400.0)]));
+    let (_, r) = assess_with(&transformer_site(""), Pieces(vec![(0.0, 300.0, 400.0)]));
     let full = r
         .resonance
         .states
@@ -118,7 +118,7 @@ fn resonance_order_of_the_full_bank() {
 // short-circuit estimate, from memory): 250 MVA grid and 1000 kVA at 6 % give 16.54 MVA.
 #[test]
 fn resonance_order_with_grid_impedance() {
-    let r = run_with(
+    let (_, r) = assess_with(
         &transformer_site("").replace("[supply]\n", "[supply]\ngrid_short_circuit_mva = 250\n"),
         Pieces(vec![(0.0, 300.0, 400.0)]),
     );

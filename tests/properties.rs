@@ -139,7 +139,7 @@ proptest! {
         }
 
         // Time in states adds up to the run; overcorrection time is leading time.
-        let state_time: f64 = r.resonance.states.iter().map(|s| s.time_s).sum();
+        let state_time: f64 = m.states.iter().map(|s| s.time_s).sum();
         prop_assert!((state_time - m.run.duration_s).abs() < 1e-6);
         prop_assert!(m.overcorrection.total_s <= m.pf.share_leading * m.run.duration_s + 1e-6);
 

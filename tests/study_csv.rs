@@ -27,7 +27,7 @@ fn csv_rows_hold_for_their_spacing() {
         "{HEADER}0,100,60,100,60,100,60\n60,100,40,100,40,100,40\n120,50,-30,50,-30,50,-30\n"
     );
     let st = study_in(&dir, "[[steps]]\nkvar = 25\ncount = 6\n[controller]\nswitching_delay_s = 86400\n[load]\ncsv = \"p.csv\"\n", &csv);
-    assert_eq!(st.simulation.intervals, 180);
+    assert_eq!(st.plan.intervals, 180);
     let r = st.run(&mut Quiet).unwrap();
     let pf = &r.metrics.pf;
     assert!((pf.kwh_import - (300.0 + 300.0 + 150.0) / 60.0).abs() < 1e-9);
@@ -61,7 +61,7 @@ fn iso_profile_uses_its_own_calendar() {
     assert_eq!(r.metrics.pf.billing.len(), 2);
     let feb = &r.metrics.pf.billing[0];
     assert!((feb.end_s - feb.start_s - 28.0 * 86_400.0).abs() < 1e-6);
-    assert_eq!(st.simulation.calendar.weekday(feb.end_s), 6);
+    assert_eq!(st.plan.calendar.weekday(feb.end_s), 6);
 }
 
 // A run longer than the profile is refused with the file named.

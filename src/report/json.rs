@@ -9,13 +9,12 @@
 //! The output is byte-reproducible for a given scenario and version: no run timestamps, no
 //! absolute paths (file names only), and only structs, vectors and ordered maps.
 
+use crate::analysis::{Advice, Finding, ResonanceReport};
 use crate::bank::StepPhase;
 use crate::controller::Measurement;
-use crate::engine::ResonanceReport;
 use crate::metrics::{
     OvercorrectionMetrics, PfMetrics, RunInfo, StepWear, SwitchingMetrics, VoltageMetrics,
 };
-use crate::report::findings::{findings, Finding};
 use crate::report::{ReportContext, ReportError, ReportWriter};
 use serde::Serialize;
 use std::io::Write;
@@ -26,11 +25,7 @@ pub struct JsonReport;
 
 impl ReportWriter for JsonReport {
     fn write(&self, ctx: &ReportContext<'_>, out: &mut dyn Write) -> Result<(), ReportError> {
-        let doc = document(ctx);
-        serde_json::to_writer_pretty(&mut *out, &doc)?;
-        out.write_all(b"\n")?;
-        out.flush()?;
-        Ok(())
+        super::write_json(out, &document(ctx))
     }
 }
 
@@ -128,8 +123,8 @@ struct Document<'a> {
     provenance: Provenance,
     study: StudyJson,
     run: &'a RunInfo,
-    findings: Vec<Finding>,
-    settings_to_check: Vec<crate::advice::Advice>,
+    findings: &'a [Finding],
+    settings_to_check: &'a [Advice],
     /// For a CSV profile: the rows used and what was done with defective ones.
     profile: Option<&'a crate::profile::csv::DefectSummary>,
     pf: &'a PfMetrics,
@@ -175,7 +170,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
         provenance: Provenance {
             tool_version: env!("CARGO_PKG_VERSION"),
             scenario_sha256: sc.content_sha256.clone(),
-            profile_sha256: ctx.study.profile_sha256.clone(),
+            profile_sha256: ctx.study.profile.sha256.clone(),
             seed: sc.seed,
         },
         study: StudyJson {
@@ -215,13 +210,13 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
             },
         },
         run: &m.run,
-        findings: findings(ctx),
-        settings_to_check: crate::advice::review(sc, ctx.result),
-        profile: ctx.study.csv.as_ref().map(|c| &c.summary),
+        findings: &ctx.assessment.findings,
+        settings_to_check: &ctx.assessment.settings_to_check,
+        profile: ctx.study.csv().map(|c| &c.summary),
         pf: &m.pf,
         switching: &m.switching,
         overcorrection: &m.overcorrection,
-        resonance: &ctx.result.resonance,
+        resonance: &ctx.assessment.resonance,
         wear: WearJson { per_step: &m.wear },
         voltage: &m.voltage,
         nonconverged_intervals: ctx.result.nonconverged_intervals,
@@ -246,9 +241,10 @@ mod tests {
         .unwrap();
         let st = Study::prepare(sc).unwrap();
         let r = st.run(&mut Quiet).unwrap();
+        let a = crate::analysis::assess(&st, &r);
         let mut out = Vec::new();
         JsonReport
-            .write(&ReportContext::new(&st, &r), &mut out)
+            .write(&ReportContext::new(&st, &r, &a), &mut out)
             .unwrap();
         let v: Value = serde_json::from_slice(&out).unwrap();
         (out, v)

@@ -12,40 +12,49 @@
 //!
 //! - [`resonance`]: the tables, CSV curves and JSON of `bankstep resonance`.
 //!
-//! The ranking of findings, shared by the text and JSON reports, lives in [`findings`].
-//! The small helpers at the bottom of this file format numbers, durations and step sets
-//! the same way in every human-facing output.
+//! What a run means (findings, advice, the harmonic assessment) is decided once in
+//! [`crate::analysis`] and handed to the writers in the [`ReportContext`]; quantities are
+//! put into words by [`crate::text`], so a figure reads the same in every output.
 
-pub mod findings;
 pub mod json;
 pub mod resonance;
 pub mod summary;
 pub mod timeseries;
 
-pub use findings::{Finding, Severity};
+pub use crate::analysis::{Finding, Severity};
+pub(crate) use crate::text::{
+    approx, count, duration, harmonic_name, num, pct, steps_label, years_text,
+};
 pub use json::JsonReport;
 pub use summary::Summary;
 pub use timeseries::TimeseriesWriter;
 
+use crate::analysis::Assessment;
 use crate::engine::RunResult;
 use crate::scenario::{LoadSpec, Scenario};
 use crate::study::Study;
 use std::io::Write;
 
-/// Everything a report writer needs: the study (scenario and simulation settings) and the
-/// result of its run.
+/// Everything a report writer needs: the study (its settings and profile), the raw result
+/// of its run and the assessment of that result. Writers render these; they judge nothing.
 #[derive(Debug, Clone, Copy)]
 pub struct ReportContext<'a> {
     /// The study that was run.
     pub study: &'a Study,
     /// The result of the run.
     pub result: &'a RunResult,
+    /// What the analysis concluded.
+    pub assessment: &'a Assessment,
 }
 
 impl<'a> ReportContext<'a> {
-    /// Bundles a study and its result.
-    pub fn new(study: &'a Study, result: &'a RunResult) -> Self {
-        ReportContext { study, result }
+    /// Bundles a study, its result and their assessment.
+    pub fn new(study: &'a Study, result: &'a RunResult, assessment: &'a Assessment) -> Self {
+        ReportContext {
+            study,
+            result,
+            assessment,
+        }
     }
 
     /// The scenario of the study.
@@ -101,143 +110,74 @@ pub trait ReportWriter {
     fn write(&self, ctx: &ReportContext<'_>, out: &mut dyn Write) -> Result<(), ReportError>;
 }
 
+/// JSON formatting as `serde_json`'s pretty printer, except that a negative zero is
+/// written `0.0`: a reader sees no sign on a quantity that is nothing.
+struct PrettyNoNegativeZero<'a>(serde_json::ser::PrettyFormatter<'a>);
+
+impl serde_json::ser::Formatter for PrettyNoNegativeZero<'_> {
+    fn write_f64<W: ?Sized + Write>(&mut self, w: &mut W, value: f64) -> std::io::Result<()> {
+        let v = if value == 0.0 { 0.0 } else { value };
+        self.0.write_f64(w, v)
+    }
+    fn write_f32<W: ?Sized + Write>(&mut self, w: &mut W, value: f32) -> std::io::Result<()> {
+        let v = if value == 0.0 { 0.0 } else { value };
+        self.0.write_f32(w, v)
+    }
+    fn begin_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.begin_array(w)
+    }
+    fn end_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.end_array(w)
+    }
+    fn begin_array_value<W: ?Sized + Write>(
+        &mut self,
+        w: &mut W,
+        first: bool,
+    ) -> std::io::Result<()> {
+        self.0.begin_array_value(w, first)
+    }
+    fn end_array_value<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.end_array_value(w)
+    }
+    fn begin_object<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.begin_object(w)
+    }
+    fn end_object<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.end_object(w)
+    }
+    fn begin_object_key<W: ?Sized + Write>(
+        &mut self,
+        w: &mut W,
+        first: bool,
+    ) -> std::io::Result<()> {
+        self.0.begin_object_key(w, first)
+    }
+    fn begin_object_value<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.begin_object_value(w)
+    }
+    fn end_object_value<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.end_object_value(w)
+    }
+}
+
+/// Writes `value` as pretty-printed JSON followed by a newline, with no negative zeros.
+pub(crate) fn write_json<T: serde::Serialize + ?Sized>(
+    out: &mut dyn Write,
+    value: &T,
+) -> Result<(), ReportError> {
+    let fmt = PrettyNoNegativeZero(serde_json::ser::PrettyFormatter::new());
+    let mut ser = serde_json::Serializer::with_formatter(&mut *out, fmt);
+    value.serialize(&mut ser)?;
+    out.write_all(b"\n")?;
+    out.flush()?;
+    Ok(())
+}
+
 /// The last component of a path, or the whole path if it has none.
 pub(crate) fn file_name(path: &std::path::Path) -> String {
     path.file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| path.display().to_string())
-}
-
-/// Inserts thousands separators into the integer part of a formatted number.
-fn group(text: &str) -> String {
-    let (sign, rest) = match text.strip_prefix('-') {
-        Some(r) => ("-", r),
-        None => ("", text),
-    };
-    let (int, frac) = match rest.find('.') {
-        Some(i) => rest.split_at(i),
-        None => (rest, ""),
-    };
-    let mut out = String::with_capacity(text.len() + int.len() / 3);
-    out.push_str(sign);
-    for (i, c) in int.chars().enumerate() {
-        if i > 0 && (int.len() - i) % 3 == 0 {
-            out.push(',');
-        }
-        out.push(c);
-    }
-    out.push_str(frac);
-    out
-}
-
-/// A number with `decimals` decimals and thousands separators, e.g. `12,345.6`.
-pub(crate) fn num(x: f64, decimals: usize) -> String {
-    if !x.is_finite() {
-        return "n/a".to_string();
-    }
-    let s = format!("{x:.decimals$}");
-    // Avoid printing `-0.0`.
-    let s = if s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.') {
-        s[1..].to_string()
-    } else {
-        s
-    };
-    group(&s)
-}
-
-/// A count with thousands separators, e.g. `100,000`.
-pub(crate) fn count(n: u64) -> String {
-    group(&n.to_string())
-}
-
-/// An extrapolated quantity rounded to three significant figures, e.g. `47,600` or `2.13`.
-pub(crate) fn approx(x: f64) -> String {
-    if !x.is_finite() {
-        return "n/a".to_string();
-    }
-    let a = x.abs();
-    if a == 0.0 {
-        "0".to_string()
-    } else if a >= 1000.0 {
-        let mag = 10f64.powi(a.log10().floor() as i32 - 2);
-        num((x / mag).round() * mag, 0)
-    } else if a >= 100.0 {
-        num(x, 0)
-    } else if a >= 10.0 {
-        num(x, 1)
-    } else {
-        num(x, 2)
-    }
-}
-
-/// Years to a rated life: one decimal below 10 years, else three significant figures.
-pub(crate) fn years_text(y: f64) -> String {
-    if y < 10.0 {
-        num(y, 1)
-    } else {
-        approx(y)
-    }
-}
-
-/// A share of run time (0..1) as a percentage with its unit, e.g. `38 %` or `4.2 %`.
-pub(crate) fn pct(share: f64) -> String {
-    let p = share * 100.0;
-    if p == 0.0 {
-        "0 %".to_string()
-    } else if p < 10.0 {
-        format!("{} %", num(p, 1))
-    } else {
-        format!("{} %", num(p, 0))
-    }
-}
-
-/// A duration in words with its unit: `45 s`, `41 min`, `3.5 h`, `31 h`, `2.5 days`.
-pub(crate) fn duration(s: f64) -> String {
-    if !s.is_finite() {
-        "n/a".to_string()
-    } else if s < 120.0 {
-        format!("{} s", num(s, 0))
-    } else if s < 7200.0 {
-        format!("{} min", num(s / 60.0, 0))
-    } else if s < 36_000.0 {
-        format!("{} h", num(s / 3600.0, 1))
-    } else if s < 3.0 * 86_400.0 {
-        format!("{} h", num(s / 3600.0, 0))
-    } else {
-        format!("{} days", num(s / 86_400.0, 1))
-    }
-}
-
-/// A set of step numbers joined by `+`, e.g. `1+2+3`; `none` for the empty set.
-pub(crate) fn steps_label(steps: &[usize]) -> String {
-    if steps.is_empty() {
-        return "none".to_string();
-    }
-    let mut s = String::with_capacity(steps.len() * 3);
-    for (i, n) in steps.iter().enumerate() {
-        if i > 0 {
-            s.push('+');
-        }
-        s.push_str(&n.to_string());
-    }
-    s
-}
-
-/// A harmonic order in words: `5th`, `11th`, `23rd`; a non-integer order as `order 4.5`.
-pub(crate) fn harmonic_name(h: f64) -> String {
-    let r = h.round();
-    if (h - r).abs() > 1e-9 || r < 1.0 {
-        return format!("order {} harmonic", num(h, 1));
-    }
-    let n = r as u64;
-    let suffix = match (n % 10, n % 100) {
-        (_, 11..=13) => "th",
-        (1, _) => "st",
-        (2, _) => "nd",
-        (3, _) => "rd",
-        _ => "th",
-    };
-    format!("{n}{suffix} harmonic")
 }
 
 /// Wraps `text` to 90 columns, every line starting with `indent`, and appends it to `t`.
@@ -273,25 +213,11 @@ mod tests {
     use super::*;
 
     #[test]
-    fn numbers_have_separators_and_units() {
-        assert_eq!(count(100_000), "100,000");
-        assert_eq!(count(12), "12");
-        assert_eq!(num(1234.56, 1), "1,234.6");
-        assert_eq!(num(-0.01, 1), "0.0");
-        assert_eq!(num(-1234.0, 0), "-1,234");
-        assert_eq!(approx(47_632.0), "47,600");
-        assert_eq!(approx(2.134), "2.13");
-        assert_eq!(pct(0.38), "38 %");
-        assert_eq!(pct(0.042), "4.2 %");
-        assert_eq!(duration(45.0), "45 s");
-        assert_eq!(duration(41.0 * 60.0), "41 min");
-        assert_eq!(duration(31.0 * 3600.0), "31 h");
-        assert_eq!(duration(3.0 * 86_400.0), "3.0 days");
-        assert_eq!(steps_label(&[1, 2, 3]), "1+2+3");
-        assert_eq!(steps_label(&[]), "none");
-        assert_eq!(harmonic_name(5.0), "5th harmonic");
-        assert_eq!(harmonic_name(23.0), "23rd harmonic");
-        assert_eq!(harmonic_name(11.0), "11th harmonic");
-        assert_eq!(harmonic_name(4.5), "order 4.5 harmonic");
+    fn json_has_no_negative_zero() {
+        let mut out = Vec::new();
+        write_json(&mut out, &[-0.0f64, 0.0, -1.5]).unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert!(!text.contains("-0.0"), "{text}");
+        assert!(text.contains("-1.5"));
     }
 }

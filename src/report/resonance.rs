@@ -6,13 +6,13 @@
 //! (e.g. 1+2 and 3+4 of equal steps) behave alike and share one row; the CSV and JSON
 //! keep every state.
 
-use crate::engine::HOURS_PER_YEAR;
 use crate::harmonics::scan::{Peak, ScanGrid};
 use crate::harmonics::survey::{Survey, SurveyState};
 use crate::harmonics::{HarmonicVoltage, StepStress};
 use crate::report::{approx, harmonic_name, num, steps_label, ReportError};
 use crate::report::{file_name, HARDWARE_CAUTION};
 use crate::scenario::Scenario;
+use crate::timebase::HOURS_PER_YEAR;
 use serde::ser::{SerializeSeq, SerializeStruct};
 use serde::{Serialize, Serializer};
 use std::io::Write;

@@ -5,11 +5,11 @@
 //! recommends a change to hardware the safety caution follows the findings, and the
 //! resonance section repeats it when a state resonates near a harmonic of the load.
 
+use crate::analysis::findings::cause_words;
 use crate::bank::{FaultKind, StepPhase};
 use crate::controller::Measurement;
 use crate::metrics::OvercorrectionCause;
 use crate::pf::format_pf;
-use crate::report::findings::{cause_words, findings};
 use crate::report::{
     approx, count, duration, harmonic_name, num, pct, steps_label, years_text, ReportContext,
     ReportError, ReportWriter, HARDWARE_CAUTION,
@@ -101,7 +101,7 @@ fn field(t: &mut String, label: &str, value: &str) {
 fn header(ctx: &ReportContext<'_>, t: &mut String) {
     let sc = ctx.scenario();
     let run = &ctx.result.metrics.run;
-    let cal = ctx.study.simulation.calendar;
+    let cal = ctx.study.plan.calendar;
     t.push_str(&format!(
         "bankstep {}: study \"{}\" ({})\n",
         env!("CARGO_PKG_VERSION"),
@@ -131,7 +131,7 @@ fn header(ctx: &ReportContext<'_>, t: &mut String) {
 
 /// What the CSV reader found wrong with the profile and what it did about it.
 fn profile_defects(ctx: &ReportContext<'_>, t: &mut String) {
-    let Some(scan) = &ctx.study.csv else {
+    let Some(scan) = ctx.study.csv() else {
         return;
     };
     let s = &scan.summary;
@@ -153,19 +153,19 @@ fn num_short(x: f64) -> String {
 
 /// Settings that are legal but unwise, with the key to change.
 fn settings_to_check(ctx: &ReportContext<'_>, t: &mut String) {
-    let list = crate::advice::review(ctx.scenario(), ctx.result);
+    let list = &ctx.assessment.settings_to_check;
     if list.is_empty() {
         return;
     }
     heading(t, "Settings to check");
-    for a in &list {
+    for a in list {
         wrap(t, "  - ", "    ", &format!("{}: {}.", a.key, a.message));
     }
 }
 
 fn top_findings(ctx: &ReportContext<'_>, t: &mut String) {
     heading(t, "Top findings");
-    let list = findings(ctx);
+    let list = &ctx.assessment.findings;
     for (i, f) in list.iter().enumerate() {
         let first = format!("{:>3}. ", i + 1);
         wrap(t, &first, "     ", &f.text);
@@ -361,7 +361,7 @@ fn pf_energy(ctx: &ReportContext<'_>, t: &mut String) {
     );
     field(t, "Time under target", &pct(p.share_under_target));
     field(t, "Time leading", &pct(p.share_leading));
-    let cal = ctx.study.simulation.calendar;
+    let cal = ctx.study.plan.calendar;
     t.push_str("  Billing windows:\n");
     t.push_str(&format!(
         "    {:<16}  {:<16}  {:>9}  {:>12}  {:>16}  {:>16}\n",
@@ -511,7 +511,7 @@ fn cause_label(c: OvercorrectionCause) -> &'static str {
 }
 
 fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
-    let r = &ctx.result.resonance;
+    let r = &ctx.assessment.resonance;
     let sc = ctx.scenario();
     heading(t, "Resonance");
     field(
@@ -789,9 +789,10 @@ mod tests {
         .unwrap();
         let st = Study::prepare(sc).unwrap();
         let r = st.run(&mut Quiet).unwrap();
+        let a = crate::analysis::assess(&st, &r);
         let mut out = Vec::new();
         Summary
-            .write(&ReportContext::new(&st, &r), &mut out)
+            .write(&ReportContext::new(&st, &r, &a), &mut out)
             .unwrap();
         let text = String::from_utf8(out).unwrap();
         for s in [

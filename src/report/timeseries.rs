@@ -18,7 +18,6 @@
 //!
 //! Rows are written with `write!` straight into the buffer: nothing is allocated per row.
 
-use crate::controller::Trip;
 use crate::engine::{IntervalRecord, Observer};
 use crate::error::RunError;
 use crate::pf::{pf_of, quadrant_of};
@@ -114,7 +113,7 @@ impl<W: Write> TimeseriesWriter<W> {
         o.write_all(b",")?;
         let d = r.decision;
         if let Some(t) = d.trip {
-            write!(o, "trip {}", trip_word(t))?;
+            write!(o, "trip {}", crate::text::trip_word(t))?;
         } else {
             let mut sep = "";
             if d.closed != 0 {
@@ -158,16 +157,6 @@ fn write_mask<W: Write + ?Sized>(o: &mut W, mask: u64) -> std::io::Result<()> {
         write!(o, "{}", i + 1)?;
     }
     Ok(())
-}
-
-/// The word for a protection trip in the `operation` column.
-pub fn trip_word(t: Trip) -> &'static str {
-    match t {
-        Trip::Overvoltage => "overvoltage",
-        Trip::LossOfCurrent => "loss-of-current",
-        Trip::Export => "export",
-        Trip::Distortion => "distortion",
-    }
 }
 
 /// Decimals the time column needs: none for whole-second steps from a whole second, else
@@ -223,7 +212,7 @@ mod tests {
         };
         let trip = Decision {
             opened: 0b101,
-            trip: Some(Trip::Export),
+            trip: Some(crate::controller::Trip::Export),
             ..Decision::default()
         };
         let mut w = TimeseriesWriter::new(Vec::new(), 2, 1.0, 0.0, "mem").unwrap();

@@ -2,6 +2,7 @@
 //! load sources whose values the tests work out by hand.
 #![allow(dead_code)]
 
+use bankstep::analysis::Assessment;
 use bankstep::engine::{IntervalRecord, Observer, Quiet, RunResult};
 use bankstep::error::{ProfileError, RunError};
 use bankstep::profile::{LoadSample, LoadSource};
@@ -112,13 +113,21 @@ pub fn study(toml: &str) -> Study {
 /// Runs a scenario over a custom source.
 pub fn run_with<S: LoadSource>(toml: &str, mut src: S) -> RunResult {
     let st = study(toml);
-    st.simulation.run(&mut src, &mut Quiet).expect("run")
+    st.run_on(&mut src, &mut Quiet).expect("run")
+}
+
+/// Runs a scenario over a custom source and assesses the run (resonance, findings).
+pub fn assess_with<S: LoadSource>(toml: &str, mut src: S) -> (RunResult, Assessment) {
+    let st = study(toml);
+    let r = st.run_on(&mut src, &mut Quiet).expect("run");
+    let a = bankstep::analysis::assess(&st, &r);
+    (r, a)
 }
 
 /// Runs a scenario over a custom source, recording every interval.
 pub fn record_with<S: LoadSource>(toml: &str, mut src: S) -> (RunResult, Recorder) {
     let st = study(toml);
-    let mut rec = Recorder::new(st.simulation.dt_s);
-    let r = st.simulation.run(&mut src, &mut rec).expect("run");
+    let mut rec = Recorder::new(st.plan.dt_s);
+    let r = st.run_on(&mut src, &mut rec).expect("run");
     (r, rec)
 }

@@ -2,7 +2,7 @@
 //! and why it matters, in plain words. Some checks need only the scenario; others use what
 //! a run saw (the largest reactive demand of the load).
 
-use crate::engine::RunResult;
+use crate::analysis::Context;
 use crate::pf::Quadrant;
 use crate::scenario::Scenario;
 use serde::Serialize;
@@ -82,7 +82,9 @@ pub fn review_settings(sc: &Scenario) -> Vec<Advice> {
 }
 
 /// Checks a scenario against what a run saw.
-pub fn review_run(sc: &Scenario, r: &RunResult) -> Vec<Advice> {
+pub fn review_run(ctx: &Context<'_>) -> Vec<Advice> {
+    let sc = ctx.scenario();
+    let r = ctx.result;
     let mut out = Vec::new();
     let bank: f64 = sc.steps.iter().map(|s| s.kvar).sum();
     let fixed: f64 = sc.steps.iter().filter(|s| s.fixed).map(|s| s.kvar).sum();
@@ -107,9 +109,9 @@ pub fn review_run(sc: &Scenario, r: &RunResult) -> Vec<Advice> {
 }
 
 /// Both reviews, settings first.
-pub fn review(sc: &Scenario, r: &RunResult) -> Vec<Advice> {
-    let mut v = review_settings(sc);
-    v.extend(review_run(sc, r));
+pub fn review(ctx: &Context<'_>) -> Vec<Advice> {
+    let mut v = review_settings(ctx.scenario());
+    v.extend(review_run(ctx));
     v
 }
 

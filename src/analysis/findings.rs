@@ -21,13 +21,12 @@
 //! overcorrection is a warning from 1 % of the run time or a worst leading kvar of twice
 //! the threshold; a bus voltage above 110 % of nominal is a warning and below 90 % a note.
 
+use crate::analysis::{Context, StateResonance};
 use crate::bank::FaultKind;
-use crate::engine::StateResonance;
 use crate::metrics::OvercorrectionCause;
 use crate::pf::{format_pf, Quadrant};
-use crate::report::{
-    approx, count, duration, harmonic_name, num, pct, steps_label, timeseries::trip_word,
-    years_text, ReportContext,
+use crate::text::{
+    approx, count, duration, harmonic_name, num, pct, steps_label, trip_word, years_text,
 };
 use crate::timebase::{DAY_S, WEEKDAYS};
 use serde::Serialize;
@@ -97,7 +96,7 @@ impl Finding {
 }
 
 /// All findings of a run, most serious first.
-pub fn findings(ctx: &ReportContext<'_>) -> Vec<Finding> {
+pub(crate) fn findings(ctx: &Context<'_>) -> Vec<Finding> {
     let mut out = Vec::new();
     pf(ctx, &mut out);
     wear(ctx, &mut out);
@@ -141,7 +140,7 @@ fn pf_vs(value: f64, quadrant: Quadrant, target: &str) -> String {
     }
 }
 
-fn pf(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let m = &ctx.result.metrics;
     let p = &m.pf;
     let target = ctx.scenario().controller.target;
@@ -167,7 +166,7 @@ fn pf(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
             .iter()
             .min_by(|a, b| a.energy_pf.total_cmp(&b.energy_pf))
         {
-            let cal = ctx.study.simulation.calendar;
+            let cal = ctx.study.plan.calendar;
             windows = format!(
                 " {} of {} billing windows fall short; the lowest is {} (from {}).",
                 short.len(),
@@ -240,7 +239,7 @@ fn pf(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
 }
 
 /// Share of run time with every switched step connected.
-fn full_bank_share(ctx: &ReportContext<'_>) -> f64 {
+fn full_bank_share(ctx: &Context<'_>) -> f64 {
     let m = &ctx.result.metrics;
     let switched: Vec<usize> = m.wear.iter().filter(|w| !w.fixed).map(|w| w.step).collect();
     if switched.is_empty() || m.run.duration_s <= 0.0 {
@@ -255,7 +254,7 @@ fn full_bank_share(ctx: &ReportContext<'_>) -> f64 {
     t / m.run.duration_s
 }
 
-fn wear(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+fn wear(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let m = &ctx.result.metrics;
     let mut lives: Vec<_> = m
         .wear
@@ -344,7 +343,7 @@ fn wear(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
 
 /// True when equal switched steps wear very unevenly (the busiest has more than twice the
 /// operations of the least busy of the same size).
-fn uneven_equal_steps(ctx: &ReportContext<'_>) -> bool {
+fn uneven_equal_steps(ctx: &Context<'_>) -> bool {
     let steps = &ctx.scenario().steps;
     let wear = &ctx.result.metrics.wear;
     for (i, a) in steps.iter().enumerate() {
@@ -386,7 +385,7 @@ pub fn cause_words(c: OvercorrectionCause) -> &'static str {
     }
 }
 
-fn overcorrection(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+fn overcorrection(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let m = &ctx.result.metrics;
     let o = &m.overcorrection;
     if o.episodes == 0 {
@@ -463,7 +462,7 @@ fn overcorrection(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
     out.push(f);
 }
 
-fn hunting(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+fn hunting(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let m = &ctx.result.metrics;
     let s = &m.switching;
     if s.hunting_cycles == 0 {
@@ -518,8 +517,8 @@ fn hunting(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
     out.push(Finding::new(severity, "hunting", per_day, text).advise(advice, false));
 }
 
-fn resonance(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
-    let r = &ctx.result.resonance;
+fn resonance(ctx: &Context<'_>, out: &mut Vec<Finding>) {
+    let r = &ctx.resonance;
     capacitor_ratings(ctx, out);
     if ctx.scenario().spectrum.orders.is_empty() {
         let lowest = r
@@ -548,15 +547,16 @@ fn resonance(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
 }
 
 /// The worst bank state with at least one step connected, by hours a year × severity.
-fn worst_state<'a>(ctx: &ReportContext<'a>) -> Option<&'a StateResonance> {
-    ctx.result
-        .resonance
+fn worst_state<'a>(ctx: &Context<'a>) -> Option<&'a StateResonance> {
+    // On a tie the state with more hours wins, then the one with fewer steps.
+    ctx.resonance
         .states
         .iter()
         .filter(|s| !s.steps.is_empty())
         .max_by(|a, b| {
             (a.hours_per_year * a.severity)
                 .total_cmp(&(b.hours_per_year * b.severity))
+                .then(a.hours_per_year.total_cmp(&b.hours_per_year))
                 .then(b.steps.len().cmp(&a.steps.len()))
         })
 }
@@ -575,8 +575,8 @@ fn voltage_words(order: f64, v_pct: f64, limit: Option<f64>) -> String {
     }
 }
 
-fn worst_state_finding(ctx: &ReportContext<'_>, w: &StateResonance) -> Finding {
-    let r = &ctx.result.resonance;
+fn worst_state_finding(ctx: &Context<'_>, w: &StateResonance) -> Finding {
+    let r = &ctx.resonance;
     let run_s = ctx.result.metrics.run.duration_s.max(1e-9);
     let warning = r.warnings.iter().find(|x| x.steps == w.steps);
     let share = w.time_s / run_s;
@@ -690,9 +690,9 @@ fn worst_state_finding(ctx: &ReportContext<'_>, w: &StateResonance) -> Finding {
 
 /// What to do about a resonance: detune (with the order the full bank would then have),
 /// or check the existing detuning.
-fn detuning_advice(ctx: &ReportContext<'_>) -> String {
+fn detuning_advice(ctx: &Context<'_>) -> String {
     let sc = ctx.scenario();
-    let hm = ctx.study.simulation.harmonic_model();
+    let hm = ctx.model;
     let lowest = hm.lowest_harmonic().unwrap_or(5.0);
     if sc.steps.iter().all(|s| s.detuning.is_some()) {
         return format!(
@@ -738,8 +738,8 @@ fn detuning_advice(ctx: &ReportContext<'_>) -> String {
 }
 
 /// Detuned steps whose capacitors are rated below the voltage the reactor puts on them.
-fn capacitor_ratings(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
-    let hm = ctx.study.simulation.harmonic_model();
+fn capacitor_ratings(ctx: &Context<'_>, out: &mut Vec<Finding>) {
+    let hm = ctx.model;
     let u_n = ctx.scenario().supply.nominal_voltage_v;
     for (i, s) in ctx.scenario().steps.iter().enumerate() {
         let Some(p) = s.detuning else { continue };
@@ -784,8 +784,8 @@ fn capacitor_ratings(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
 
 /// Estimated voltage distortion in the states where the bank spends real time, other than
 /// the worst state and the states near a harmonic (those have their own finding).
-fn thd(ctx: &ReportContext<'_>, worst: Option<&StateResonance>, out: &mut Vec<Finding>) {
-    let r = &ctx.result.resonance;
+fn thd(ctx: &Context<'_>, worst: Option<&StateResonance>, out: &mut Vec<Finding>) {
+    let r = &ctx.resonance;
     let run_s = ctx.result.metrics.run.duration_s.max(1e-9);
     let pick = r
         .states
@@ -793,7 +793,12 @@ fn thd(ctx: &ReportContext<'_>, worst: Option<&StateResonance>, out: &mut Vec<Fi
         .filter(|s| s.time_s / run_s >= 0.01)
         .filter(|s| !r.warnings.iter().any(|w| w.steps == s.steps))
         .filter(|s| worst.is_none_or(|w| w.steps != s.steps))
-        .max_by(|a, b| (a.thd_pct / a.thd_limit_pct).total_cmp(&(b.thd_pct / b.thd_limit_pct)));
+        // On equal THD the state held longest is the one worth naming.
+        .max_by(|a, b| {
+            (a.thd_pct / a.thd_limit_pct)
+                .total_cmp(&(b.thd_pct / b.thd_limit_pct))
+                .then(a.hours_per_year.total_cmp(&b.hours_per_year))
+        });
     let Some(s) = pick else { return };
     let severity = if s.thd_pct >= s.thd_limit_pct {
         Severity::Warning
@@ -827,7 +832,7 @@ fn thd(ctx: &ReportContext<'_>, worst: Option<&StateResonance>, out: &mut Vec<Fi
     ));
 }
 
-fn voltage(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+fn voltage(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let m = &ctx.result.metrics;
     let v = &m.voltage;
     let u_n = ctx.scenario().supply.nominal_voltage_v;
@@ -885,7 +890,7 @@ fn voltage(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
     }
 }
 
-fn protection(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+fn protection(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let t = &ctx.result.metrics.switching.trips;
     let kinds = [
         (t.overvoltage, crate::controller::Trip::Overvoltage),
@@ -915,7 +920,7 @@ fn protection(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
     ));
 }
 
-fn faults(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
+fn faults(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     for (i, s) in ctx.scenario().steps.iter().enumerate() {
         let Some(f) = s.fault else { continue };
         let what = match f.kind {
@@ -943,10 +948,24 @@ fn faults(ctx: &ReportContext<'_>, out: &mut Vec<Finding>) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::{Quiet, ResonanceWarning};
+    use crate::analysis::{ResonanceReport, ResonanceWarning};
+    use crate::engine::{Quiet, RunResult};
     use crate::scenario::Scenario;
     use crate::study::Study;
     use std::path::Path;
+
+    /// The findings of `r`, with the harmonic assessment edited by `edit` first.
+    fn judge(st: &Study, r: &RunResult, edit: impl FnOnce(&mut ResonanceReport)) -> Vec<Finding> {
+        let model = st.harmonic_model();
+        let mut resonance = crate::analysis::resonance::assess(st, &model, &r.metrics);
+        edit(&mut resonance);
+        findings(&Context {
+            study: st,
+            result: r,
+            model: &model,
+            resonance: &resonance,
+        })
+    }
 
     fn study() -> Study {
         let s = Scenario::from_str(
@@ -974,7 +993,7 @@ mod tests {
         r.metrics.switching.per_step[2].hunting_cycles = 32;
         // Invented figures: 31 h of a 7-day run is 1,616 h a year.
         let hours = 31.0 / (7.0 * 24.0) * 8760.0;
-        r.resonance.states.push(StateResonance {
+        let state = StateResonance {
             steps: vec![1, 2, 3],
             kvar: 150.0,
             order: Some(4.9),
@@ -997,8 +1016,8 @@ mod tests {
             step_stress: Vec::new(),
             limit_ratio: 0.64,
             severity: 0.4096,
-        });
-        r.resonance.warnings.push(ResonanceWarning {
+        };
+        let warning = ResonanceWarning {
             steps: vec![1, 2, 3],
             order: 4.9,
             near_harmonic: 5.0,
@@ -1010,9 +1029,11 @@ mod tests {
             thd_pct: 4.1,
             thd_limit_pct: 8.0,
             severity: 0.64,
+        };
+        let f = judge(&st, &r, |res| {
+            res.states.push(state);
+            res.warnings.push(warning);
         });
-        let ctx = ReportContext::new(&st, &r);
-        let f = findings(&ctx);
         assert_eq!(f[0].topic, "resonance");
         assert_eq!(f[0].severity, Severity::Critical);
         assert!(
@@ -1051,8 +1072,7 @@ mod tests {
         r.metrics.pf.energy_pf = 0.91;
         r.metrics.pf.energy_pf_quadrant = Quadrant::Lag;
         r.metrics.pf.share_under_target = 0.38;
-        let ctx = ReportContext::new(&st, &r);
-        let f = findings(&ctx);
+        let f = judge(&st, &r, |_| {});
         let pf = f.iter().find(|x| x.topic == "pf").unwrap();
         assert_eq!(pf.severity, Severity::Warning);
         assert_eq!(
@@ -1074,8 +1094,7 @@ mod tests {
         o.dominant_cause = Some(OvercorrectionCause::FixedSteps);
         o.by_weekday_s[6] = 30.0 * 60.0;
         o.by_weekday_s[5] = 11.0 * 60.0;
-        let ctx = ReportContext::new(&st, &r);
-        let f = findings(&ctx);
+        let f = judge(&st, &r, |_| {});
         let oc = f.iter().find(|x| x.topic == "overcorrection").unwrap();
         assert_eq!(
             oc.text,

@@ -1,0 +1,76 @@
+//! The analysis layer: turns the raw result of a run into one [`Assessment`]: the
+//! harmonic assessment of every bank state reached ([`resonance`]), the ranked findings in
+//! plain words ([`findings`]) and the settings worth a second look ([`advice`]).
+//!
+//! Everything a report says about a run is decided here, once; the writers in
+//! [`crate::report`] only render an assessment and never rebuild the harmonic model or
+//! re-derive a finding. The layer does no I/O.
+
+pub mod advice;
+pub mod findings;
+pub mod resonance;
+
+pub use advice::Advice;
+pub use findings::{Finding, Severity};
+pub use resonance::{ResonanceReport, ResonanceWarning, StateResonance};
+
+use crate::engine::RunResult;
+use crate::harmonics::HarmonicModel;
+use crate::scenario::Scenario;
+use crate::study::Study;
+use serde::Serialize;
+
+/// Everything the analysis concluded about one run.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Assessment {
+    /// Findings, most serious first.
+    pub findings: Vec<Finding>,
+    /// Legal but unwise settings, with the key concerned and why.
+    pub settings_to_check: Vec<Advice>,
+    /// The harmonic assessment of every bank state reached.
+    pub resonance: ResonanceReport,
+}
+
+/// What the checks read: the study, its run, and the parts of the assessment made first.
+#[derive(Debug, Clone, Copy)]
+pub struct Context<'a> {
+    /// The study that was run.
+    pub study: &'a Study,
+    /// The raw result of its run.
+    pub result: &'a RunResult,
+    /// The harmonic model of the site.
+    pub model: &'a HarmonicModel,
+    /// The harmonic assessment of the states reached.
+    pub resonance: &'a ResonanceReport,
+}
+
+impl<'a> Context<'a> {
+    /// The settings of the study.
+    pub fn scenario(&self) -> &'a Scenario {
+        &self.study.scenario
+    }
+
+    /// Smallest switched step, kvar (the smallest step of all if none is switched).
+    pub fn smallest_switched_kvar(&self) -> f64 {
+        crate::bank::smallest_switched_kvar(&self.study.scenario.steps)
+    }
+}
+
+/// Assesses one run of `study`.
+pub fn assess(study: &Study, result: &RunResult) -> Assessment {
+    let model = study.harmonic_model();
+    let resonance = resonance::assess(study, &model, &result.metrics);
+    let ctx = Context {
+        study,
+        result,
+        model: &model,
+        resonance: &resonance,
+    };
+    let findings = findings::findings(&ctx);
+    let settings_to_check = advice::review(&ctx);
+    Assessment {
+        findings,
+        settings_to_check,
+        resonance,
+    }
+}
