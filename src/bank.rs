@@ -47,7 +47,7 @@ impl BankState {
 
     /// True when step `number` (from 1) is connected.
     pub fn contains(self, number: usize) -> bool {
-        number >= 1 && number <= MAX_STEPS && self.0 & (1u64 << (number - 1)) != 0
+        (1..=MAX_STEPS).contains(&number) && self.0 & (1u64 << (number - 1)) != 0
     }
 
     /// The state with step `number` (from 1) connected as well.
