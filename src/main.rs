@@ -44,6 +44,18 @@ macro_rules! exit_codes {
     };
 }
 
+/// The safety caution of the help texts (a macro so that `concat!` can use it).
+macro_rules! caution {
+    () => {
+        "Caution: bankstep is a planning aid, not a safety device. Capacitors hold their charge
+after they are switched off: isolate the bank, wait at least the discharge time and verify
+with a meter before touching it. Resonance can destroy capacitors, fuses and drives. Work
+on steps, reactors or wiring is for qualified persons, to local codes and licensed practice.
+
+"
+    };
+}
+
 const TOP_AFTER_HELP: &str = concat!(
     "Example:
   bankstep simulate site.toml --json site.json
@@ -52,6 +64,7 @@ Run `bankstep simulate --help` for the options and the time-series columns, and
 `bankstep resonance --help` for the impedance scan and the detuning comparison.
 
 ",
+    caution!(),
     exit_codes!()
 );
 
@@ -75,6 +88,7 @@ Examples:
   bankstep simulate site.toml --json - --quiet > site.json
 
 ",
+    caution!(),
     exit_codes!()
 );
 
@@ -157,6 +171,17 @@ enum Command {
     Resonance(ResonanceArgs),
 }
 
+/// Parses `--every N`: a whole number of intervals, at least 1.
+fn parse_every(text: &str) -> Result<u64, String> {
+    match text.trim().parse::<u64>() {
+        Ok(0) => Err("must be at least 1 (1 keeps every interval)".to_string()),
+        Ok(n) => Ok(n),
+        Err(_) => Err(format!(
+            "`{text}` is not a whole number of intervals (1 or more)"
+        )),
+    }
+}
+
 /// Options of `bankstep resonance`.
 #[derive(Debug, Args)]
 struct ResonanceArgs {
@@ -227,7 +252,7 @@ struct SimulateArgs {
         long,
         value_name = "N",
         default_value_t = 1,
-        value_parser = clap::value_parser!(u64).range(1..),
+        value_parser = parse_every,
         requires = "timeseries"
     )]
     every: u64,

@@ -135,6 +135,41 @@ pub fn harmonic_name(h: f64) -> String {
     format!("{n}{suffix} harmonic")
 }
 
+/// `value` with `decimals` decimals, or with as many more (up to 6) as it takes not to read
+/// as `limit` when it is not equal to it: near a limit, the digits that decide it are shown
+/// (7.985 against 8 reads `7.99`, 0.9498 against 0.95 reads `0.9498`).
+pub fn deciding(value: f64, limit: f64, decimals: usize) -> String {
+    let mut d = decimals;
+    loop {
+        let shown = format!("{value:.d$}");
+        let reads_as_limit = shown.parse::<f64>().is_ok_and(|x| x == limit);
+        if !reads_as_limit || value == limit || d >= 6 {
+            return num(value, d);
+        }
+        d += 1;
+    }
+}
+
+/// A percentage beside its limit, with the digits that decide it: `7.99 % (limit 8.0 %)`.
+pub fn pct_vs_limit(value: f64, limit: f64, decimals: usize) -> String {
+    format!(
+        "{} % (limit {} %)",
+        deciding(value, limit, decimals),
+        num(limit, decimals)
+    )
+}
+
+/// A PF with its quadrant, with the digits needed to tell it from `target` (two decimals
+/// unless more are needed): `0.9498 lag` against a 0.95 target, `0.93 lag` otherwise.
+pub fn pf_vs(value: f64, quadrant: crate::pf::Quadrant, target: f64) -> String {
+    let shown = deciding(value, target, 2);
+    if shown == "1.00" && value == 1.0 {
+        shown
+    } else {
+        format!("{shown} {}", quadrant.word())
+    }
+}
+
 /// The word for a protection trip in the `operation` column.
 pub fn trip_word(t: crate::controller::Trip) -> &'static str {
     match t {
@@ -148,6 +183,17 @@ pub fn trip_word(t: crate::controller::Trip) -> &'static str {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn near_a_limit_the_deciding_digits_show() {
+        assert_eq!(deciding(7.985, 8.0, 1), "7.99");
+        assert_eq!(deciding(7.5, 8.0, 1), "7.5");
+        assert_eq!(deciding(8.0, 8.0, 1), "8.0");
+        assert_eq!(pct_vs_limit(7.985, 8.0, 1), "7.99 % (limit 8.0 %)");
+        assert_eq!(pf_vs(0.9498, crate::pf::Quadrant::Lag, 0.95), "0.9498 lag");
+        assert_eq!(pf_vs(0.93, crate::pf::Quadrant::Lag, 0.95), "0.93 lag");
+        assert_eq!(pf_vs(0.95, crate::pf::Quadrant::Lag, 0.95), "0.95 lag");
+    }
 
     #[test]
     fn numbers_have_separators_and_units() {

@@ -3,6 +3,7 @@
 //! a run saw (the largest reactive demand of the load).
 
 use crate::analysis::Context;
+use crate::controller::OrderingKind;
 use crate::pf::Quadrant;
 use crate::scenario::Scenario;
 use serde::Serialize;
@@ -14,6 +15,15 @@ pub struct Advice {
     pub key: String,
     /// What was found and why it matters.
     pub message: String,
+}
+
+/// Discharge time of the usual discharge device of IEC 60831-1, to 75 V within 3 min (from
+/// memory), s.
+pub const IEC_DISCHARGE_S: f64 = 180.0;
+
+/// The key that set the dead band, as the user wrote it.
+fn dead_band_key(_sc: &Scenario) -> &'static str {
+    "controller.dead_band_kvar"
 }
 
 fn advice(key: &str, message: String) -> Advice {
@@ -31,7 +41,7 @@ pub fn review_settings(sc: &Scenario) -> Vec<Advice> {
     let switched = sc.steps.iter().any(|s| !s.fixed);
     if switched && c.dead_band_kvar < 0.5 * smallest {
         out.push(advice(
-            "controller.dead_band_kvar",
+            dead_band_key(sc),
             format!(
                 "the dead band ±{:.1} kvar is less than half the smallest switched step ({:.1} kvar): one operation moves the demand by a whole step, past the far edge of the band, so the bank can hunt; 0.65 × the step ({:.1} kvar) is the usual choice",
                 c.dead_band_kvar,
@@ -40,16 +50,60 @@ pub fn review_settings(sc: &Scenario) -> Vec<Advice> {
             ),
         ));
     }
-    if let Some(dev) = sc.capacitor_discharge_s {
-        if c.discharge_time_s < dev {
-            out.push(advice(
-                "controller.discharge_time_s",
-                format!(
-                    "the discharge time {:.0} s is shorter than the {:.0} s the capacitors' discharge devices need: a step could be reclosed while still charged, with a severe inrush and overvoltage",
-                    c.discharge_time_s, dev
-                ),
-            ));
-        }
+    // Without a stated discharge time of the capacitors, the usual discharge device of
+    // IEC 60831-1 is assumed: down to 75 V within 3 min (from memory).
+    let (dev, stated) = match sc.capacitor_discharge_s {
+        Some(d) => (d, true),
+        None => (IEC_DISCHARGE_S, false),
+    };
+    if switched && c.discharge_time_s < dev {
+        let whose = if stated {
+            format!(
+                "the {:.0} s the capacitors' discharge devices need (controller.capacitor_discharge_s)",
+                dev
+            )
+        } else {
+            format!(
+                "the {:.0} s that the usual discharge device of IEC 60831-1 takes to bring a \
+                 capacitor down to 75 V (set controller.capacitor_discharge_s if the bank's \
+                 devices are faster)",
+                dev
+            )
+        };
+        out.push(advice(
+            "controller.discharge_time_s",
+            format!(
+                "the discharge time {:.0} s is shorter than {whose}: a step could be reclosed while still charged, with a severe inrush and overvoltage",
+                c.discharge_time_s
+            ),
+        ));
+    }
+    // With sequential or rotating ordering the controller closes whichever step is next,
+    // not the one that fits: a step larger than the whole dead band (2B) overshoots it and
+    // the bank can hunt between that step and a smaller one.
+    let largest = sc
+        .steps
+        .iter()
+        .filter(|s| !s.fixed)
+        .map(|s| s.kvar)
+        .fold(0.0, f64::max);
+    if switched
+        && c.ordering != OrderingKind::BestFit
+        && largest > 2.0 * c.dead_band_kvar
+        && largest > smallest * (1.0 + 1e-9)
+    {
+        out.push(advice(
+            "controller.ordering",
+            format!(
+                "the steps are unequal ({:.1} to {:.1} kvar) and {} ordering may close the {:.1} kvar step where a smaller one would do; it is wider than the whole dead band (2 × {:.1} kvar), so the bank can overshoot and hunt: best-fit ordering picks the step that fits, or a dead band of at least half the largest step ({:.1} kvar) stops it",
+                smallest,
+                largest,
+                c.ordering.name(),
+                largest,
+                c.dead_band_kvar,
+                0.5 * largest
+            ),
+        ));
     }
     if c.averaging_s > 0.0 && c.connect_delay_s < c.averaging_s {
         out.push(advice(
@@ -142,5 +196,40 @@ mod tests {
         let keys: Vec<&str> = a.iter().map(|x| x.key.as_str()).collect();
         assert!(keys.contains(&"controller.discharge_time_s"));
         assert!(keys.contains(&"controller.switching_delay_s"));
+    }
+
+    #[test]
+    fn short_discharge_time_is_flagged_without_a_stated_device() {
+        // IEC 60831-1: the discharge device brings a capacitor down to 75 V within 3 min
+        // (from memory), so a 5 s reclose can find it still charged.
+        let a = review_settings(&sc("[controller]\ndischarge_time_s = 5\n"));
+        let d = a
+            .iter()
+            .find(|x| x.key == "controller.discharge_time_s")
+            .expect("discharge advice");
+        assert!(d.message.contains("IEC 60831-1"), "{}", d.message);
+        // A faster device stated in the scenario lifts it.
+        let a = review_settings(&sc(
+            "[controller]\ndischarge_time_s = 5\ncapacitor_discharge_s = 3\n",
+        ));
+        assert!(a.iter().all(|x| x.key != "controller.discharge_time_s"));
+    }
+
+    #[test]
+    fn unequal_steps_with_fixed_order_are_flagged() {
+        // 25 + 5 × 50 kvar with the usual dead band of 0.65 × the smallest step (16.25 kvar,
+        // common practice): closing a 50 kvar step moves the demand by 50 kvar, more than
+        // the whole band of 32.5 kvar, so sequential ordering can overshoot and hunt.
+        let text = |ordering: &str| {
+            format!(
+                "[[steps]]\nkvar = 25\n[[steps]]\nkvar = 50\ncount = 5\n[controller]\n\
+                 ordering = \"{ordering}\"\ndischarge_time_s = 180\n[load.synthetic]\n"
+            )
+        };
+        let parse = |t: String| Scenario::from_str(&t, Path::new("a.toml")).unwrap();
+        let a = review_settings(&parse(text("sequential")));
+        assert!(a.iter().any(|x| x.key == "controller.ordering"), "{a:?}");
+        let a = review_settings(&parse(text("best-fit")));
+        assert!(a.iter().all(|x| x.key != "controller.ordering"), "{a:?}");
     }
 }

@@ -24,9 +24,9 @@
 use crate::analysis::{Context, StateResonance};
 use crate::bank::FaultKind;
 use crate::metrics::OvercorrectionCause;
-use crate::pf::{format_pf, Quadrant};
+use crate::pf::Quadrant;
 use crate::text::{
-    approx, count, duration, harmonic_name, num, pct, steps_label, trip_word, years_text,
+    approx, count, duration, harmonic_name, num, pct, pf_vs, steps_label, trip_word, years_text,
 };
 use crate::timebase::{DAY_S, WEEKDAYS};
 use serde::Serialize;
@@ -98,6 +98,7 @@ impl Finding {
 /// All findings of a run, most serious first.
 pub(crate) fn findings(ctx: &Context<'_>) -> Vec<Finding> {
     let mut out = Vec::new();
+    plausibility(ctx, &mut out);
     pf(ctx, &mut out);
     wear(ctx, &mut out);
     overcorrection(ctx, &mut out);
@@ -127,17 +128,9 @@ fn extrapolation_note(duration_s: f64) -> String {
     }
 }
 
-/// Shows `value` as a PF, with a third decimal if two would make it look equal to `target`.
-fn pf_vs(value: f64, quadrant: Quadrant, target: &str) -> String {
-    let shown = format_pf(value, quadrant);
-    if shown == target {
-        match quadrant {
-            Quadrant::Lag => format!("{value:.3} lag"),
-            Quadrant::Lead => format!("{value:.3} lead"),
-        }
-    } else {
-        shown
-    }
+/// tan φ of a pair of registers (reactive over active energy), if there was active energy.
+fn tan_phi(kvarh: f64, kwh: f64) -> Option<f64> {
+    (kwh > 0.0).then(|| kvarh / kwh)
 }
 
 fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
@@ -145,23 +138,23 @@ fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let p = &m.pf;
     let target = ctx.scenario().controller.target;
     let target_text = target.to_string();
-    // The billed PF counts inductive energy only, so a lagging PF is what falls short; for
-    // a unity or leading target any lagging shortfall from unity does.
-    let goal = if target.quadrant == Quadrant::Lag && target.pf < 1.0 {
-        target.pf
-    } else {
-        1.0
-    };
-    let billed = pf_vs(p.energy_pf, p.energy_pf_quadrant, &target_text);
+    let goal = billed_goal(target);
+    // The billed PF comes from the inductive register, so it is a lagging figure and falls
+    // short whatever the capacitive register holds.
+    let billed = pf_vs(p.energy_pf, Quadrant::Lag, goal);
     let under = pct(p.share_under_target);
-    let below = p.energy_pf_quadrant == Quadrant::Lag && p.energy_pf < goal - 1e-9;
+    let below = p.energy_pf < goal;
+    let registers = format!(
+        " (inductive register {} kvarh against {} kWh imported{})",
+        num(p.kvarh_inductive, 0),
+        num(p.kwh_import, 0),
+        tan_phi(p.kvarh_inductive, p.kwh_import)
+            .map(|t| format!(", tan φ {}", num(t, 3)))
+            .unwrap_or_default()
+    );
     let mut windows = String::new();
     if p.billing.len() > 1 {
-        let short: Vec<_> = p
-            .billing
-            .iter()
-            .filter(|w| w.energy_pf_quadrant == Quadrant::Lag && w.energy_pf < goal - 1e-9)
-            .collect();
+        let short: Vec<_> = p.billing.iter().filter(|w| w.energy_pf < goal).collect();
         if let Some(worst) = short
             .iter()
             .min_by(|a, b| a.energy_pf.total_cmp(&b.energy_pf))
@@ -171,19 +164,23 @@ fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
                 " {} of {} billing windows fall short; the lowest is {} (from {}).",
                 short.len(),
                 p.billing.len(),
-                pf_vs(worst.energy_pf, worst.energy_pf_quadrant, &target_text),
+                pf_vs(worst.energy_pf, Quadrant::Lag, goal),
                 cal.datetime(worst.start_s).format("%Y-%m-%d"),
             );
         }
     }
-    // Leading time is worth a word beside the billed PF, which counts inductive energy
+    // Capacitive energy is worth a word beside the billed PF, which counts inductive energy
     // only; long overcorrection has its own finding.
-    let leading = if p.share_leading >= 0.1 {
+    let cap_tan = tan_phi(p.kvarh_capacitive, p.kwh_import).unwrap_or(0.0);
+    let leading = if p.share_leading >= 0.1 || cap_tan >= 0.1 {
         format!(
-            " The supply leads {} of the time ({} kvarh capacitive), which a tariff that \
-             bills capacitive energy would count.",
+            " The capacitive register holds {} kvarh{} and the supply leads {} of the time, \
+             which a tariff that bills capacitive energy would count.",
+            num(p.kvarh_capacitive, 0),
+            tan_phi(p.kvarh_capacitive, p.kwh_import)
+                .map(|t| format!(" (tan φ {})", num(t, 3)))
+                .unwrap_or_default(),
             pct(p.share_leading),
-            num(p.kvarh_capacitive, 1)
         )
     } else {
         String::new()
@@ -194,8 +191,8 @@ fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
             "pf",
             goal - p.energy_pf,
             format!(
-                "Billed PF {billed} is below the {target_text} target; {under} of the time \
-                 under target.{windows}{leading}"
+                "Billed PF {billed}{registers} is below the {target_text} target; {under} of \
+                 the time under target.{windows}{leading}"
             ),
         );
         let c = &ctx.scenario().controller;
@@ -231,10 +228,21 @@ fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
             "pf",
             p.share_leading,
             format!(
-                "Billed PF {billed} {word} the {target_text} target; {under} of the time under \
-                 target.{windows}{leading}"
+                "Billed PF {billed}{registers} {word} the {target_text} target; {under} of the \
+                 time under target.{windows}{leading}"
             ),
         ));
+    }
+}
+
+/// The billed PF a target asks for. The billed PF counts inductive energy only, so for a
+/// lagging target it must reach the target PF; for a unity or leading target any inductive
+/// energy is a shortfall from unity.
+pub fn billed_goal(target: crate::pf::PfTarget) -> f64 {
+    if target.quadrant == Quadrant::Lag && target.pf < 1.0 {
+        target.pf
+    } else {
+        1.0
     }
 }
 
@@ -887,6 +895,80 @@ fn voltage(ctx: &Context<'_>, out: &mut Vec<Finding>) {
             )
             .advise("Check the transformer rating and the load profile.", false),
         );
+    }
+}
+
+/// A load this many times the transformer rating is taken for a units mistake.
+const LOAD_BEYOND_TRANSFORMER: f64 = 3.0;
+/// A load above this share of the short-circuit power at the bus is taken for a units
+/// mistake where there is no transformer.
+const LOAD_BEYOND_SHORT_CIRCUIT: f64 = 0.3;
+
+/// Loads and banks far beyond what the supply could plausibly carry: most often a units
+/// mistake (a profile in W and var under kW and kvar headers reads 1,000 times too large).
+fn plausibility(ctx: &Context<'_>, out: &mut Vec<Finding>) {
+    let sc = ctx.scenario();
+    let l = &ctx.result.metrics.load;
+    let p_peak = l.max_p_kw.abs().max(l.min_p_kw.abs());
+    let s_peak = p_peak.hypot(l.max_q_kvar.max(0.0));
+    let (what, rating) = match (sc.supply.transformer, sc.supply.short_circuit_kva()) {
+        (Some(t), _) => (
+            format!("the {} kVA transformer", num(t.rated_kva, 0)),
+            t.rated_kva * LOAD_BEYOND_TRANSFORMER,
+        ),
+        (None, s) if s.is_finite() => (
+            format!(
+                "the supply ({} kVA short-circuit power at the bus)",
+                num(s, 0)
+            ),
+            s * LOAD_BEYOND_SHORT_CIRCUIT,
+        ),
+        _ => return,
+    };
+    if s_peak > rating {
+        out.push(
+            Finding::new(
+                Severity::Critical,
+                "supply",
+                s_peak / rating,
+                format!(
+                    "The load peaks at about {} kVA ({} kW, {} kvar), far beyond {what}; the \
+                     results of this run do not describe a real site.",
+                    num(s_peak, 0),
+                    num(p_peak, 0),
+                    num(l.max_q_kvar, 0)
+                ),
+            )
+            .advise(
+                "Check the units of the load profile: a file in W and var under kW and kvar \
+                 headers reads 1,000 times too large. Check the supply settings too.",
+                false,
+            ),
+        );
+    }
+    let bank: f64 = sc.steps.iter().map(|s| s.kvar).sum();
+    if let Some(t) = sc.supply.transformer {
+        if bank > t.rated_kva {
+            out.push(
+                Finding::new(
+                    Severity::Critical,
+                    "supply",
+                    bank / t.rated_kva,
+                    format!(
+                        "The bank ({} kvar) is larger than the {} kVA transformer that feeds \
+                         it; a bank is normally a fraction of the transformer rating, so this \
+                         is most likely a units or typing mistake.",
+                        num(bank, 0),
+                        num(t.rated_kva, 0)
+                    ),
+                )
+                .advise(
+                    "Check steps.kvar (kvar per step at the nominal voltage) and the \
+                     transformer's rated_kva.",
+                    false,
+                ),
+            );
+        }
     }
 }
 

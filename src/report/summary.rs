@@ -5,15 +5,16 @@
 //! recommends a change to hardware the safety caution follows the findings, and the
 //! resonance section repeats it when a state resonates near a harmonic of the load.
 
-use crate::analysis::findings::cause_words;
+use crate::analysis::findings::{billed_goal, cause_words};
 use crate::bank::{FaultKind, StepPhase};
 use crate::controller::Measurement;
 use crate::metrics::OvercorrectionCause;
-use crate::pf::format_pf;
+use crate::pf::Quadrant;
 use crate::report::{
     approx, count, duration, harmonic_name, num, pct, steps_label, years_text, ReportContext,
     ReportError, ReportWriter, HARDWARE_CAUTION,
 };
+use crate::text::pf_vs;
 use crate::timebase::WEEKDAYS;
 use std::io::Write;
 
@@ -173,10 +174,10 @@ fn top_findings(ctx: &ReportContext<'_>, t: &mut String) {
             wrap(t, "     Suggestion: ", "     ", a);
         }
     }
-    if list.iter().any(|f| f.hardware) {
-        t.push('\n');
-        wrap(t, "  ", "  ", HARDWARE_CAUTION);
-    }
+    // The caution stands in every summary: the reader may act on the bank whatever this
+    // run found.
+    t.push('\n');
+    wrap(t, "  ", "  ", HARDWARE_CAUTION);
 }
 
 fn study(ctx: &ReportContext<'_>, t: &mut String) {
@@ -337,16 +338,29 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
 
 fn pf_energy(ctx: &ReportContext<'_>, t: &mut String) {
     let p = &ctx.result.metrics.pf;
+    let goal = billed_goal(ctx.scenario().controller.target);
     heading(t, "PF and energy");
     field(
         t,
-        "Energy PF",
+        "Billed PF",
         &format!(
-            "{} (target {})",
-            format_pf(p.energy_pf, p.energy_pf_quadrant),
+            "{}, {} the {} target (from the inductive register)",
+            pf_vs(p.energy_pf, Quadrant::Lag, goal),
+            if p.energy_pf < goal { "below" } else { "meets" },
             p.target
         ),
     );
+    if p.kwh_import > 0.0 {
+        field(
+            t,
+            "tan φ",
+            &format!(
+                "{} inductive, {} capacitive (kvarh per kWh imported)",
+                num(p.kvarh_inductive / p.kwh_import, 3),
+                num(p.kvarh_capacitive / p.kwh_import, 3)
+            ),
+        );
+    }
     field(t, "Active import", &format!("{} kWh", num(p.kwh_import, 1)));
     field(t, "Active export", &format!("{} kWh", num(p.kwh_export, 1)));
     field(
@@ -372,7 +386,7 @@ fn pf_energy(ctx: &ReportContext<'_>, t: &mut String) {
             "    {:<16}  {:<16}  {:>9}  {:>12}  {:>16}  {:>16}\n",
             cal.datetime(w.start_s).format("%Y-%m-%d %H:%M").to_string(),
             cal.datetime(w.end_s).format("%Y-%m-%d %H:%M").to_string(),
-            format_pf(w.energy_pf, w.energy_pf_quadrant),
+            pf_vs(w.energy_pf, Quadrant::Lag, goal),
             num(w.kwh_import, 1),
             num(w.kvarh_inductive, 1),
             num(w.kvarh_capacitive, 1)
