@@ -26,7 +26,8 @@ use crate::bank::FaultKind;
 use crate::metrics::OvercorrectionCause;
 use crate::pf::Quadrant;
 use crate::text::{
-    approx, count, duration, harmonic_name, num, pct, pf_vs, steps_label, trip_word, years_text,
+    approx, count, deciding, duration, harmonic_name, num, pct, pct_vs_limit, pf_vs, steps_label,
+    trip_word, years_text,
 };
 use crate::timebase::{DAY_S, WEEKDAYS};
 use serde::Serialize;
@@ -574,11 +575,7 @@ fn voltage_words(order: f64, v_pct: f64, limit: Option<f64>) -> String {
     let name = harmonic_name(order);
     let short = name.strip_suffix(" harmonic").unwrap_or(&name);
     match limit {
-        Some(l) => format!(
-            "{short}-harmonic voltage {} % (limit {} %)",
-            num(v_pct, 1),
-            num(l, 1)
-        ),
+        Some(l) => format!("{short}-harmonic voltage {}", pct_vs_limit(v_pct, l, 1)),
         None => format!("{short}-harmonic voltage {} %", num(v_pct, 1)),
     }
 }
@@ -630,7 +627,7 @@ fn worst_state_finding(ctx: &Context<'_>, w: &StateResonance) -> Finding {
     }
     text.push_str(&format!(
         "THD_V {} % (limit {} %, {})",
-        num(w.thd_pct, 1),
+        deciding(w.thd_pct, w.thd_limit_pct, 1),
         num(w.thd_limit_pct, 1),
         r.voltage_limits
     ));
@@ -643,7 +640,7 @@ fn worst_state_finding(ctx: &Context<'_>, w: &StateResonance) -> Finding {
             "; step {} current {} × rated (limit {} ×, {}), capacitor voltage {} V rms on a {} V \
              rating",
             st.step,
-            num(st.current_ratio, 2),
+            deciding(st.current_ratio, st.current_limit, 2),
             num(st.current_limit, 2),
             r.capacitor_limits,
             num(st.voltage_v, 0),
@@ -820,10 +817,9 @@ fn thd(ctx: &Context<'_>, worst: Option<&StateResonance>, out: &mut Vec<Finding>
         "resonance",
         s.hours_per_year * s.thd_pct / s.thd_limit_pct,
         format!(
-            "The estimated bus voltage THD reaches {} % (limit {} %) {} (about {} h a year, {} \
-             of the run); the estimate runs the harmonic load at its rating{}, so it errs high.",
-            num(s.thd_pct, 1),
-            num(s.thd_limit_pct, 1),
+            "The estimated bus voltage THD reaches {} {} (about {} h a year, {} of the run); the \
+             estimate runs the harmonic load at its rating{}, so it errs high.",
+            pct_vs_limit(s.thd_pct, s.thd_limit_pct, 1),
             match s.steps.len() {
                 0 => "with no step connected".to_string(),
                 1 => format!("with step {} connected", s.steps[0]),

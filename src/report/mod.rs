@@ -201,6 +201,39 @@ pub(crate) fn wrap_plain(t: &mut String, indent: &str, text: &str) {
     }
 }
 
+/// Appends a plain-text table to `t`: a header row and one row per entry, every column
+/// as wide as its widest cell (so long step labels never push the others out of line),
+/// the first column left-aligned and the others right-aligned, two spaces between columns.
+pub(crate) fn table(t: &mut String, indent: &str, headers: &[&str], rows: &[Vec<String>]) {
+    let n = headers.len();
+    let mut width: Vec<usize> = headers.iter().map(|h| h.chars().count()).collect();
+    for r in rows {
+        for (w, c) in width.iter_mut().zip(r) {
+            *w = (*w).max(c.chars().count());
+        }
+    }
+    let mut line = |cells: &mut dyn Iterator<Item = &str>| {
+        let mut l = String::from(indent);
+        for (i, c) in cells.enumerate().take(n) {
+            let pad = width[i].saturating_sub(c.chars().count());
+            if i > 0 {
+                l.push_str("  ");
+                l.push_str(&" ".repeat(pad));
+                l.push_str(c);
+            } else {
+                l.push_str(c);
+                l.push_str(&" ".repeat(pad));
+            }
+        }
+        t.push_str(l.trim_end());
+        t.push('\n');
+    };
+    line(&mut headers.iter().copied());
+    for r in rows {
+        line(&mut r.iter().map(String::as_str));
+    }
+}
+
 /// The caution printed wherever a report recommends a change to hardware.
 pub const HARDWARE_CAUTION: &str = "Caution: capacitors hold their charge after they are \
 switched off. Isolate the bank and discharge it (wait at least the discharge time, then \
@@ -211,6 +244,21 @@ fuses and drives: have a harmonic study confirm it before acting on it.";
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn table_columns_line_up_whatever_the_label_length() {
+        let mut t = String::new();
+        let rows = vec![
+            vec!["1+2+3+4+5+6+7+8+9+10+11+12".to_string(), "600".to_string()],
+            vec!["1".to_string(), "50".to_string()],
+        ];
+        table(&mut t, "  ", &["steps on", "kvar"], &rows);
+        let lines: Vec<&str> = t.lines().collect();
+        assert_eq!(lines.len(), 3);
+        // Every row ends at the same column: the numbers are right-aligned under the header.
+        let ends: Vec<usize> = lines.iter().map(|l| l.chars().count()).collect();
+        assert!(ends.iter().all(|&e| e == ends[0]), "{t}");
+    }
 
     #[test]
     fn json_has_no_negative_zero() {

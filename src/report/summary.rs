@@ -11,10 +11,10 @@ use crate::controller::Measurement;
 use crate::metrics::OvercorrectionCause;
 use crate::pf::Quadrant;
 use crate::report::{
-    approx, count, duration, harmonic_name, num, pct, steps_label, years_text, ReportContext,
-    ReportError, ReportWriter, HARDWARE_CAUTION,
+    approx, count, duration, harmonic_name, num, pct, steps_label, table, years_text,
+    ReportContext, ReportError, ReportWriter, HARDWARE_CAUTION,
 };
-use crate::text::pf_vs;
+use crate::text::{deciding, pct_vs_limit, pf_vs};
 use crate::timebase::WEEKDAYS;
 use std::io::Write;
 
@@ -594,10 +594,7 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
             "harmonic load at its rating in every state, no load damping (errs high)".to_string()
         },
     );
-    t.push_str(&format!(
-        "    {:<16}  {:>7}  {:>6}  {:>6}  {:>9}  {:>9}  {:>17}  {:>7}  {:>8}\n",
-        "steps on", "kvar", "order", "near", "time", "h/year", "worst harmonic", "THD_V", "I/I_N"
-    ));
+    let mut rows = Vec::new();
     for s in r.states.iter().take(MAX_STATES) {
         let order = s.order.map_or("none".to_string(), |o| num(o, 2));
         let near = s.nearest_harmonic.map_or("-".to_string(), |h| num(h, 0));
@@ -610,24 +607,20 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
                 ka.total_cmp(&kb)
             })
             .map_or("-".to_string(), |h| {
-                format!(
-                    "h{} {} %{}",
-                    num(h.order, 0),
-                    num(h.v_pct, 1),
-                    match h.limit_pct {
-                        Some(l) if h.v_pct > l => " over",
-                        _ => "",
-                    }
-                )
+                let v = match h.limit_pct {
+                    Some(l) => deciding(h.v_pct, l, 1),
+                    None => num(h.v_pct, 1),
+                };
+                format!("h{} {v} %", num(h.order, 0))
             });
         let current = s
             .step_stress
             .iter()
-            .map(|x| x.current_ratio)
-            .reduce(f64::max)
-            .map_or("-".to_string(), |c| format!("{} ×", num(c, 2)));
-        t.push_str(&format!(
-            "    {:<16}  {:>7}  {:>6}  {:>6}  {:>9}  {:>9}  {:>17}  {:>7}  {:>8}\n",
+            .max_by(|a, b| a.current_ratio.total_cmp(&b.current_ratio))
+            .map_or("-".to_string(), |x| {
+                format!("{} ×", deciding(x.current_ratio, x.current_limit, 2))
+            });
+        rows.push(vec![
             steps_label(&s.steps),
             num(s.kvar, 0),
             order,
@@ -635,10 +628,26 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
             duration(s.time_s),
             approx(s.hours_per_year),
             worst,
-            format!("{} %", num(s.thd_pct, 1)),
-            current
-        ));
+            format!("{} %", deciding(s.thd_pct, s.thd_limit_pct, 1)),
+            current,
+        ]);
     }
+    table(
+        t,
+        "    ",
+        &[
+            "steps on",
+            "kvar",
+            "order",
+            "near",
+            "time",
+            "h/year",
+            "worst harmonic",
+            "THD_V",
+            "I/I_N",
+        ],
+        &rows,
+    );
     if r.states.len() > MAX_STATES {
         t.push_str(&format!(
             "    ... and {} more states (all in the JSON report)\n",
@@ -677,7 +686,7 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
                 steps_label(&s.steps),
                 approx(s.hours_per_year),
                 x.step,
-                num(x.current_ratio, 2),
+                deciding(x.current_ratio, x.current_limit, 2),
                 num(x.current_limit, 2),
                 num(x.voltage_v, 0),
                 num(x.rated_voltage_v, 0)
@@ -700,26 +709,23 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
     t.push_str("  Warnings:\n");
     for w in &r.warnings {
         let h = harmonic_name(w.near_harmonic);
-        let limit = w
-            .v_h_limit_pct
-            .map(|l| format!(" (limit {} %)", num(l, 1)))
-            .unwrap_or_default();
+        let v_h = match w.v_h_limit_pct {
+            Some(l) => pct_vs_limit(w.v_h_pct, l, 1),
+            None => format!("{} %", num(w.v_h_pct, 1)),
+        };
         wrap(
             t,
             "    - ",
             "      ",
             &format!(
                 "state {} resonates at order {}, near the {h}, for {} (about {} h a year); it \
-                 amplifies the {h} {} times: estimated {} %{limit} at the bus, THD_V {} % \
-                 (limit {} %).",
+                 amplifies the {h} {} times: estimated {v_h} at the bus, THD_V {}.",
                 steps_label(&w.steps),
                 num(w.order, 2),
                 duration(w.time_s),
                 approx(w.hours_per_year),
                 num(w.amplification, 1),
-                num(w.v_h_pct, 1),
-                num(w.thd_pct, 1),
-                num(w.thd_limit_pct, 1)
+                pct_vs_limit(w.thd_pct, w.thd_limit_pct, 1)
             ),
         );
     }
