@@ -1147,15 +1147,23 @@ mod tests {
     fn shortfall_of_billed_pf_is_a_warning() {
         let st = study();
         let mut r = st.run(&mut Quiet).unwrap();
-        r.metrics.pf.energy_pf = 0.91;
-        r.metrics.pf.energy_pf_quadrant = Quadrant::Lag;
-        r.metrics.pf.share_under_target = 0.38;
+        // Registers of 100 kWh and 45.56 kvarh inductive: tan φ 0.4556, billed PF
+        // 1/sqrt(1 + 0.4556²) = 0.910.
+        let p = &mut r.metrics.pf;
+        p.kwh_import = 100.0;
+        p.kvarh_inductive = 45.56;
+        p.kvarh_capacitive = 0.0;
+        p.share_leading = 0.0;
+        p.energy_pf = 1.0 / (1.0f64 + 0.4556 * 0.4556).sqrt();
+        p.energy_pf_quadrant = Quadrant::Lag;
+        p.share_under_target = 0.38;
         let f = judge(&st, &r, |_| {});
         let pf = f.iter().find(|x| x.topic == "pf").unwrap();
         assert_eq!(pf.severity, Severity::Warning);
         assert_eq!(
             pf.text,
-            "Billed PF 0.91 lag is below the 0.95 lag target; 38 % of the time under target."
+            "Billed PF 0.91 lag (inductive register 46 kvarh against 100 kWh imported, tan φ \
+             0.456) is below the 0.95 lag target; 38 % of the time under target."
         );
     }
 
