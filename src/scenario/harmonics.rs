@@ -30,17 +30,16 @@ pub(super) fn harmonics(h: &HarmonicsSection) -> Result<HarmonicSettings, FieldE
         }
     }
     orders.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let reference_kva = match h.reference_kva {
-        Some(r) => range_open("harmonics.reference_kva", r, 0.0, 1e6, "kVA")?,
-        None if !orders.is_empty() => {
-            return Err(FieldError::new(
+    let reference_kva =
+        match h.reference_kva {
+            Some(r) => range_open("harmonics.reference_kva", r, 0.0, 1e6, "kVA")?,
+            None if !orders.is_empty() => return Err(FieldError::new(
                 "harmonics.reference_kva",
                 "missing: the rating of the harmonic-producing load (kVA) that the percentages \
                  refer to",
-            ))
-        }
-        None => 0.0,
-    };
+            )),
+            None => 0.0,
+        };
     let tolerance = range(
         "harmonics.resonance_tolerance_orders",
         h.resonance_tolerance_orders.unwrap_or(0.5),

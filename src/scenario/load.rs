@@ -53,7 +53,6 @@ impl LoadSection {
     }
 }
 
-
 /// The load source these keys give; a relative CSV path is taken from the folder of the
 /// scenario at `path`.
 pub(super) fn load(l: &LoadSection, path: &Path) -> Result<LoadSpec, FieldError> {

@@ -273,7 +273,10 @@ count = 4
             .unwrap_err()
             .to_string();
         assert!(e.contains("\"high\" is not a power factor"), "{e}");
-        let s = parse(&format!("{MINIMAL}[controller]\ntarget_pf = \"0.98 lead\"\n")).unwrap();
+        let s = parse(&format!(
+            "{MINIMAL}[controller]\ntarget_pf = \"0.98 lead\"\n"
+        ))
+        .unwrap();
         assert_eq!(s.controller.target, PfTarget::lead(0.98));
     }
 
@@ -282,14 +285,20 @@ count = 4
         assert_eq!(parse(MINIMAL).unwrap().dead_band_key, None);
         let s = parse(&format!("{MINIMAL}[controller]\ndead_band_kvar = 20\n")).unwrap();
         assert_eq!(s.dead_band_key, Some("controller.dead_band_kvar"));
-        let s = parse(&format!("{MINIMAL}[controller]\ndead_band_fraction = 0.7\n")).unwrap();
+        let s = parse(&format!(
+            "{MINIMAL}[controller]\ndead_band_fraction = 0.7\n"
+        ))
+        .unwrap();
         assert_eq!(s.dead_band_key, Some("controller.dead_band_fraction"));
     }
 
     #[test]
     fn export_mode_defaults_to_absolute() {
         use crate::controller::ExportMode;
-        assert_eq!(parse(MINIMAL).unwrap().controller.export_mode, ExportMode::Absolute);
+        assert_eq!(
+            parse(MINIMAL).unwrap().controller.export_mode,
+            ExportMode::Absolute
+        );
         let s = parse(&format!("{MINIMAL}[controller]\nexport_mode = \"hold\"\n")).unwrap();
         assert_eq!(s.controller.export_mode, ExportMode::Hold);
         let s = parse(&format!("{MINIMAL}[controller]\nexport_mode = \"open\"\n")).unwrap();

@@ -258,7 +258,6 @@ pub struct ReportSection {
     pub hunting_window_s: Option<f64>,
 }
 
-
 /// A target PF as written: a number (`0.97`, `1`) or text (`"0.95 lag"`).
 #[derive(Debug, Clone, PartialEq, Deserialize)]
 #[serde(untagged)]
