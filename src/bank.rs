@@ -6,6 +6,10 @@
 
 use serde::Serialize;
 
+/// Time the usual discharge device of IEC 60831-1 takes to bring a capacitor down to 75 V:
+/// 3 min (from memory), s.
+pub const IEC_DISCHARGE_S: f64 = 180.0;
+
 /// Largest number of steps in one bank (the width of a state mask).
 pub const MAX_STEPS: usize = 64;
 

@@ -2,16 +2,18 @@
 //! allocating, then finished into a [`RunMetrics`] value that the report writers turn
 //! into text or JSON.
 //!
-//! Definitions follow the domain contract: energy PF = E_P / sqrt(E_P² + E_Q,ind²) over
-//! the import register; four separate energy registers; shares of run time under target
-//! and leading; overcorrection episodes as maximal runs of intervals leading beyond a
-//! strict threshold; one hunting cycle per pair of consecutive operations of one step no
-//! further apart than the hunting window.
+//! Definitions: energy PF = E_P / sqrt(E_P² + E_Q,ind²) over the import register (the
+//! billed figure, see [`BilledPf`]), with tan φ and the capacitive figures beside it; four
+//! separate energy registers; shares of run time under target and leading; overcorrection
+//! episodes as maximal runs of intervals more leading than allowed by a strict threshold
+//! (past zero for a lagging or unity target, past the target for a leading one); one
+//! hunting cycle per pair of consecutive operations of one step no further apart than the
+//! hunting window; time in each bank state, in all and at most within one calendar day.
 
 use crate::bank::Bank;
 use crate::controller::{Decision, StepState};
-use crate::pf::{PfTarget, Quadrant};
-use crate::timebase::{Calendar, YEAR_S};
+use crate::pf::{BilledPf, PfTarget, Quadrant};
+use crate::timebase::{Calendar, DAY_S, YEAR_S};
 use serde::Serialize;
 use std::collections::{BTreeMap, HashMap};
 
@@ -20,8 +22,11 @@ use std::collections::{BTreeMap, HashMap};
 pub struct MetricParams {
     /// Target PF, for the share of time under target.
     pub target: PfTarget,
-    /// Leading |Q| above which the supply counts as overcorrected, kvar (strict). Default:
-    /// the smallest switched step.
+    /// How far past the allowed point the supply must lead to count as overcorrected, kvar
+    /// (strict). For a lagging or unity target the interval is overcorrected when
+    /// −Q > threshold; for a leading target when Q < |P|·tan φ_t − threshold (more leading
+    /// than the target by more than the threshold; tan φ_t < 0). Default: the smallest
+    /// switched step.
     pub overcorrection_threshold_kvar: f64,
     /// Shortest run of overcorrected intervals that counts as an episode, s. Default 60 s.
     pub overcorrection_min_s: f64,
@@ -96,10 +101,17 @@ pub struct BillingWindow {
     pub start_s: f64,
     /// Window end, run time, s.
     pub end_s: f64,
-    /// Energy PF of the window.
+    /// Energy PF of the window, E_P / sqrt(E_P² + E_Q,ind²) (the billed figure).
     pub energy_pf: f64,
-    /// `lag` or `lead`.
+    /// `lag` whenever the inductive register is non-zero; `lead` only when it is zero and
+    /// the capacitive register is not.
     pub energy_pf_quadrant: Quadrant,
+    /// tan φ = E_Q,ind / E_P, as tariffs state it; `None` (null) when E_P = 0.
+    pub tan_phi: Option<f64>,
+    /// E_Q,cap / E_P; `None` (null) when E_P = 0.
+    pub tan_phi_capacitive: Option<f64>,
+    /// E_P / sqrt(E_P² + E_Q,cap²), a leading PF, 0..1.
+    pub capacitive_pf: f64,
     /// Active energy imported, kWh.
     pub kwh_import: f64,
     /// Active energy exported, kWh.
@@ -126,10 +138,17 @@ pub struct RunInfo {
 /// PF and energy registers.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct PfMetrics {
-    /// Energy PF over the run, 0..1.
+    /// Energy PF over the run, E_P / sqrt(E_P² + E_Q,ind²) (the billed figure), 0..1.
     pub energy_pf: f64,
-    /// `lag` or `lead`.
+    /// `lag` whenever the inductive register is non-zero; `lead` only when it is zero and
+    /// the capacitive register is not.
     pub energy_pf_quadrant: Quadrant,
+    /// tan φ = E_Q,ind / E_P over the run, as tariffs state it; `None` (null) when E_P = 0.
+    pub tan_phi: Option<f64>,
+    /// E_Q,cap / E_P over the run; `None` (null) when E_P = 0.
+    pub tan_phi_capacitive: Option<f64>,
+    /// E_P / sqrt(E_P² + E_Q,cap²) over the run, a leading PF, 0..1.
+    pub capacitive_pf: f64,
     /// Active energy imported, kWh.
     pub kwh_import: f64,
     /// Active energy exported, kWh.
@@ -227,6 +246,10 @@ pub struct StateTime {
     pub mask: u64,
     /// Time in the state, s.
     pub time_s: f64,
+    /// Largest time spent in the state within any one calendar day (midnight to midnight
+    /// of the run's calendar), s. For judging limits stated per 24 h, such as the
+    /// capacitor overvoltage allowance of IEC 60831-1 (1.10 × U_N for 8 h in every 24 h).
+    pub max_day_s: f64,
 }
 
 /// Wear of one step.
@@ -314,20 +337,52 @@ impl Registers {
         }
     }
 
-    fn energy_pf(&self) -> (f64, Quadrant) {
-        let pf = if self.kwh_import > 0.0 {
-            self.kwh_import / self.kwh_import.hypot(self.kvarh_ind)
-        } else if self.kvarh_ind > 0.0 {
-            0.0
-        } else {
-            1.0
-        };
-        let quad = if self.kvarh_cap > self.kvarh_ind {
-            Quadrant::Lead
-        } else {
-            Quadrant::Lag
-        };
-        (pf, quad)
+    fn billed(&self) -> BilledPf {
+        BilledPf::from_registers(self.kwh_import, self.kvarh_ind, self.kvarh_cap)
+    }
+}
+
+/// Time in one bank state: in all, and per calendar day.
+#[derive(Debug, Clone, Copy)]
+struct StateAcc {
+    /// Intervals in the state.
+    n: u64,
+    /// Calendar day (days since the epoch) of the latest time in the state.
+    day: i64,
+    /// Time in the state on that day, s.
+    day_s: f64,
+    /// Largest time in the state on any earlier day, s.
+    max_day_s: f64,
+}
+
+impl StateAcc {
+    const NEW: StateAcc = StateAcc {
+        n: 0,
+        day: i64::MIN,
+        day_s: 0.0,
+        max_day_s: 0.0,
+    };
+
+    /// Adds the stretch of epoch time [e0, e1), split at midnights, holding `n` intervals.
+    fn add(&mut self, n: u64, e0: f64, e1: f64) {
+        self.n += n;
+        let mut a = e0;
+        while a < e1 {
+            let day = (a / DAY_S).floor();
+            let b = e1.min((day + 1.0) * DAY_S);
+            let day = day as i64;
+            if day != self.day {
+                self.max_day_s = self.max_day_s.max(self.day_s);
+                self.day = day;
+                self.day_s = 0.0;
+            }
+            self.day_s += b - a;
+            a = b;
+        }
+    }
+
+    fn max_day_s(&self) -> f64 {
+        self.max_day_s.max(self.day_s)
     }
 }
 
@@ -367,7 +422,7 @@ pub struct Metrics {
     min_ep_n: u64,
     mask: u64,
     mask_since_k: u64,
-    state_n: HashMap<u64, u64>,
+    state_n: HashMap<u64, StateAcc>,
     on_since_k: Vec<u64>,
     energized_n: Vec<u64>,
     last_op_t: Vec<f64>,
@@ -475,7 +530,14 @@ impl Metrics {
             self.over_110_n += 1;
         }
         let thr = self.p.overcorrection_threshold_kvar;
-        if q < 0.0 && -q > thr {
+        // Reactive power below which the interval is overcorrected: past zero for a lagging
+        // or unity target, past the target for a leading one (tan φ_t < 0).
+        let limit = if self.tan_t < 0.0 {
+            p.abs() * self.tan_t - thr
+        } else {
+            -thr
+        };
+        if q < limit {
             if !self.ep.open {
                 self.ep = Episode {
                     open: true,
@@ -486,7 +548,7 @@ impl Metrics {
             self.ep.worst = self.ep.worst.max(-q);
             let cause = if p < 0.0 {
                 0
-            } else if o.load_q_kvar - o.fixed_q_kvar < -thr {
+            } else if o.load_q_kvar - o.fixed_q_kvar < limit {
                 1
             } else if o.decision.wish < 0 {
                 2
@@ -518,12 +580,15 @@ impl Metrics {
     }
 
     fn close_window(&mut self, t_end: f64) {
-        let (pf, quad) = self.win.energy_pf();
+        let b = self.win.billed();
         self.billing.push(BillingWindow {
             start_s: self.win_start,
             end_s: t_end,
-            energy_pf: pf,
-            energy_pf_quadrant: quad,
+            energy_pf: b.energy_pf,
+            energy_pf_quadrant: b.quadrant,
+            tan_phi: b.tan_phi,
+            tan_phi_capacitive: b.tan_phi_capacitive,
+            capacitive_pf: b.capacitive_pf,
             kwh_import: self.win.kwh_import,
             kwh_export: self.win.kwh_export,
             kvarh_inductive: self.win.kvarh_ind,
@@ -549,8 +614,7 @@ impl Metrics {
             }
         }
         let k_next = k + 1;
-        *self.state_n.entry(self.mask).or_insert(0) += k_next - self.mask_since_k;
-        self.mask_since_k = k_next;
+        self.close_state(k_next);
         let mut m = changed;
         while m != 0 {
             let i = m.trailing_zeros() as usize;
@@ -568,6 +632,20 @@ impl Metrics {
         self.mask = (self.mask | d.closed) & !d.opened;
     }
 
+    /// Adds the time of the current bank state from its start to interval `k_end`.
+    fn close_state(&mut self, k_end: u64) {
+        let e0 = self
+            .calendar
+            .epoch(self.t_first + self.mask_since_k as f64 * self.dt);
+        let e1 = self.calendar.epoch(self.t_first + k_end as f64 * self.dt);
+        self.state_n.entry(self.mask).or_insert(StateAcc::NEW).add(
+            k_end - self.mask_since_k,
+            e0,
+            e1,
+        );
+        self.mask_since_k = k_end;
+    }
+
     /// Finishes the run after `n` intervals and builds the result.
     pub fn finish(mut self, bank: &Bank, steps: &[StepState]) -> RunMetrics {
         let n = self.n;
@@ -578,14 +656,14 @@ impl Metrics {
             self.close_episode();
         }
         self.close_window(t_end);
-        *self.state_n.entry(self.mask).or_insert(0) += n - self.mask_since_k;
+        self.close_state(n);
         let mut m = self.mask;
         while m != 0 {
             let i = m.trailing_zeros() as usize;
             m &= m - 1;
             self.energized_n[i] += n - self.on_since_k[i];
         }
-        let (pf, quad) = self.reg.energy_pf();
+        let billed = self.reg.billed();
         let share = |c: u64| if n > 0 { c as f64 / n as f64 } else { 0.0 };
         let per_year = |ops: u64| {
             if duration > 0.0 {
@@ -624,11 +702,12 @@ impl Metrics {
         let mut states: Vec<StateTime> = self
             .state_n
             .iter()
-            .filter(|(_, c)| **c > 0)
+            .filter(|(_, c)| c.n > 0)
             .map(|(mask, c)| StateTime {
                 steps: Bank::numbers(*mask),
                 mask: *mask,
-                time_s: *c as f64 * dt,
+                time_s: c.n as f64 * dt,
+                max_day_s: c.max_day_s(),
             })
             .collect();
         states.sort_by(|a, b| b.time_s.total_cmp(&a.time_s).then(a.mask.cmp(&b.mask)));
@@ -651,8 +730,11 @@ impl Metrics {
                 t_first_s: self.t_first,
             },
             pf: PfMetrics {
-                energy_pf: pf,
-                energy_pf_quadrant: quad,
+                energy_pf: billed.energy_pf,
+                energy_pf_quadrant: billed.quadrant,
+                tan_phi: billed.tan_phi,
+                tan_phi_capacitive: billed.tan_phi_capacitive,
+                capacitive_pf: billed.capacitive_pf,
                 kwh_import: self.reg.kwh_import,
                 kwh_export: self.reg.kwh_export,
                 kvarh_inductive: self.reg.kvarh_ind,
@@ -703,5 +785,182 @@ impl Metrics {
                 min_p_kw: if n > 0 { self.load_p_min } else { 0.0 },
             },
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::bank::StepSpec;
+    use chrono::NaiveDate;
+
+    /// One switched 50 kvar step at 400 V.
+    fn bank() -> Bank {
+        Bank::new(vec![StepSpec::plain(50.0)], 400.0)
+    }
+
+    fn params(target: PfTarget, threshold_kvar: f64) -> MetricParams {
+        MetricParams {
+            target,
+            overcorrection_threshold_kvar: threshold_kvar,
+            overcorrection_min_s: 60.0,
+            hunting_window_s: 300.0,
+            billing_starts: Vec::new(),
+        }
+    }
+
+    /// Calendar with elapsed 0 at the given hour of Monday 2026-01-05.
+    fn calendar(hour: u32) -> Calendar {
+        let start = NaiveDate::from_ymd_opt(2026, 1, 5)
+            .and_then(|d| d.and_hms_opt(hour, 0, 0))
+            .expect("a valid date");
+        Calendar::elapsed_from(start)
+    }
+
+    /// Records one interval of supply P and Q (the load equal to the supply, no fixed step).
+    fn record(m: &mut Metrics, t_s: f64, p_kw: f64, q_kvar: f64) {
+        let d = Decision::default();
+        m.record(&IntervalObs {
+            t_s,
+            p_kw,
+            q_kvar,
+            load_q_kvar: q_kvar,
+            load_p_kw: p_kw,
+            fixed_q_kvar: 0.0,
+            v_ll_min: 400.0,
+            v_ll_max: 400.0,
+            decision: &d,
+        });
+    }
+
+    // 12 h at 100 kW / 60 kvar lagging, then 12 h at 10 kW / 70 kvar leading, no bank in
+    // (worked by hand): E_P = 1200 + 120 = 1320 kWh, E_Q,ind = 720 kvarh, E_Q,cap = 840
+    // kvarh. The billed PF is 1320 / sqrt(1320² + 720²) = 0.8779, and it is a lagging
+    // figure (it comes from the inductive register) although more capacitive energy
+    // flowed; tan φ = 720 / 1320 = 0.5455; tan φ capacitive = 840 / 1320 = 0.6364;
+    // capacitive PF = 1320 / sqrt(1320² + 840²) = 0.8437.
+    #[test]
+    fn billed_pf_comes_from_the_inductive_register() {
+        let b = bank();
+        let mut m = Metrics::new(
+            params(PfTarget::lag(0.95), 50.0),
+            &b,
+            calendar(0),
+            400.0,
+            3600.0,
+            0.0,
+        );
+        for k in 0..24 {
+            let (p, q) = if k < 12 { (100.0, 60.0) } else { (10.0, -70.0) };
+            record(&mut m, k as f64 * 3600.0, p, q);
+        }
+        let r = m.finish(
+            &b,
+            &[StepState {
+                on: false,
+                since_s: 0.0,
+                last_open_s: f64::NEG_INFINITY,
+                closings: 0,
+                openings: 0,
+            }],
+        );
+        let pf = &r.pf;
+        assert!((pf.kwh_import - 1320.0).abs() < 1e-9);
+        assert!((pf.kvarh_inductive - 720.0).abs() < 1e-9);
+        assert!((pf.kvarh_capacitive - 840.0).abs() < 1e-9);
+        assert!((pf.energy_pf - 0.8779).abs() < 1e-4, "{}", pf.energy_pf);
+        assert_eq!(pf.energy_pf_quadrant, Quadrant::Lag);
+        assert!((pf.tan_phi.unwrap() - 0.5455).abs() < 1e-4);
+        assert!((pf.tan_phi_capacitive.unwrap() - 0.6364).abs() < 1e-4);
+        assert!((pf.capacitive_pf - 0.8437).abs() < 1e-4);
+        let w = &pf.billing[0];
+        assert_eq!(
+            (w.energy_pf, w.energy_pf_quadrant),
+            (pf.energy_pf, Quadrant::Lag)
+        );
+        assert_eq!((w.tan_phi, w.capacitive_pf), (pf.tan_phi, pf.capacitive_pf));
+    }
+
+    /// 300 s at 100 kW / −20 kvar, then 300 s at 100 kW / −40 kvar, threshold 10 kvar.
+    fn leading_spells(target: PfTarget) -> OvercorrectionMetrics {
+        let b = bank();
+        let mut m = Metrics::new(params(target, 10.0), &b, calendar(0), 400.0, 1.0, 0.0);
+        for k in 0..600 {
+            record(&mut m, k as f64, 100.0, if k < 300 { -20.0 } else { -40.0 });
+        }
+        m.finish(
+            &b,
+            &[StepState {
+                on: false,
+                since_s: 0.0,
+                last_open_s: f64::NEG_INFINITY,
+                closings: 0,
+                openings: 0,
+            }],
+        )
+        .overcorrection
+    }
+
+    // With a 0.98 lead target, tan φ_t = −sqrt(1 − 0.98²) / 0.98 = −0.2031 (common
+    // practice), so at 100 kW the target is Q = −20.3 kvar and an interval is
+    // overcorrected below −20.3 − 10 = −30.3 kvar: the spell at −20 kvar (0.98 lead, on
+    // target) is not, the spell at −40 kvar is: one 300 s episode, worst 40 kvar. With a
+    // lagging target both spells lead by more than 10 kvar: one 600 s episode.
+    #[test]
+    fn overcorrection_is_measured_past_a_leading_target() {
+        let lead = leading_spells(PfTarget::lead(0.98));
+        assert_eq!((lead.episodes, lead.total_s), (1, 300.0));
+        assert!((lead.worst_leading_kvar - 40.0).abs() < 1e-12);
+        let lag = leading_spells(PfTarget::lag(0.95));
+        assert_eq!((lag.episodes, lag.total_s), (1, 600.0));
+        let unity = leading_spells(PfTarget::lag(1.0));
+        assert_eq!((unity.episodes, unity.total_s), (1, 600.0));
+    }
+
+    // The run starts at 12:00 on Monday and lasts 36 h in 600 s intervals. Step 1 closes
+    // at 20:00 Monday (run time 8 h), opens at 06:00 Tuesday (18 h) and closes again at
+    // 18:00 Tuesday (30 h) until midnight (36 h). Worked by hand against the calendar days:
+    // state {1}: Monday 20:00–24:00 = 4 h; Tuesday 00:00–06:00 and 18:00–24:00 = 12 h, so
+    // 16 h in all and at most 12 h = 43 200 s in one day. State {}: Monday 12:00–20:00 =
+    // 8 h; Tuesday 06:00–18:00 = 12 h; 20 h in all, at most 43 200 s. (Days counted from
+    // the run's start instead would give 10 h for state {1}.)
+    #[test]
+    fn most_time_in_a_state_within_one_calendar_day() {
+        let b = bank();
+        let dt = 600.0;
+        let mut m = Metrics::new(
+            params(PfTarget::lag(0.95), 50.0),
+            &b,
+            calendar(12),
+            400.0,
+            dt,
+            0.0,
+        );
+        let ops = [(47u64, true), (107, false), (179, true)];
+        for k in 0..216u64 {
+            record(&mut m, k as f64 * dt, 100.0, 10.0);
+            if let Some(&(_, close)) = ops.iter().find(|o| o.0 == k) {
+                let d = Decision {
+                    closed: u64::from(close),
+                    opened: u64::from(!close),
+                    ..Decision::default()
+                };
+                m.record_ops(k, &d, (k + 1) as f64 * dt);
+            }
+        }
+        let r = m.finish(
+            &b,
+            &[StepState {
+                on: true,
+                since_s: 108_000.0,
+                last_open_s: 64_800.0,
+                closings: 2,
+                openings: 1,
+            }],
+        );
+        let on = r.states.iter().find(|s| s.mask == 1).expect("state {1}");
+        let off = r.states.iter().find(|s| s.mask == 0).expect("state {}");
+        assert_eq!((on.time_s, on.max_day_s), (57_600.0, 43_200.0));
+        assert_eq!((off.time_s, off.max_day_s), (72_000.0, 43_200.0));
     }
 }

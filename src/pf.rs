@@ -65,18 +65,25 @@ impl PfTarget {
     /// Parses `0.95 lag`, `0.98 lead`, `0.95lag`, `1.0` or `1`. A bare number below 1 is
     /// read as lagging, the usual meaning of a tariff threshold.
     pub fn parse(text: &str) -> Result<Self, String> {
-        let t = text.trim().to_ascii_lowercase();
-        let (num, quad) = if let Some(n) = t.strip_suffix("lag") {
-            (n.trim(), Some(Quadrant::Lag))
-        } else if let Some(n) = t.strip_suffix("lead") {
-            (n.trim(), Some(Quadrant::Lead))
-        } else {
-            (t.as_str(), None)
-        };
-        let pf: f64 = num.parse().map_err(|_| {
+        let (pf, quadrant) = Self::parse_unchecked(text).ok_or_else(|| {
             format!("`{text}` is not a power factor; write e.g. `0.95 lag`, `0.98 lead` or `1.0`")
         })?;
-        Self::checked(pf, quad.unwrap_or(Quadrant::Lag)).map_err(|m| format!("`{text}`: {m}"))
+        Self::checked(pf, quadrant).map_err(|m| format!("`{text}`: {m}"))
+    }
+
+    /// Reads the number and the quadrant of `0.95 lag`, `0.98 lead` or `1.0` without
+    /// checking the range (a bare number is lagging); `None` when the text is not a number
+    /// with an optional `lag`/`lead`.
+    pub fn parse_unchecked(text: &str) -> Option<(f64, Quadrant)> {
+        let t = text.trim().to_ascii_lowercase();
+        let (num, quad) = if let Some(n) = t.strip_suffix("lag") {
+            (n.trim(), Quadrant::Lag)
+        } else if let Some(n) = t.strip_suffix("lead") {
+            (n.trim(), Quadrant::Lead)
+        } else {
+            (t.as_str(), Quadrant::Lag)
+        };
+        num.parse().ok().map(|pf| (pf, quad))
     }
 
     /// Validates the range: a target PF must lie in [0.5, 1.0].
@@ -125,6 +132,57 @@ impl Serialize for PfTarget {
 pub fn tan_phi_of(pf: f64) -> f64 {
     let pf = pf.clamp(1e-9, 1.0);
     (1.0 - pf * pf).max(0.0).sqrt() / pf
+}
+
+/// The power factor a utility bills, worked out from the energy registers of a period.
+///
+/// The billed figure belongs to the inductive register: energy PF = E_P / sqrt(E_P² +
+/// E_Q,ind²), with E_P the active energy imported, so its quadrant is `lag` whenever the
+/// inductive register holds anything, and `lead` only when it is empty and the capacitive
+/// register is not. The capacitive register gets its own figures beside it, because many
+/// tariffs bill capacitive energy separately (often stated as tan φ).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct BilledPf {
+    /// E_P / sqrt(E_P² + E_Q,ind²), 0..1 (1 with empty registers, 0 with reactive energy
+    /// and no active energy imported).
+    pub energy_pf: f64,
+    /// `lag` when E_Q,ind > 0; `lead` when E_Q,ind = 0 and E_Q,cap > 0; `lag` (shown as
+    /// `1.00`) when both are zero.
+    pub quadrant: Quadrant,
+    /// tan φ = E_Q,ind / E_P as tariffs state it; `None` when E_P = 0.
+    pub tan_phi: Option<f64>,
+    /// E_Q,cap / E_P; `None` when E_P = 0.
+    pub tan_phi_capacitive: Option<f64>,
+    /// E_P / sqrt(E_P² + E_Q,cap²), 0..1, leading.
+    pub capacitive_pf: f64,
+}
+
+impl BilledPf {
+    /// Figures of a period from its active import (kWh) and its inductive and capacitive
+    /// reactive registers (kvarh, both ≥ 0).
+    pub fn from_registers(kwh_import: f64, kvarh_inductive: f64, kvarh_capacitive: f64) -> Self {
+        let ratio_pf = |q: f64| {
+            if kwh_import > 0.0 {
+                kwh_import / kwh_import.hypot(q)
+            } else if q > 0.0 {
+                0.0
+            } else {
+                1.0
+            }
+        };
+        let tan = |q: f64| (kwh_import > 0.0).then(|| q / kwh_import);
+        BilledPf {
+            energy_pf: ratio_pf(kvarh_inductive),
+            quadrant: if kvarh_inductive <= 0.0 && kvarh_capacitive > 0.0 {
+                Quadrant::Lead
+            } else {
+                Quadrant::Lag
+            },
+            tan_phi: tan(kvarh_inductive),
+            tan_phi_capacitive: tan(kvarh_capacitive),
+            capacitive_pf: ratio_pf(kvarh_capacitive),
+        }
+    }
 }
 
 /// Reactive power (kvar) a capacitor bank must deliver to move a load of `p_kw` from
@@ -189,6 +247,27 @@ mod tests {
         assert!((tan_phi_of(0.9) - 0.4843).abs() < 1e-4);
         assert!((tan_phi_of(0.95) - 0.3287).abs() < 1e-4);
         assert!((pf_of(1.0, 0.4) - 0.9285).abs() < 1e-4);
+    }
+
+    // A day of 12 h at 100 kW / 60 kvar lagging, then 12 h at 10 kW / 70 kvar leading, no
+    // bank (worked by hand): E_P = 1200 + 120 = 1320 kWh, E_Q,ind = 720 kvarh, E_Q,cap =
+    // 840 kvarh. Billed PF = 1320 / sqrt(1320² + 720²) = 1320 / 1503.6 = 0.8779 lag (the
+    // figure belongs to the inductive register, even though more capacitive energy flowed);
+    // tan φ = 720 / 1320 = 0.5455; capacitive: 840 / 1320 = 0.6364 and
+    // 1320 / sqrt(1320² + 840²) = 1320 / 1564.6 = 0.8437.
+    #[test]
+    fn billed_pf_belongs_to_the_inductive_register() {
+        let b = BilledPf::from_registers(1320.0, 720.0, 840.0);
+        assert!((b.energy_pf - 0.8779).abs() < 1e-4, "{b:?}");
+        assert_eq!(b.quadrant, Quadrant::Lag);
+        assert!((b.tan_phi.unwrap() - 0.5455).abs() < 1e-4);
+        assert!((b.tan_phi_capacitive.unwrap() - 0.6364).abs() < 1e-4);
+        assert!((b.capacitive_pf - 0.8437).abs() < 1e-4);
+        // Only capacitive energy: the figure is 1 (no inductive energy billed) and the
+        // quadrant says lead; with no active import tan φ is undefined.
+        let c = BilledPf::from_registers(100.0, 0.0, 30.0);
+        assert_eq!((c.energy_pf, c.quadrant), (1.0, Quadrant::Lead));
+        assert_eq!(BilledPf::from_registers(0.0, 5.0, 0.0).tan_phi, None);
     }
 
     #[test]

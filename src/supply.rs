@@ -134,8 +134,9 @@ pub struct BusSolver {
     e_ln: f64,
     z: Complex64,
     eq: [Equivalent; 3],
-    /// Intervals in which the load exceeded what the supply can carry (no real solution);
-    /// the voltage is then taken at the nose of the curve.
+    /// Intervals in which the load exceeded what the supply can carry on at least one
+    /// phase (no real solution); the voltage is then taken at the nose of the curve. Each
+    /// interval counts once, however many phases have no solution.
     pub nonconverged: u64,
 }
 
@@ -182,8 +183,10 @@ impl BusSolver {
     #[inline]
     pub fn solve(&mut self, p_kw: &[f64; 3], q_kvar: &[f64; 3]) -> [PhaseSolution; 3] {
         let mut out = [PhaseSolution::default(); 3];
+        let mut unsolved = false;
         for ph in 0..3 {
-            let w = self.squared_voltage(ph, p_kw[ph] * 1e3, q_kvar[ph] * 1e3);
+            let (w, solved) = self.squared_voltage(ph, p_kw[ph] * 1e3, q_kvar[ph] * 1e3);
+            unsolved |= !solved;
             let q_bank = self.eq[ph].b * w * 1e-3;
             out[ph] = PhaseSolution {
                 v_ln: w.sqrt(),
@@ -192,12 +195,16 @@ impl BusSolver {
                 q_bank_kvar: q_bank,
             };
         }
+        if unsolved {
+            self.nonconverged += 1;
+        }
         out
     }
 
-    /// |V|² of one phase for a load S = P + jQ (W, var).
+    /// |V|² of one phase for a load S = P + jQ (W, var), and whether a real solution
+    /// exists (if not, |V|² at the nose of the curve).
     #[inline]
-    fn squared_voltage(&mut self, ph: usize, p: f64, q: f64) -> f64 {
+    fn squared_voltage(&self, ph: usize, p: f64, q: f64) -> (f64, bool) {
         let eq = &self.eq[ph];
         // A = Z'·conj(S).
         let a_re = eq.z.re * p + eq.z.im * q;
@@ -205,16 +212,15 @@ impl BusSolver {
         let m = eq.e2 - 2.0 * a_re;
         let disc = m * m - 4.0 * (a_re * a_re + a_im * a_im);
         if disc < 0.0 {
-            self.nonconverged += 1;
-            return (0.5 * m).max(0.0);
+            return ((0.5 * m).max(0.0), false);
         }
-        0.5 * (m + disc.sqrt())
+        (0.5 * (m + disc.sqrt()), true)
     }
 
     /// Complex bus voltage of one phase in its own angle reference (for checks and
     /// reports, not the per-sample loop).
     pub fn phasor(&mut self, ph: usize, p_kw: f64, q_kvar: f64) -> Complex64 {
-        let w = self.squared_voltage(ph, p_kw * 1e3, q_kvar * 1e3);
+        let (w, _) = self.squared_voltage(ph, p_kw * 1e3, q_kvar * 1e3);
         let a = self.eq[ph].z * Complex64::new(p_kw * 1e3, -q_kvar * 1e3);
         ((Complex64::new(w, 0.0) + a) / self.eq[ph].e).conj()
     }
@@ -259,6 +265,32 @@ mod tests {
         b.set_bank(&[1e-3; 3]);
         let r = b.solve(&[100.0; 3], &[50.0; 3]);
         assert!((r[0].v_ln - 230.940_107_675_850_3).abs() < 1e-9);
+    }
+
+    // A 100 kVA, 6 % transformer has S_sc = 100 / 0.06 = 1.67 MVA (IEEE Std 141, from
+    // memory); the most power a source can push through its impedance is about S_sc / 2 at
+    // the best load angle (maximum power transfer, from memory), some 0.8 MVA here, so
+    // 1 MW per phase (3 MW in all) has no real solution on any phase. Five such intervals
+    // are five unsolved intervals, not fifteen unsolved phases.
+    #[test]
+    fn unsolved_intervals_count_once_each() {
+        let mut s = site();
+        s.transformer = Some(Transformer {
+            rated_kva: 100.0,
+            impedance_pct: 6.0,
+            x_over_r: 8.0,
+        });
+        let mut b = BusSolver::new(&s);
+        for _ in 0..5 {
+            b.solve(&[1000.0; 3], &[500.0; 3]);
+        }
+        assert_eq!(b.nonconverged, 5);
+        // One phase beyond the supply is still one interval.
+        b.solve(&[1000.0, 1.0, 1.0], &[0.0; 3]);
+        assert_eq!(b.nonconverged, 6);
+        // A load the supply carries leaves the count alone.
+        b.solve(&[10.0; 3], &[5.0; 3]);
+        assert_eq!(b.nonconverged, 6);
     }
 
     #[test]

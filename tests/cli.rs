@@ -264,7 +264,9 @@ fn bad_scenario_exits_2_naming_file_and_key() {
         .assert()
         .code(2)
         .stderr(predicate::str::contains("bad.toml"))
-        .stderr(predicate::str::contains("steps[0].kvar"));
+        .stderr(predicate::str::contains(
+            "[[steps]] table 1 (steps 1 to 4).kvar",
+        ));
 }
 
 #[test]

@@ -393,3 +393,87 @@ duration_s = 120
     let o = &r.metrics.overcorrection;
     assert_eq!((o.episodes, o.total_s), (1, 80.0));
 }
+
+/// Four 50 kvar steps, target 0.95 lag, T_sw 10 s, T_d 60 s, 300 s, with an export mode
+/// and an ordering. Dead band 0.65 × 50 = 32.5 kvar (default, common practice).
+fn exporting(mode: &str, ordering: &str) -> String {
+    format!(
+        r#"
+[[steps]]
+kvar = 50
+count = 4
+[controller]
+target_pf = "0.95 lag"
+switching_delay_s = 10
+discharge_time_s = 60
+export_mode = "{mode}"
+ordering = "{ordering}"
+[load.synthetic]
+[run]
+duration_s = 300
+"#
+    )
+}
+
+// tan φ_t for 0.95 lag = sqrt(1 − 0.95²) / 0.95 = 0.3287 (common practice, also in the
+// tariff table of src/pf.rs). Every case starts with 200 kW / 120 kvar imported: ΔQ =
+// 120 − 200 × 0.3287 = 54.3 kvar > 32.5, so step 1 closes at 10 s and leaves ΔQ = 4.3 kvar,
+// inside the band. From 100 s the load moves to the quadrant under test (supply figures
+// include step 1's 50 kvar):
+//
+// - import, inductive (200 kW, 120 kvar unchanged): nothing more, in every mode.
+// - import, capacitive (200 kW, load 20 kvar, supply −30 kvar): ΔQ = −30 − 65.7 = −95.7
+//   → step 1 opens at 110 s in every mode (the export mode plays no part while P > 0).
+// - export, inductive (−150 kW, load 150 kvar, supply 100 kvar drawn from the grid):
+//   absolute: ΔQ = 100 − 150 × 0.3287 = 50.7 > 32.5 → step 2 closes at 110 s, ΔQ 0.7.
+//   (On the signed P the demand would be 100 + 49.3 = 149.3 and three steps would close,
+//   driving the site leading.) hold: no operation. open: step 1 opens at 110 s.
+// - export, capacitive (−150 kW, load 0 kvar, supply −50 kvar): absolute: ΔQ = −50 −
+//   49.3 = −99.3 → step 1 opens at 110 s; then ΔQ = −49.3 with nothing left to open.
+//   (On the signed P: −50 + 49.3 = −0.7, in band, and the step would stay in.) hold: no
+//   operation. open: step 1 opens at 110 s.
+#[test]
+fn export_modes_in_each_quadrant() {
+    let start = (0.0, 200.0, 120.0);
+    let quadrants = [
+        ("import, inductive", (100.0, 200.0, 120.0)),
+        ("import, capacitive", (100.0, 200.0, 20.0)),
+        ("export, inductive", (100.0, -150.0, 150.0)),
+        ("export, capacitive", (100.0, -150.0, 0.0)),
+    ];
+    let c1 = op(10.0, 1, true);
+    let expected = |quadrant: &str, mode: &str| match (quadrant, mode) {
+        ("import, inductive", _) => vec![c1],
+        ("import, capacitive", _) => vec![c1, op(110.0, 1, false)],
+        ("export, inductive", "absolute") => vec![c1, op(110.0, 2, true)],
+        (_, "hold") => vec![c1],
+        _ => vec![c1, op(110.0, 1, false)],
+    };
+    for mode in ["absolute", "hold", "open"] {
+        for ordering in ["sequential", "best-fit"] {
+            for (name, piece) in quadrants {
+                let (_, rec) = record_with(&exporting(mode, ordering), Pieces(vec![start, piece]));
+                assert_eq!(
+                    rec.ops,
+                    expected(name, mode),
+                    "{name}, export_mode = {mode}, {ordering}"
+                );
+            }
+        }
+    }
+}
+
+// 150 kW exported at Q = 0 with no step in: under `absolute` ΔQ = 0 − 150 × 0.3287 =
+// −49.3 kvar, nothing to close (and nothing on to open); the bank never adds capacitors
+// because P went negative. No mode switches anything.
+#[test]
+fn export_at_unity_closes_nothing() {
+    for mode in ["absolute", "hold", "open"] {
+        let (r, rec) = record_with(
+            &exporting(mode, "sequential"),
+            Pieces(vec![(0.0, -150.0, 0.0)]),
+        );
+        assert_eq!(r.metrics.switching.total_operations, 0, "{mode}");
+        assert!((rec.demand[0] + 49.30).abs() < 0.01, "{}", rec.demand[0]);
+    }
+}

@@ -109,26 +109,49 @@ proptest! {
             }
         }
 
-        // Closings − openings equals the switched steps left on.
+        // Per step, the operations seen interval by interval alternate close, open, close,
+        // ... (a switched step starts open), and their counts are the ones reported.
         let fixed_mask: u64 = c.steps.iter().enumerate().filter(|s| s.1 .1).map(|(i, _)| 1u64 << i).sum();
         let mut final_mask = fixed_mask;
+        let mut seen = vec![(0u64, 0u64); c.steps.len()];
         for o in &rec.ops {
-            if o.close { final_mask |= 1 << (o.step - 1) } else { final_mask &= !(1 << (o.step - 1)) }
+            let bit = 1u64 << (o.step - 1);
+            prop_assert_eq!(final_mask & bit == 0, o.close, "step {} operated twice the same way at {}", o.step, o.t);
+            if o.close {
+                final_mask |= bit;
+                seen[o.step - 1].0 += 1;
+            } else {
+                final_mask &= !bit;
+                seen[o.step - 1].1 += 1;
+            }
         }
+        for s in &m.switching.per_step {
+            prop_assert_eq!((s.closings, s.openings), seen[s.step - 1], "step {}", s.step);
+        }
+        // Closings − openings equals the switched steps left on.
         let closings: u64 = m.switching.per_step.iter().map(|s| s.closings).sum();
         let openings: u64 = m.switching.per_step.iter().map(|s| s.openings).sum();
         prop_assert_eq!(closings - openings, (final_mask & !fixed_mask).count_ones() as u64);
         prop_assert_eq!(closings + openings, m.switching.total_operations);
 
-        // The energy registers add up to ΣP·Δt and ΣQ·Δt.
+        // The four registers against an independent sum over the observed intervals:
+        // import Σ P·Δt over P > 0, export Σ −P·Δt over P < 0, inductive Σ Q·Δt over Q > 0,
+        // capacitive Σ −Q·Δt over Q < 0; and the billed PF from them.
         let h = c.dt / 3600.0;
-        let sp: f64 = rec.p.iter().sum::<f64>() * h;
-        let sq: f64 = rec.q.iter().sum::<f64>() * h;
-        let tol = 1e-9 * (1.0 + sp.abs() + sq.abs()) * rec.p.len() as f64;
-        prop_assert!((m.pf.kwh_import - m.pf.kwh_export - sp).abs() < tol);
-        prop_assert!((m.pf.kvarh_inductive - m.pf.kvarh_capacitive - sq).abs() < tol);
-        prop_assert!(m.pf.kvarh_inductive >= 0.0 && m.pf.kvarh_capacitive >= 0.0);
-        prop_assert!((0.0..=1.0).contains(&m.pf.energy_pf));
+        let sum = |v: &[f64], keep: fn(f64) -> bool| v.iter().filter(|x| keep(**x)).map(|x| x.abs()).sum::<f64>() * h;
+        let import = sum(&rec.p, |x| x > 0.0);
+        let export = sum(&rec.p, |x| x < 0.0);
+        let ind = sum(&rec.q, |x| x > 0.0);
+        let cap = sum(&rec.q, |x| x < 0.0);
+        let close = |a: f64, b: f64| (a - b).abs() <= 1e-9 * (1.0 + b.abs()) * rec.p.len() as f64;
+        prop_assert!(close(m.pf.kwh_import, import), "{} vs {import}", m.pf.kwh_import);
+        prop_assert!(close(m.pf.kwh_export, export), "{} vs {export}", m.pf.kwh_export);
+        prop_assert!(close(m.pf.kvarh_inductive, ind), "{} vs {ind}", m.pf.kvarh_inductive);
+        prop_assert!(close(m.pf.kvarh_capacitive, cap), "{} vs {cap}", m.pf.kvarh_capacitive);
+        let pf = if import > 0.0 { import / import.hypot(ind) } else if ind > 0.0 { 0.0 } else { 1.0 };
+        prop_assert!((m.pf.energy_pf - pf).abs() < 1e-9, "{} vs {pf}", m.pf.energy_pf);
+        let lead = ind == 0.0 && cap > 0.0;
+        prop_assert_eq!(m.pf.energy_pf_quadrant == bankstep::pf::Quadrant::Lead, lead);
 
         // The cap on operations per hour is respected by ordinary operations.
         if let Some(cap) = c.cap {
@@ -138,13 +161,39 @@ proptest! {
             }
         }
 
-        // Time in states adds up to the run; overcorrection time is leading time.
-        let state_time: f64 = m.states.iter().map(|s| s.time_s).sum();
-        prop_assert!((state_time - m.run.duration_s).abs() < 1e-6);
-        prop_assert!(m.overcorrection.total_s <= m.pf.share_leading * m.run.duration_s + 1e-6);
+        // Time in each bank state against the masks seen interval by interval, and no state
+        // held for longer in one calendar day than in all or than a day.
+        let mut by_mask = std::collections::HashMap::<u64, f64>::new();
+        for mask in &rec.masks {
+            *by_mask.entry(*mask).or_default() += c.dt;
+        }
+        prop_assert_eq!(m.states.len(), by_mask.len());
+        for st in &m.states {
+            prop_assert!((st.time_s - by_mask[&st.mask]).abs() < 1e-6, "state {:?}", st.steps);
+            prop_assert!(st.max_day_s <= st.time_s + 1e-6 && st.max_day_s <= 86_400.0 + 1e-6);
+        }
 
-        // The same inputs give the same report, byte for byte.
-        let (again, _) = record_with(&toml, c.source());
-        prop_assert_eq!(serde_json::to_string(&r).unwrap(), serde_json::to_string(&again).unwrap());
+        // Overcorrection against an independent count (default target 0.95 lag, so an
+        // interval is overcorrected when the supply leads by more than the threshold, the
+        // smallest switched step, or the smallest step if all are fixed; episodes of at
+        // least 60 s, one still open at the end counting).
+        let switched: Vec<f64> = c.steps.iter().filter(|s| !s.1).map(|s| s.0).collect();
+        let pool = if switched.is_empty() { c.steps.iter().map(|s| s.0).collect() } else { switched };
+        let thr = pool.into_iter().fold(f64::INFINITY, f64::min);
+        let min_n = (60.0 / c.dt - 1e-9).ceil() as usize;
+        let (mut episodes, mut total, mut run) = (0u64, 0usize, 0usize);
+        for q in rec.q.iter().chain(std::iter::once(&0.0)) {
+            if -q > thr {
+                run += 1;
+            } else {
+                if run >= min_n {
+                    episodes += 1;
+                    total += run;
+                }
+                run = 0;
+            }
+        }
+        prop_assert_eq!(m.overcorrection.episodes, episodes);
+        prop_assert!((m.overcorrection.total_s - total as f64 * c.dt).abs() < 1e-6);
     }
 }

@@ -17,13 +17,11 @@ pub struct Advice {
     pub message: String,
 }
 
-/// Discharge time of the usual discharge device of IEC 60831-1, to 75 V within 3 min (from
-/// memory), s.
-pub const IEC_DISCHARGE_S: f64 = 180.0;
-
-/// The key that set the dead band, as the user wrote it.
-fn dead_band_key(_sc: &Scenario) -> &'static str {
-    "controller.dead_band_kvar"
+/// The key that set the dead band, as the user wrote it; the fraction key when the
+/// default applies (the default is a fraction of the smallest step).
+fn dead_band_key(sc: &Scenario) -> &'static str {
+    sc.dead_band_key
+        .unwrap_or(crate::scenario::DEAD_BAND_FRACTION_KEY)
 }
 
 fn advice(key: &str, message: String) -> Advice {
@@ -54,7 +52,7 @@ pub fn review_settings(sc: &Scenario) -> Vec<Advice> {
     // IEC 60831-1 is assumed: down to 75 V within 3 min (from memory).
     let (dev, stated) = match sc.capacitor_discharge_s {
         Some(d) => (d, true),
-        None => (IEC_DISCHARGE_S, false),
+        None => (crate::bank::IEC_DISCHARGE_S, false),
     };
     if switched && c.discharge_time_s < dev {
         let whose = if stated {
@@ -185,8 +183,17 @@ mod tests {
     #[test]
     fn narrow_dead_band_is_flagged() {
         // Common practice: below 0.5 × the smallest step the controller hunts.
+        // The advice names the key the user wrote.
         let a = review_settings(&sc("[controller]\ndead_band_fraction = 0.4\n"));
-        assert!(a.iter().any(|x| x.key == "controller.dead_band_kvar"));
+        assert!(
+            a.iter().any(|x| x.key == "controller.dead_band_fraction"),
+            "{a:?}"
+        );
+        let a = review_settings(&sc("[controller]\ndead_band_kvar = 10\n"));
+        assert!(
+            a.iter().any(|x| x.key == "controller.dead_band_kvar"),
+            "{a:?}"
+        );
         assert!(review_settings(&sc("")).is_empty());
     }
 

@@ -129,11 +129,6 @@ fn extrapolation_note(duration_s: f64) -> String {
     }
 }
 
-/// tan φ of a pair of registers (reactive over active energy), if there was active energy.
-fn tan_phi(kvarh: f64, kwh: f64) -> Option<f64> {
-    (kwh > 0.0).then(|| kvarh / kwh)
-}
-
 fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let m = &ctx.result.metrics;
     let p = &m.pf;
@@ -149,7 +144,7 @@ fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
         " (inductive register {} kvarh against {} kWh imported{})",
         num(p.kvarh_inductive, 0),
         num(p.kwh_import, 0),
-        tan_phi(p.kvarh_inductive, p.kwh_import)
+        p.tan_phi
             .map(|t| format!(", tan φ {}", num(t, 3)))
             .unwrap_or_default()
     );
@@ -172,13 +167,13 @@ fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     }
     // Capacitive energy is worth a word beside the billed PF, which counts inductive energy
     // only; long overcorrection has its own finding.
-    let cap_tan = tan_phi(p.kvarh_capacitive, p.kwh_import).unwrap_or(0.0);
+    let cap_tan = p.tan_phi_capacitive.unwrap_or(0.0);
     let leading = if p.share_leading >= 0.1 || cap_tan >= 0.1 {
         format!(
             " The capacitive register holds {} kvarh{} and the supply leads {} of the time, \
              which a tariff that bills capacitive energy would count.",
             num(p.kvarh_capacitive, 0),
-            tan_phi(p.kvarh_capacitive, p.kwh_import)
+            p.tan_phi_capacitive
                 .map(|t| format!(" (tan φ {})", num(t, 3)))
                 .unwrap_or_default(),
             pct(p.share_leading),
@@ -1155,6 +1150,8 @@ mod tests {
         p.kvarh_capacitive = 0.0;
         p.share_leading = 0.0;
         p.energy_pf = 1.0 / (1.0f64 + 0.4556 * 0.4556).sqrt();
+        p.tan_phi = Some(0.4556);
+        p.tan_phi_capacitive = Some(0.0);
         p.energy_pf_quadrant = Quadrant::Lag;
         p.share_under_target = 0.38;
         let f = judge(&st, &r, |_| {});

@@ -1,5 +1,6 @@
 //! The automatic step controller: demand, dead band, switching and disconnect delays,
-//! discharge lockout, step ordering, measurement mode and averaging, and protections.
+//! discharge lockout, step ordering, measurement mode and averaging, behaviour while the
+//! site exports, and protections.
 //!
 //! The controller sees only its measurement (P and Q at the supply side of the bank, so the
 //! bank's own output is in it) and the nominal kvar of its steps at U_n; it does not know a
@@ -28,7 +29,7 @@ const TIME_EPS_S: f64 = 1e-9;
 /// What an ordering sees when it picks a step.
 #[derive(Debug, Clone, Copy)]
 pub struct Choice<'a> {
-    /// Demand ΔQ = Q_m − P_m·tan φ_t, kvar (> 0: wants capacitance).
+    /// Demand ΔQ = Q_m − |P_m|·tan φ_t, kvar (> 0: wants capacitance).
     pub demand_kvar: f64,
     /// Mask of the steps that may be operated now (for a closing: switched, off and out of
     /// lockout; for an opening: switched and on). Never empty when an ordering is asked.
@@ -78,6 +79,40 @@ impl OrderingKind {
     }
 }
 
+/// What the controller does while the site exports active power (measured P_m < 0).
+///
+/// The export protection (`trip_on_export`, [`ProtectionParams`]) is separate and acts in
+/// every mode: when enabled it blocks closings while P_m < 0 and, once the export has
+/// lasted its own delay, opens every switched step at once.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum ExportMode {
+    /// Keep aiming at the target on the magnitude of the active power: demand
+    /// ΔQ = Q_m − |P_m|·tan φ_t, with the usual dead band and delays. Steps close only for
+    /// reactive power drawn from the grid beyond the target, never because P went
+    /// negative. The default.
+    #[default]
+    Absolute,
+    /// Leave the bank as it stands: no ordinary operation while exporting (the timers
+    /// restart).
+    Hold,
+    /// Open every switched step: while exporting the controller wants to disconnect as
+    /// long as a switched step is on, and opens them one per disconnect delay (ordinary
+    /// operations, chosen by the ordering); it closes none.
+    Open,
+}
+
+impl ExportMode {
+    /// The scenario name of the mode.
+    pub fn name(self) -> &'static str {
+        match self {
+            ExportMode::Absolute => "absolute",
+            ExportMode::Hold => "hold",
+            ExportMode::Open => "open",
+        }
+    }
+}
+
 /// Where the controller's current transformer sits.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum Measurement {
@@ -102,7 +137,9 @@ pub struct ProtectionParams {
     pub min_current_a: Option<f64>,
     /// Delay of the loss-of-current release, s. Default 5 s.
     pub min_current_delay_s: f64,
-    /// Open all steps while the site exports active power. Default false.
+    /// Open all steps once the site has exported active power (P_m < 0) for the export
+    /// delay, and close none while it exports. A trip, apart from the controller's
+    /// [`ExportMode`], which acts on every interval of export. Default false.
     pub trip_on_export: bool,
     /// Delay of the export release, s. Default 5 s.
     pub export_delay_s: f64,
@@ -141,7 +178,8 @@ pub struct ControllerParams {
     pub connect_delay_s: f64,
     /// Delay for disconnecting, s. Default equal to the switching delay.
     pub disconnect_delay_s: f64,
-    /// Discharge time T_d: a step opened at t may close again from t + T_d, s. Default 60 s.
+    /// Discharge time T_d: a step opened at t may close again from t + T_d, s. Default 180 s
+    /// (the usual IEC 60831-1 discharge device, [`crate::bank::IEC_DISCHARGE_S`]).
     pub discharge_time_s: f64,
     /// Step ordering. Default `sequential`.
     pub ordering: OrderingKind,
@@ -149,6 +187,8 @@ pub struct ControllerParams {
     pub measurement: Measurement,
     /// Averaging window of the measurement, s; 0 for none. Default 0 s.
     pub averaging_s: f64,
+    /// What the controller does while the site exports (P_m < 0). Default `absolute`.
+    pub export_mode: ExportMode,
     /// Protections. Default none enabled.
     pub protection: ProtectionParams,
 }
@@ -211,7 +251,9 @@ pub struct Decision {
     pub p_m_kw: f64,
     /// Measured (averaged) reactive power, kvar.
     pub q_m_kvar: f64,
-    /// Demand ΔQ, kvar.
+    /// Demand ΔQ, kvar: Q_m − P_m·tan φ_t while importing, Q_m − |P_m|·tan φ_t while
+    /// exporting (what the `absolute` export mode acts on; under `hold` and `open` the
+    /// wish does not follow it during export).
     pub demand_kvar: f64,
     /// +1 connect wanted, −1 disconnect wanted, 0 inside the dead band.
     pub wish: i8,
@@ -397,14 +439,15 @@ impl Controller {
             Measurement::SinglePhase(ph) => (3.0 * r.p_kw[ph], 3.0 * r.q_kvar[ph]),
         };
         let (p_m, q_m) = self.avg.push(p_raw, q_raw);
-        let demand = q_m - p_m * self.tan_t;
+        let exporting = p_m < 0.0;
+        let demand = q_m - p_m.abs() * self.tan_t;
         let b = self.params.dead_band_kvar;
-        let wish: i8 = if demand > b {
-            1
-        } else if demand < -b {
-            -1
-        } else {
-            0
+        let wish: i8 = match (exporting, self.params.export_mode) {
+            (true, ExportMode::Hold) => 0,
+            (true, ExportMode::Open) => -i8::from(self.mask & self.switched != 0),
+            _ if demand > b => 1,
+            _ if demand < -b => -1,
+            _ => 0,
         };
         if wish == 0 {
             self.count = 0;
@@ -491,8 +534,15 @@ impl Controller {
         if candidates == 0 {
             return d;
         }
+        // Under the `open` export mode the controller wants every switched step open, so
+        // the ordering sees the demand of opening them all: minus their nominal kvar.
+        let choice_demand = if exporting && self.params.export_mode == ExportMode::Open {
+            -self.nominal_kvar(on_switched)
+        } else {
+            demand
+        };
         let choice = Choice {
-            demand_kvar: demand,
+            demand_kvar: choice_demand,
             candidates,
             steps: &self.steps,
             kvar: &self.kvar,
@@ -535,6 +585,14 @@ impl Controller {
             }
         }
         out
+    }
+
+    /// Sum of the nominal kvar of the steps in `mask`.
+    fn nominal_kvar(&self, mask: u64) -> f64 {
+        (0..self.kvar.len())
+            .filter(|i| mask & (1 << i) != 0)
+            .map(|i| self.kvar[i])
+            .sum()
     }
 
     /// Largest connected step of `mask` by nominal kvar; ties to the lower number.

@@ -83,6 +83,7 @@ struct ControllerJson {
     discharge_time_s: f64,
     averaging_s: f64,
     measurement: String,
+    export_mode: &'static str,
 }
 
 /// What was studied.
@@ -201,6 +202,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
                 disconnect_delay_s: c.disconnect_delay_s,
                 discharge_time_s: c.discharge_time_s,
                 averaging_s: c.averaging_s,
+                export_mode: c.export_mode.name(),
                 measurement: match c.measurement {
                     Measurement::ThreePhase => "three-phase".to_string(),
                     Measurement::SinglePhase(p) => {

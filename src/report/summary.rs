@@ -7,7 +7,7 @@
 
 use crate::analysis::findings::{billed_goal, cause_words};
 use crate::bank::{FaultKind, StepPhase};
-use crate::controller::Measurement;
+use crate::controller::{ExportMode, Measurement};
 use crate::metrics::OvercorrectionCause;
 use crate::pf::Quadrant;
 use crate::report::{
@@ -281,7 +281,7 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
         "Controller",
         &format!(
             "target {}; dead band ±{} kvar; switching delay {} (disconnect {}); discharge time \
-             {}; ordering {}; measurement {}; averaging {}",
+             {}; ordering {}; measurement {}; averaging {}; while exporting: {}",
             c.target,
             num(c.dead_band_kvar, 1),
             duration(c.connect_delay_s),
@@ -293,6 +293,11 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
                 duration(c.averaging_s)
             } else {
                 "none".to_string()
+            },
+            match c.export_mode {
+                ExportMode::Absolute => "corrects toward the target on |P|",
+                ExportMode::Hold => "holds the bank",
+                ExportMode::Open => "opens the steps",
             }
         ),
     );
@@ -350,14 +355,15 @@ fn pf_energy(ctx: &ReportContext<'_>, t: &mut String) {
             p.target
         ),
     );
-    if p.kwh_import > 0.0 {
+    if let (Some(ind), Some(cap)) = (p.tan_phi, p.tan_phi_capacitive) {
         field(
             t,
             "tan φ",
             &format!(
-                "{} inductive, {} capacitive (kvarh per kWh imported)",
-                num(p.kvarh_inductive / p.kwh_import, 3),
-                num(p.kvarh_capacitive / p.kwh_import, 3)
+                "{} inductive, {} capacitive (kvarh per kWh imported); capacitive PF {} lead",
+                num(ind, 3),
+                num(cap, 3),
+                num(p.capacitive_pf, 2)
             ),
         );
     }

@@ -1,0 +1,152 @@
+//! Validation of the `[[steps]]` tables: output, phase, detuning, contactor life,
+//! capacitor rating, repetition and fault injection.
+//!
+//! Steps are numbered from 1 in the order the tables expand (a table with `count = 3`
+//! makes three consecutive numbers). Errors name a table the way a user counts it, by its
+//! position from 1 among the `[[steps]]` tables, and say which step numbers it makes:
+//! `[[steps]] table 2 (steps 3 to 5).kvar`.
+
+use super::check::{phase_index, range, range_open};
+use super::schema::{FaultSection, StepSection};
+use crate::bank::{Fault, FaultKind, StepPhase, StepSpec, MAX_STEPS};
+use crate::error::FieldError;
+
+/// How errors name table `table` (from 1) making steps `first` to `first + count − 1`.
+fn table_label(table: usize, first: usize, count: u32) -> String {
+    if count == 1 {
+        format!("[[steps]] table {table} (step {first})")
+    } else {
+        format!(
+            "[[steps]] table {table} (steps {first} to {})",
+            first + count as usize - 1
+        )
+    }
+}
+
+/// The steps these tables describe, in number order, for a bus of nominal voltage `u_n`.
+pub(super) fn steps(tables: &[StepSection], u_n: f64) -> Result<Vec<StepSpec>, FieldError> {
+    let mut steps = Vec::new();
+    for (i, st) in tables.iter().enumerate() {
+        let first = steps.len() + 1;
+        let count = st.count.unwrap_or(1);
+        if count == 0 || count as usize > MAX_STEPS {
+            return Err(FieldError::new(
+                format!("[[steps]] table {}.count", i + 1),
+                format!(
+                    "{count} is outside the allowed range 1 to {MAX_STEPS} (steps made by this \
+                     table, numbered from {first})"
+                ),
+            ));
+        }
+        let label = table_label(i + 1, first, count);
+        let key = |k: &str| format!("{label}.{k}");
+        let spec = step(st, u_n, &key)?;
+        for _ in 0..count {
+            steps.push(spec.clone());
+        }
+    }
+    if steps.is_empty() {
+        return Err(FieldError::new(
+            "steps",
+            "the bank has no steps; add at least one `[[steps]]` entry with `kvar`",
+        ));
+    }
+    if steps.len() > MAX_STEPS {
+        return Err(FieldError::new(
+            "steps",
+            format!("{} steps; at most {MAX_STEPS} are supported", steps.len()),
+        ));
+    }
+    Ok(steps)
+}
+
+/// One table's step; `key` turns a field name into the key errors show.
+fn step(st: &StepSection, u_n: f64, key: &dyn Fn(&str) -> String) -> Result<StepSpec, FieldError> {
+    let kvar = range_open(&key("kvar"), st.kvar, 0.0, 100_000.0, "kvar")?;
+    let phase = match st.phase.as_deref().map(str::trim) {
+        None | Some("abc") | Some("ABC") | Some("3") => StepPhase::Three,
+        Some(p) => StepPhase::Single(phase_index(&key("phase"), p).map_err(|e| {
+            FieldError::new(
+                e.key,
+                format!("{}; or `abc` for a three-phase step", e.message),
+            )
+        })?),
+    };
+    let detuning = match st.detuning_pct {
+        None => None,
+        Some(p) => Some(range_open(&key("detuning_pct"), p, 0.0, 20.0, "%")? / 100.0),
+    };
+    let rated_operations = range_open(
+        &key("rated_operations"),
+        st.rated_operations.unwrap_or(100_000.0),
+        0.0,
+        1e9,
+        "operations",
+    )?;
+    let fault = st.fault.as_ref().map(|f| fault(f, key)).transpose()?;
+    let u_conn = match phase {
+        StepPhase::Three => u_n,
+        StepPhase::Single(_) => u_n / 3f64.sqrt(),
+    };
+    let capacitor_rated_voltage_v = st
+        .capacitor_rated_voltage_v
+        .map(|v| {
+            range(
+                &key("capacitor_rated_voltage_v"),
+                v,
+                (0.8 * u_conn).round(),
+                (3.0 * u_conn).round(),
+                "V",
+            )
+        })
+        .transpose()?;
+    Ok(StepSpec {
+        kvar,
+        phase,
+        fixed: st.fixed.unwrap_or(false),
+        detuning,
+        rated_operations,
+        capacitor_rated_voltage_v,
+        fault,
+    })
+}
+
+/// A step's injected fault.
+fn fault(fs: &FaultSection, key: &dyn Fn(&str) -> String) -> Result<Fault, FieldError> {
+    let from = match (fs.from_s, fs.from_h) {
+        (Some(_), Some(_)) => {
+            return Err(FieldError::new(
+                key("fault"),
+                "give `from_s` or `from_h`, not both",
+            ))
+        }
+        (Some(x), None) => range(&key("fault.from_s"), x, 0.0, 1e10, "s")?,
+        (None, Some(h)) => range(&key("fault.from_h"), h, 0.0, 1e7, "h")? * 3600.0,
+        (None, None) => 0.0,
+    };
+    let kind = match fs.kind.as_str() {
+        "open" => FaultKind::Open,
+        "capacitance-loss" => {
+            let x = fs.fraction.ok_or_else(|| {
+                FieldError::new(
+                    key("fault.fraction"),
+                    "a `capacitance-loss` fault needs `fraction` (more than 0, less than 1)",
+                )
+            })?;
+            if !(x > 0.0 && x < 1.0) {
+                return Err(FieldError::new(
+                    key("fault.fraction"),
+                    format!("{x} is outside the allowed range: more than 0 and less than 1"),
+                ));
+            }
+            FaultKind::CapacitanceLoss(x)
+        }
+        other => {
+            return Err(FieldError::new(
+                key("fault.kind"),
+                format!("`{other}` is not a fault kind; write `open` or `capacitance-loss`"),
+            ))
+        }
+    };
+    Ok(Fault { kind, from_s: from })
+}
