@@ -165,6 +165,27 @@ pub enum StepPhase {
     Single(usize),
 }
 
+impl StepPhase {
+    /// The phases the step is connected to, as scenarios and reports write them: `abc` for
+    /// a three-phase step, else `a`, `b` or `c`.
+    pub fn label(self) -> &'static str {
+        match self {
+            StepPhase::Three => "abc",
+            StepPhase::Single(p) => crate::profile::PHASES[p.min(2)],
+        }
+    }
+
+    /// Voltage across a step connected this way on a bus at `u_bus_v` line to line: the
+    /// line voltage for a three-phase (delta) step, the phase voltage for a single-phase
+    /// step connected line to neutral, V.
+    pub fn connection_voltage_v(self, u_bus_v: f64) -> f64 {
+        match self {
+            StepPhase::Three => u_bus_v,
+            StepPhase::Single(_) => u_bus_v / 3f64.sqrt(),
+        }
+    }
+}
+
 /// What an injected fault does to a step.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum FaultKind {
@@ -251,6 +272,13 @@ impl StepSpec {
                 b
             }
         }
+    }
+
+    /// Voltage across the step's connection on a bus at `u_bus_v` line to line: the line
+    /// voltage for a three-phase (delta) step, the phase voltage for a single-phase step
+    /// connected line to neutral, V.
+    pub fn connection_voltage_v(&self, u_bus_v: f64) -> f64 {
+        self.phase.connection_voltage_v(u_bus_v)
     }
 
     /// Fraction of nominal capacitance delivering at run time `elapsed_s`.

@@ -743,10 +743,7 @@ fn capacitor_ratings(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let u_n = ctx.scenario().supply.nominal_voltage_v;
     for (i, s) in ctx.scenario().steps.iter().enumerate() {
         let Some(p) = s.detuning else { continue };
-        let u_conn = match s.phase {
-            crate::bank::StepPhase::Three => u_n,
-            crate::bank::StepPhase::Single(_) => u_n / 3f64.sqrt(),
-        };
+        let u_conn = s.connection_voltage_v(u_n);
         let u_c = u_conn / (1.0 - p);
         let rated = hm.rated_voltage_v(i);
         if rated >= u_c * (1.0 - 1e-9) {

@@ -149,12 +149,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
         .map(|(i, s)| StepJson {
             step: i + 1,
             kvar: s.kvar,
-            phase: match s.phase {
-                StepPhase::Three => "abc",
-                StepPhase::Single(0) => "a",
-                StepPhase::Single(1) => "b",
-                StepPhase::Single(_) => "c",
-            },
+            phase: s.phase.label(),
             fixed: s.fixed,
             detuning_pct: s.detuning.map(|p| p * 100.0),
             rated_operations: s.rated_operations,
@@ -206,7 +201,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
                 measurement: match c.measurement {
                     Measurement::ThreePhase => "three-phase".to_string(),
                     Measurement::SinglePhase(p) => {
-                        format!("single-phase {}", ["a", "b", "c"][p.min(2)])
+                        format!("single-phase {}", crate::profile::PHASES[p.min(2)])
                     }
                 },
             },

@@ -238,12 +238,7 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
         "step", "kvar", "phase", "kind", "detuning", "contactor life", "fault"
     ));
     for (i, st) in sc.steps.iter().enumerate() {
-        let phase = match st.phase {
-            StepPhase::Three => "abc",
-            StepPhase::Single(0) => "a",
-            StepPhase::Single(1) => "b",
-            StepPhase::Single(_) => "c",
-        };
+        let phase = st.phase.label();
         let detuning = st
             .detuning
             .map(|p| format!("{} %", num(p * 100.0, 2)))
@@ -273,7 +268,7 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
     let measurement = match c.measurement {
         Measurement::ThreePhase => "three-phase".to_string(),
         Measurement::SinglePhase(p) => {
-            format!("single-phase on phase {}", ["a", "b", "c"][p.min(2)])
+            format!("single-phase on phase {}", crate::profile::PHASES[p.min(2)])
         }
     };
     field(

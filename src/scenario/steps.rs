@@ -84,10 +84,7 @@ fn step(st: &StepSection, u_n: f64, key: &dyn Fn(&str) -> String) -> Result<Step
         "operations",
     )?;
     let fault = st.fault.as_ref().map(|f| fault(f, key)).transpose()?;
-    let u_conn = match phase {
-        StepPhase::Three => u_n,
-        StepPhase::Single(_) => u_n / 3f64.sqrt(),
-    };
+    let u_conn = phase.connection_voltage_v(u_n);
     let capacitor_rated_voltage_v = st
         .capacitor_rated_voltage_v
         .map(|v| {
