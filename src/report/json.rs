@@ -10,7 +10,6 @@
 //! absolute paths (file names only), and only structs, vectors and ordered maps.
 
 use crate::analysis::{Advice, Finding, ResonanceReport};
-use crate::bank::StepPhase;
 use crate::controller::Measurement;
 use crate::metrics::{
     OvercorrectionMetrics, PfMetrics, RunInfo, StepWear, SwitchingMetrics, VoltageMetrics,

@@ -6,7 +6,7 @@
 //! resonance section repeats it when a state resonates near a harmonic of the load.
 
 use crate::analysis::findings::{billed_goal, cause_words};
-use crate::bank::{FaultKind, StepPhase};
+use crate::bank::FaultKind;
 use crate::controller::{ExportMode, Measurement};
 use crate::metrics::OvercorrectionCause;
 use crate::pf::Quadrant;
