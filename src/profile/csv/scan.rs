@@ -21,6 +21,7 @@ use super::summary::{DefectSummary, Tally};
 use super::tolerance::spacing_key;
 use crate::error::ProfileError;
 use crate::profile::{DefectPolicy, LoadSample};
+use crate::scenario::hex_lower;
 use crate::timebase::TimeKind;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
@@ -77,6 +78,10 @@ pub struct CsvScan {
     pub gap_time_s: f64,
     /// What was wrong and what was done, per kind, for the reports.
     pub summary: DefectSummary,
+    /// SHA-256 of the whole source as this scan read it (every byte, a byte-order mark
+    /// included), lowercase hex: 64 characters. Computed during the scan, so the file is
+    /// not read again to hash it.
+    pub sha256: String,
     pub(super) plan: Plan,
 }
 
@@ -174,8 +179,8 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
     }
     let policies = opts.policies();
     let stamp = FileStamp::of(source)?;
-    let mut rdr =
-        RecordReader::open(source, opts.delimiter as u8).map_err(|e| read_error(&name, e))?;
+    let mut rdr = RecordReader::open_hashing(source, opts.delimiter as u8)
+        .map_err(|e| read_error(&name, e))?;
     let (columns, matches) = read_header(&mut rdr, &name, opts)?;
     let header_line = rdr.record_line;
     let mut rules = Rules::new(
@@ -275,6 +280,10 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
     } = line_of_time;
     n.used = used;
     spacings.flush();
+    let sha256 = match rdr.finish_sha256().map_err(|e| read_error(&name, e))? {
+        Some(digest) => hex_lower(&digest),
+        None => String::new(),
+    };
 
     let rows_read = n.used + n.skipped;
     let first_defect = || {
@@ -402,6 +411,7 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
         defect_counts: counts,
         gap_time_s: gap_time_us / 1e6,
         summary,
+        sha256,
         plan,
     })
 }
