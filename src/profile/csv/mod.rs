@@ -16,8 +16,8 @@
 //!   each kind's policy does with it: stop, skip, hold or interpolate;
 //! - `scan.rs`: pass 1, [`scan`]: validates the whole source and collects its statistics
 //!   (time kind, row counts, median spacing, coverage end, defects with line numbers,
-//!   gaps, the [`DefectSummary`]) in [`CsvScan`], with memory that stays flat however
-//!   long the file; `spacings.rs` keeps the spacing histogram
+//!   gaps, the [`DefectSummary`], the SHA-256 of the bytes) in [`CsvScan`], with memory
+//!   that stays flat however long the file; `spacings.rs` keeps the spacing histogram
 //!   and `gaps.rs` finds the gaps once the median is known;
 //! - `replay.rs`: reading the used rows again exactly as the scan did;
 //! - `stream.rs`: pass 2, [`CsvScan::stream`]: reads the source again and yields samples
@@ -35,6 +35,17 @@
 //! spacing, so N evenly spaced rows cover N spacings. Across a gap the previous row holds
 //! (policy `hold`) or the load is interpolated linearly between the rows on either side
 //! (policy `interpolate`).
+//!
+//! Times: elapsed seconds, or ISO 8601 date-times. A date-time with a UTC offset
+//! (`2026-03-02T08:00:00+01:00`) is read as the exact instant, so the time line is real
+//! elapsed seconds even across a daylight-saving change; the calendar (weekdays, hours
+//! of the day, month starts) is taken in the profile's own local time, using the offset
+//! written on the file's first date-time ([`CsvScan::utc_offset_s`],
+//! [`CsvScan::calendar`]). Where the offset changes within the file (a daylight-saving
+//! change), the calendar keeps the first offset for the whole profile, while the time line
+//! stays exact (see [`crate::timebase`]). A date-time without an offset is naive local
+//! time, taken as it stands. Times quoted in messages are shown in UTC when the file
+//! gives offsets.
 //!
 //! Line numbers are 1-based physical lines of the file (the header is line 1), counted
 //! by line feeds, so they stay right across blank lines, CRLF line ends and quoted

@@ -12,7 +12,7 @@ use super::source::RecordReader;
 use super::text::{fmt_secs, quoted};
 use super::tolerance::time_tolerance;
 use crate::profile::{DefectPolicy, LoadSample};
-use crate::timebase::{parse_iso8601, TimeKind};
+use crate::timebase::{parse_iso8601, parse_iso8601_offset, TimeKind};
 use chrono::{Datelike, Timelike};
 
 /// Largest elapsed time accepted, s (about 3 000 years); larger values are refused so
@@ -33,6 +33,17 @@ fn iso(text: &[u8], decimal: u8) -> Option<f64> {
         Some(t) => Some(t),
         // ISO 8601 allows a decimal comma in the seconds.
         None if decimal == b',' && s.contains(',') => parse_iso8601(&s.replace(',', ".")),
+        None => None,
+    }
+}
+
+/// [`iso`] with the UTC offset written on the time, in seconds east of UTC (`None` for a
+/// naive time).
+fn iso_offset(text: &[u8], decimal: u8) -> Option<(f64, Option<i32>)> {
+    let s = std::str::from_utf8(text).ok()?;
+    match parse_iso8601_offset(s) {
+        Some(t) => Some(t),
+        None if decimal == b',' && s.contains(',') => parse_iso8601_offset(&s.replace(',', ".")),
         None => None,
     }
 }
@@ -189,6 +200,9 @@ pub(super) struct Rules {
     pub(super) kind: Option<TimeKind>,
     /// Line of the row that set the time kind.
     pub(super) kind_line: u64,
+    /// UTC offset written on the time that set the time kind, s east of UTC (`None` for
+    /// elapsed times and naive date-times; set only while the kind is being decided).
+    pub(super) utc_offset_s: Option<i32>,
     /// Policy of each defect kind, by [`DefectKind::index`].
     policies: [DefectPolicy; DefectKind::COUNT],
     decimal: u8,
@@ -230,6 +244,7 @@ impl Rules {
             cols,
             kind,
             kind_line,
+            utc_offset_s: None,
             policies,
             decimal: decimal as u8,
             delimiter,
@@ -438,9 +453,10 @@ impl Rules {
                     self.kind = Some(TimeKind::Elapsed);
                     self.kind_line = line;
                     elapsed(t)
-                } else if let Some(t) = iso(text, self.decimal) {
+                } else if let Some((t, offset)) = iso_offset(text, self.decimal) {
                     self.kind = Some(TimeKind::Absolute);
                     self.kind_line = line;
+                    self.utc_offset_s = offset;
                     Ok(t)
                 } else {
                     Err(Problem::Malformed(0))

@@ -22,7 +22,8 @@ use super::tolerance::spacing_key;
 use crate::error::ProfileError;
 use crate::profile::{DefectPolicy, LoadSample};
 use crate::scenario::hex_lower;
-use crate::timebase::TimeKind;
+use crate::timebase::{Calendar, TimeKind};
+use chrono::NaiveDateTime;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
@@ -37,6 +38,12 @@ pub struct CsvScan {
     pub options: CsvOptions,
     /// What the time column holds, decided by the first data row with a readable time.
     pub time_kind: TimeKind,
+    /// For ISO 8601 times, the UTC offset written on the file's first date-time (the row
+    /// that decided the time kind), s east of UTC: `Some(3600)` for `+01:00`, `Some(0)`
+    /// for `Z`. `None` for elapsed times and for date-times written without an offset.
+    /// The calendar of the run follows this offset ([`CsvScan::calendar`]); the times
+    /// themselves are exact instants whatever the offsets.
+    pub utc_offset_s: Option<i32>,
     /// Data rows read (not counting the header or blank lines): `rows_used + rows_skipped`.
     pub rows_read: u64,
     /// Rows that make up the profile, held and interpolated ones included.
@@ -99,6 +106,17 @@ impl CsvScan {
     /// The source the profile is read from.
     pub fn source(&self) -> &CsvSource {
         &self.plan.source
+    }
+
+    /// The calendar of a run over this profile: for elapsed times, elapsed 0 falls on
+    /// `start` (the scenario's `run.start`); for ISO 8601 times, `start` is not used and
+    /// weekdays, hours and month starts are those of the profile's local time, at the
+    /// offset of its first date-time ([`CsvScan::utc_offset_s`]; naive times as written).
+    pub fn calendar(&self, start: NaiveDateTime) -> Calendar {
+        match self.time_kind {
+            TimeKind::Elapsed => Calendar::elapsed_from(start),
+            TimeKind::Absolute => Calendar::absolute_local(self.utc_offset_s.unwrap_or(0)),
+        }
     }
 
     /// Spacings longer than this (µs) are interpolated across, under the gap policy
@@ -393,6 +411,10 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
         path: name,
         options: *opts,
         time_kind,
+        utc_offset_s: match time_kind {
+            TimeKind::Absolute => rules.utc_offset_s,
+            TimeKind::Elapsed => None,
+        },
         rows_read,
         rows_used: n.used,
         rows_held: n.held,
