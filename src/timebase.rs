@@ -2,11 +2,26 @@
 //!
 //! A run's time values are seconds in the profile's own base: elapsed seconds for a
 //! synthetic profile or a CSV with an elapsed `time` column, or seconds since the Unix
-//! epoch (UTC) for a CSV with ISO 8601 timestamps. [`Calendar`] adds the offset that turns
-//! either into epoch seconds, so weekdays, hours of the day and calendar months can be
-//! found with integer arithmetic inside the per-sample loop.
+//! epoch for a CSV with ISO 8601 timestamps. [`Calendar`] adds the offset that turns
+//! either into "local epoch seconds": seconds since 1970-01-01T00:00:00 on the site's
+//! wall clock, so that weekdays, hours of the day and calendar months can be found with
+//! integer arithmetic inside the per-sample loop, in the site's local time.
+//!
+//! ISO 8601 timestamps and local time:
+//!
+//! - A timestamp with a UTC offset (`2026-03-02T08:00:00+01:00`, or `Z`) is read as the
+//!   exact instant, so run time is real elapsed seconds, monotonic even where the offset
+//!   changes (a daylight-saving change). The calendar uses the offset written on the
+//!   profile's first timestamp for the whole run ([`Calendar::absolute_local`]): weekdays,
+//!   seconds of the day and month starts are those of the profile's own local time. Where
+//!   the offset changes within the file, the calendar keeps the first offset, so after
+//!   the change local hours read one hour off (e.g. 08:00+02:00 in summer then shows as
+//!   07:00 on a profile that starts in winter at +01:00); the time axis, and so every
+//!   duration, stays exact.
+//! - A timestamp without an offset is naive local time and is taken as it stands (as if
+//!   it were UTC, with offset 0), with no daylight-saving correction.
 
-use chrono::{DateTime, Datelike, NaiveDate, NaiveDateTime, TimeZone, Utc};
+use chrono::{DateTime, Datelike, FixedOffset, NaiveDate, NaiveDateTime, TimeZone, Utc};
 
 /// Seconds in a day.
 pub const DAY_S: f64 = 86_400.0;
@@ -27,7 +42,8 @@ pub enum TimeKind {
 /// Maps run time onto the calendar.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Calendar {
-    /// Added to a run time to get Unix epoch seconds (UTC or naive local time).
+    /// Added to a run time to get local epoch seconds (seconds since
+    /// 1970-01-01T00:00:00 on the wall clock the calendar follows), s.
     pub offset_s: f64,
     /// What the run's time values are.
     pub kind: TimeKind,
@@ -42,15 +58,23 @@ impl Calendar {
         }
     }
 
-    /// Calendar for absolute (epoch) time.
+    /// Calendar for absolute (epoch) time read from naive timestamps or timestamps in
+    /// UTC: the calendar is that of the times as written.
     pub fn absolute() -> Self {
+        Calendar::absolute_local(0)
+    }
+
+    /// Calendar for absolute (epoch) time in a local time `utc_offset_s` seconds east of
+    /// UTC (+3600 for `+01:00`, −18 000 for `-05:00`): weekdays, seconds of the day and
+    /// month starts are those of that local time, while run times stay exact instants.
+    pub fn absolute_local(utc_offset_s: i32) -> Self {
         Calendar {
-            offset_s: 0.0,
+            offset_s: f64::from(utc_offset_s),
             kind: TimeKind::Absolute,
         }
     }
 
-    /// Epoch seconds of a run time.
+    /// Local epoch seconds of a run time.
     #[inline]
     pub fn epoch(&self, t_s: f64) -> f64 {
         t_s + self.offset_s
@@ -70,7 +94,7 @@ impl Calendar {
         self.epoch(t_s).rem_euclid(DAY_S)
     }
 
-    /// Calendar date and time of a run time (not for the per-sample loop).
+    /// Local calendar date and time of a run time (not for the per-sample loop).
     pub fn datetime(&self, t_s: f64) -> NaiveDateTime {
         let e = self.epoch(t_s);
         let secs = e.floor() as i64;
@@ -127,9 +151,22 @@ pub const WEEKDAYS: [&str; 7] = [
 /// a space instead of `T`, fractional seconds, and a `Z` or `±hh:mm` offset. A time with no
 /// offset is taken as it stands (naive local time, no daylight-saving correction).
 pub fn parse_iso8601(text: &str) -> Option<f64> {
+    parse_iso8601_offset(text).map(|(t, _)| t)
+}
+
+/// Parses an ISO 8601 date-time like [`parse_iso8601`], and also returns its UTC offset
+/// in seconds east of UTC (`Some(3600)` for `+01:00`, `Some(0)` for `Z`), or `None` for a
+/// time written without an offset.
+pub fn parse_iso8601_offset(text: &str) -> Option<(f64, Option<i32>)> {
     let s = text.trim();
+    let fixed = |d: DateTime<FixedOffset>| {
+        (
+            d.timestamp() as f64 + f64::from(d.timestamp_subsec_nanos()) * 1e-9,
+            Some(d.offset().local_minus_utc()),
+        )
+    };
     if let Ok(d) = DateTime::parse_from_rfc3339(s) {
-        return Some(d.timestamp() as f64 + f64::from(d.timestamp_subsec_nanos()) * 1e-9);
+        return Some(fixed(d));
     }
     for fmt in [
         "%Y-%m-%dT%H:%M:%S%.f",
@@ -139,7 +176,10 @@ pub fn parse_iso8601(text: &str) -> Option<f64> {
     ] {
         if let Ok(d) = NaiveDateTime::parse_from_str(s, fmt) {
             let u = Utc.from_utc_datetime(&d);
-            return Some(u.timestamp() as f64 + f64::from(u.timestamp_subsec_nanos()) * 1e-9);
+            return Some((
+                u.timestamp() as f64 + f64::from(u.timestamp_subsec_nanos()) * 1e-9,
+                None,
+            ));
         }
     }
     for fmt in [
@@ -148,7 +188,7 @@ pub fn parse_iso8601(text: &str) -> Option<f64> {
         "%Y-%m-%d %H:%M:%S%#z",
     ] {
         if let Ok(d) = DateTime::parse_from_str(s, fmt) {
-            return Some(d.timestamp() as f64 + f64::from(d.timestamp_subsec_nanos()) * 1e-9);
+            return Some(fixed(d));
         }
     }
     None
@@ -193,5 +233,28 @@ mod tests {
         assert_eq!(parse_iso8601("2026-03-02T09:00:00+01:00").unwrap(), a);
         assert_eq!(parse_iso8601("2026-03-02T08:00:00.5").unwrap(), a + 0.5);
         assert!(parse_iso8601("yesterday").is_none());
+    }
+
+    #[test]
+    fn offsets_are_returned_east_of_utc() {
+        let (t, off) = parse_iso8601_offset("2026-03-02T09:00:00+01:00").unwrap();
+        assert_eq!(
+            (t, off),
+            (parse_iso8601("2026-03-02T08:00:00Z").unwrap(), Some(3600))
+        );
+        assert_eq!(
+            parse_iso8601_offset("2026-03-02 03:00:00-0500").unwrap().1,
+            Some(-18_000)
+        );
+        assert_eq!(
+            parse_iso8601_offset("2026-03-02T08:00:00Z").unwrap().1,
+            Some(0)
+        );
+        assert_eq!(parse_iso8601_offset("2026-03-02T08:00:00").unwrap().1, None);
+        // 00:30 on Monday 2026-03-02 at +01:00 is 23:30 on Sunday in UTC.
+        let t = parse_iso8601("2026-03-02T00:30:00+01:00").unwrap();
+        assert_eq!(Calendar::absolute_local(3600).weekday(t), 0);
+        assert_eq!(Calendar::absolute_local(3600).second_of_day(t), 1800.0);
+        assert_eq!(Calendar::absolute().weekday(t), 6);
     }
 }

@@ -1,4 +1,4 @@
-//! Integration tests of the load-profile CSV reader against DOMAIN.md section 7:
+//! Integration tests of the load-profile CSV reader against the project's profile rules:
 //! sample-and-hold, coverage, header mapping, time kinds and every defect kind with its
 //! line number, under both defect policies.
 
@@ -90,8 +90,8 @@ fn file_error(r: Result<CsvScan, ProfileError>) -> String {
 }
 
 // ---------------------------------------------------------------------------------------
-// Sample-and-hold and coverage (DOMAIN.md 7: "interval k takes the last sample with
-// time ≤ t_k, and the last sample holds for the profile's median spacing").
+// Sample-and-hold and coverage: interval k takes the last sample with time ≤ t_k, and
+// the last sample holds for the profile's median spacing.
 
 #[test]
 fn finer_grid_holds_each_row() {

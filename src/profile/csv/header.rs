@@ -10,11 +10,20 @@
 //! (`p_a_w`, `q_b [var]`, `time [min]`) is the only one for its quantity. A wrong-unit
 //! column beside a right one is an extra column and is ignored.
 
+use super::errors::{file_error, read_error};
+use super::number::parse_number;
+use super::options::{delimiter_name, CsvOptions};
 use super::source::RecordReader;
-use super::{file_error, quoted_str, CsvOptions, COLUMNS};
+use super::text::quoted_str;
 use crate::error::ProfileError;
 use serde::Serialize;
 use std::path::Path;
+
+/// The required columns, in the order used internally: the time, then P and Q of
+/// phases a, b and c.
+pub const COLUMNS: [&str; 7] = [
+    "time", "p_a_kw", "q_a_kvar", "p_b_kw", "q_b_kvar", "p_c_kw", "q_c_kvar",
+];
 
 /// Where one required column was found in the header.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
@@ -197,17 +206,6 @@ fn wanted_unit(quantity: usize) -> &'static str {
     }
 }
 
-/// How a delimiter is written in a scenario, for messages.
-pub(super) fn delimiter_name(d: char) -> &'static str {
-    match d {
-        ',' => "\",\"",
-        ';' => "\";\"",
-        '\t' => "\"\\t\"",
-        '|' => "\"|\"",
-        _ => "another character",
-    }
-}
-
 /// Reads the header and finds the required columns.
 pub(super) fn read_header(
     rdr: &mut RecordReader,
@@ -215,7 +213,7 @@ pub(super) fn read_header(
     opts: &CsvOptions,
 ) -> Result<(Columns, Vec<ColumnMatch>), ProfileError> {
     let required = COLUMNS.join(", ");
-    if !rdr.read().map_err(|e| super::read_error(name, e))? {
+    if !rdr.read().map_err(|e| read_error(name, e))? {
         return Err(file_error(
             name,
             format!("the file is empty; line 1 must be a header row naming the columns {required}"),
@@ -378,7 +376,7 @@ fn delimiter_hint(rdr: &mut RecordReader, opts: &CsvOptions, cells: &[String]) -
             }
         }
     }
-    if super::rules::parse_number(first.trim().as_bytes(), opts.decimal as u8).is_some() {
+    if parse_number(first.trim().as_bytes(), opts.decimal as u8).is_some() {
         return "; the first line looks like data: add a header row".to_string();
     }
     String::new()

@@ -4,11 +4,15 @@
 //! values), and the message for each defect, including the hint for patterns that look
 //! like a daylight-saving change in naive local times.
 
-use super::header::{delimiter_name, Columns};
+use super::defect::DefectKind;
+use super::header::{Columns, COLUMNS};
+use super::number::{parse_f64, parse_number};
+use super::options::delimiter_name;
 use super::source::RecordReader;
-use super::{fmt_secs, quoted, DefectKind, COLUMNS};
+use super::text::{fmt_secs, quoted};
+use super::tolerance::time_tolerance;
 use crate::profile::{DefectPolicy, LoadSample};
-use crate::timebase::{parse_iso8601, TimeKind};
+use crate::timebase::{parse_iso8601, parse_iso8601_offset, TimeKind};
 use chrono::{Datelike, Timelike};
 
 /// Largest elapsed time accepted, s (about 3 000 years); larger values are refused so
@@ -22,40 +26,6 @@ pub const MAX_POWER: f64 = 1e9;
 /// Tolerance when matching a jump of one hour, s.
 const DST_TOLERANCE_S: f64 = 1e-3;
 
-/// Longest number copied for decimal-comma conversion, bytes; longer ones are malformed.
-const MAX_NUMBER_BYTES: usize = 64;
-
-/// Parses a number written with a point as the decimal mark.
-#[inline]
-pub(super) fn parse_f64(bytes: &[u8]) -> Option<f64> {
-    std::str::from_utf8(bytes).ok()?.parse::<f64>().ok()
-}
-
-/// Parses a number with the given decimal mark (`b'.'` or `b','`). With a decimal comma
-/// a point is refused (it would be a thousands separator, or a mix-up).
-#[inline]
-pub(super) fn parse_number(bytes: &[u8], decimal: u8) -> Option<f64> {
-    if decimal == b'.' {
-        parse_f64(bytes)
-    } else {
-        parse_with_mark(bytes, decimal)
-    }
-}
-
-/// [`parse_number`] for a decimal mark other than the point, kept out of line so that
-/// the common path stays small.
-#[inline(never)]
-fn parse_with_mark(bytes: &[u8], decimal: u8) -> Option<f64> {
-    if bytes.len() > MAX_NUMBER_BYTES || bytes.contains(&b'.') {
-        return None;
-    }
-    let mut buf = [0u8; MAX_NUMBER_BYTES];
-    for (d, &b) in buf.iter_mut().zip(bytes) {
-        *d = if b == decimal { b'.' } else { b };
-    }
-    parse_f64(&buf[..bytes.len()])
-}
-
 #[inline]
 fn iso(text: &[u8], decimal: u8) -> Option<f64> {
     let s = std::str::from_utf8(text).ok()?;
@@ -63,6 +33,17 @@ fn iso(text: &[u8], decimal: u8) -> Option<f64> {
         Some(t) => Some(t),
         // ISO 8601 allows a decimal comma in the seconds.
         None if decimal == b',' && s.contains(',') => parse_iso8601(&s.replace(',', ".")),
+        None => None,
+    }
+}
+
+/// [`iso`] with the UTC offset written on the time, in seconds east of UTC (`None` for a
+/// naive time).
+fn iso_offset(text: &[u8], decimal: u8) -> Option<(f64, Option<i32>)> {
+    let s = std::str::from_utf8(text).ok()?;
+    match parse_iso8601_offset(s) {
+        Some(t) => Some(t),
+        None if decimal == b',' && s.contains(',') => parse_iso8601_offset(&s.replace(',', ".")),
         None => None,
     }
 }
@@ -219,6 +200,9 @@ pub(super) struct Rules {
     pub(super) kind: Option<TimeKind>,
     /// Line of the row that set the time kind.
     pub(super) kind_line: u64,
+    /// UTC offset written on the time that set the time kind, s east of UTC (`None` for
+    /// elapsed times and naive date-times; set only while the kind is being decided).
+    pub(super) utc_offset_s: Option<i32>,
     /// Policy of each defect kind, by [`DefectKind::index`].
     policies: [DefectPolicy; DefectKind::COUNT],
     decimal: u8,
@@ -260,6 +244,7 @@ impl Rules {
             cols,
             kind,
             kind_line,
+            utc_offset_s: None,
             policies,
             decimal: decimal as u8,
             delimiter,
@@ -322,7 +307,7 @@ impl Rules {
         };
         if self.has_prev {
             let dt = t - self.prev_t;
-            let tol = super::time_tolerance(t);
+            let tol = time_tolerance(t);
             if dt.abs() <= tol {
                 if short {
                     return reject(Problem::Short, None);
@@ -468,9 +453,10 @@ impl Rules {
                     self.kind = Some(TimeKind::Elapsed);
                     self.kind_line = line;
                     elapsed(t)
-                } else if let Some(t) = iso(text, self.decimal) {
+                } else if let Some((t, offset)) = iso_offset(text, self.decimal) {
                     self.kind = Some(TimeKind::Absolute);
                     self.kind_line = line;
+                    self.utc_offset_s = offset;
                     Ok(t)
                 } else {
                     Err(Problem::Malformed(0))
@@ -724,17 +710,6 @@ impl Rules {
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn numbers_with_either_decimal_mark() {
-        assert_eq!(parse_number(b"1.5", b'.'), Some(1.5));
-        assert_eq!(parse_number(b"1,5", b'.'), None);
-        assert_eq!(parse_number(b"1,5", b','), Some(1.5));
-        assert_eq!(parse_number(b"-0,25e3", b','), Some(-250.0));
-        assert_eq!(parse_number(b"1.234,5", b','), None);
-        assert_eq!(parse_number(&[b'1'; 65], b','), None);
-        assert!(parse_number(b"NaN", b',').is_some_and(f64::is_nan));
-    }
 
     #[test]
     fn offsets_and_plausible_dates() {

@@ -11,6 +11,7 @@
 //! Records are bounded: a record longer than [`MAX_RECORD_BYTES`] or with more than
 //! [`MAX_FIELDS`] fields is an error, so no input can make the buffers grow without limit.
 
+use sha2::{Digest, Sha256};
 use std::cell::RefCell;
 use std::fmt;
 use std::fs::File;
@@ -222,6 +223,9 @@ pub(super) struct RecordReader {
     pub(super) unterminated: bool,
     /// Line feeds inside the current record (in quoted fields), not counting its end.
     pub(super) inner_lf: u64,
+    /// SHA-256 of every byte consumed so far, for a reader opened with
+    /// [`RecordReader::open_hashing`] (dropped when the reader is repositioned).
+    hasher: Option<Sha256>,
 }
 
 impl fmt::Debug for RecordReader {
@@ -299,9 +303,28 @@ impl Drop for RecordReader {
 impl RecordReader {
     /// Opens a source at its start, skipping a UTF-8 byte-order mark.
     pub(super) fn open(src: &CsvSource, delimiter: u8) -> Result<Self, ReadError> {
+        Self::open_with(src, delimiter, None)
+    }
+
+    /// Opens a source at its start like [`RecordReader::open`], and hashes every byte it
+    /// reads (the byte-order mark included), so that one reading gives both the records
+    /// and the SHA-256 of the source ([`RecordReader::finish_sha256`]).
+    pub(super) fn open_hashing(src: &CsvSource, delimiter: u8) -> Result<Self, ReadError> {
+        Self::open_with(src, delimiter, Some(Sha256::new()))
+    }
+
+    fn open_with(
+        src: &CsvSource,
+        delimiter: u8,
+        mut hasher: Option<Sha256>,
+    ) -> Result<Self, ReadError> {
         let mut input = Input::open(src, 0)?;
         let mut offset = 0;
-        if input.fill_buf()?.starts_with(b"\xef\xbb\xbf") {
+        let bom = b"\xef\xbb\xbf";
+        if input.fill_buf()?.starts_with(bom) {
+            if let Some(h) = hasher.as_mut() {
+                h.update(bom);
+            }
             input.consume(3);
             offset = 3;
         }
@@ -317,7 +340,29 @@ impl RecordReader {
             offset,
             unterminated: false,
             inner_lf: 0,
+            hasher,
         })
+    }
+
+    /// The SHA-256 of the whole source, for a reader opened with
+    /// [`RecordReader::open_hashing`]: the bytes read so far and any left unread (which
+    /// this reads to the end), exactly as the source gave them. `None` for a reader that
+    /// does not hash or was repositioned. The reader is at the end of the input afterwards.
+    pub(super) fn finish_sha256(&mut self) -> Result<Option<[u8; 32]>, ReadError> {
+        let Some(mut h) = self.hasher.take() else {
+            return Ok(None);
+        };
+        loop {
+            let buf = self.input.fill_buf()?;
+            if buf.is_empty() {
+                break;
+            }
+            let n = buf.len();
+            h.update(buf);
+            self.input.consume(n);
+            self.offset += n as u64;
+        }
+        Ok(Some(h.finalize().into()))
     }
 
     /// Moves this reader to byte `offset` (a record boundary) on line `line`, as if it
@@ -329,6 +374,8 @@ impl RecordReader {
         line: u64,
     ) -> Result<(), ReadError> {
         self.input.reposition(src, offset)?;
+        // The bytes skipped or read twice would make the hash wrong.
+        self.hasher = None;
         if let Some(core) = self.core.as_mut() {
             core.reset();
             prime(core);
@@ -361,6 +408,9 @@ impl RecordReader {
                 .unwrap_or(buf.len());
             let lf = count_lf(&buf[..skip]);
             let found = skip < buf.len();
+            if let Some(h) = self.hasher.as_mut() {
+                h.update(&buf[..skip]);
+            }
             self.input.consume(skip);
             self.offset += skip as u64;
             self.line += lf;
@@ -380,6 +430,9 @@ impl RecordReader {
             let (res, nin, nout, nend) =
                 core.read_record(input, &mut self.out[n_out..], &mut self.ends[n_end..]);
             let lf = count_lf(&input[..nin]);
+            if let Some(h) = self.hasher.as_mut() {
+                h.update(&input[..nin]);
+            }
             if nin > 0 {
                 last = input[nin - 1];
             }

@@ -12,7 +12,9 @@
 //!   covered by the row it repeats, whose values were kept although they are in doubt;
 //! - a gap affects its spacing minus one median spacing (the part beyond the normal hold).
 
-use super::{ColumnMatch, DefectAction, DefectKind};
+use super::defect::{DefectAction, DefectKind};
+use super::header::ColumnMatch;
+use super::text::fmt_secs;
 use crate::profile::DefectPolicy;
 use serde::Serialize;
 
@@ -99,7 +101,7 @@ impl DefectSummary {
         if self.affected_s > 0.0 {
             head.push_str(&format!(
                 "; {} s of profile time affected ({:.2} % of the profile)",
-                super::fmt_secs(round_ms(self.affected_s)),
+                fmt_secs(round_ms(self.affected_s)),
                 100.0 * self.affected_share
             ));
         }
@@ -130,7 +132,7 @@ impl DefectSummary {
                 k.kind,
                 k.count,
                 if k.count == 1 { "" } else { "s" },
-                super::fmt_secs(round_ms(k.affected_s)),
+                fmt_secs(round_ms(k.affected_s)),
                 done.join(", "),
                 if lines.len() == 1 { "" } else { "s" },
                 lines.join(", "),
