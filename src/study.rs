@@ -50,17 +50,13 @@ impl PreparedProfile {
     pub fn prepare(scenario: &Scenario) -> Result<PreparedProfile, RunError> {
         match &scenario.load {
             LoadSpec::Csv { path, options } => {
+                // One read of the file scans it, hashes it and finds its local offset.
                 let scan = csv::scan(path, options)?;
-                let calendar = match scan.time_kind {
-                    TimeKind::Absolute => Calendar::absolute(),
-                    TimeKind::Elapsed => Calendar::elapsed_from(scenario.start),
-                };
-                let sha256 = file_sha256(path)?;
                 Ok(PreparedProfile {
                     t_first_s: scan.t_first_s,
                     available_s: Some(scan.end_s - scan.t_first_s),
-                    calendar,
-                    sha256: Some(sha256),
+                    calendar: scan.calendar(scenario.start),
+                    sha256: Some(scan.sha256.clone()),
                     csv: Some(Arc::new(scan)),
                 })
             }
@@ -73,27 +69,6 @@ impl PreparedProfile {
             }),
         }
     }
-}
-
-/// Hashes a file by streaming it.
-fn file_sha256(path: &std::path::Path) -> Result<String, ProfileError> {
-    use sha2::{Digest, Sha256};
-    use std::io::Read;
-    let io = |source| ProfileError::Io {
-        file: path.to_path_buf(),
-        source,
-    };
-    let mut f = std::fs::File::open(path).map_err(io)?;
-    let mut h = Sha256::new();
-    let mut buf = vec![0u8; 1 << 16];
-    loop {
-        let n = f.read(&mut buf).map_err(io)?;
-        if n == 0 {
-            break;
-        }
-        h.update(&buf[..n]);
-    }
-    Ok(crate::scenario::hex_lower(&h.finalize()))
 }
 
 /// The time base of one run, derived from the settings and the profile.

@@ -84,3 +84,34 @@ fn run_longer_than_profile_is_an_error() {
         .to_string();
     assert!(e.contains("p.csv") && e.contains("covers only 20 s"), "{e}");
 }
+
+// A profile written in local time with its offset keeps its own calendar: rows at
+// 2026-03-01T23:00+01:00 are Sunday 23:00 locally (1 March 2026 is a Sunday), though the
+// same instant is 22:00 UTC; the row an hour later, 00:00+01:00 on 2 March, is Monday,
+// while in UTC it would still be Sunday 23:00. The study's calendar, which bills months and
+// counts weekdays, must read the local day.
+#[test]
+fn offset_timestamps_put_the_run_on_the_local_calendar() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = format!(
+        "{HEADER}2026-03-01T23:00:00+01:00,10,5,10,5,10,5\n\
+         2026-03-02T00:00:00+01:00,10,5,10,5,10,5\n"
+    );
+    let st = study_in(
+        &dir,
+        "[[steps]]\nkvar = 25\n[load]\ncsv = \"p.csv\"\n[run]\ntime_step_s = 60\n",
+        &csv,
+    );
+    let cal = st.plan.calendar;
+    let t0 = st.plan.t_first_s;
+    // Weekday 6 is Sunday and 0 Monday (the calendar counts from Monday).
+    assert_eq!(cal.weekday(t0), 6);
+    assert_eq!(cal.second_of_day(t0), 23.0 * 3600.0);
+    assert_eq!(cal.weekday(t0 + 3600.0), 0);
+    assert_eq!(
+        cal.datetime(t0 + 3600.0)
+            .format("%Y-%m-%d %H:%M")
+            .to_string(),
+        "2026-03-02 00:00"
+    );
+}
