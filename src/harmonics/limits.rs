@@ -271,6 +271,37 @@ mod tests {
         assert_eq!(l.thd_pct(400.0), 8.0);
     }
 
+    // IEC 60831-1 admissible voltage levels (from memory): 1.00 continuous; 1.10 for 8 h
+    // in every 24 h; 1.15 for 30 min in every 24 h; 1.20 for 5 min; 1.30 for 1 min. IEEE
+    // Std 18: 110 % continuous contingency (read).
+    #[test]
+    fn capacitor_voltage_levels_by_holding_time() {
+        let iec = CapacitorLimits::Iec60831;
+        for (hours, level) in [
+            (None, 1.00),
+            (Some(24.0), 1.00),
+            (Some(8.01), 1.00),
+            (Some(8.0), 1.10),
+            (Some(0.51), 1.10),
+            (Some(0.5), 1.15),
+            (Some(0.1), 1.15),
+            (Some(5.0 / 60.0), 1.20),
+            (Some(2.0 / 60.0), 1.20),
+            (Some(1.0 / 60.0), 1.30),
+            (Some(f64::NAN), 1.00),
+            (Some(30.0), 1.00),
+        ] {
+            assert_eq!(iec.admissible_voltage(hours), level, "{hours:?} h a day");
+        }
+        assert_eq!(iec.voltage_duration(None), "continuous");
+        assert_eq!(iec.voltage_duration(Some(6.0)), "8 h in every 24 h");
+        assert_eq!(iec.voltage_duration(Some(0.25)), "30 min in every 24 h");
+        let ieee = CapacitorLimits::Ieee18;
+        assert_eq!(ieee.admissible_voltage(None), 1.10);
+        assert_eq!(ieee.admissible_voltage(Some(0.01)), 1.10);
+        assert_eq!(ieee.voltage_duration(None), "continuous contingency");
+    }
+
     #[test]
     fn default_ratings() {
         // Plain step: rated at the bus voltage (common practice).
