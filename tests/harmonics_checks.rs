@@ -535,9 +535,8 @@ fn survey_of(toml: &str, selection: &Selection) -> (Scenario, Survey) {
 // separators.
 #[test]
 fn resonance_table_columns_fit_long_labels() {
-    let mut toml = String::from(
-        "[supply.transformer]\nrated_kva = 2500\nimpedance_pct = 6\nx_over_r = 8\n",
-    );
+    let mut toml =
+        String::from("[supply.transformer]\nrated_kva = 2500\nimpedance_pct = 6\nx_over_r = 8\n");
     for i in 1..=12 {
         toml.push_str(&format!("[[steps]]\nkvar = {}\n", 5 * i));
     }
@@ -561,7 +560,9 @@ fn resonance_table_columns_fit_long_labels() {
     assert!(all.contains("Bank states (4,096 states"), "{all}");
     assert!(all.contains("and 4,032 more groups"), "{all}");
     let masks = [0, 0b1, 0b1111_1111_1111, 0b0111_1111_1111, 0b1010_1010_1010];
-    let text = text(&Selection::Masks(masks.iter().map(|&m| (m, None)).collect()));
+    let text = text(&Selection::Masks(
+        masks.iter().map(|&m| (m, None)).collect(),
+    ));
     let lines: Vec<&str> = text.lines().collect();
     let h = lines
         .iter()
@@ -578,7 +579,10 @@ fn resonance_table_columns_fit_long_labels() {
     for row in &lines[h + 1..h + 1 + masks.len()] {
         let c: Vec<char> = row.chars().collect();
         long |= row.trim_start().split(' ').next().unwrap().len() > 20;
-        assert!(c[kvar_end - 1].is_ascii_digit() && c[kvar_end] == ' ', "{row}");
+        assert!(
+            c[kvar_end - 1].is_ascii_digit() && c[kvar_end] == ' ',
+            "{row}"
+        );
         assert!(c[thd_end - 1] == '%' && c[thd_end] == ' ', "{row}");
     }
     assert!(long, "no label over 20 characters in the rows checked");

@@ -171,8 +171,14 @@ duration_s = 60
     let rise = (rec.u_ll[k] - rec.u_ll[k - 1]) / rec.u_ll[k - 1] * 100.0;
     let exact = exact_rise_pct();
     assert!((exact - 1.8693).abs() < 1e-4, "closed form {exact} %");
-    assert!((rise - exact).abs() < 0.02, "rise {rise} %, exact {exact} %");
-    assert!((rise - 1.80).abs() > 0.05, "rise {rise} %: the estimate, not the solution");
+    assert!(
+        (rise - exact).abs() < 0.02,
+        "rise {rise} %, exact {exact} %"
+    );
+    assert!(
+        (rise - 1.80).abs() > 0.05,
+        "rise {rise} %: the estimate, not the solution"
+    );
 }
 
 /// The closed form of the test above: the rise of the bus voltage on connecting 300 kvar,

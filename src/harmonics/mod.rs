@@ -75,10 +75,10 @@ pub mod survey;
 use crate::bank::{StepPhase, StepSpec};
 use crate::supply::SupplyParams;
 use limits::{default_rated_voltage, CapacitorLimits, VoltageLimits};
-use std::fmt;
 use num_complex::Complex64;
 use scan::{Peak, ScanGrid};
 use serde::{Deserialize, Serialize};
+use std::fmt;
 
 /// A named load spectrum.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -276,7 +276,9 @@ pub struct StepStress {
     pub kvar_ratio: f64,
     /// Permissible kvar ratio (1.35 IEEE Std 18; `null` when not checked).
     pub kvar_limit: Option<f64>,
-    /// Largest of the ratios over their limits (≥ 1: a limit is exceeded).
+    /// Largest of the ratios over their limits, the rms voltage judged as held continuously
+    /// (> 1: a limit is exceeded; exactly 1: at a limit, as a plain step at its rated
+    /// voltage with no harmonics is).
     pub limit_ratio: f64,
 }
 
@@ -978,10 +980,8 @@ impl HarmonicModel {
             let (mut sum_r2, mut sum_c2, mut sum_c, mut sum_cr) = (0.0, 0.0, 0.0, 0.0);
             for hv in harmonics {
                 let u_h = hv.v_pct / 100.0;
-                let r = u_h
-                    * s.x_c
-                    * (1.0 - s.p)
-                    * self.step_susceptance_at_order(i, hv.order).abs();
+                let r =
+                    u_h * s.x_c * (1.0 - s.p) * self.step_susceptance_at_order(i, hv.order).abs();
                 let c = r / hv.order;
                 sum_r2 += r * r;
                 sum_c2 += c * c;
@@ -1239,7 +1239,11 @@ mod tests {
         let want = [(5.0, 0.0560429, 1.40107), (7.0, 0.0942335, 1.68274)];
         for (hv, (h, z, v)) in st.harmonics.iter().zip(want) {
             assert_eq!(hv.order, h);
-            assert!((hv.impedance_ohm - z).abs() < 1e-7, "h{h}: {}", hv.impedance_ohm);
+            assert!(
+                (hv.impedance_ohm - z).abs() < 1e-7,
+                "h{h}: {}",
+                hv.impedance_ohm
+            );
             assert!((hv.v_pct - v).abs() < 1e-5, "h{h}: {}", hv.v_pct);
         }
         assert!((st.thd_pct - 2.18966).abs() < 1e-5, "{}", st.thd_pct);
@@ -1344,7 +1348,12 @@ mod tests {
         assert!((st.steps[0].current_ratio - r).abs() < 1e-6);
         // With no transformer the 3rd reaches the bus; no step carries it and the damping
         // is left out, so it stays at V_bg.
-        let st = bare(200.0, &[step(100.0, None)], site_with_grid(Some(250.0), false)).state(1);
+        let st = bare(
+            200.0,
+            &[step(100.0, None)],
+            site_with_grid(Some(250.0), false),
+        )
+        .state(1);
         assert!((st.harmonics[0].v_pct - 1.5).abs() < 1e-12);
         // On a stiff bus the background is the bus voltage whatever the bank.
         let st = bare(0.0, &[step(100.0, None)], SupplyParams::default()).state(1);

@@ -7,9 +7,9 @@
 //! keep every state.
 
 use crate::engine::HOURS_PER_YEAR;
+use crate::harmonics::limits::CapacitorLimits;
 use crate::harmonics::scan::{Peak, ScanGrid};
 use crate::harmonics::survey::{Survey, SurveyState};
-use crate::harmonics::limits::CapacitorLimits;
 use crate::harmonics::{Breach, HarmonicVoltage, NearResonance, StepStress};
 use crate::report::{approx, count, harmonic_name, num, steps_label, ReportError};
 use crate::report::{file_name, HARDWARE_CAUTION};
