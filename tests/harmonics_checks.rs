@@ -56,7 +56,7 @@ fn minimum(m: &HarmonicModel, mask: u64, mut a: f64, mut b: f64) -> f64 {
 }
 
 // Parallel resonance h_r = sqrt(S_sc/Q_c) (IEEE Std 519 / IEEE Std 1531 estimate, from
-// memory; REFERENCES.md worked example: 1000 kVA, u_k 6 %, 300 kvar, infinite grid →
+// memory; a published worked example: 1000 kVA, u_k 6 %, 300 kvar, infinite grid →
 // 7.454). The impedance scan finds the peak within 1 % here (the supply resistance moves it
 // slightly; stated tolerance).
 #[test]
@@ -66,7 +66,7 @@ fn scan_peak_of_the_reference_example() {
     let p = peaks(&m, 1, &ScanGrid::default());
     assert_eq!(p.len(), 1);
     assert!((p[0].order - 7.454).abs() / 7.454 < 0.01, "{}", p[0].order);
-    // f_r = 7.454 × 50 Hz = 372.7 Hz (REFERENCES.md).
+    // f_r = 7.454 × 50 Hz = 372.7 Hz (the same worked example).
     assert!((m.plain_order(1).unwrap() * 50.0 - 372.7).abs() < 0.1);
 }
 
@@ -113,7 +113,7 @@ fn scan_peak_matches_the_reactive_resonance_over_sizes() {
     }
 }
 
-// Detuned steps (REFERENCES.md, read in public worked calculations; practice): tuning
+// Detuned steps (read in public worked calculations; common practice): tuning
 // order 1/sqrt(p) = 4.20, 3.78, 2.67 for p = 5.67 %, 7 %, 14 %; capacitor voltage
 // U/(1 − p) = 424, 430, 465 V at 400 V; the series resonance of the step is where the bus
 // impedance dips to nearly zero.
@@ -147,7 +147,7 @@ fn detuned_step_tuning_and_capacitor_voltage() {
 }
 
 // Output of a detuned step: Q = Q_R·(U/U_R)²/(1 − p) for capacitors rated Q_R at U_R
-// (REFERENCES.md, read): 50 kvar capacitors rated 440 V behind a 7 % reactor deliver
+// (read in public worked calculations): 50 kvar capacitors rated 440 V behind a 7 % reactor deliver
 // 50 × (400/440)² / 0.93 = 44.43 kvar at 400 V. The model, given that effective kvar and
 // the 440 V rating, must find the 50 kvar, 440 V capacitor again (rated current
 // 50 000/(sqrt(3)·440) = 65.61 A) and deliver 44.43 kvar at the fundamental.
@@ -301,10 +301,10 @@ duration_s = 60
 
 // The bundled pumping station (drives, six-pulse): the run warns of the four-step states
 // only, resonating near the 7th, with the estimates worked out by hand; and detuning every
-// step at 7 % moves every state's resonance below the 5th (its tuning order 3.78,
-// REFERENCES.md). By hand: S_sc = 1/(1/150 000 + 0.06/630) = 9,813.08 kVA; four 50 kvar
-// steps give h_r = sqrt(9813.08/200) = 7.0047 (IEEE Std 519 estimate, from memory), the
-// nearest six-pulse order 7; the other states are farther than 0.5 from any order (one to
+// step at 7 % moves every state's resonance below the 5th (its tuning order 3.78, read in
+// public worked calculations). By hand: S_sc = 1/(1/150 000 + 0.06/630) = 9,813.08 kVA;
+// four 50 kvar steps give h_r = sqrt(9813.08/200) = 7.0047 (IEEE Std 519 estimate, from
+// memory), the nearest six-pulse order 7; the other states are farther than 0.5 from any order (one to
 // six steps: 14.01, 9.91, 8.09, 7.00, 6.27, 5.72). Bus voltages by complex arithmetic on
 // the scenario's numbers (grid X/R 10, transformer X/R 6, R·sqrt(h), I_7 = 216.51 A/7):
 // V_7 = 24.326 % of the phase voltage and THD_V = 24.550 %.
@@ -339,7 +339,7 @@ fn pumping_station_warns_near_the_7th_and_detuning_cures_it() {
 }
 
 // The distortion protection of the controller opens the bank when the estimated THD of
-// the state it is in stays above its limit for the delay (domain contract, section 4),
+// the state it is in stays above its limit for the delay (the protection as the controller documents it),
 // using the per-state THD of the harmonic model. Site as the pumping station: four 50 kvar
 // steps resonate near the 7th (THD about 24 %), three or fewer stay under 10 % except step
 // 1 alone for one switching delay (30 s, shorter than the 60 s THD delay).

@@ -81,7 +81,7 @@ fn ieee519_class(u_n_v: f64) -> (f64, f64) {
 }
 
 /// EN 50160 harmonic voltage levels, % of the nominal voltage (from memory: h5 6 %, h7 5 %,
-/// h11 3.5 %, h13 3 % as quoted in REFERENCES.md; the other orders recalled from the same
+/// h11 3.5 %, h13 3 % as quoted in public summaries of the standard; the other orders recalled from the same
 /// table).
 fn en50160_individual(order: f64) -> Option<f64> {
     let r = order.round();
@@ -306,7 +306,7 @@ mod tests {
     fn default_ratings() {
         // Plain step: rated at the bus voltage (common practice).
         assert_eq!(default_rated_voltage(400.0, None), 400.0);
-        // U/(1 − p) at 400 V: 424 V, 430 V, 465 V (REFERENCES.md, read) → 440, 440, 480 V
+        // U/(1 − p) at 400 V: 424 V, 430 V, 465 V (read in public worked calculations) → 440, 440, 480 V
         // (common practice).
         assert_eq!(default_rated_voltage(400.0, Some(0.0567)), 440.0);
         assert_eq!(default_rated_voltage(400.0, Some(0.07)), 440.0);

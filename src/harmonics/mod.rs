@@ -1207,7 +1207,7 @@ mod tests {
     }
 
     // A 7 % detuned bank resonates with the supply below its tuning order
-    // 1/sqrt(0.07) = 3.78 (REFERENCES.md, read; common practice).
+    // 1/sqrt(0.07) = 3.78 (read in public worked calculations; common practice).
     #[test]
     fn detuned_bank_resonates_below_tuning() {
         let m = model(&[step(300.0, Some(0.07))], Spectrum::default());
@@ -1385,7 +1385,7 @@ mod tests {
     // Capacitor rms voltage against the time it is held (IEC 60831-1 admissible levels,
     // from memory: 1.00 continuous, 1.10 for 8 h in every 24 h, 1.15 for 30 min; IEEE Std
     // 18: 110 % continuous contingency, read). A 7 % detuned step at 400 V puts
-    // 400/0.93 = 430.11 V on its capacitors (REFERENCES.md, read): rated 410 V they are at
+    // 400/0.93 = 430.11 V on its capacitors (read in public worked calculations): rated 410 V they are at
     // 1.04904 × rated, rated 384 V at 1.12007 × rated (no harmonics: hand values).
     #[test]
     fn capacitor_voltage_is_judged_by_the_hours_held() {
