@@ -14,7 +14,6 @@
 use crate::bank::Bank;
 use crate::controller::{Controller, Decision, Reading};
 use crate::error::RunError;
-use crate::harmonics::HarmonicModel;
 use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::Scenario;
@@ -92,7 +91,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     };
     let mut met = crate::metrics::Metrics::new(params, &bank, plan.calendar, u_n, dt, t0);
     // The distortion protection needs the THD of each state the run reaches.
-    let hm = HarmonicModel::new(&sc.supply, &sc.steps, sc.spectrum.clone(), sc.harmonics);
+    let hm = sc.harmonic_model();
     let thd_wanted = sc.controller.protection.thd_limit_pct.is_some();
     let mut thd_cache: HashMap<u64, f64> =
         HashMap::with_capacity(if thd_wanted { 4096 } else { 0 });

@@ -16,7 +16,6 @@ use bankstep::engine::{IntervalRecord, Observer};
 use bankstep::error::RunError;
 use bankstep::harmonics::scan::ScanGrid;
 use bankstep::harmonics::survey::{self, Selection, Survey};
-use bankstep::harmonics::HarmonicModel;
 use bankstep::report::resonance::{self as resonance_report, ResonanceContext};
 use bankstep::report::{
     JsonReport, ReportContext, ReportError, ReportWriter, Summary, TimeseriesWriter,
@@ -101,9 +100,14 @@ const RESONANCE_AFTER_HELP: &str = concat!(
            currents see, ohm per phase; the supply resistance moves it slightly
   xhN      amplification at harmonic N of the load: |Z| with the state over |Z| with no
            step connected (above 1 the bank makes that harmonic worse)
-  THD_V    estimated bus voltage THD, %, with the harmonic load at its rating
-  status   `near hN` when a resonance lies within the scenario's tolerance of harmonic N
+  THD_V    estimated bus voltage THD, %, with the harmonic load at its full rating in
+           every state (the estimate assumes the full harmonic load)
   h/year   with --states reached: time in the state extrapolated to a 365-day year
+  status   `clear` when no limit is exceeded and no resonance lies near a harmonic;
+           `near hN` when a resonance lies within the scenario's tolerance of harmonic N;
+           `over ...` with the limits exceeded: V_hN (a harmonic voltage), THD_V, and of a
+           step's capacitors I_C (rms current), U_C (rms voltage, judged as held
+           continuously), U_C peak, Q_C (kvar); each is detailed under the table
 
 Then \"what detuning would do\": the same kvar per step, every step with a detuning
 reactor of ratio p (default 5.67 %, 7 %, 14 %: tuned to orders 4.20, 3.78, 2.67), and the
@@ -114,7 +118,8 @@ for 7 % at 400 V) and need a rating above it.
 CSV (--csv): a column h (harmonic order), supply_only_ohm, then z_<steps>_ohm per state:
 |Z(h)| in ohm per phase, one row per order of the scan.
 JSON (--json): the states (order, peaks, harmonic voltages, step current and capacitor
-voltage against their limits), the detuning comparison, and the curves.
+voltage against their limits, status, limits exceeded) and the detuning comparison; with
+--curves also the impedance curves (large: hundreds of megabytes for 12 steps).
 
 Examples:
   bankstep resonance site.toml
@@ -201,10 +206,16 @@ struct ResonanceArgs {
     #[arg(long, value_name = "FILE")]
     csv: Option<PathBuf>,
 
-    /// Also write the whole scan (states, detuning comparison, curves) as one JSON object
-    /// to FILE. `-` writes to standard output instead of the tables.
+    /// Also write the whole scan (states, limits exceeded, detuning comparison) as one
+    /// JSON object to FILE. `-` writes to standard output instead of the tables.
     #[arg(long, value_name = "FILE")]
     json: Option<PathBuf>,
+
+    /// Put the impedance curves (|Z| in ohm per state at every order of the scan) in the
+    /// JSON too. They are large: every state of a 12-step bank at the default resolution is
+    /// hundreds of megabytes.
+    #[arg(long, requires = "json")]
+    curves: bool,
 
     /// Detuning ratios to compare, % (comma-separated, each more than 0 and at most 20).
     #[arg(
@@ -219,7 +230,8 @@ struct ResonanceArgs {
     #[arg(long, value_name = "ORDER", default_value_t = 50.0)]
     max_order: f64,
 
-    /// Spacing of the scan, orders (0.0001 to 1); peaks are refined between grid points.
+    /// Spacing of the scan, orders: 0.0001 to 1, and at most half of (--max-order − 1);
+    /// peaks are refined between grid points.
     #[arg(long, value_name = "ORDERS", default_value_t = 0.01)]
     resolution: f64,
 
@@ -497,24 +509,36 @@ fn write_output(
     Ok(())
 }
 
+/// The scan grid of `--max-order` and `--resolution`, checked against the ranges their
+/// help states: the highest order more than 1 and at most 200; the spacing 0.0001 to 1
+/// orders and at most half of (highest order − 1).
+fn scan_grid(max_order: f64, resolution: f64) -> Result<ScanGrid, anyhow::Error> {
+    if !(max_order.is_finite() && max_order > 1.0 && max_order <= 200.0) {
+        anyhow::bail!("--max-order {max_order}: allowed more than 1 and at most 200");
+    }
+    let top = ((max_order - 1.0) / 2.0).min(1.0);
+    if !(resolution.is_finite() && (1e-4..=top).contains(&resolution)) {
+        anyhow::bail!(
+            "--resolution {resolution}: allowed 0.0001 to 1 orders, and at most half of \
+             (--max-order − 1), so 0.0001 to {top} here"
+        );
+    }
+    let grid = ScanGrid {
+        to: max_order,
+        step: resolution,
+        ..ScanGrid::default()
+    };
+    grid.check()
+        .map_err(|m| anyhow::anyhow!("--max-order/--resolution: {m}"))?;
+    Ok(grid)
+}
+
 fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
     let file = args.scenario.display().to_string();
     let scenario = Scenario::from_file(&args.scenario)
         .context("cannot load the scenario")
         .map_err(Failure::input)?;
-    let grid = ScanGrid {
-        to: args.max_order,
-        step: args.resolution,
-        ..ScanGrid::default()
-    };
-    grid.check()
-        .map_err(|m| Failure::input(anyhow::anyhow!("--max-order/--resolution: {m}")))?;
-    if args.resolution > 1.0 {
-        return Err(Failure::input(anyhow::anyhow!(
-            "--resolution {}: allowed 0.0001 to 1 orders",
-            args.resolution
-        )));
-    }
+    let grid = scan_grid(args.max_order, args.resolution).map_err(Failure::input)?;
     let mut detunings = Vec::with_capacity(args.detuning.len());
     for &p in &args.detuning {
         if !(p.is_finite() && p > 0.0 && p <= 20.0) {
@@ -524,12 +548,7 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
         }
         detunings.push(p / 100.0);
     }
-    let model = HarmonicModel::new(
-        &scenario.supply,
-        &scenario.steps,
-        scenario.spectrum.clone(),
-        scenario.harmonics,
-    );
+    let model = scenario.harmonic_model();
     let fixed: u64 = scenario
         .steps
         .iter()
@@ -571,6 +590,7 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
         scenario: &scenario,
         survey: &sv,
         run_s,
+        curves: args.curves,
     };
     let mut to_stdout = false;
     if let Some(path) = &args.csv {
@@ -601,6 +621,26 @@ mod tests {
     #[test]
     fn command_line_is_consistent() {
         Cli::command().debug_assert();
+    }
+
+    // The ranges the help of --max-order and --resolution states are the ones checked, and
+    // the message names them.
+    #[test]
+    fn scan_grid_ranges_match_the_help() {
+        assert!(scan_grid(50.0, 0.0001).is_ok());
+        assert!(scan_grid(50.0, 1.0).is_ok());
+        assert!(scan_grid(200.0, 0.01).is_ok());
+        for (max_order, resolution) in [(50.0, 1.5), (50.0, 0.00005), (50.0, 0.0), (2.0, 0.6)] {
+            let e = scan_grid(max_order, resolution).unwrap_err().to_string();
+            assert!(
+                e.contains("allowed 0.0001 to 1 orders, and at most half of (--max-order − 1)"),
+                "{e}"
+            );
+        }
+        assert!(scan_grid(2.0, 0.5).is_ok());
+        let e = scan_grid(1.0, 0.01).unwrap_err().to_string();
+        assert!(e.contains("more than 1 and at most 200"), "{e}");
+        assert!(scan_grid(201.0, 0.01).is_err());
     }
 
     #[test]

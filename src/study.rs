@@ -181,8 +181,7 @@ impl Study {
 
     /// The harmonic model of the site: supply, steps, load spectrum and limits.
     pub fn harmonic_model(&self) -> HarmonicModel {
-        let sc = &self.scenario;
-        HarmonicModel::new(&sc.supply, &sc.steps, sc.spectrum.clone(), sc.harmonics)
+        self.scenario.harmonic_model()
     }
 
     /// Runs the study once on its own profile.

@@ -170,6 +170,15 @@ pub fn pf_vs(value: f64, quadrant: crate::pf::Quadrant, target: f64) -> String {
     }
 }
 
+/// Items joined as a reader lists them: `a`, `a and b`, `a, b and c`.
+pub fn join_and(items: &[String]) -> String {
+    match items.len() {
+        0 => String::new(),
+        1 => items[0].clone(),
+        n => format!("{} and {}", items[..n - 1].join(", "), items[n - 1]),
+    }
+}
+
 /// The word for a protection trip in the `operation` column.
 pub fn trip_word(t: crate::controller::Trip) -> &'static str {
     match t {

@@ -431,7 +431,7 @@ fn resonance_writes_csv_curves_and_json() {
     bankstep()
         .arg("resonance")
         .arg(pumping_station())
-        .args(["--states", "1+2,1+2+3+4", "--quiet"])
+        .args(["--states", "1+2,1+2+3+4", "--quiet", "--curves"])
         .arg("--csv")
         .arg(&csv)
         .arg("--json")

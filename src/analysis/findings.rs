@@ -26,8 +26,8 @@ use crate::bank::FaultKind;
 use crate::metrics::OvercorrectionCause;
 use crate::pf::Quadrant;
 use crate::text::{
-    approx, count, deciding, duration, harmonic_name, num, pct, pct_vs_limit, pf_vs, steps_label,
-    trip_word, years_text,
+    approx, count, deciding, duration, harmonic_name, join_and, num, pct, pct_vs_limit, pf_vs,
+    steps_label, trip_word, years_text,
 };
 use crate::timebase::{DAY_S, WEEKDAYS};
 use serde::Serialize;
@@ -367,14 +367,6 @@ fn uneven_equal_steps(ctx: &Context<'_>) -> bool {
     false
 }
 
-fn join_and(items: &[String]) -> String {
-    match items.len() {
-        0 => String::new(),
-        1 => items[0].clone(),
-        n => format!("{} and {}", items[..n - 1].join(", "), items[n - 1]),
-    }
-}
-
 /// The cause of an overcorrection in words.
 pub fn cause_words(c: OvercorrectionCause) -> &'static str {
     match c {
@@ -626,7 +618,19 @@ fn worst_state_finding(ctx: &Context<'_>, w: &StateResonance) -> Finding {
         num(w.thd_limit_pct, 1),
         r.voltage_limits
     ));
-    if let Some(st) = w
+    // The capacitors: every limit they exceed, in the standard's words; else the most
+    // loaded step's current and voltage for the record.
+    let caps: Vec<_> = w
+        .breaches
+        .iter()
+        .filter(|b| b.step.is_some())
+        .copied()
+        .collect();
+    let over = crate::analysis::resonance::breach_lines(&caps);
+    if !over.is_empty() {
+        text.push_str("; ");
+        text.push_str(&join_and(&over));
+    } else if let Some(st) = w
         .step_stress
         .iter()
         .max_by(|a, b| a.limit_ratio.total_cmp(&b.limit_ratio))
@@ -670,10 +674,11 @@ fn worst_state_finding(ctx: &Context<'_>, w: &StateResonance) -> Finding {
         }
         text.push('.');
     }
-    let step_over = w.step_stress.iter().any(|s| s.limit_ratio >= 1.0);
-    let severity = if (warning.is_some() && (w.severity >= 1.0 || share >= 0.01)) || step_over {
+    let step_over = w.breaches.iter().any(|b| b.step.is_some());
+    let exceeded = !w.breaches.is_empty();
+    let severity = if (warning.is_some() && (exceeded || share >= 0.01)) || step_over {
         Severity::Critical
-    } else if w.severity >= 1.0 || warning.is_some() || n_others > 0 {
+    } else if exceeded || warning.is_some() || n_others > 0 {
         Severity::Warning
     } else if w.limit_ratio >= 0.8 {
         Severity::Note
@@ -1084,6 +1089,9 @@ mod tests {
                 limit_pct: Some(5.0),
             }],
             step_stress: Vec::new(),
+            max_hours_per_day: 24.0,
+            near_harmonic: Some(5.0),
+            breaches: Vec::new(),
             limit_ratio: 0.64,
             severity: 0.4096,
         };

@@ -5,8 +5,13 @@
 //! The estimate injects the harmonic currents of the load spectrum at `reference_kva` in
 //! every state, whatever the load did at the time: it is the estimate at full harmonic
 //! load, which errs high at light load.
+//!
+//! Each state is judged against its limits by [`StateHarmonics::breaches`], with the
+//! capacitor voltage judged by the most hours the state was held in one calendar day
+//! (IEC 60831-1 admits 1.10 × U_N for 8 h in every 24 h but only 1.00 × U_N continuously);
+//! a run shorter than a day cannot tell, so its states are judged as held continuously.
 
-use crate::harmonics::{HarmonicModel, HarmonicVoltage, StepStress};
+use crate::harmonics::{Breach, HarmonicModel, HarmonicVoltage, StateHarmonics, StepStress};
 use crate::metrics::RunMetrics;
 use crate::study::Study;
 use crate::timebase::HOURS_PER_YEAR;
@@ -46,8 +51,15 @@ pub struct StateResonance {
     pub harmonics: Vec<HarmonicVoltage>,
     /// Current and voltage stress of each connected step.
     pub step_stress: Vec<StepStress>,
+    /// Most time held in one calendar day, h (the run's longest day in this state).
+    pub max_hours_per_day: f64,
+    /// The harmonic of the load the state resonates near (its resonant order or a scan
+    /// peak within the tolerance), if any.
+    pub near_harmonic: Option<f64>,
+    /// Every limit the state exceeds (empty: within every limit).
+    pub breaches: Vec<Breach>,
     /// Largest of the harmonic voltages, the THD and the step stresses over their limits
-    /// (≥ 1: a limit is exceeded).
+    /// (> 1: a limit is exceeded, and `breaches` says which).
     pub limit_ratio: f64,
     /// Severity: the square of `limit_ratio` (heating grows with the square of current
     /// and voltage); `hours_per_year × severity` ranks the states.
@@ -100,6 +112,80 @@ pub struct ResonanceReport {
     pub warnings: Vec<ResonanceWarning>,
 }
 
+/// The state's status in a few words: `clear`, `near h7`, `over THD_V, I_C` or both.
+impl StateResonance {
+    /// `clear` when nothing is exceeded and no resonance lies near a harmonic present;
+    /// else what is wrong, e.g. `near h7; over V_h7, THD_V, I_C`.
+    pub fn status(&self) -> String {
+        let mut parts = Vec::new();
+        if let Some(h) = self.near_harmonic {
+            parts.push(format!("near h{}", crate::text::num(h, 0)));
+        }
+        if !self.breaches.is_empty() {
+            let mut kinds: Vec<String> = Vec::new();
+            for b in &self.breaches {
+                let k = b.kind.short();
+                if !kinds.contains(&k) {
+                    kinds.push(k);
+                }
+            }
+            parts.push(format!("over {}", kinds.join(", ")));
+        }
+        if parts.is_empty() {
+            "clear".to_string()
+        } else {
+            parts.join("; ")
+        }
+    }
+}
+
+/// The breaches of one state in words, capacitor breaches that read the same for several
+/// steps joined into one (`steps 1, 2 and 3 capacitor rms current 1.987 × rated over the
+/// 1.300 × rated limit (IEC 60831-1)`), in the order of the first step of each.
+pub fn breach_lines(breaches: &[Breach]) -> Vec<String> {
+    let mut groups: Vec<(String, Vec<usize>)> = Vec::new();
+    for b in breaches {
+        let text = Breach { step: None, ..*b }.to_string();
+        match b.step {
+            None => groups.push((text, Vec::new())),
+            Some(n) => match groups.iter_mut().find(|g| g.0 == text && !g.1.is_empty()) {
+                Some(g) => g.1.push(n),
+                None => groups.push((text, vec![n])),
+            },
+        }
+    }
+    groups
+        .into_iter()
+        .map(|(text, steps)| match steps.len() {
+            0 => text,
+            1 => format!("step {} {text}", steps[0]),
+            _ => {
+                let names: Vec<String> = steps.iter().map(|n| n.to_string()).collect();
+                format!("steps {} {text}", crate::text::join_and(&names))
+            }
+        })
+        .collect()
+}
+
+/// Hours a day to judge a state's capacitor voltage by: the most it was held in one
+/// calendar day, or `None` (continuous, the safe side) when the run is shorter than a day.
+fn hours_per_day(run_s: f64, max_day_s: f64) -> Option<f64> {
+    (run_s >= crate::timebase::DAY_S).then_some(max_day_s / 3600.0)
+}
+
+/// The largest value over limit of a state judged with `breaches`: the largest breach
+/// when there is one, else the state's own ratio, which can then be at most 1.
+fn judged_ratio(h: &StateHarmonics, breaches: &[Breach]) -> f64 {
+    if breaches.is_empty() {
+        h.limit_ratio.min(1.0)
+    } else {
+        breaches
+            .iter()
+            .map(Breach::ratio)
+            .fold(h.limit_ratio.min(1.0), f64::max)
+    }
+}
+
 /// The resonance section of a run: every state reached, solved once each, with the states
 /// near a harmonic of the load.
 pub fn assess(study: &Study, hm: &HarmonicModel, m: &RunMetrics) -> ResonanceReport {
@@ -119,32 +205,27 @@ pub fn assess(study: &Study, hm: &HarmonicModel, m: &RunMetrics) -> ResonanceRep
         let hours_per_year = st.time_s / run_s * HOURS_PER_YEAR;
         // A warning where the resonant order, or any other peak of the scan, lies within
         // the tolerance of a harmonic present; the worst such harmonic is named.
-        let mut best: Option<(f64, &HarmonicVoltage)> = None;
-        for order in h.order.into_iter().chain(h.peaks.iter().map(|p| p.order)) {
-            let Some(near) = hm.near_harmonic(order, sc.resonance_tolerance) else {
-                continue;
-            };
-            let Some(hv) = h.harmonics.iter().find(|x| x.order == near) else {
-                continue;
-            };
-            if best.is_none_or(|b| hv.v_pct > b.1.v_pct) {
-                best = Some((order, hv));
+        let near = hm.near_resonance(&h, sc.resonance_tolerance);
+        let day_h = hours_per_day(run_s, st.max_day_s);
+        let breaches = h.breaches(day_h);
+        let limit_ratio = judged_ratio(&h, &breaches);
+        let severity = limit_ratio * limit_ratio;
+        if let Some(n) = near {
+            if let Some(hv) = h.harmonics.iter().find(|x| x.order == n.harmonic) {
+                warnings.push(ResonanceWarning {
+                    steps: st.steps.clone(),
+                    order: n.order,
+                    near_harmonic: hv.order,
+                    time_s: st.time_s,
+                    hours_per_year,
+                    v_h_pct: hv.v_pct,
+                    v_h_limit_pct: hv.limit_pct,
+                    amplification: hv.amplification,
+                    thd_pct: h.thd_pct,
+                    thd_limit_pct: h.thd_limit_pct,
+                    severity,
+                });
             }
-        }
-        if let Some((order, hv)) = best {
-            warnings.push(ResonanceWarning {
-                steps: st.steps.clone(),
-                order,
-                near_harmonic: hv.order,
-                time_s: st.time_s,
-                hours_per_year,
-                v_h_pct: hv.v_pct,
-                v_h_limit_pct: hv.limit_pct,
-                amplification: hv.amplification,
-                thd_pct: h.thd_pct,
-                thd_limit_pct: h.thd_limit_pct,
-                severity: h.severity,
-            });
         }
         let peak = h.peaks.first();
         states.push(StateResonance {
@@ -159,10 +240,13 @@ pub fn assess(study: &Study, hm: &HarmonicModel, m: &RunMetrics) -> ResonanceRep
             hours_per_year,
             thd_pct: h.thd_pct,
             thd_limit_pct: h.thd_limit_pct,
+            max_hours_per_day: st.max_day_s / 3600.0,
+            near_harmonic: near.map(|n| n.harmonic),
+            breaches,
             harmonics: h.harmonics,
             step_stress: h.steps,
-            limit_ratio: h.limit_ratio,
-            severity: h.severity,
+            limit_ratio,
+            severity,
         });
     }
     let s_sc = sc.supply.short_circuit_kva();

@@ -203,8 +203,20 @@ pub(crate) fn wrap_plain(t: &mut String, indent: &str, text: &str) {
 
 /// Appends a plain-text table to `t`: a header row and one row per entry, every column
 /// as wide as its widest cell (so long step labels never push the others out of line),
-/// the first column left-aligned and the others right-aligned, two spaces between columns.
-pub(crate) fn table(t: &mut String, indent: &str, headers: &[&str], rows: &[Vec<String>]) {
+/// two spaces between columns. `align` has one letter per column: `l` left-aligns it
+/// (words), anything else right-aligns it (numbers).
+pub(crate) fn table(
+    t: &mut String,
+    indent: &str,
+    headers: &[&str],
+    align: &str,
+    rows: &[Vec<String>],
+) {
+    let left: Vec<bool> = headers
+        .iter()
+        .enumerate()
+        .map(|(i, _)| align.as_bytes().get(i) == Some(&b'l'))
+        .collect();
     let n = headers.len();
     let mut width: Vec<usize> = headers.iter().map(|h| h.chars().count()).collect();
     for r in rows {
@@ -218,11 +230,13 @@ pub(crate) fn table(t: &mut String, indent: &str, headers: &[&str], rows: &[Vec<
             let pad = width[i].saturating_sub(c.chars().count());
             if i > 0 {
                 l.push_str("  ");
-                l.push_str(&" ".repeat(pad));
+            }
+            if left[i] {
                 l.push_str(c);
+                l.push_str(&" ".repeat(pad));
             } else {
-                l.push_str(c);
                 l.push_str(&" ".repeat(pad));
+                l.push_str(c);
             }
         }
         t.push_str(l.trim_end());
@@ -252,7 +266,7 @@ mod tests {
             vec!["1+2+3+4+5+6+7+8+9+10+11+12".to_string(), "600".to_string()],
             vec!["1".to_string(), "50".to_string()],
         ];
-        table(&mut t, "  ", &["steps on", "kvar"], &rows);
+        table(&mut t, "  ", &["steps on", "kvar"], "lr", &rows);
         let lines: Vec<&str> = t.lines().collect();
         assert_eq!(lines.len(), 3);
         // Every row ends at the same column: the numbers are right-aligned under the header.

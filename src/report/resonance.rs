@@ -6,10 +6,11 @@
 //! (e.g. 1+2 and 3+4 of equal steps) behave alike and share one row; the CSV and JSON
 //! keep every state.
 
+use crate::harmonics::limits::CapacitorLimits;
 use crate::harmonics::scan::{Peak, ScanGrid};
 use crate::harmonics::survey::{Survey, SurveyState};
-use crate::harmonics::{HarmonicVoltage, StepStress};
-use crate::report::{approx, harmonic_name, num, steps_label, ReportError};
+use crate::harmonics::{Breach, HarmonicVoltage, NearResonance, StepStress};
+use crate::report::{approx, count, harmonic_name, num, steps_label, ReportError};
 use crate::report::{file_name, HARDWARE_CAUTION};
 use crate::scenario::Scenario;
 use crate::timebase::HOURS_PER_YEAR;
@@ -17,8 +18,8 @@ use serde::ser::{SerializeSeq, SerializeStruct};
 use serde::{Serialize, Serializer};
 use std::io::Write;
 
-/// What a resonance survey was made from: the scenario, the warning tolerance and, for
-/// states from a run, the run length.
+/// What a resonance survey was made from: the scenario, the survey, for states from a run
+/// the run length, and whether the JSON carries the curves.
 #[derive(Debug, Clone, Copy)]
 pub struct ResonanceContext<'a> {
     /// The scenario surveyed.
@@ -27,6 +28,9 @@ pub struct ResonanceContext<'a> {
     pub survey: &'a Survey,
     /// Length of the run the states came from, s (`None` when not from a run).
     pub run_s: Option<f64>,
+    /// Put the impedance curves (every state's |Z| over the whole grid) in the JSON. They
+    /// are large: 12 steps at the default grid are hundreds of megabytes.
+    pub curves: bool,
 }
 
 /// Most rows of a text table.
@@ -76,23 +80,117 @@ fn groups(ctx: &ResonanceContext<'_>) -> Vec<(usize, Vec<usize>, Option<f64>)> {
     out
 }
 
-fn near_word(ctx: &ResonanceContext<'_>, s: &SurveyState) -> String {
-    let hm = ctx.survey.scanner.model();
-    let tol = ctx.scenario.resonance_tolerance;
-    let orders = s
-        .harmonics
-        .order
-        .into_iter()
-        .chain(s.harmonics.peaks.iter().map(|p| p.order));
-    for o in orders {
-        if let Some(h) = hm.near_harmonic(o, tol) {
-            return format!("near h{}", num(h, 0));
-        }
+/// The label of a group's row: its first state's steps, and how many alike.
+fn group_label(sv: &Survey, first: usize, members: usize) -> String {
+    let mut label = steps_label(&sv.states[first].steps);
+    if members > 1 {
+        label.push_str(&format!(" (+{} alike)", count(members as u64 - 1)));
     }
-    if s.harmonics.order.is_none() {
+    label
+}
+
+/// The status of a state: `clear` when no limit is exceeded and no resonance lies near a
+/// harmonic present; else `near hN` and/or `over` with the limits exceeded (capacitor
+/// voltage judged as held continuously); `-` when there is nothing to judge (no harmonics
+/// given and no limit exceeded at the fundamental).
+pub fn status(ctx: &ResonanceContext<'_>, s: &SurveyState) -> String {
+    let hm = ctx.survey.scanner.model();
+    let near = hm.near_resonance(&s.harmonics, ctx.scenario.resonance_tolerance);
+    let breaches = s.harmonics.breaches(None);
+    let mut parts = Vec::new();
+    if let Some(n) = near {
+        parts.push(format!("near h{}", num(n.harmonic, 0)));
+    }
+    if !breaches.is_empty() {
+        let mut names: Vec<String> = Vec::new();
+        for b in &breaches {
+            let n = b.kind.short();
+            if !names.contains(&n) {
+                names.push(n);
+            }
+        }
+        parts.push(format!("over {}", names.join(", ")));
+    }
+    if !parts.is_empty() {
+        parts.join("; ")
+    } else if hm.present_orders().is_empty() {
         "-".to_string()
     } else {
         "clear".to_string()
+    }
+}
+
+/// The breaches of a state in words, one fragment per kind of limit (the worst step
+/// named, the others listed after it).
+fn breach_text(breaches: &[Breach]) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut done: Vec<usize> = Vec::new();
+    for (i, b) in breaches.iter().enumerate() {
+        if done.contains(&i) {
+            continue;
+        }
+        let same: Vec<usize> = (i..breaches.len())
+            .filter(|&j| breaches[j].kind == b.kind)
+            .collect();
+        done.extend(&same);
+        // The worst; the lowest step number among equals.
+        let worst = same.iter().map(|&j| &breaches[j]).fold(b, |w, x| {
+            if x.ratio() > w.ratio() * (1.0 + 1e-9) {
+                x
+            } else {
+                w
+            }
+        });
+        let others: Vec<String> = same
+            .iter()
+            .filter_map(|&j| breaches[j].step)
+            .filter(|&st| Some(st) != worst.step)
+            .map(|st| st.to_string())
+            .collect();
+        let mut text = worst.to_string();
+        if !others.is_empty() {
+            text.push_str(&format!(
+                ", also step{} {}",
+                if others.len() == 1 { "" } else { "s" },
+                others.join(", ")
+            ));
+        }
+        out.push(text);
+    }
+    out
+}
+
+/// Appends a table whose column widths fit its content. `left` marks the columns aligned
+/// left; the last column is not padded.
+fn table(t: &mut String, head: &[String], rows: &[Vec<String>], left: &[bool]) {
+    let n = head.len();
+    let mut w = vec![0usize; n];
+    for r in std::iter::once(head).chain(rows.iter().map(|r| r.as_slice())) {
+        for (j, c) in r.iter().enumerate() {
+            w[j] = w[j].max(c.chars().count());
+        }
+    }
+    for r in std::iter::once(head).chain(rows.iter().map(|r| r.as_slice())) {
+        let mut line = String::from(" ");
+        for (j, c) in r.iter().enumerate() {
+            line.push(' ');
+            let pad = w[j] - c.chars().count();
+            let last = j + 1 == n;
+            if left[j] {
+                line.push_str(c);
+                if !last {
+                    line.push_str(&" ".repeat(pad));
+                }
+            } else {
+                line.push_str(&" ".repeat(pad));
+                line.push_str(c);
+            }
+            if !last {
+                line.push(' ');
+            }
+        }
+        t.push_str(line.trim_end());
+        t.push('\n');
     }
 }
 
@@ -143,11 +241,50 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
             list.join(", ")
         );
         super::wrap_plain(&mut t, "", &line);
+        let line = format!(
+            "The harmonic load is taken at its full rating of {} kVA in every state, whatever \
+             the rest of the load does when the state is reached: the estimate assumes the \
+             full harmonic load.",
+            num(sc.spectrum.reference_kva, 0)
+        );
+        super::wrap_plain(&mut t, "", &line);
     }
+    if !hm.background().is_empty() {
+        let list: Vec<String> = hm
+            .background()
+            .iter()
+            .map(|(h, p)| format!("h{} {} %", num(*h, 0), num(*p, 1)))
+            .collect();
+        let line = format!(
+            "Grid background distortion, % of U_n: {}; a source behind the supply impedance, \
+             added in magnitude to the load's part (phases unknown: the safe side).",
+            list.join(", ")
+        );
+        super::wrap_plain(&mut t, "", &line);
+    }
+    if hm.has_triplen() {
+        super::wrap_plain(
+            &mut t,
+            "",
+            "Triplen orders (3, 9, 15, ...) are zero-sequence: three-phase steps (taken as \
+             delta-connected) do not carry them and the transformer's delta winding (taken as \
+             Dyn) blocks the grid's part, so they are solved with the transformer's impedance \
+             alone and the single-phase steps only, and a resonance near them is not flagged \
+             (the scan and its peaks are the positive-sequence circuit).",
+        );
+    }
+    let cl = hm.options.capacitor_limits;
     let line = format!(
-        "Limits: bus {}; capacitors {}. Warning tolerance ±{} orders.",
+        "Limits: bus {}; capacitors {}, rms voltage judged as held continuously ({} × rated, \
+         {}{}). Warning tolerance ±{} orders.",
         hm.options.voltage_limits.name(),
-        hm.options.capacitor_limits.values().standard,
+        cl.standard(),
+        num(cl.admissible_voltage(None), 2),
+        cl.voltage_duration(None),
+        match cl {
+            CapacitorLimits::Iec60831 => "; 1.10 is admitted for 8 h in every 24 h only",
+            CapacitorLimits::Ieee18 => "",
+        },
         num(sc.resonance_tolerance, 2)
     );
     super::wrap_plain(&mut t, "", &line);
@@ -163,32 +300,32 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
     let gs = groups(ctx);
     t.push_str(&format!(
         "Bank states ({} state{}; alike states share a row)\n",
-        sv.states.len(),
+        count(sv.states.len() as u64),
         if sv.states.len() == 1 { "" } else { "s" }
     ));
-    let mut head = format!(
-        "  {:<20}  {:>6}  {:>6}  {:>6}  {:>5}  {:>7}",
-        "steps on", "kvar", "order", "peak", "f Hz", "|Z| ohm"
-    );
+    let mut head: Vec<String> = ["steps on", "kvar", "order", "peak", "f Hz", "|Z| ohm"]
+        .iter()
+        .map(|x| x.to_string())
+        .collect();
     for h in &amp_orders {
-        head.push_str(&format!("  {:>5}", format!("×h{}", num(*h, 0))));
+        head.push(format!("×h{}", num(*h, 0)));
     }
-    head.push_str(&format!("  {:>6}  {:>7}", "THD_V", "status"));
+    head.push("THD_V".to_string());
     if ctx.run_s.is_some() {
-        head.push_str(&format!("  {:>8}", "h/year"));
+        head.push("h/year".to_string());
     }
-    t.push_str(&head);
-    t.push('\n');
+    head.push("status".to_string());
+    let mut left = vec![false; head.len()];
+    left[0] = true;
+    *left.last_mut().expect("a status column") = true;
+    let mut rows = Vec::new();
+    let mut details: Vec<(String, Vec<String>)> = Vec::new();
     for (first, members, time) in gs.iter().take(MAX_ROWS) {
         let s = &sv.states[*first];
-        let mut label = steps_label(&s.steps);
-        if members.len() > 1 {
-            label.push_str(&format!(" (+{} alike)", members.len() - 1));
-        }
+        let label = group_label(sv, *first, members.len());
         let peak = s.harmonics.peaks.first();
-        let mut row = format!(
-            "  {:<20}  {:>6}  {:>6}  {:>6}  {:>5}  {:>7}",
-            label,
+        let mut row = vec![
+            label.clone(),
             num(s.kvar, 0),
             s.harmonics.order.map_or("none".to_string(), |o| num(o, 2)),
             peak.map_or("-".to_string(), |p| num(p.order, 2)),
@@ -196,7 +333,7 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
                 .order
                 .map_or("-".to_string(), |o| num(o * hm.frequency_hz(), 0)),
             peak.map_or("-".to_string(), |p| num(p.impedance_ohm, 3)),
-        );
+        ];
         for h in &amp_orders {
             let a = s
                 .harmonics
@@ -204,24 +341,25 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
                 .iter()
                 .find(|x| x.order == *h)
                 .map_or(1.0, |x| x.amplification);
-            row.push_str(&format!("  {:>5}", num(a, 1)));
+            row.push(num(a, 1));
         }
-        row.push_str(&format!(
-            "  {:>6}  {:>7}",
-            format!("{} %", num(s.harmonics.thd_pct, 1)),
-            near_word(ctx, s)
-        ));
+        row.push(format!("{} %", num(s.harmonics.thd_pct, 1)));
         if let Some(run) = ctx.run_s {
             let h = time.map_or(0.0, |x| x / run.max(1e-9) * HOURS_PER_YEAR);
-            row.push_str(&format!("  {:>8}", approx(h)));
+            row.push(approx(h));
         }
-        t.push_str(&row);
-        t.push('\n');
+        row.push(status(ctx, s));
+        rows.push(row);
+        let b = s.harmonics.breaches(None);
+        if !b.is_empty() {
+            details.push((label, breach_text(&b)));
+        }
     }
+    table(&mut t, &head, &rows, &left);
     if gs.len() > MAX_ROWS {
         t.push_str(&format!(
             "  ... and {} more groups (every state is in --csv and --json)\n",
-            gs.len() - MAX_ROWS
+            count((gs.len() - MAX_ROWS) as u64)
         ));
     }
     super::wrap_plain(
@@ -232,6 +370,25 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
          without any step at harmonic N (above 1 the bank amplifies it); THD_V: estimated bus \
          voltage THD with the harmonic load at its rating.",
     );
+    super::wrap_plain(
+        &mut t,
+        "  ",
+        &format!(
+            "status: clear when no limit is exceeded and no resonance lies within ±{} orders \
+             of a harmonic present; near hN: a resonance within that of harmonic N; over: the \
+             limits exceeded, V_hN a harmonic voltage, THD_V the voltage THD, and of a step's \
+             capacitors I_C the rms current, U_C the rms voltage, U_C peak the peak voltage, \
+             Q_C the kvar (listed below).",
+            num(sc.resonance_tolerance, 2)
+        ),
+    );
+    if !details.is_empty() {
+        t.push('\n');
+        t.push_str("Limits exceeded (the first state of each row)\n");
+        for (label, texts) in &details {
+            super::wrap_plain(&mut t, "    ", &format!("{label}: {}.", texts.join("; ")));
+        }
+    }
     t.push('\n');
 
     // What detuning would do.
@@ -242,18 +399,6 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         "What detuning would do (same kvar per step, every step detuned at p; resonance of \
          each state with the supply)",
     );
-    t.push_str(&format!(
-        "  {:<8}  {:>12}  {:>9}  {:>13}  {:>10}  {}\n",
-        "p",
-        "tuning order",
-        "full bank",
-        "highest state",
-        "full THD_V",
-        lowest.map_or(String::new(), |h| format!(
-            "all below the {}?",
-            harmonic_name(h)
-        ))
-    ));
     let all = hm.all_mask();
     let built_highest = sv
         .states
@@ -271,54 +416,61 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         (None, Some(_)) => "no resonance",
         _ => "",
     };
-    t.push_str(&format!(
-        "  {:<8}  {:>12}  {:>9}  {:>13}  {:>10}  {}\n",
-        "as built",
-        "-",
+    let head: Vec<String> = vec![
+        "p".to_string(),
+        "tuning order".to_string(),
+        "full bank".to_string(),
+        "highest state".to_string(),
+        "full THD_V".to_string(),
+        lowest.map_or(String::new(), |h| {
+            format!("all below the {}?", harmonic_name(h))
+        }),
+    ];
+    let mut rows = vec![vec![
+        "as built".to_string(),
+        "-".to_string(),
         sv.full_bank_order.map_or("none".to_string(), |o| num(o, 2)),
         built_highest.map_or("none".to_string(), |o| num(o, 2)),
         format!("{} %", num(hm.thd_pct(all), 1)),
-        below(built_highest)
-    ));
+        below(built_highest).to_string(),
+    ]];
     for d in &sv.detuning {
-        t.push_str(&format!(
-            "  {:<8}  {:>12}  {:>9}  {:>13}  {:>10}  {}\n",
+        rows.push(vec![
             format!("{} %", num(d.p * 100.0, 2)),
             num(d.tuning_order, 2),
             d.full_bank_order.map_or("none".to_string(), |o| num(o, 2)),
             d.highest_order.map_or("none".to_string(), |o| num(o, 2)),
             format!("{} %", num(d.full_bank_thd_pct, 1)),
-            below(d.highest_order)
-        ));
+            below(d.highest_order).to_string(),
+        ]);
     }
+    table(
+        &mut t,
+        &head,
+        &rows,
+        &[true, false, false, false, false, true],
+    );
     t.push('\n');
-    let mut head = format!("  {:<20}  {:>8}", "steps on", "as built");
+    let mut head = vec!["steps on".to_string(), "as built".to_string()];
     for d in &sv.detuning {
-        head.push_str(&format!("  {:>8}", format!("{} %", num(d.p * 100.0, 2))));
+        head.push(format!("{} %", num(d.p * 100.0, 2)));
     }
+    let mut left = vec![false; head.len()];
+    left[0] = true;
     t.push_str("  Resonant order per state:\n");
-    t.push_str(&head);
-    t.push('\n');
+    let mut rows = Vec::new();
     for (first, members, _) in gs.iter().take(MAX_ROWS) {
         let s = &sv.states[*first];
-        let mut label = steps_label(&s.steps);
-        if members.len() > 1 {
-            label.push_str(&format!(" (+{} alike)", members.len() - 1));
-        }
-        let mut row = format!(
-            "  {:<20}  {:>8}",
-            label,
-            s.harmonics.order.map_or("none".to_string(), |o| num(o, 2))
-        );
+        let mut row = vec![
+            group_label(sv, *first, members.len()),
+            s.harmonics.order.map_or("none".to_string(), |o| num(o, 2)),
+        ];
         for d in &sv.detuning {
-            row.push_str(&format!(
-                "  {:>8}",
-                d.state_orders[*first].map_or("none".to_string(), |o| num(o, 2))
-            ));
+            row.push(d.state_orders[*first].map_or("none".to_string(), |o| num(o, 2)));
         }
-        t.push_str(&row);
-        t.push('\n');
+        rows.push(row);
     }
+    table(&mut t, &head, &rows, &left);
     let u = sc.supply.nominal_voltage_v;
     let volts: Vec<String> = sv
         .detuning
@@ -400,6 +552,9 @@ struct StateJson<'a> {
     peaks: &'a [Peak],
     nearest_harmonic: Option<f64>,
     near_harmonic: Option<f64>,
+    near_resonance: Option<NearResonance>,
+    status: String,
+    breaches: Vec<Breach>,
     time_s: Option<f64>,
     hours_per_year: Option<f64>,
     thd_pct: f64,
@@ -505,17 +660,34 @@ struct Document<'a> {
     tolerance_orders: f64,
     voltage_limits: &'static str,
     capacitor_limits: &'static str,
+    capacitor_voltage_limit: f64,
+    capacitor_voltage_judged_as: &'static str,
     damping_kw: f64,
     spectrum: Vec<(f64, f64)>,
+    harmonic_load_kva: f64,
+    harmonic_load_note: &'static str,
+    background_pct: &'a [(f64, f64)],
+    triplen_note: Option<&'static str>,
     full_bank_order: Option<f64>,
     states: Vec<StateJson<'a>>,
     detuning: Vec<DetuningJson<'a>>,
-    curves: Curves<'a>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    curves: Option<Curves<'a>>,
 }
 
+/// What the JSON says about the harmonic load.
+const HARMONIC_LOAD_NOTE: &str = "the harmonic load is taken at its full rating in every \
+state: the estimate assumes the full harmonic load";
+
+/// What the JSON says about triplen orders when the spectrum has any.
+const TRIPLEN_NOTE: &str = "triplen orders are zero-sequence: solved with the transformer's \
+impedance alone and the single-phase steps only (three-phase steps taken as delta-connected, \
+the transformer as Dyn), and not used for near_harmonic";
+
 /// Writes the whole survey as one JSON object: the states with their resonance,
-/// harmonic voltages and step stress, the detuning comparison, and the curves (`curves.h`
-/// and one `impedance_ohm` array per state, ohm).
+/// harmonic voltages, step stress, status and limits exceeded, the detuning comparison,
+/// and, when the context asks for them, the curves (`curves.h` and one `impedance_ohm`
+/// array per state, ohm).
 pub fn write_json(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(), ReportError> {
     let sc = ctx.scenario;
     let sv = ctx.survey;
@@ -532,7 +704,10 @@ pub fn write_json(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
             frequency_hz: s.harmonics.order.map(|o| o * hm.frequency_hz()),
             peaks: &s.harmonics.peaks,
             nearest_harmonic: s.harmonics.order.and_then(|o| hm.nearest_harmonic(o)),
-            near_harmonic: s.harmonics.order.and_then(|o| hm.near_harmonic(o, tol)),
+            near_harmonic: hm.near_resonance(&s.harmonics, tol).map(|n| n.harmonic),
+            near_resonance: hm.near_resonance(&s.harmonics, tol),
+            status: status(ctx, s),
+            breaches: s.harmonics.breaches(None),
             time_s: s.time_s,
             hours_per_year: match (s.time_s, ctx.run_s) {
                 (Some(t), Some(r)) => Some(t / r.max(1e-9) * HOURS_PER_YEAR),
@@ -584,13 +759,19 @@ pub fn write_json(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         grid: sv.scanner.grid(),
         tolerance_orders: tol,
         voltage_limits: hm.options.voltage_limits.name(),
-        capacitor_limits: hm.options.capacitor_limits.values().standard,
+        capacitor_limits: hm.options.capacitor_limits.standard(),
+        capacitor_voltage_limit: hm.options.capacitor_limits.admissible_voltage(None),
+        capacitor_voltage_judged_as: hm.options.capacitor_limits.voltage_duration(None),
         damping_kw: hm.options.damping_kw,
         spectrum: sc.spectrum.orders.clone(),
+        harmonic_load_kva: sc.spectrum.reference_kva,
+        harmonic_load_note: HARMONIC_LOAD_NOTE,
+        background_pct: hm.background(),
+        triplen_note: hm.has_triplen().then_some(TRIPLEN_NOTE),
         full_bank_order: sv.full_bank_order,
         states,
         detuning,
-        curves: Curves(sv),
+        curves: ctx.curves.then_some(Curves(sv)),
     };
     serde_json::to_writer_pretty(&mut *out, &doc)?;
     out.write_all(b"\n")?;

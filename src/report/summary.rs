@@ -6,6 +6,7 @@
 //! resonance section repeats it when a state resonates near a harmonic of the load.
 
 use crate::analysis::findings::{billed_goal, cause_words};
+use crate::analysis::resonance::breach_lines;
 use crate::bank::FaultKind;
 use crate::controller::{ExportMode, Measurement};
 use crate::metrics::OvercorrectionCause;
@@ -631,6 +632,7 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
             worst,
             format!("{} %", deciding(s.thd_pct, s.thd_limit_pct, 1)),
             current,
+            s.status(),
         ]);
     }
     table(
@@ -646,7 +648,9 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
             "worst harmonic",
             "THD_V",
             "I/I_N",
+            "status",
         ],
+        "lrrrrrrrrl",
         &rows,
     );
     if r.states.len() > MAX_STATES {
@@ -661,36 +665,38 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
         "  ",
         "Order: sqrt(S_sc/Q_c) for plain steps, the impedance-scan peak otherwise; near: the \
          load harmonic nearest to it; h/year: time in the state extrapolated to a 365-day \
-         year; I/I_N: the most loaded step's rms current over its rated current.",
+         year; I/I_N: the most loaded step's rms current over its rated current; status: \
+         `clear`, or the harmonic it resonates near and the limits it exceeds (V_hN a \
+         harmonic voltage, THD_V, I_C capacitor current, U_C capacitor voltage, Q_C \
+         capacitor kvar).",
     );
-    // One line per state with a step over a capacitor limit (its most loaded step), the
-    // most stressed first.
+    // One line per state with a capacitor limit exceeded (the breaches the analysis
+    // found), the most stressed first.
     let mut over: Vec<_> = r
         .states
         .iter()
         .filter_map(|s| {
-            s.step_stress
+            let caps: Vec<_> = s
+                .breaches
                 .iter()
-                .filter(|x| x.limit_ratio >= 1.0)
-                .max_by(|a, b| a.limit_ratio.total_cmp(&b.limit_ratio))
-                .map(|x| (s, x))
+                .filter(|b| b.step.is_some())
+                .copied()
+                .collect();
+            let worst = caps.iter().map(|b| b.ratio()).fold(0.0, f64::max);
+            (!caps.is_empty()).then_some((s, caps, worst))
         })
         .collect();
-    over.sort_by(|a, b| b.1.limit_ratio.total_cmp(&a.1.limit_ratio));
+    over.sort_by(|a, b| b.2.total_cmp(&a.2));
     let stressed: Vec<String> = over
         .iter()
         .take(6)
-        .map(|(s, x)| {
+        .map(|(s, caps, _)| {
             format!(
-                "state {} (about {} h a year): step {} at {} × rated current (limit {} ×), {} V \
-                 rms on its {} V capacitors",
+                "state {} (about {} h a year, at most {} in one day): {}",
                 steps_label(&s.steps),
                 approx(s.hours_per_year),
-                x.step,
-                deciding(x.current_ratio, x.current_limit, 2),
-                num(x.current_limit, 2),
-                num(x.voltage_v, 0),
-                num(x.rated_voltage_v, 0)
+                duration(s.max_hours_per_day * 3600.0),
+                breach_lines(caps).join("; ")
             )
         })
         .collect();

@@ -14,6 +14,8 @@ pub(super) struct HarmonicSettings {
     pub tolerance: f64,
     /// Limits and damping.
     pub options: HarmonicOptions,
+    /// The grid's own harmonic voltage: (order, % of U_n).
+    pub background_pct: Vec<(f64, f64)>,
 }
 
 /// The harmonic settings these keys describe.
@@ -58,7 +60,20 @@ pub(super) fn harmonics(h: &HarmonicsSection) -> Result<HarmonicSettings, FieldE
             "kW",
         )?,
     };
+    let mut background_pct: Vec<(f64, f64)> = Vec::new();
+    for (j, &(o, pct)) in h.background_pct.iter().flatten().enumerate() {
+        // Keys count from 1, the way a reader counts the pairs in the list.
+        let key = format!("harmonics.background_pct (pair {})", j + 1);
+        range(&key, o, 1.5, 100.0, "(harmonic order)")?;
+        range(&key, pct, 0.0, 20.0, "% of U_n")?;
+        match background_pct.iter_mut().find(|x| x.0 == o) {
+            Some(x) => x.1 = pct,
+            None => background_pct.push((o, pct)),
+        }
+    }
+    background_pct.sort_by(|a, b| a.0.total_cmp(&b.0));
     Ok(HarmonicSettings {
+        background_pct,
         spectrum: Spectrum {
             orders,
             reference_kva,

@@ -82,6 +82,9 @@ pub struct Scenario {
     pub resonance_tolerance: f64,
     /// Harmonic limits and damping.
     pub harmonics: HarmonicOptions,
+    /// Harmonic voltage the grid brings by itself: (order, % of U_n, open-circuit at the
+    /// bus), ascending. Default none.
+    pub background_pct: Vec<(f64, f64)>,
     /// Requested run length, s (`None`: the whole CSV profile, or 7 days synthetic).
     pub duration_s: Option<f64>,
     /// Time step, s.
@@ -121,6 +124,18 @@ pub fn hex_lower(bytes: &[u8]) -> String {
 }
 
 impl Scenario {
+    /// The harmonic model of the site these settings describe: supply, steps, load
+    /// spectrum, limits, damping and the grid's background distortion. Every part of the
+    /// crate that needs the model builds it here.
+    pub fn harmonic_model(&self) -> crate::harmonics::HarmonicModel {
+        crate::harmonics::HarmonicModel::new(
+            &self.supply,
+            &self.steps,
+            self.spectrum.clone(),
+            self.harmonics,
+        )
+        .with_background(&self.background_pct)
+    }
     /// Reads, parses and validates a scenario file.
     pub fn from_file(path: &Path) -> Result<Scenario, ScenarioError> {
         let text = std::fs::read_to_string(path).map_err(|source| ScenarioError::Io {
@@ -168,6 +183,7 @@ impl Scenario {
             spectrum: harm.spectrum,
             resonance_tolerance: harm.tolerance,
             harmonics: harm.options,
+            background_pct: harm.background_pct,
             duration_s: run.duration_s,
             dt_s: run.dt_s,
             start: run.start,

@@ -224,6 +224,9 @@ pub struct HarmonicsSection {
     pub capacitor_limits: Option<CapacitorLimits>,
     /// Linear resistive load at the bus that damps resonance, kW. Default 0 (none).
     pub damping_kw: Option<f64>,
+    /// Harmonic voltage the grid brings by itself, `[[5, 2.0], [7, 1.5]]` (order, % of
+    /// U_n, open-circuit at the bus). Default none.
+    pub background_pct: Option<Vec<(f64, f64)>>,
 }
 
 /// `[run]`.
