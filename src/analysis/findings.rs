@@ -503,13 +503,41 @@ fn hunting(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     } else {
         0.0
     };
-    let advice = format!(
-        "Widen the dead band (now ±{} kvar, {} × the smallest switched step; below about 0.5 × \
-         the step one operation overshoots the band) or lengthen the switching delay (now {}).",
-        num(c.dead_band_kvar, 1),
-        num(fraction, 2),
-        duration(c.connect_delay_s),
-    );
+    let largest = ctx
+        .scenario()
+        .steps
+        .iter()
+        .filter(|s| !s.fixed)
+        .map(|s| s.kvar)
+        .fold(0.0, f64::max);
+    let advice = if fraction >= 0.5
+        && c.ordering != crate::controller::OrderingKind::BestFit
+        && largest > 2.0 * c.dead_band_kvar
+    {
+        // The band is wide enough for the smallest step but not for the largest one that a
+        // fixed order may pick.
+        format!(
+            "The dead band (±{} kvar) suits the smallest step, but the {} kvar steps are wider \
+             than the whole band and {} ordering may pick one where a smaller step would do: \
+             best-fit ordering picks the step that fits, or a dead band of at least ±{} kvar \
+             (half the largest step) stops the overshoot; a longer switching delay (now {}) \
+             also slows it.",
+            num(c.dead_band_kvar, 1),
+            num(largest, 1),
+            c.ordering.name(),
+            num(0.5 * largest, 1),
+            duration(c.connect_delay_s),
+        )
+    } else {
+        format!(
+            "Widen the dead band (now ±{} kvar, {} × the smallest switched step; below about \
+             0.5 × the step one operation overshoots the band) or lengthen the switching \
+             delay (now {}).",
+            num(c.dead_band_kvar, 1),
+            num(fraction, 2),
+            duration(c.connect_delay_s),
+        )
+    };
     out.push(Finding::new(severity, "hunting", per_day, text).advise(advice, false));
 }
 
@@ -573,7 +601,8 @@ fn worst_state_finding(ctx: &Context<'_>, w: &StateResonance) -> Finding {
     let warning = r.warnings.iter().find(|x| x.steps == w.steps);
     let share = w.time_s / run_s;
     let mut text = format!(
-        "Worst harmonic state: steps {} ({} kvar), about {} h a year ({} of the run)",
+        "Worst harmonic state: step{} {} ({} kvar), about {} h a year ({} of the run)",
+        if w.steps.len() == 1 { "" } else { "s" },
         steps_label(&w.steps),
         num(w.kvar, 0),
         approx(w.hours_per_year),

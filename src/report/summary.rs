@@ -356,10 +356,9 @@ fn pf_energy(ctx: &ReportContext<'_>, t: &mut String) {
             t,
             "tan φ",
             &format!(
-                "{} inductive, {} capacitive (kvarh per kWh imported); capacitive PF {} lead",
+                "{} inductive, {} capacitive (kvarh per kWh imported)",
                 num(ind, 3),
-                num(cap, 3),
-                num(p.capacitive_pf, 2)
+                num(cap, 3)
             ),
         );
     }
@@ -469,11 +468,19 @@ fn overcorrection(ctx: &ReportContext<'_>, t: &mut String) {
         t,
         "  ",
         "  ",
-        &format!(
-            "Episodes: the supply leading by more than {} kvar for at least {}.",
-            num(o.threshold_kvar, 1),
-            duration(o.min_duration_s)
-        ),
+        &match ctx.scenario().controller.target {
+            target if target.quadrant == Quadrant::Lead && target.pf < 1.0 => format!(
+                "Episodes: the supply more leading than the {target} target allows, by more \
+                 than {} kvar, for at least {}.",
+                num(o.threshold_kvar, 1),
+                duration(o.min_duration_s)
+            ),
+            _ => format!(
+                "Episodes: the supply leading by more than {} kvar for at least {}.",
+                num(o.threshold_kvar, 1),
+                duration(o.min_duration_s)
+            ),
+        },
     );
     field(t, "Episodes", &count(o.episodes));
     if o.episodes == 0 {
@@ -686,7 +693,10 @@ fn resonance(ctx: &ReportContext<'_>, t: &mut String) {
             (!caps.is_empty()).then_some((s, caps, worst))
         })
         .collect();
-    over.sort_by(|a, b| b.2.total_cmp(&a.2));
+    // Ranked as the worst state is: hours a year × the square of the worst ratio.
+    over.sort_by(|a, b| {
+        (b.0.hours_per_year * b.2 * b.2).total_cmp(&(a.0.hours_per_year * a.2 * a.2))
+    });
     let stressed: Vec<String> = over
         .iter()
         .take(6)
