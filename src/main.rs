@@ -557,6 +557,7 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
         .fold(0, |m, (i, _)| m | 1 << i);
     let switched = model.all_mask() & !fixed;
     let mut run_s = None;
+    let mut profile_sha256: Option<String> = None;
     let selection = match args.states.trim() {
         "all" => Selection::All,
         "reached" => {
@@ -567,6 +568,7 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
                 .run(&mut bankstep::engine::Quiet)
                 .map_err(|e| Failure::simulation(e, &file))?;
             run_s = Some(result.metrics.run.duration_s);
+            profile_sha256 = study.profile.sha256.clone();
             Selection::Masks(
                 result
                     .metrics
@@ -590,6 +592,7 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
         scenario: &scenario,
         survey: &sv,
         run_s,
+        profile_sha256: profile_sha256.as_deref(),
         curves: args.curves,
     };
     let mut to_stdout = false;

@@ -543,3 +543,60 @@ fn profile_defects_are_reported() {
     assert_eq!(v["profile"]["rows_held"], 1);
     assert_eq!(v["profile"]["kinds"][0]["kind"], "not_finite");
 }
+
+// Both JSON outputs start with the same `tool` and `provenance` objects, and the scenario
+// hash is the SHA-256 of the file's bytes (checked with the sha2 crate, a general-purpose
+// implementation of FIPS 180-4).
+#[test]
+fn simulate_and_resonance_json_carry_the_same_provenance() {
+    use sha2::{Digest, Sha256};
+    let dir = TempDir::new().unwrap();
+    let sim = dir.path().join("sim.json");
+    let res = dir.path().join("res.json");
+    bankstep()
+        .arg("simulate")
+        .arg(pumping_station())
+        .args(["--quiet", "--json"])
+        .arg(&sim)
+        .assert()
+        .success();
+    bankstep()
+        .arg("resonance")
+        .arg(pumping_station())
+        .args(["--quiet", "--states", "reached", "--json"])
+        .arg(&res)
+        .assert()
+        .success();
+    let bytes = std::fs::read(pumping_station()).unwrap();
+    let want: String = Sha256::digest(&bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    let csv = std::fs::read(pumping_station().with_file_name("pumping-station-day.csv")).unwrap();
+    let want_csv: String = Sha256::digest(&csv)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    for path in [&sim, &res] {
+        let text = std::fs::read_to_string(path).unwrap();
+        let v: Value = serde_json::from_str(&text).unwrap();
+        // Top-level keys in file order: `tool`, then `provenance`, before anything else.
+        let tool = text.find("\n  \"tool\": {").expect("top-level tool");
+        let prov = text
+            .find("\n  \"provenance\": {")
+            .expect("top-level provenance");
+        let first_other = text.find("\n  \"scenario\"").or(text.find("\n  \"study\""));
+        assert!(
+            tool < prov && first_other.is_none_or(|o| prov < o),
+            "{}",
+            path.display()
+        );
+        assert_eq!(v["provenance"]["scenario_sha256"], want.as_str());
+        assert_eq!(v["provenance"]["profile_sha256"], want_csv.as_str());
+        assert_eq!(
+            v["provenance"]["seed"],
+            v["provenance"]["seed"].as_u64().unwrap()
+        );
+        assert!(!text.contains("-0.0"), "{}", path.display());
+    }
+}

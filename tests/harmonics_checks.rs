@@ -495,6 +495,7 @@ fn resonance_status_names_the_limits_exceeded() {
         scenario: &sc,
         survey: &sv,
         run_s: None,
+        profile_sha256: None,
         curves: false,
     };
     let mut out = Vec::new();
@@ -551,6 +552,7 @@ fn resonance_table_columns_fit_long_labels() {
             scenario: &sc,
             survey: &sv,
             run_s: None,
+            profile_sha256: None,
             curves: false,
         };
         let mut out = Vec::new();
@@ -599,6 +601,7 @@ fn resonance_json_has_curves_only_when_asked() {
             scenario: &sc,
             survey: &sv,
             run_s: None,
+            profile_sha256: None,
             curves,
         };
         let mut out = Vec::new();

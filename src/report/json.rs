@@ -14,7 +14,7 @@ use crate::controller::Measurement;
 use crate::metrics::{
     OvercorrectionMetrics, PfMetrics, RunInfo, StepWear, SwitchingMetrics, VoltageMetrics,
 };
-use crate::report::{ReportContext, ReportError, ReportWriter};
+use crate::report::{Provenance, ReportContext, ReportError, ReportWriter, Tool, TOOL};
 use serde::Serialize;
 use std::io::Write;
 
@@ -33,13 +33,6 @@ impl JsonReport {
     pub fn value(ctx: &ReportContext<'_>) -> Result<serde_json::Value, ReportError> {
         Ok(serde_json::to_value(document(ctx))?)
     }
-}
-
-/// The tool that wrote the report.
-#[derive(Debug, Serialize)]
-struct Tool {
-    name: &'static str,
-    version: &'static str,
 }
 
 /// One step of the bank as configured.
@@ -101,15 +94,6 @@ struct StudyJson {
     controller: ControllerJson,
 }
 
-/// What a report was made from, so that a run can be repeated and checked later.
-#[derive(Debug, Serialize)]
-struct Provenance {
-    tool_version: &'static str,
-    scenario_sha256: String,
-    profile_sha256: Option<String>,
-    seed: u64,
-}
-
 /// Wear, with the per-step list under `per_step`.
 #[derive(Debug, Serialize)]
 struct WearJson<'a> {
@@ -158,16 +142,8 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
     let total: f64 = sc.steps.iter().map(|s| s.kvar).sum();
     let fixed: f64 = sc.steps.iter().filter(|s| s.fixed).map(|s| s.kvar).sum();
     Document {
-        tool: Tool {
-            name: "bankstep",
-            version: env!("CARGO_PKG_VERSION"),
-        },
-        provenance: Provenance {
-            tool_version: env!("CARGO_PKG_VERSION"),
-            scenario_sha256: sc.content_sha256.clone(),
-            profile_sha256: ctx.study.profile.sha256.clone(),
-            seed: sc.seed,
-        },
+        tool: TOOL,
+        provenance: Provenance::new(sc, ctx.study.profile.sha256.as_deref()),
         study: StudyJson {
             name: sc.name.clone(),
             description: sc.description.clone(),

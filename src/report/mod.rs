@@ -173,6 +173,43 @@ pub(crate) fn write_json<T: serde::Serialize + ?Sized>(
     Ok(())
 }
 
+/// The tool that wrote a report: the `tool` object of every JSON output.
+#[derive(Debug, Clone, Copy, serde::Serialize)]
+pub(crate) struct Tool {
+    name: &'static str,
+    version: &'static str,
+}
+
+/// This build of bankstep.
+pub(crate) const TOOL: Tool = Tool {
+    name: "bankstep",
+    version: env!("CARGO_PKG_VERSION"),
+};
+
+/// What a report was made from, so that a run can be repeated and checked later: the
+/// `provenance` object of every JSON output, right after `tool`.
+#[derive(Debug, Clone, serde::Serialize)]
+pub(crate) struct Provenance {
+    tool_version: &'static str,
+    scenario_sha256: String,
+    /// SHA-256 of the CSV profile, when one was read (null for a synthetic load or a scan
+    /// that ran no profile).
+    profile_sha256: Option<String>,
+    seed: u64,
+}
+
+impl Provenance {
+    /// The provenance of a report on `scenario`, with the hash of the profile read.
+    pub(crate) fn new(scenario: &Scenario, profile_sha256: Option<&str>) -> Self {
+        Provenance {
+            tool_version: TOOL.version,
+            scenario_sha256: scenario.content_sha256.clone(),
+            profile_sha256: profile_sha256.map(str::to_string),
+            seed: scenario.seed,
+        }
+    }
+}
+
 /// The last component of a path, or the whole path if it has none.
 pub(crate) fn file_name(path: &std::path::Path) -> String {
     path.file_name()

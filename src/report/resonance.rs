@@ -11,7 +11,7 @@ use crate::harmonics::scan::{Peak, ScanGrid};
 use crate::harmonics::survey::{Survey, SurveyState};
 use crate::harmonics::{Breach, HarmonicVoltage, NearResonance, StepStress};
 use crate::report::{approx, count, harmonic_name, num, steps_label, ReportError};
-use crate::report::{file_name, HARDWARE_CAUTION};
+use crate::report::{file_name, Provenance, Tool, HARDWARE_CAUTION, TOOL};
 use crate::scenario::Scenario;
 use crate::timebase::HOURS_PER_YEAR;
 use serde::ser::{SerializeSeq, SerializeStruct};
@@ -28,6 +28,8 @@ pub struct ResonanceContext<'a> {
     pub survey: &'a Survey,
     /// Length of the run the states came from, s (`None` when not from a run).
     pub run_s: Option<f64>,
+    /// SHA-256 of the CSV profile that run read, if any.
+    pub profile_sha256: Option<&'a str>,
     /// Put the impedance curves (every state's |Z| over the whole grid) in the JSON. They
     /// are large: 12 steps at the default grid are hundreds of megabytes.
     pub curves: bool,
@@ -637,12 +639,6 @@ impl Serialize for Curves<'_> {
 }
 
 #[derive(Serialize)]
-struct Tool {
-    name: &'static str,
-    version: &'static str,
-}
-
-#[derive(Serialize)]
 struct SupplyJson {
     nominal_voltage_v: f64,
     frequency_hz: f64,
@@ -652,9 +648,9 @@ struct SupplyJson {
 #[derive(Serialize)]
 struct Document<'a> {
     tool: Tool,
+    provenance: Provenance,
     scenario: String,
     study: &'a str,
-    scenario_sha256: &'a str,
     supply: SupplyJson,
     grid: &'a ScanGrid,
     tolerance_orders: f64,
@@ -744,13 +740,10 @@ pub fn write_json(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         })
         .collect();
     let doc = Document {
-        tool: Tool {
-            name: "bankstep",
-            version: env!("CARGO_PKG_VERSION"),
-        },
+        tool: TOOL,
+        provenance: Provenance::new(sc, ctx.profile_sha256),
         scenario: file_name(&sc.path),
         study: &sc.name,
-        scenario_sha256: &sc.content_sha256,
         supply: SupplyJson {
             nominal_voltage_v: u,
             frequency_hz: sc.supply.frequency_hz,
@@ -773,8 +766,5 @@ pub fn write_json(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         detuning,
         curves: ctx.curves.then_some(Curves(sv)),
     };
-    serde_json::to_writer_pretty(&mut *out, &doc)?;
-    out.write_all(b"\n")?;
-    out.flush()?;
-    Ok(())
+    super::write_json(out, &doc)
 }
