@@ -1,5 +1,5 @@
 //! End-to-end tests of the `bankstep` command line: the summary on standard output, the
-//! JSON report's contract keys (domain contract, section 9), the time-series CSV, exit
+//! JSON report's promised keys (README, "JSON report"), the time-series CSV, exit
 //! codes and error messages for bad input, and the help text.
 
 use assert_cmd::Command;
@@ -84,7 +84,7 @@ fn at<'a>(v: &'a Value, path: &str) -> &'a Value {
 }
 
 #[test]
-fn json_report_has_every_contract_key() {
+fn json_report_has_every_promised_key() {
     let dir = TempDir::new().unwrap();
     let sc = scenario(
         &dir,
@@ -418,7 +418,8 @@ fn resonance_shows_detuning_moving_the_peak_below_the_5th() {
     for p in ["5.67 %", "7.00 %", "14.00 %"] {
         assert!(row(p).trim_end().ends_with("yes"), "{}", row(p));
     }
-    // Tuning orders 1/sqrt(p): 4.20, 3.78, 2.67 (REFERENCES.md, read).
+    // Tuning orders 1/sqrt(p) of a detuned step: 4.20, 3.78, 2.67 for 5.67 %, 7 % and 14 %
+    // (common practice; the formula read in public worked calculations).
     assert!(row("7.00 %").contains("3.78"));
     assert!(text.contains("near h7"));
 }

@@ -1,10 +1,11 @@
 //! The machine-readable report: one pretty-printed JSON object.
 //!
-//! It carries every key of the domain contract (section 9) at its dotted path — `run.*`,
-//! `pf.*`, `switching.*`, `overcorrection.*`, `resonance.states[i].*`,
-//! `resonance.warnings[i].*`, `wear.per_step[i].*` — plus a `tool` object (name and
-//! version), a `study` object (what was simulated and with which settings), the ranked
-//! `findings`, the bus `voltage` and the count of unsolved intervals.
+//! It carries every key the README's "JSON report" section promises scripts, at its dotted
+//! path — `run.*`, `pf.*`, `switching.*`, `overcorrection.*`, `resonance.states[i].*`,
+//! `resonance.warnings[i].*`, `wear.per_step[i].*` — after a `tool` object (name and
+//! version) and a `provenance` object (hashes and seed), then a `study` object (what was
+//! simulated and with which settings), the ranked `findings`, the `settings_to_check`,
+//! the bus `voltage` and the count of unsolved intervals.
 //!
 //! The output is byte-reproducible for a given scenario and version: no run timestamps, no
 //! absolute paths (file names only), and only structs, vectors and ordered maps.
@@ -223,7 +224,7 @@ mod tests {
     }
 
     #[test]
-    fn contract_paths_exist() {
+    fn promised_paths_exist() {
         let (_, v) = render();
         assert_eq!(v["run"]["samples"], 600);
         assert!(v["pf"]["energy_pf"].is_number());

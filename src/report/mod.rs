@@ -5,8 +5,8 @@
 //! `std::io::Write`:
 //!
 //! - [`summary::Summary`]: the human-readable text report, ranked findings first;
-//! - [`json::JsonReport`]: one pretty-printed JSON object with the keys of the domain
-//!   contract (section 9), byte-reproducible for a given scenario;
+//! - [`json::JsonReport`]: one pretty-printed JSON object with the keys the README's
+//!   "JSON report" section promises, byte-reproducible for a given scenario;
 //! - [`timeseries::TimeseriesWriter`]: not a [`ReportWriter`] but an engine
 //!   [`crate::engine::Observer`] that writes one CSV row per interval while the run goes.
 //!
