@@ -4,6 +4,7 @@
 //! over all states, and of the full per-state solution (harmonic voltages, THD, step
 //! stress, the limits exceeded) on top. Run with `cargo bench --bench resonance`.
 
+use bankstep::bank::BankState;
 use bankstep::harmonics::scan::{ScanGrid, Scanner};
 use bankstep::scenario::Scenario;
 use bankstep::study::Study;
@@ -48,7 +49,7 @@ fn main() {
         let t0 = Instant::now();
         let scanner = Scanner::new(model.clone(), grid);
         let t1 = Instant::now();
-        let all = scanner.scan_all(0, model.all_mask());
+        let all = scanner.scan_all(BankState::EMPTY, model.all_mask());
         let t2 = Instant::now();
         let mut thd = 0.0;
         for (mask, peaks) in &all {

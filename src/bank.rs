@@ -1,10 +1,10 @@
 //! The capacitor bank: its steps (size, phase, detuning, fixed or switched, contactor
 //! life, injected faults) and the per-phase susceptance of any set of connected steps.
 //!
-//! A bank state is a bit mask: bit i set means step i + 1 is connected. Steps are
-//! numbered from 1 in scenario order, fixed steps included; at most [`MAX_STEPS`].
+//! A bank state is a [`BankState`], the set of connected steps. Steps are numbered from 1
+//! in scenario order, fixed steps included; at most [`MAX_STEPS`].
 
-use serde::Serialize;
+use serde::{Serialize, Serializer};
 
 /// Time the usual discharge device of IEC 60831-1 takes to bring a capacitor down to 75 V:
 /// 3 min (from memory), s.
@@ -17,7 +17,7 @@ pub const MAX_STEPS: usize = 64;
 ///
 /// Steps are numbered from 1 in scenario order, fixed steps included; internally bit i
 /// stands for step i + 1, so a bank has at most [`MAX_STEPS`] steps. Iteration yields step
-/// numbers in ascending order.
+/// numbers in ascending order. States order as their bits do (step 1 the lowest bit).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Default)]
 pub struct BankState(u64);
 
@@ -46,7 +46,17 @@ impl BankState {
 
     /// The state with the given step numbers (from 1).
     pub fn of_steps(numbers: &[usize]) -> Self {
-        numbers.iter().fold(Self::EMPTY, |s, &n| s.with(n))
+        numbers.iter().copied().collect()
+    }
+
+    /// The steps of `steps` (numbered from 1 in their order) for which `keep` is true.
+    pub fn select(steps: &[StepSpec], keep: impl Fn(&StepSpec) -> bool) -> Self {
+        steps
+            .iter()
+            .enumerate()
+            .filter(|(_, s)| keep(s))
+            .map(|(i, _)| i + 1)
+            .collect()
     }
 
     /// True when step `number` (from 1) is connected.
@@ -54,14 +64,24 @@ impl BankState {
         (1..=MAX_STEPS).contains(&number) && self.0 & (1u64 << (number - 1)) != 0
     }
 
-    /// The state with step `number` (from 1) connected as well.
+    /// The state with step `number` (1 to [`MAX_STEPS`]) connected as well.
     pub fn with(self, number: usize) -> Self {
         BankState(self.0 | (1u64 << (number - 1)))
     }
 
-    /// The state with step `number` (from 1) open.
+    /// The state with step `number` (1 to [`MAX_STEPS`]) open.
     pub fn without(self, number: usize) -> Self {
         BankState(self.0 & !(1u64 << (number - 1)))
+    }
+
+    /// The lowest-numbered connected step, if any.
+    pub fn lowest(self) -> Option<usize> {
+        (self.0 != 0).then(|| self.0.trailing_zeros() as usize + 1)
+    }
+
+    /// The highest-numbered connected step, if any.
+    pub fn highest(self) -> Option<usize> {
+        (self.0 != 0).then(|| MAX_STEPS - self.0.leading_zeros() as usize)
     }
 
     /// Number of connected steps.
@@ -104,23 +124,19 @@ impl BankState {
     pub fn kvar(self, steps: &[StepSpec]) -> f64 {
         self.iter()
             .filter_map(|n| steps.get(n - 1))
-            .map(|s| s.kvar)
-            .sum()
+            .fold(0.0, |q, s| q + s.kvar)
     }
 
     /// The state as people write it: step numbers joined by `+` (`1+2+5`), or `none`.
     pub fn label(self) -> String {
-        if self.is_empty() {
-            return "none".to_string();
-        }
-        let mut s = String::with_capacity(self.len() * 3);
-        for (i, n) in self.iter().enumerate() {
-            if i > 0 {
-                s.push('+');
-            }
-            s.push_str(&n.to_string());
-        }
-        s
+        crate::text::join_steps(self)
+    }
+}
+
+/// A state serializes as its bits (bit i: step i + 1), the form JSON has always had.
+impl Serialize for BankState {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_u64(self.0)
     }
 }
 
@@ -144,6 +160,13 @@ impl Iterator for StepNumbers {
         let i = self.0.trailing_zeros() as usize;
         self.0 &= self.0 - 1;
         Some(i + 1)
+    }
+}
+
+/// The state with the step numbers (from 1) given.
+impl FromIterator<usize> for BankState {
+    fn from_iter<I: IntoIterator<Item = usize>>(numbers: I) -> Self {
+        numbers.into_iter().fold(Self::EMPTY, Self::with)
     }
 }
 
@@ -300,10 +323,10 @@ pub struct Bank {
     pub steps: Vec<StepSpec>,
     nominal_b: Vec<[f64; 3]>,
     health: Vec<f64>,
-    /// Mask of fixed steps.
-    pub fixed_mask: u64,
-    /// Mask of switched steps.
-    pub switched_mask: u64,
+    /// The fixed steps.
+    pub fixed_mask: BankState,
+    /// The switched steps.
+    pub switched_mask: BankState,
     /// Times (elapsed seconds) at which some step's health changes, ascending.
     fault_times: Vec<f64>,
     next_fault: usize,
@@ -313,15 +336,8 @@ impl Bank {
     /// Builds a bank for a nominal voltage. `steps.len()` must not exceed [`MAX_STEPS`].
     pub fn new(steps: Vec<StepSpec>, u_n_v: f64) -> Self {
         let nominal_b = steps.iter().map(|s| s.susceptance(u_n_v)).collect();
-        let mut fixed_mask = 0;
-        let mut switched_mask = 0;
-        for (i, s) in steps.iter().enumerate() {
-            if s.fixed {
-                fixed_mask |= 1 << i;
-            } else {
-                switched_mask |= 1 << i;
-            }
-        }
+        let fixed_mask = BankState::select(&steps, |s| s.fixed);
+        let switched_mask = BankState::select(&steps, |s| !s.fixed);
         let mut fault_times: Vec<f64> = steps
             .iter()
             .filter_map(|s| s.fault.map(|f| f.from_s))
@@ -376,13 +392,12 @@ impl Bank {
         }
     }
 
-    /// Actual per-phase susceptance of the connected steps in `mask`, siemens, with faults.
-    pub fn susceptance(&self, mask: u64) -> [f64; 3] {
+    /// Actual per-phase susceptance of the connected steps in `state`, siemens, with
+    /// faults.
+    pub fn susceptance(&self, state: BankState) -> [f64; 3] {
         let mut b = [0.0; 3];
-        let mut m = mask;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
+        for n in state {
+            let i = n - 1;
             for (bp, nb) in b.iter_mut().zip(self.nominal_b[i]) {
                 *bp += nb * self.health[i];
             }
@@ -390,24 +405,9 @@ impl Bank {
         b
     }
 
-    /// Nominal kvar at U_n of the steps in `mask` (what the controller believes).
-    pub fn nominal_kvar(&self, mask: u64) -> f64 {
-        let mut q = 0.0;
-        let mut m = mask;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            q += self.steps[i].kvar;
-        }
-        q
-    }
-
-    /// Step numbers (from 1) of the steps in `mask`.
-    pub fn numbers(mask: u64) -> Vec<usize> {
-        (0..MAX_STEPS)
-            .filter(|i| mask & (1 << i) != 0)
-            .map(|i| i + 1)
-            .collect()
+    /// Nominal kvar at U_n of the steps in `state` (what the controller believes).
+    pub fn nominal_kvar(&self, state: BankState) -> f64 {
+        state.kvar(&self.steps)
     }
 
     /// Smallest switched step, kvar; the smallest step of all if none is switched.
@@ -446,12 +446,94 @@ mod tests {
             from_s: 100.0,
         });
         let mut bank = Bank::new(vec![s, step(25.0)], 400.0);
-        let full = bank.susceptance(0b11);
+        let both = BankState::first(2);
+        let full = bank.susceptance(both);
         assert!(!bank.advance_faults(99.0));
         assert!(bank.advance_faults(100.0));
-        let after = bank.susceptance(0b11);
+        let after = bank.susceptance(both);
         assert!((after[0] - full[0] / 3.0).abs() < 1e-12);
-        assert_eq!(bank.nominal_kvar(0b11), 75.0);
-        assert_eq!(Bank::numbers(0b101), vec![1, 3]);
+        assert_eq!(bank.nominal_kvar(both), 75.0);
+    }
+
+    #[test]
+    fn bank_splits_fixed_and_switched_steps() {
+        let fixed = StepSpec {
+            fixed: true,
+            ..step(10.0)
+        };
+        let bank = Bank::new(vec![step(25.0), fixed, step(50.0)], 400.0);
+        assert_eq!(bank.fixed_mask.numbers(), vec![2]);
+        assert_eq!(bank.switched_mask.numbers(), vec![1, 3]);
+    }
+
+    #[test]
+    fn state_iterates_step_numbers_in_ascending_order() {
+        let s = BankState::EMPTY.with(5).with(1).with(3);
+        assert_eq!(s.iter().collect::<Vec<_>>(), vec![1, 3, 5]);
+        assert_eq!(s.numbers(), vec![1, 3, 5]);
+        assert_eq!(s.bits(), 0b10101);
+        assert_eq!(BankState::from_bits(0b10101), s);
+        assert_eq!(BankState::of_steps(&[5, 3, 1]), s);
+        assert_eq!((s.lowest(), s.highest()), (Some(1), Some(5)));
+        assert_eq!(
+            (BankState::EMPTY.lowest(), BankState::EMPTY.highest()),
+            (None, None)
+        );
+        assert_eq!(BankState::EMPTY.iter().next(), None);
+    }
+
+    #[test]
+    fn state_label_joins_step_numbers_with_plus() {
+        assert_eq!(BankState::of_steps(&[1, 2, 5]).label(), "1+2+5");
+        assert_eq!(BankState::of_steps(&[12]).label(), "12");
+        assert_eq!(BankState::EMPTY.label(), "none");
+        assert_eq!(BankState::of_steps(&[2, 10]).to_string(), "2+10");
+    }
+
+    #[test]
+    fn state_kvar_adds_the_connected_steps() {
+        let steps = [step(25.0), step(50.0), step(100.0)];
+        assert_eq!(BankState::of_steps(&[1, 3]).kvar(&steps), 125.0);
+        assert_eq!(BankState::EMPTY.kvar(&steps), 0.0);
+        // A step number past the bank adds nothing.
+        assert_eq!(BankState::of_steps(&[2, 7]).kvar(&steps), 50.0);
+    }
+
+    #[test]
+    fn first_64_is_every_step() {
+        let all = BankState::first(64);
+        assert_eq!(all.len(), 64);
+        assert_eq!(all.bits(), u64::MAX);
+        assert_eq!(all.lowest(), Some(1));
+        assert_eq!(all.highest(), Some(64));
+        assert!(all.contains(64));
+        assert_eq!(BankState::first(3).numbers(), vec![1, 2, 3]);
+        assert!(BankState::first(0).is_empty());
+    }
+
+    #[test]
+    fn with_and_without_add_and_remove_one_step() {
+        let s = BankState::of_steps(&[1, 3]);
+        assert!(s.with(2).contains(2));
+        assert_eq!(s.with(3), s);
+        assert_eq!(s.without(1).numbers(), vec![3]);
+        assert_eq!(s.without(2), s);
+        assert_eq!(s.with(64).without(64), s);
+        assert!(!s.contains(0) && !s.contains(65));
+    }
+
+    #[test]
+    fn set_operations_combine_states() {
+        let a = BankState::of_steps(&[1, 2, 3]);
+        let b = BankState::of_steps(&[3, 4]);
+        assert_eq!(a.and(b).numbers(), vec![3]);
+        assert_eq!(a.or(b).numbers(), vec![1, 2, 3, 4]);
+        assert_eq!(a.minus(b).numbers(), vec![1, 2]);
+    }
+
+    #[test]
+    fn state_serializes_as_its_bits() {
+        let s = BankState::of_steps(&[1, 3]);
+        assert_eq!(serde_json::to_string(&s).unwrap(), "5");
     }
 }

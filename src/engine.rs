@@ -11,7 +11,7 @@
 //! see every interval (time series, progress) and are the only way out of the loop. The
 //! engine judges nothing: what the metrics mean is the business of [`crate::analysis`].
 
-use crate::bank::Bank;
+use crate::bank::{Bank, BankState};
 use crate::controller::{Controller, Decision, Reading};
 use crate::error::RunError;
 use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
@@ -33,8 +33,8 @@ pub struct IntervalRecord<'a> {
     pub load: &'a LoadSample,
     /// Per-phase solution at the metering point.
     pub phases: &'a [PhaseSolution; 3],
-    /// Connected steps during the interval (mask).
-    pub mask: u64,
+    /// Connected steps during the interval.
+    pub mask: BankState,
     /// The controller's decision (operations take effect at t_{k+1}).
     pub decision: &'a Decision,
 }
@@ -93,9 +93,9 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     // The distortion protection needs the THD of each state the run reaches.
     let hm = sc.harmonic_model();
     let thd_wanted = sc.controller.protection.thd_limit_pct.is_some();
-    let mut thd_cache: HashMap<u64, f64> =
+    let mut thd_cache: HashMap<BankState, f64> =
         HashMap::with_capacity(if thd_wanted { 4096 } else { 0 });
-    let mut thd_of = |mask: u64| -> f64 {
+    let mut thd_of = |mask: BankState| -> f64 {
         if !thd_wanted {
             return 0.0;
         }
@@ -108,7 +108,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     let mut thd = thd_of(ctl.mask());
     let sqrt3 = 3f64.sqrt();
     let want_current = sc.controller.protection.min_current_a.is_some();
-    let has_fixed = bank.fixed_mask != 0;
+    let has_fixed = !bank.fixed_mask.is_empty();
     let n = plan.intervals;
     observer.progress(0, n);
     for k in 0..n {
@@ -171,7 +171,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             mask,
             decision: &d,
         })?;
-        if d.closed | d.opened != 0 {
+        if !d.closed.or(d.opened).is_empty() {
             met.record_ops(k, &d, t_next);
             solver.set_bank(&bank.susceptance(ctl.mask()));
             thd = thd_of(ctl.mask());

@@ -12,6 +12,7 @@
 //!   own usage errors also exit with 2.
 
 use anyhow::Context;
+use bankstep::bank::BankState;
 use bankstep::engine::{IntervalRecord, Observer};
 use bankstep::error::RunError;
 use bankstep::harmonics::scan::ScanGrid;
@@ -549,13 +550,8 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
         detunings.push(p / 100.0);
     }
     let model = scenario.harmonic_model();
-    let fixed: u64 = scenario
-        .steps
-        .iter()
-        .enumerate()
-        .filter(|(_, s)| s.fixed)
-        .fold(0, |m, (i, _)| m | 1 << i);
-    let switched = model.all_mask() & !fixed;
+    let fixed = BankState::select(&scenario.steps, |s| s.fixed);
+    let switched = model.all_mask().minus(fixed);
     let mut run_s = None;
     let mut profile_sha256: Option<String> = None;
     let selection = match args.states.trim() {

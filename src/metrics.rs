@@ -10,7 +10,7 @@
 //! hunting cycle per pair of consecutive operations of one step no further apart than the
 //! hunting window; time in each bank state, in all and at most within one calendar day.
 
-use crate::bank::Bank;
+use crate::bank::{Bank, BankState};
 use crate::controller::{Decision, StepState};
 use crate::pf::{BilledPf, PfTarget, Quadrant};
 use crate::timebase::{Calendar, DAY_S, YEAR_S};
@@ -242,8 +242,8 @@ pub struct OvercorrectionMetrics {
 pub struct StateTime {
     /// Connected steps (numbers), fixed ones included.
     pub steps: Vec<usize>,
-    /// Bit mask of the connected steps.
-    pub mask: u64,
+    /// The connected steps (serialized as its bits: bit i for step i + 1).
+    pub mask: BankState,
     /// Time in the state, s.
     pub time_s: f64,
     /// Largest time spent in the state within any one calendar day (midnight to midnight
@@ -420,9 +420,9 @@ pub struct Metrics {
     cause_n: [u64; 4],
     weekday_n: [u64; 7],
     min_ep_n: u64,
-    mask: u64,
+    mask: BankState,
     mask_since_k: u64,
-    state_n: HashMap<u64, StateAcc>,
+    state_n: HashMap<BankState, StateAcc>,
     on_since_k: Vec<u64>,
     energized_n: Vec<u64>,
     last_op_t: Vec<f64>,
@@ -601,8 +601,8 @@ impl Metrics {
     /// Records the operations of interval k, which take effect at t_{k+1} (interval k + 1).
     #[inline]
     pub fn record_ops(&mut self, k: u64, d: &Decision, t_next: f64) {
-        let changed = d.closed | d.opened;
-        if changed == 0 {
+        let changed = d.closed.or(d.opened);
+        if changed.is_empty() {
             return;
         }
         if let Some(t) = d.trip {
@@ -615,21 +615,19 @@ impl Metrics {
         }
         let k_next = k + 1;
         self.close_state(k_next);
-        let mut m = changed;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
+        for n in changed {
+            let i = n - 1;
             if t_next - self.last_op_t[i] <= self.p.hunting_window_s + 1e-9 {
                 self.hunting[i] += 1;
             }
             self.last_op_t[i] = t_next;
-            if d.closed & (1 << i) != 0 {
+            if d.closed.contains(n) {
                 self.on_since_k[i] = k_next;
             } else {
                 self.energized_n[i] += k_next - self.on_since_k[i];
             }
         }
-        self.mask = (self.mask | d.closed) & !d.opened;
+        self.mask = self.mask.or(d.closed).minus(d.opened);
     }
 
     /// Adds the time of the current bank state from its start to interval `k_end`.
@@ -657,11 +655,8 @@ impl Metrics {
         }
         self.close_window(t_end);
         self.close_state(n);
-        let mut m = self.mask;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            self.energized_n[i] += n - self.on_since_k[i];
+        for s in self.mask {
+            self.energized_n[s - 1] += n - self.on_since_k[s - 1];
         }
         let billed = self.reg.billed();
         let share = |c: u64| if n > 0 { c as f64 / n as f64 } else { 0.0 };
@@ -704,7 +699,7 @@ impl Metrics {
             .iter()
             .filter(|(_, c)| c.n > 0)
             .map(|(mask, c)| StateTime {
-                steps: Bank::numbers(*mask),
+                steps: mask.numbers(),
                 mask: *mask,
                 time_s: c.n as f64 * dt,
                 max_day_s: c.max_day_s(),
@@ -937,12 +932,13 @@ mod tests {
             0.0,
         );
         let ops = [(47u64, true), (107, false), (179, true)];
+        let step1 = BankState::of_steps(&[1]);
         for k in 0..216u64 {
             record(&mut m, k as f64 * dt, 100.0, 10.0);
             if let Some(&(_, close)) = ops.iter().find(|o| o.0 == k) {
                 let d = Decision {
-                    closed: u64::from(close),
-                    opened: u64::from(!close),
+                    closed: if close { step1 } else { BankState::EMPTY },
+                    opened: if close { BankState::EMPTY } else { step1 },
                     ..Decision::default()
                 };
                 m.record_ops(k, &d, (k + 1) as f64 * dt);
@@ -958,8 +954,16 @@ mod tests {
                 openings: 1,
             }],
         );
-        let on = r.states.iter().find(|s| s.mask == 1).expect("state {1}");
-        let off = r.states.iter().find(|s| s.mask == 0).expect("state {}");
+        let on = r
+            .states
+            .iter()
+            .find(|s| s.mask == step1)
+            .expect("state {1}");
+        let off = r
+            .states
+            .iter()
+            .find(|s| s.mask.is_empty())
+            .expect("state {}");
         assert_eq!((on.time_s, on.max_day_s), (57_600.0, 43_200.0));
         assert_eq!((off.time_s, off.max_day_s), (72_000.0, 43_200.0));
     }

@@ -105,15 +105,20 @@ pub fn duration(s: f64) -> String {
 
 /// A set of step numbers joined by `+`, e.g. `1+2+3`; `none` for the empty set.
 pub fn steps_label(steps: &[usize]) -> String {
-    if steps.is_empty() {
-        return "none".to_string();
-    }
-    let mut s = String::with_capacity(steps.len() * 3);
-    for (i, n) in steps.iter().enumerate() {
+    join_steps(steps.iter().copied())
+}
+
+/// Step numbers joined by `+` in the order given, e.g. `1+2+3`; `none` when there are none.
+pub fn join_steps(steps: impl IntoIterator<Item = usize>) -> String {
+    let mut s = String::new();
+    for (i, n) in steps.into_iter().enumerate() {
         if i > 0 {
             s.push('+');
         }
         s.push_str(&n.to_string());
+    }
+    if s.is_empty() {
+        s.push_str("none");
     }
     s
 }

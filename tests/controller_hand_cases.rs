@@ -53,7 +53,7 @@ fn sequential_staircase() {
         ]
     );
     assert_eq!(r.metrics.switching.total_operations, 5);
-    assert_eq!(*rec.masks.last().unwrap(), 0b0111);
+    assert_eq!(rec.masks.last().unwrap().numbers(), vec![1, 2, 3]);
 }
 
 // Rotating: first in, first out. Opening at 110 takes step 1 (on since 10, longest);

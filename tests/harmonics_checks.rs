@@ -3,6 +3,7 @@
 //! runs (the bundled pumping station, the distortion protection).
 
 mod common;
+use bankstep::bank::BankState;
 use bankstep::harmonics::scan::{peaks, ScanGrid, Scanner};
 use bankstep::harmonics::survey::{Selection, Survey};
 use bankstep::harmonics::{thd_pct, BreachKind, HarmonicModel, SpectrumPreset};
@@ -13,6 +14,9 @@ use common::{study, Pieces};
 use nalgebra::{DMatrix, DVector};
 use num_complex::Complex64;
 use std::path::Path;
+
+/// Step 1 alone connected.
+const STEP_1: BankState = BankState::from_bits(0b1);
 
 /// The harmonic model of a scenario given as TOML text.
 fn model(toml: &str) -> HarmonicModel {
@@ -41,7 +45,7 @@ duration_s = 60
 }
 
 /// Order of the minimum of |Z(h)| in [a, b] by golden section (a series resonance).
-fn minimum(m: &HarmonicModel, mask: u64, mut a: f64, mut b: f64) -> f64 {
+fn minimum(m: &HarmonicModel, mask: BankState, mut a: f64, mut b: f64) -> f64 {
     let g = (5f64.sqrt() - 1.0) / 2.0;
     for _ in 0..200 {
         let c = b - g * (b - a);
@@ -62,12 +66,12 @@ fn minimum(m: &HarmonicModel, mask: u64, mut a: f64, mut b: f64) -> f64 {
 #[test]
 fn scan_peak_of_the_reference_example() {
     let m = model(&site("[[steps]]\nkvar = 300\n", ""));
-    assert!((m.plain_order(1).unwrap() - 7.454).abs() < 1e-3);
-    let p = peaks(&m, 1, &ScanGrid::default());
+    assert!((m.plain_order(STEP_1).unwrap() - 7.454).abs() < 1e-3);
+    let p = peaks(&m, STEP_1, &ScanGrid::default());
     assert_eq!(p.len(), 1);
     assert!((p[0].order - 7.454).abs() / 7.454 < 0.01, "{}", p[0].order);
     // f_r = 7.454 × 50 Hz = 372.7 Hz (the same worked example).
-    assert!((m.plain_order(1).unwrap() * 50.0 - 372.7).abs() < 0.1);
+    assert!((m.plain_order(STEP_1).unwrap() * 50.0 - 372.7).abs() < 0.1);
 }
 
 // The scan peak against the resonance of the reactances, h_r = sqrt(X_C/X_s) (parallel
@@ -97,14 +101,14 @@ fn scan_peak_matches_the_reactive_resonance_over_sizes() {
             );
             let m = model(&toml);
             let s_sc = 1.0 / (grid.map_or(0.0, |g| 1.0 / (g * 1e3)) + uk / 100.0 / kva);
-            assert!((m.plain_order(1).unwrap() - (s_sc / q).sqrt()).abs() < 1e-9);
+            assert!((m.plain_order(STEP_1).unwrap() - (s_sc / q).sqrt()).abs() < 1e-9);
             // X = |Z|·(X/R)/sqrt(1 + (X/R)²); |Z_T| = u_k·U²/S_T, |Z_grid| = U²/S_grid with
             // the default grid X/R of 10 (definitions).
             let x_of = |z: f64, ratio: f64| z * ratio / (1.0 + ratio * ratio).sqrt();
             let x_s = x_of(uk / 100.0 * u * u / (kva * 1e3), xr)
                 + grid.map_or(0.0, |g| x_of(u * u / (g * 1e6), 10.0));
             let est = (u * u / (q * 1e3) / x_s).sqrt();
-            let h = peaks(&m, 1, &ScanGrid::default())[0].order;
+            let h = peaks(&m, STEP_1, &ScanGrid::default())[0].order;
             assert!(
                 (h - est).abs() / est < 1e-3,
                 "{kva} kVA {uk} % X/R {xr}, {q} kvar: scan {h}, sqrt(X_C/X_s) {est}"
@@ -126,13 +130,13 @@ fn detuned_step_tuning_and_capacitor_voltage() {
         ));
         let t = m.tuning_order(0).unwrap();
         assert!((t - tuning).abs() < 0.005, "{p} %: {t}");
-        let dip = minimum(&m, 1, t - 0.5, t + 0.5);
+        let dip = minimum(&m, STEP_1, t - 0.5, t + 0.5);
         assert!(
             (dip - 1.0 / (p / 100.0f64).sqrt()).abs() < 1e-6,
             "{p} %: {dip}"
         );
-        assert!(m.impedance(1, dip).norm() < 1e-6 * m.supply_impedance(dip).norm());
-        let st = m.state(1);
+        assert!(m.impedance(STEP_1, dip).norm() < 1e-6 * m.supply_impedance(dip).norm());
+        let st = m.state(STEP_1);
         let s = &st.steps[0];
         assert!(
             (s.fundamental_voltage_v - u_c).abs() < 0.5,
@@ -162,7 +166,7 @@ fn detuned_step_output_follows_the_rating() {
     // Q = U²·B(1): the delivered kvar at U_n.
     let delivered = 400.0 * 400.0 * m.step_susceptance(0, 1.0) / 1e3;
     assert!((delivered - q).abs() < 1e-9);
-    let s = &m.state(1).steps[0];
+    let s = &m.state(STEP_1).steps[0];
     assert!((s.rated_current_a - 50_000.0 / (3f64.sqrt() * 440.0)).abs() < 1e-9);
     assert!((3f64.sqrt() * 440.0 * s.rated_current_a - 50_000.0).abs() < 1e-6);
 }
@@ -178,12 +182,12 @@ fn detuned_banks_resonate_below_tuning() {
         ));
         let t = 1.0 / (p / 100.0f64).sqrt();
         let sc = Scanner::new(m.clone(), ScanGrid::default());
-        for (mask, pk) in sc.scan_all(0, 0b11_1111) {
-            if mask == 0 {
+        for (state, pk) in sc.scan_all(BankState::EMPTY, BankState::first(6)) {
+            if state.is_empty() {
                 assert!(pk.is_empty());
                 continue;
             }
-            assert_eq!(pk.len(), 1, "{p} %, state {mask:b}");
+            assert_eq!(pk.len(), 1, "{p} %, state {state}");
             assert!(
                 pk[0].order < t && pk[0].order < 5.0,
                 "{p} %: {}",
@@ -211,7 +215,7 @@ fn thd_of_six_pulse_currents_by_hand() {
         )
         .replace("x_over_r = 8", "x_over_r = 100"),
     );
-    let st = m.state(0);
+    let st = m.state(BankState::EMPTY);
     for h in &st.harmonics {
         assert!((h.v_pct - 0.6000).abs() < 1e-3, "h{}: {}", h.order, h.v_pct);
     }
@@ -272,15 +276,16 @@ duration_s = 60
     ];
     let g_damp = 100e3 / (u * u);
     let i_ref = 200e3 / (3f64.sqrt() * u);
-    for mask in 0u64..8 {
-        let st = m.state(mask);
+    for bits in 0u64..8 {
+        let state = BankState::from_bits(bits);
+        let st = m.state(state);
         for hv in &st.harmonics {
             let h = hv.order;
             let zg = Complex64::new(rg * h.sqrt(), xg * h);
             let zt = Complex64::new(rt * h.sqrt(), xt * h);
             let mut y_bus = zt.inv() + Complex64::new(g_damp, 0.0);
             for (i, &(xc, p)) in branches.iter().enumerate() {
-                if mask & (1 << i) != 0 {
+                if state.contains(i + 1) {
                     y_bus += Complex64::new(0.0, h * p * xc - xc / h).inv();
                 }
             }
@@ -292,7 +297,7 @@ duration_s = 60
             let v_pct = 100.0 * v[1].norm() / (u / 3f64.sqrt());
             assert!(
                 (v_pct - hv.v_pct).abs() <= 1e-9 * v_pct.max(1.0),
-                "state {mask:b}, h{h}: nodal {v_pct}, model {}",
+                "state {state}, h{h}: nodal {v_pct}, model {}",
                 hv.v_pct
             );
         }
@@ -334,7 +339,7 @@ fn pumping_station_warns_near_the_7th_and_detuning_cures_it() {
     let hm = st.harmonic_model();
     let detuned = hm.with_detuning(0.07);
     let sc = Scanner::new(detuned, ScanGrid::default());
-    for (_, pk) in sc.scan_all(0, hm.all_mask()) {
+    for (_, pk) in sc.scan_all(BankState::EMPTY, hm.all_mask()) {
         assert!(pk.iter().all(|p| p.order < 5.0));
     }
 }
@@ -427,7 +432,7 @@ duration_s = 60
 // EN 50160 (from memory): h11 3.5 %, THD 8 %: h11 over, the others under their levels.
 #[test]
 fn a_state_is_judged_against_its_limits() {
-    let iec = model(&pumping_site("")).state(0b11);
+    let iec = model(&pumping_site("")).state(BankState::first(2));
     let b = iec.breaches(None);
     let kinds: Vec<_> = b.iter().map(|x| (x.kind, x.step)).collect();
     assert_eq!(
@@ -449,7 +454,7 @@ fn a_state_is_judged_against_its_limits() {
     // Held up to 8 h a day, the IEC voltage limit is 1.10: only the current remains.
     assert_eq!(iec.breaches(Some(8.0)).len(), 3);
 
-    let ieee = model(&pumping_site("capacitor_limits = \"ieee-18\"")).state(0b11);
+    let ieee = model(&pumping_site("capacitor_limits = \"ieee-18\"")).state(BankState::first(2));
     let b = ieee.breaches(None);
     assert_eq!(b.len(), 1, "{b:?}");
     assert_eq!(b[0].kind, BreachKind::HarmonicVoltage { order: 11.0 });
@@ -457,7 +462,7 @@ fn a_state_is_judged_against_its_limits() {
     assert!((s.peak_ratio - 1.1585).abs() < 1e-4 && s.peak_limit == Some(1.20));
     assert!((s.kvar_ratio - 1.0660).abs() < 1e-4 && s.kvar_limit == Some(1.35));
 
-    let en = model(&pumping_site("voltage_limits = \"en-50160\"")).state(0b11);
+    let en = model(&pumping_site("voltage_limits = \"en-50160\"")).state(BankState::first(2));
     let b = en.breaches(None);
     assert_eq!(b[0].kind, BreachKind::HarmonicVoltage { order: 11.0 });
     assert_eq!((b[0].limit, b[0].standard), (3.5, "EN 50160"));
@@ -475,9 +480,9 @@ fn resonance_status_names_the_limits_exceeded() {
     let hm = HarmonicModel::new(&sc.supply, &sc.steps, sc.spectrum.clone(), sc.harmonics);
     let sv = Survey::build(
         &hm,
-        0,
+        BankState::EMPTY,
         hm.all_mask(),
-        &Selection::Masks(vec![(0b1, None), (0, None)]),
+        &Selection::Masks(vec![(STEP_1, None), (BankState::EMPTY, None)]),
         ScanGrid::default(),
         &[],
     )
@@ -528,7 +533,15 @@ fn survey_of(toml: &str, selection: &Selection) -> (Scenario, Survey) {
         step: 0.1,
         ..ScanGrid::default()
     };
-    let sv = Survey::build(&hm, 0, hm.all_mask(), selection, grid, &[0.07]).unwrap();
+    let sv = Survey::build(
+        &hm,
+        BankState::EMPTY,
+        hm.all_mask(),
+        selection,
+        grid,
+        &[0.07],
+    )
+    .unwrap();
     (sc, sv)
 }
 
@@ -564,7 +577,10 @@ fn resonance_table_columns_fit_long_labels() {
     assert!(all.contains("and 4,032 more groups"), "{all}");
     let masks = [0, 0b1, 0b1111_1111_1111, 0b0111_1111_1111, 0b1010_1010_1010];
     let text = text(&Selection::Masks(
-        masks.iter().map(|&m| (m, None)).collect(),
+        masks
+            .iter()
+            .map(|&m| (BankState::from_bits(m), None))
+            .collect(),
     ));
     let lines: Vec<&str> = text.lines().collect();
     let h = lines

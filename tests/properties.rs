@@ -2,6 +2,7 @@
 //! run, whatever the load and the controller settings.
 
 mod common;
+use bankstep::bank::BankState;
 use bankstep::profile::LoadSample;
 use common::{record_with, Listed};
 use proptest::prelude::*;
@@ -111,17 +112,16 @@ proptest! {
 
         // Per step, the operations seen interval by interval alternate close, open, close,
         // ... (a switched step starts open), and their counts are the ones reported.
-        let fixed_mask: u64 = c.steps.iter().enumerate().filter(|s| s.1 .1).map(|(i, _)| 1u64 << i).sum();
+        let fixed_mask = c.steps.iter().enumerate().filter(|s| s.1 .1).map(|(i, _)| i + 1).collect::<BankState>();
         let mut final_mask = fixed_mask;
         let mut seen = vec![(0u64, 0u64); c.steps.len()];
         for o in &rec.ops {
-            let bit = 1u64 << (o.step - 1);
-            prop_assert_eq!(final_mask & bit == 0, o.close, "step {} operated twice the same way at {}", o.step, o.t);
+            prop_assert_eq!(!final_mask.contains(o.step), o.close, "step {} operated twice the same way at {}", o.step, o.t);
             if o.close {
-                final_mask |= bit;
+                final_mask = final_mask.with(o.step);
                 seen[o.step - 1].0 += 1;
             } else {
-                final_mask &= !bit;
+                final_mask = final_mask.without(o.step);
                 seen[o.step - 1].1 += 1;
             }
         }
@@ -131,7 +131,7 @@ proptest! {
         // Closings − openings equals the switched steps left on.
         let closings: u64 = m.switching.per_step.iter().map(|s| s.closings).sum();
         let openings: u64 = m.switching.per_step.iter().map(|s| s.openings).sum();
-        prop_assert_eq!(closings - openings, (final_mask & !fixed_mask).count_ones() as u64);
+        prop_assert_eq!(closings - openings, final_mask.minus(fixed_mask).len() as u64);
         prop_assert_eq!(closings + openings, m.switching.total_operations);
 
         // The four registers against an independent sum over the observed intervals:
@@ -163,7 +163,7 @@ proptest! {
 
         // Time in each bank state against the masks seen interval by interval, and no state
         // held for longer in one calendar day than in all or than a day.
-        let mut by_mask = std::collections::HashMap::<u64, f64>::new();
+        let mut by_mask = std::collections::HashMap::<BankState, f64>::new();
         for mask in &rec.masks {
             *by_mask.entry(*mask).or_default() += c.dt;
         }

@@ -230,7 +230,7 @@ pub fn assess(study: &Study, hm: &HarmonicModel, m: &RunMetrics) -> ResonanceRep
         let peak = h.peaks.first();
         states.push(StateResonance {
             steps: st.steps.clone(),
-            kvar: crate::bank::BankState::from_bits(st.mask).kvar(&sc.steps),
+            kvar: st.mask.kvar(&sc.steps),
             order: h.order,
             frequency_hz: h.order.map(|o| o * f),
             peak_order: peak.map(|p| p.order),

@@ -17,29 +17,26 @@ impl BestFit {
     fn pick(c: &Choice<'_>, sign: f64) -> Option<usize> {
         let now = c.demand_kvar.abs();
         let mut best: Option<(usize, f64)> = None;
-        let mut m = c.candidates;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            let left = (c.demand_kvar + sign * c.kvar[i]).abs();
+        for n in c.candidates {
+            let left = (c.demand_kvar + sign * c.kvar[n - 1]).abs();
             if left >= now {
                 continue;
             }
             best = match best {
-                None => Some((i, left)),
+                None => Some((n, left)),
                 Some((b, lb)) => {
                     let better = left < lb - TIE_KVAR
                         || ((left - lb).abs() <= TIE_KVAR
-                            && c.steps[i].operations() < c.steps[b].operations());
+                            && c.steps[n - 1].operations() < c.steps[b - 1].operations());
                     if better {
-                        Some((i, left))
+                        Some((n, left))
                     } else {
                         Some((b, lb))
                     }
                 }
             };
         }
-        best.map(|(i, _)| i)
+        best.map(|(n, _)| n)
     }
 }
 

@@ -19,7 +19,7 @@ pub use best_fit::BestFit;
 pub use rotating::Rotating;
 pub use sequential::Sequential;
 
-use crate::bank::Bank;
+use crate::bank::{Bank, BankState};
 use crate::pf::PfTarget;
 use serde::{Deserialize, Serialize};
 
@@ -31,9 +31,9 @@ const TIME_EPS_S: f64 = 1e-9;
 pub struct Choice<'a> {
     /// Demand ΔQ = Q_m − |P_m|·tan φ_t, kvar (> 0: wants capacitance).
     pub demand_kvar: f64,
-    /// Mask of the steps that may be operated now (for a closing: switched, off and out of
+    /// The steps that may be operated now (for a closing: switched, off and out of
     /// lockout; for an opening: switched and on). Never empty when an ordering is asked.
-    pub candidates: u64,
+    pub candidates: BankState,
     /// Per-step switching state, by index (step number − 1).
     pub steps: &'a [StepState],
     /// Nominal kvar of each step at U_n, by index.
@@ -44,9 +44,11 @@ pub struct Choice<'a> {
 pub trait StepOrdering: Send + Sync {
     /// The name used in scenarios and reports.
     fn name(&self) -> &'static str;
-    /// Index of the step to close, or `None` to make no operation.
+    /// Number (from 1) of the step to close, one of the candidates, or `None` to make no
+    /// operation.
     fn pick_close(&self, c: &Choice<'_>) -> Option<usize>;
-    /// Index of the step to open, or `None` to make no operation.
+    /// Number (from 1) of the step to open, one of the candidates, or `None` to make no
+    /// operation.
     fn pick_open(&self, c: &Choice<'_>) -> Option<usize>;
 }
 
@@ -257,10 +259,10 @@ pub struct Decision {
     pub demand_kvar: f64,
     /// +1 connect wanted, −1 disconnect wanted, 0 inside the dead band.
     pub wish: i8,
-    /// Steps closed at t_{k+1} (mask).
-    pub closed: u64,
-    /// Steps opened at t_{k+1} (mask).
-    pub opened: u64,
+    /// Steps closed at t_{k+1}.
+    pub closed: BankState,
+    /// Steps opened at t_{k+1}.
+    pub opened: BankState,
     /// A protection that opened steps, if any.
     pub trip: Option<Trip>,
 }
@@ -346,12 +348,12 @@ pub struct Controller {
     params: ControllerParams,
     ordering: Box<dyn StepOrdering>,
     kvar: Vec<f64>,
-    switched: u64,
+    switched: BankState,
     dt: f64,
     tan_t: f64,
     any_protection: bool,
     steps: Vec<StepState>,
-    mask: u64,
+    mask: BankState,
     wish: i8,
     count: u64,
     avg: Averager,
@@ -410,9 +412,9 @@ impl Controller {
         }
     }
 
-    /// Connected steps (mask), fixed ones included.
+    /// Connected steps, fixed ones included.
     #[inline]
-    pub fn mask(&self) -> u64 {
+    pub fn mask(&self) -> BankState {
         self.mask
     }
 
@@ -444,7 +446,7 @@ impl Controller {
         let b = self.params.dead_band_kvar;
         let wish: i8 = match (exporting, self.params.export_mode) {
             (true, ExportMode::Hold) => 0,
-            (true, ExportMode::Open) => -i8::from(self.mask & self.switched != 0),
+            (true, ExportMode::Open) => -i8::from(!self.mask.and(self.switched).is_empty()),
             _ if demand > b => 1,
             _ if demand < -b => -1,
             _ => 0,
@@ -467,7 +469,7 @@ impl Controller {
 
         // Protections first: they may open several steps and block closings.
         let dt = self.dt;
-        let on_switched = self.mask & self.switched;
+        let on_switched = self.mask.and(self.switched);
         let mut blocked_close = false;
         if self.any_protection {
             let pr = self.params.protection;
@@ -489,7 +491,7 @@ impl Controller {
                 None
             };
             if let Some(t) = trip_all {
-                if on_switched != 0 {
+                if !on_switched.is_empty() {
                     self.open_mask(on_switched, t_next);
                     self.count = 0;
                     d.opened = on_switched;
@@ -497,11 +499,11 @@ impl Controller {
                     return d;
                 }
             }
-            if ov_fire && on_switched != 0 {
-                let i = self.largest(on_switched);
-                self.open_mask(1 << i, t_next);
+            if let (true, Some(n)) = (ov_fire, self.largest(on_switched)) {
+                let one = BankState::EMPTY.with(n);
+                self.open_mask(one, t_next);
                 self.count = 0;
-                d.opened = 1 << i;
+                d.opened = one;
                 d.trip = Some(Trip::Overvoltage);
                 return d;
             }
@@ -524,14 +526,14 @@ impl Controller {
         }
         let candidates = if wish > 0 {
             if blocked_close {
-                0
+                BankState::EMPTY
             } else {
                 self.closable(t_next)
             }
         } else {
             on_switched
         };
-        if candidates == 0 {
+        if candidates.is_empty() {
             return d;
         }
         // Under the `open` export mode the controller wants every switched step open, so
@@ -552,19 +554,20 @@ impl Controller {
         } else {
             self.ordering.pick_open(&choice)
         };
-        let Some(i) = pick.filter(|i| candidates & (1 << i) != 0) else {
+        let Some(n) = pick.filter(|&n| candidates.contains(n)) else {
             return d;
         };
+        let one = BankState::EMPTY.with(n);
         if wish > 0 {
-            let s = &mut self.steps[i];
+            let s = &mut self.steps[n - 1];
             s.on = true;
             s.since_s = t_next;
             s.closings += 1;
-            self.mask |= 1 << i;
-            d.closed = 1 << i;
+            self.mask = self.mask.or(one);
+            d.closed = one;
         } else {
-            self.open_mask(1 << i, t_next);
-            d.opened = 1 << i;
+            self.open_mask(one, t_next);
+            d.opened = one;
         }
         self.count = 0;
         self.record_op(t_next);
@@ -573,54 +576,41 @@ impl Controller {
 
     /// Switched steps that are off and out of their discharge lockout at `t_close`.
     #[inline]
-    fn closable(&self, t_close: f64) -> u64 {
-        let mut m = self.switched & !self.mask;
-        let mut out = 0;
+    fn closable(&self, t_close: f64) -> BankState {
         let td = self.params.discharge_time_s;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            if t_close - self.steps[i].last_open_s >= td - TIME_EPS_S {
-                out |= 1 << i;
+        self.switched
+            .minus(self.mask)
+            .iter()
+            .filter(|&n| t_close - self.steps[n - 1].last_open_s >= td - TIME_EPS_S)
+            .collect()
+    }
+
+    /// Sum of the nominal kvar of the steps in `state`.
+    fn nominal_kvar(&self, state: BankState) -> f64 {
+        state.iter().map(|n| self.kvar[n - 1]).sum()
+    }
+
+    /// Largest step of `state` by nominal kvar, ties to the lower number; `None` when the
+    /// state is empty.
+    fn largest(&self, state: BankState) -> Option<usize> {
+        state.iter().reduce(|best, n| {
+            if self.kvar[n - 1] > self.kvar[best - 1] {
+                n
+            } else {
+                best
             }
-        }
-        out
+        })
     }
 
-    /// Sum of the nominal kvar of the steps in `mask`.
-    fn nominal_kvar(&self, mask: u64) -> f64 {
-        (0..self.kvar.len())
-            .filter(|i| mask & (1 << i) != 0)
-            .map(|i| self.kvar[i])
-            .sum()
-    }
-
-    /// Largest connected step of `mask` by nominal kvar; ties to the lower number.
-    fn largest(&self, mask: u64) -> usize {
-        let mut best = mask.trailing_zeros() as usize;
-        let mut m = mask;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            if self.kvar[i] > self.kvar[best] {
-                best = i;
-            }
-        }
-        best
-    }
-
-    fn open_mask(&mut self, mask: u64, t: f64) {
-        let mut m = mask;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            let s = &mut self.steps[i];
+    fn open_mask(&mut self, state: BankState, t: f64) {
+        for n in state {
+            let s = &mut self.steps[n - 1];
             s.on = false;
             s.since_s = t;
             s.last_open_s = t;
             s.openings += 1;
         }
-        self.mask &= !mask;
+        self.mask = self.mask.minus(state);
     }
 
     /// True when the cap on operations per hour leaves room for one more at `t`.

@@ -11,17 +11,13 @@ pub struct Rotating;
 impl Rotating {
     /// The candidate whose last change is earliest; ties to the lower number.
     fn longest_in_state(c: &Choice<'_>) -> Option<usize> {
-        let mut best: Option<usize> = None;
-        let mut m = c.candidates;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            match best {
-                Some(b) if c.steps[i].since_s >= c.steps[b].since_s => {}
-                _ => best = Some(i),
+        c.candidates.iter().reduce(|best, n| {
+            if c.steps[n - 1].since_s < c.steps[best - 1].since_s {
+                n
+            } else {
+                best
             }
-        }
-        best
+        })
     }
 }
 

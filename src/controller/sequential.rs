@@ -13,10 +13,10 @@ impl StepOrdering for Sequential {
     }
 
     fn pick_close(&self, c: &Choice<'_>) -> Option<usize> {
-        (c.candidates != 0).then(|| c.candidates.trailing_zeros() as usize)
+        c.candidates.lowest()
     }
 
     fn pick_open(&self, c: &Choice<'_>) -> Option<usize> {
-        (c.candidates != 0).then(|| 63 - c.candidates.leading_zeros() as usize)
+        c.candidates.highest()
     }
 }

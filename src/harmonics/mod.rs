@@ -72,7 +72,7 @@ pub mod limits;
 pub mod scan;
 pub mod survey;
 
-use crate::bank::{StepPhase, StepSpec};
+use crate::bank::{BankState, StepPhase, StepSpec};
 use crate::supply::SupplyParams;
 use limits::{default_rated_voltage, CapacitorLimits, VoltageLimits};
 use num_complex::Complex64;
@@ -713,28 +713,21 @@ impl HarmonicModel {
     }
 
     /// Total susceptance of the steps in `mask` at order h, siemens.
-    pub fn bank_susceptance(&self, mask: u64, h: f64) -> f64 {
+    pub fn bank_susceptance(&self, mask: BankState, h: f64) -> f64 {
         let mut b = 0.0;
-        let mut m = mask & self.all_mask();
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            b += self.step_susceptance(i, h);
+        for n in mask.and(self.all_mask()) {
+            b += self.step_susceptance(n - 1, h);
         }
         b
     }
 
-    /// Mask of every step.
-    pub fn all_mask(&self) -> u64 {
-        if self.steps.len() >= 64 {
-            u64::MAX
-        } else {
-            (1u64 << self.steps.len()) - 1
-        }
+    /// Every step of the model.
+    pub fn all_mask(&self) -> BankState {
+        BankState::first(self.steps.len())
     }
 
     /// Impedance seen by the load at order h with the steps in `mask` connected, ohm.
-    pub fn impedance(&self, mask: u64, h: f64) -> Complex64 {
+    pub fn impedance(&self, mask: BankState, h: f64) -> Complex64 {
         match self.base_admittance(h) {
             None => Complex64::new(0.0, 0.0),
             Some(y) => (y + Complex64::new(0.0, self.bank_susceptance(mask, h))).inv(),
@@ -743,37 +736,34 @@ impl HarmonicModel {
 
     /// Impedance seen by the load at order h with no step connected, ohm.
     pub fn impedance_without_bank(&self, h: f64) -> Complex64 {
-        self.impedance(0, h)
+        self.impedance(BankState::EMPTY, h)
     }
 
     /// Nominal kvar of the steps in `mask`.
-    pub fn q_c(&self, mask: u64) -> f64 {
-        self.steps
-            .iter()
-            .enumerate()
-            .filter(|(i, _)| mask & (1 << i) != 0)
-            .map(|(_, s)| s.kvar)
-            .sum()
+    pub fn q_c(&self, mask: BankState) -> f64 {
+        self.steps_in(mask).map(|s| s.kvar).sum()
     }
 
     /// True when every step in `mask` is plain.
-    pub fn all_plain(&self, mask: u64) -> bool {
-        self.steps
-            .iter()
-            .enumerate()
-            .all(|(i, s)| mask & (1 << i) == 0 || s.plain)
+    pub fn all_plain(&self, mask: BankState) -> bool {
+        self.steps_in(mask).all(|s| s.plain)
+    }
+
+    /// The model's steps in `mask`, in step order (step numbers past the model left out).
+    fn steps_in(&self, mask: BankState) -> impl Iterator<Item = &StepModel> + '_ {
+        mask.iter().filter_map(|n| self.steps.get(n - 1))
     }
 
     /// The textbook estimate h_r = sqrt(S_sc/Q_c) (IEEE Std 519, IEEE Std 1531); `None`
     /// with nothing connected or a stiff bus.
-    pub fn plain_order(&self, mask: u64) -> Option<f64> {
+    pub fn plain_order(&self, mask: BankState) -> Option<f64> {
         let q_c = self.q_c(mask);
         (q_c > 0.0 && self.s_sc_kva.is_finite()).then(|| (self.s_sc_kva / q_c).sqrt())
     }
 
     /// Parallel-resonance order of a state: sqrt(S_sc/Q_c) when every connected step is
     /// plain, else the strongest peak of an impedance scan.
-    pub fn resonance_order(&self, mask: u64) -> Option<f64> {
+    pub fn resonance_order(&self, mask: BankState) -> Option<f64> {
         if self.all_plain(mask) {
             return self.plain_order(mask);
         }
@@ -782,7 +772,7 @@ impl HarmonicModel {
 
     /// Order of the strongest parallel-resonance peak of an impedance scan on the
     /// default grid (orders 1 to 50 by 0.01, refined), or `None` if there is none inside.
-    pub fn scan_peak(&self, mask: u64) -> Option<f64> {
+    pub fn scan_peak(&self, mask: BankState) -> Option<f64> {
         scan::peaks(self, mask, &ScanGrid::default())
             .first()
             .map(|p| p.order)
@@ -838,7 +828,7 @@ impl HarmonicModel {
     /// phase: [`HarmonicModel::impedance`] at a positive- or negative-sequence order, the
     /// zero-sequence circuit (transformer alone, single-phase steps only, no damping) at a
     /// triplen order. Zero for a stiff bus.
-    pub fn impedance_at_order(&self, mask: u64, h: f64) -> Complex64 {
+    pub fn impedance_at_order(&self, mask: BankState, h: f64) -> Complex64 {
         match self.order_admittances(mask, h) {
             None => Complex64::new(0.0, 0.0),
             Some((_, y)) => y.inv(),
@@ -847,7 +837,7 @@ impl HarmonicModel {
 
     /// (supply admittance, total admittance at the bus) for the current at order h with
     /// the steps in `mask`, siemens; `None` when that order's supply impedance is zero.
-    fn order_admittances(&self, mask: u64, h: f64) -> Option<(Complex64, Complex64)> {
+    fn order_admittances(&self, mask: BankState, h: f64) -> Option<(Complex64, Complex64)> {
         let z_s = self.supply_impedance_at_order(h);
         if z_s.re == 0.0 && z_s.im == 0.0 {
             return None;
@@ -856,11 +846,8 @@ impl HarmonicModel {
         let triplen = is_triplen(h);
         let g = if triplen { 0.0 } else { self.g_damp };
         let mut b = 0.0;
-        let mut m = mask & self.all_mask();
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            b += self.step_susceptance_at_order(i, h);
+        for n in mask.and(self.all_mask()) {
+            b += self.step_susceptance_at_order(n - 1, h);
         }
         Some((y_s, y_s + Complex64::new(g, b)))
     }
@@ -871,7 +858,7 @@ impl HarmonicModel {
     /// sum of the two parts.
     fn bus_voltage(
         &self,
-        mask: u64,
+        mask: BankState,
         h: f64,
         current_pct: f64,
         background_pct: f64,
@@ -896,8 +883,8 @@ impl HarmonicModel {
 
     /// Estimated voltage THD at the bus for a state, % (no scan; cheap enough for the
     /// engine's per-state cache). The same value as [`HarmonicModel::state`]'s.
-    pub fn thd_pct(&self, mask: u64) -> f64 {
-        let mask = mask & self.all_mask();
+    pub fn thd_pct(&self, mask: BankState) -> f64 {
+        let mask = mask.and(self.all_mask());
         self.present_orders()
             .iter()
             .map(|&(h, pct, bg)| {
@@ -910,14 +897,14 @@ impl HarmonicModel {
 
     /// Resonance, harmonic voltages, THD and step stress for a state (scans the default
     /// grid for the peaks).
-    pub fn state(&self, mask: u64) -> StateHarmonics {
+    pub fn state(&self, mask: BankState) -> StateHarmonics {
         let peaks = scan::peaks(self, mask, &ScanGrid::default());
         self.state_with_peaks(mask, peaks)
     }
 
     /// As [`HarmonicModel::state`], with the scan peaks already found.
-    pub fn state_with_peaks(&self, mask: u64, peaks: Vec<Peak>) -> StateHarmonics {
-        let mask = mask & self.all_mask();
+    pub fn state_with_peaks(&self, mask: BankState, peaks: Vec<Peak>) -> StateHarmonics {
+        let mask = mask.and(self.all_mask());
         let lim = self.options.voltage_limits;
         let orders = self.present_orders();
         let mut harmonics = Vec::with_capacity(orders.len());
@@ -925,7 +912,7 @@ impl HarmonicModel {
         let mut severity: f64 = 0.0;
         for &(h, pct, bg) in &orders {
             let (load, background, z) = self.bus_voltage(mask, h, pct, bg);
-            let z0 = self.impedance_at_order(0, h).norm();
+            let z0 = self.impedance_at_order(BankState::EMPTY, h).norm();
             let v_pct = load + background;
             sum2 += v_pct * v_pct;
             let limit_pct = lim.individual_pct(self.u_n, h);
@@ -969,13 +956,11 @@ impl HarmonicModel {
 
     /// Current and voltage of each connected step's capacitors, in per unit of the
     /// fundamental, then in amperes and volts.
-    fn step_stresses(&self, mask: u64, harmonics: &[HarmonicVoltage]) -> Vec<StepStress> {
+    fn step_stresses(&self, mask: BankState, harmonics: &[HarmonicVoltage]) -> Vec<StepStress> {
         let lim = self.options.capacitor_limits.values();
         let mut out = Vec::new();
-        let mut m = mask;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
+        for n in mask {
+            let i = n - 1;
             let s = &self.steps[i];
             // Branch current at order h over its fundamental current at U_n:
             // r_h = u_h·|Z_step(1)|/|Z_step(h)|; capacitor voltage c_h = r_h/h. A
@@ -1116,6 +1101,9 @@ mod tests {
     use crate::supply::Transformer;
     use limits::CapacitorLimits;
 
+    /// Step 1 alone connected.
+    const STEP_1: BankState = BankState::from_bits(0b1);
+
     fn step(kvar: f64, detuning: Option<f64>) -> StepSpec {
         StepSpec {
             detuning,
@@ -1148,10 +1136,10 @@ mod tests {
     #[test]
     fn plain_bank_order() {
         let m = model(&[step(300.0, None)], Spectrum::default());
-        assert!((m.resonance_order(1).unwrap() - 7.454).abs() < 1e-3);
+        assert!((m.resonance_order(STEP_1).unwrap() - 7.454).abs() < 1e-3);
         // The impedance scan of the same circuit peaks at the same order, within the
         // shift that the supply resistance causes (stated tolerance 1 %).
-        let scanned = m.scan_peak(1).unwrap();
+        let scanned = m.scan_peak(STEP_1).unwrap();
         assert!(
             (scanned - 7.454).abs() / 7.454 < 0.01,
             "scan peak {scanned}"
@@ -1184,7 +1172,7 @@ mod tests {
                 let x_s = uk / 100.0 * 400.0 * 400.0 / (kva * 1e3) * xr / (1.0 + xr * xr).sqrt();
                 let x_c = 400.0 * 400.0 / (q * 1e3);
                 let est = (x_c / x_s).sqrt();
-                let scan = m.scan_peak(1).unwrap();
+                let scan = m.scan_peak(STEP_1).unwrap();
                 assert!(
                     (scan - est).abs() / est < 1e-3,
                     "{kva} kVA {uk} % X/R {xr}, {q} kvar: scan {scan}, sqrt(X_C/X_s) {est}"
@@ -1214,11 +1202,11 @@ mod tests {
     #[test]
     fn detuned_bank_resonates_below_tuning() {
         let m = model(&[step(300.0, Some(0.07))], Spectrum::default());
-        let h = m.resonance_order(1).unwrap();
+        let h = m.resonance_order(STEP_1).unwrap();
         assert!(h < 1.0 / 0.07f64.sqrt(), "{h}");
         // At the tuning order the branch is a series resonance: |Z| dips far below the
         // supply's own impedance there.
-        let zt = m.impedance(1, 1.0 / 0.07f64.sqrt()).norm();
+        let zt = m.impedance(STEP_1, 1.0 / 0.07f64.sqrt()).norm();
         assert!(zt < 0.2 * m.supply_impedance(3.78).norm());
     }
 
@@ -1238,7 +1226,7 @@ mod tests {
             preset: None,
         };
         let m = model(&[step(100.0, None)], spectrum);
-        let st = m.state(1);
+        let st = m.state(STEP_1);
         let want = [(5.0, 0.0560429, 1.40107), (7.0, 0.0942335, 1.68274)];
         for (hv, (h, z, v)) in st.harmonics.iter().zip(want) {
             assert_eq!(hv.order, h);
@@ -1251,7 +1239,7 @@ mod tests {
         }
         assert!((st.thd_pct - 2.18966).abs() < 1e-5, "{}", st.thd_pct);
         // The engine's cheap THD is the same estimate.
-        assert!((m.thd_pct(1) - 2.18966).abs() < 1e-5);
+        assert!((m.thd_pct(STEP_1) - 2.18966).abs() < 1e-5);
     }
 
     fn site_with_grid(grid_mva: Option<f64>, transformer: bool) -> SupplyParams {
@@ -1287,7 +1275,7 @@ mod tests {
             spectrum.clone(),
             HarmonicOptions::default(),
         );
-        let st = m.state(1);
+        let st = m.state(STEP_1);
         assert!((st.harmonics[0].impedance_ohm - 0.0286519).abs() < 1e-7);
         assert!((st.harmonics[0].v_pct - 1.43260).abs() < 1e-5);
         assert!((st.harmonics[1].impedance_ohm - 0.0604940).abs() < 1e-7);
@@ -1306,7 +1294,7 @@ mod tests {
             spectrum,
             HarmonicOptions::default(),
         );
-        let st1 = m1.state(1);
+        let st1 = m1.state(STEP_1);
         assert!((st1.harmonics[0].impedance_ohm - 0.0291200).abs() < 1e-7);
         assert!((st1.harmonics[0].v_pct - 1.45600).abs() < 1e-5);
         // A resonance near a triplen order is not a warning; the 5th still counts.
@@ -1335,17 +1323,17 @@ mod tests {
         };
         // No bank, no damping: the bus sees V_bg itself; the transformer's delta blocks
         // the 3rd.
-        let st = bare(0.0, &[], site_with_grid(Some(250.0), true)).state(0);
+        let st = bare(0.0, &[], site_with_grid(Some(250.0), true)).state(BankState::EMPTY);
         assert_eq!(st.harmonics[0].order, 3.0);
         assert_eq!(st.harmonics[0].v_pct, 0.0);
         assert!((st.harmonics[1].v_pct - 2.0).abs() < 1e-12);
         // 200 kW damping: G = 200 000/400² = 1.25 S; |Y_s/(Y_s + G)| = 0.994516 at h5 with
         // Z_s(5) = (R_g + R_T)·sqrt(5) + j·5·(X_g + X_T) (hand): 1.98903 %.
-        let st = bare(200.0, &[], site_with_grid(Some(250.0), true)).state(0);
+        let st = bare(200.0, &[], site_with_grid(Some(250.0), true)).state(BankState::EMPTY);
         assert!((st.harmonics[1].v_pct - 1.98903).abs() < 1e-5);
         // A 100 kvar plain step (B = 0.625 S) raises it: |Y_s/(Y_s + j·5·B)| = 1.18870,
         // 2.37740 %; the step carries 5 × 0.0237740 of its fundamental current at h5.
-        let st = bare(0.0, &[step(100.0, None)], site_with_grid(Some(250.0), true)).state(1);
+        let st = bare(0.0, &[step(100.0, None)], site_with_grid(Some(250.0), true)).state(STEP_1);
         assert!((st.harmonics[1].v_pct - 2.37740).abs() < 1e-5);
         let r = (1.0 + (5.0 * 0.0237740f64).powi(2)).sqrt();
         assert!((st.steps[0].current_ratio - r).abs() < 1e-6);
@@ -1356,10 +1344,10 @@ mod tests {
             &[step(100.0, None)],
             site_with_grid(Some(250.0), false),
         )
-        .state(1);
+        .state(STEP_1);
         assert!((st.harmonics[0].v_pct - 1.5).abs() < 1e-12);
         // On a stiff bus the background is the bus voltage whatever the bank.
-        let st = bare(0.0, &[step(100.0, None)], SupplyParams::default()).state(1);
+        let st = bare(0.0, &[step(100.0, None)], SupplyParams::default()).state(STEP_1);
         assert!((st.harmonics[1].v_pct - 2.0).abs() < 1e-12);
     }
 
@@ -1380,9 +1368,9 @@ mod tests {
             HarmonicOptions::default(),
         );
         let both = load.clone().with_background(&[(5.0, 2.0)]);
-        let v_load = load.state(1).harmonics[0].v_pct;
-        assert!((both.state(1).harmonics[0].v_pct - (v_load + 2.37740)).abs() < 1e-5);
-        assert!((both.thd_pct(1) - (v_load + 2.37740)).abs() < 1e-5);
+        let v_load = load.state(STEP_1).harmonics[0].v_pct;
+        assert!((both.state(STEP_1).harmonics[0].v_pct - (v_load + 2.37740)).abs() < 1e-5);
+        assert!((both.thd_pct(STEP_1) - (v_load + 2.37740)).abs() < 1e-5);
     }
 
     // Capacitor rms voltage against the time it is held (IEC 60831-1 admissible levels,
@@ -1407,7 +1395,7 @@ mod tests {
                     ..HarmonicOptions::default()
                 },
             )
-            .state(1)
+            .state(STEP_1)
         };
         let st = judged(410.0, CapacitorLimits::Iec60831);
         let b = st.breaches(None);
@@ -1436,13 +1424,13 @@ mod tests {
     #[test]
     fn plain_step_without_harmonics_is_at_rating() {
         let m = model(&[step(50.0, None)], Spectrum::default());
-        let s = &m.state(1).steps[0];
+        let s = &m.state(STEP_1).steps[0];
         assert!((s.current_ratio - 1.0).abs() < 1e-12);
         assert!((s.voltage_v - 400.0).abs() < 1e-9);
         // 50 kvar at 400 V: I = 50 000/(sqrt(3)·400) = 72.17 A (definition).
         assert!((s.current_a - 72.168_783_648_703_22).abs() < 1e-9);
         // At exactly its rated voltage it breaches nothing, even held continuously.
         assert!(s.limit_ratio <= 1.0);
-        assert!(m.state(1).breaches(None).is_empty());
+        assert!(m.state(STEP_1).breaches(None).is_empty());
     }
 }

@@ -13,6 +13,7 @@
 //! order and the work per state is one pass of additions over the grid.
 
 use super::HarmonicModel;
+use crate::bank::BankState;
 use serde::Serialize;
 
 /// A grid of harmonic orders.
@@ -94,7 +95,7 @@ pub struct Peak {
 }
 
 /// Golden-section refinement of a maximum of |Z(h)| in [a, b].
-fn refine(model: &HarmonicModel, mask: u64, mut a: f64, mut b: f64) -> f64 {
+fn refine(model: &HarmonicModel, mask: BankState, mut a: f64, mut b: f64) -> f64 {
     let g = (5f64.sqrt() - 1.0) / 2.0;
     let z = |h: f64| model.impedance(mask, h).norm();
     let mut c = b - g * (b - a);
@@ -122,7 +123,7 @@ fn refine(model: &HarmonicModel, mask: u64, mut a: f64, mut b: f64) -> f64 {
 }
 
 /// Turns the grid minima of |Y|² into refined peaks, strongest first.
-fn finish(model: &HarmonicModel, mask: u64, grid: &ScanGrid, minima: &[usize]) -> Vec<Peak> {
+fn finish(model: &HarmonicModel, mask: BankState, grid: &ScanGrid, minima: &[usize]) -> Vec<Peak> {
     let mut out: Vec<Peak> = minima
         .iter()
         .map(|&j| {
@@ -162,8 +163,8 @@ fn minima(n: usize, mut y2: impl FnMut(usize) -> (f64, f64), out: &mut Vec<usize
 
 /// Parallel-resonance peaks of one state on a grid, strongest first, computed directly
 /// (no precomputed columns; for one or a few states).
-pub fn peaks(model: &HarmonicModel, mask: u64, grid: &ScanGrid) -> Vec<Peak> {
-    if model.is_stiff() || mask & model.all_mask() == 0 {
+pub fn peaks(model: &HarmonicModel, mask: BankState, grid: &ScanGrid) -> Vec<Peak> {
+    if model.is_stiff() || mask.and(model.all_mask()).is_empty() {
         return Vec::new();
     }
     let mut found = Vec::new();
@@ -236,50 +237,44 @@ impl Scanner {
     }
 
     /// |Z| at grid point j with the steps in `mask`, ohm (0 for a stiff bus).
-    pub fn impedance_at(&self, j: usize, mask: u64) -> f64 {
+    pub fn impedance_at(&self, j: usize, mask: BankState) -> f64 {
         if self.model.is_stiff() {
             return 0.0;
         }
         let mut b = self.b0[j];
-        let mut m = mask & self.model.all_mask();
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            b += self.cols[i][j];
+        for n in mask.and(self.model.all_mask()) {
+            b += self.cols[n - 1][j];
         }
         1.0 / (self.g[j] * self.g[j] + b * b).sqrt()
     }
 
     /// |Z(h)| over the grid for one state, ohm.
-    pub fn curve(&self, mask: u64) -> Vec<f64> {
+    pub fn curve(&self, mask: BankState) -> Vec<f64> {
         (0..self.grid.len())
             .map(|j| self.impedance_at(j, mask))
             .collect()
     }
 
     /// Peaks of one state, strongest first.
-    pub fn scan(&self, mask: u64) -> Vec<Peak> {
-        let mask = mask & self.model.all_mask();
+    pub fn scan(&self, mask: BankState) -> Vec<Peak> {
+        let mask = mask.and(self.model.all_mask());
         let mut b = vec![0.0; self.grid.len()];
         self.fill(mask, &mut b);
         let mut found = Vec::new();
         self.peaks_from(mask, &b, &mut found)
     }
 
-    fn fill(&self, mask: u64, b: &mut [f64]) {
+    fn fill(&self, mask: BankState, b: &mut [f64]) {
         b.copy_from_slice(&self.b0);
-        let mut m = mask;
-        while m != 0 {
-            let i = m.trailing_zeros() as usize;
-            m &= m - 1;
-            for (x, c) in b.iter_mut().zip(&self.cols[i]) {
+        for n in mask {
+            for (x, c) in b.iter_mut().zip(&self.cols[n - 1]) {
                 *x += c;
             }
         }
     }
 
-    fn peaks_from(&self, mask: u64, b: &[f64], found: &mut Vec<usize>) -> Vec<Peak> {
-        if self.model.is_stiff() || mask == 0 {
+    fn peaks_from(&self, mask: BankState, b: &[f64], found: &mut Vec<usize>) -> Vec<Peak> {
+        if self.model.is_stiff() || mask.is_empty() {
             return Vec::new();
         }
         let (g, b0) = (&self.g, &self.b0);
@@ -296,35 +291,42 @@ impl Scanner {
 
     /// Peaks of every state made of the steps in `fixed` plus any subset of the steps in
     /// `free`, in Gray-code order (each state differs from the one before by one step).
-    /// Returns (mask, peaks strongest first) per state; 2^(number of free steps) entries.
-    /// At most 24 free steps (16 million states).
-    pub fn scan_all(&self, fixed: u64, free: u64) -> Vec<(u64, Vec<Peak>)> {
+    /// Returns (state, peaks strongest first) per state; 2^(number of free steps)
+    /// entries. At most 24 free steps (16 million states).
+    pub fn scan_all(&self, fixed: BankState, free: BankState) -> Vec<(BankState, Vec<Peak>)> {
         let all = self.model.all_mask();
-        let fixed = fixed & all;
-        let free = free & all & !fixed;
-        let bits: Vec<u32> = (0..64).filter(|i| free & (1u64 << i) != 0).collect();
-        let n_states = 1u64 << bits.len().min(24);
+        let fixed = fixed.and(all);
+        let free = free.and(all).minus(fixed);
+        let numbers = free.numbers();
+        let n_states = 1u64 << numbers.len().min(24);
         let mut out = Vec::with_capacity(n_states as usize);
         let mut b = vec![0.0; self.grid.len()];
         let mut found = Vec::new();
-        let mut mask = fixed;
-        self.fill(mask, &mut b);
-        out.push((mask, self.peaks_from(mask, &b, &mut found)));
+        let mut state = fixed;
+        self.fill(state, &mut b);
+        out.push((state, self.peaks_from(state, &b, &mut found)));
+        // Gray code: state k differs from state k − 1 by the free step whose position
+        // among the free steps is the number of trailing zeros of k.
         for k in 1..n_states {
-            let bit = bits[k.trailing_zeros() as usize] as usize;
-            mask ^= 1u64 << bit;
+            let n = numbers[k.trailing_zeros() as usize];
+            let closing = !state.contains(n);
+            state = if closing {
+                state.with(n)
+            } else {
+                state.without(n)
+            };
             if k % REFRESH_EVERY == 0 {
-                self.fill(mask, &mut b);
-            } else if mask & (1u64 << bit) != 0 {
-                for (x, c) in b.iter_mut().zip(&self.cols[bit]) {
+                self.fill(state, &mut b);
+            } else if closing {
+                for (x, c) in b.iter_mut().zip(&self.cols[n - 1]) {
                     *x += c;
                 }
             } else {
-                for (x, c) in b.iter_mut().zip(&self.cols[bit]) {
+                for (x, c) in b.iter_mut().zip(&self.cols[n - 1]) {
                     *x -= c;
                 }
             }
-            out.push((mask, self.peaks_from(mask, &b, &mut found)));
+            out.push((state, self.peaks_from(state, &b, &mut found)));
         }
         out
     }
@@ -372,16 +374,16 @@ mod tests {
             (75.0, None),
         ]);
         let sc = Scanner::new(m.clone(), ScanGrid::default());
-        let all = sc.scan_all(0, 0b11111);
+        let all = sc.scan_all(BankState::EMPTY, BankState::first(5));
         assert_eq!(all.len(), 32);
-        let mut seen: Vec<u64> = all.iter().map(|x| x.0).collect();
+        let mut seen: Vec<u64> = all.iter().map(|x| x.0.bits()).collect();
         seen.sort_unstable();
         assert_eq!(seen, (0..32).collect::<Vec<_>>());
-        for (mask, p) in &all {
-            let direct = peaks(&m, *mask, &ScanGrid::default());
-            assert_eq!(p.len(), direct.len(), "mask {mask:b}");
+        for (state, p) in &all {
+            let direct = peaks(&m, *state, &ScanGrid::default());
+            assert_eq!(p.len(), direct.len(), "state {state}");
             for (a, b) in p.iter().zip(&direct) {
-                assert!((a.order - b.order).abs() < 1e-6, "mask {mask:b}");
+                assert!((a.order - b.order).abs() < 1e-6, "state {state}");
             }
         }
         assert!(all[0].1.is_empty());

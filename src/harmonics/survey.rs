@@ -5,7 +5,7 @@
 
 use super::scan::{ScanGrid, Scanner};
 use super::{HarmonicModel, StateHarmonics};
-use crate::bank::Bank;
+use crate::bank::BankState;
 
 /// The detuning ratios compared by default, fractions: 5.67 %, 7 % and 14 % (the usual
 /// ratios, tuned to 4.2, 3.8 and 2.7; common practice).
@@ -17,8 +17,12 @@ pub const MAX_ALL_FREE_STEPS: usize = 16;
 /// Parses a list of bank states such as `1+2,1+2+3` (step numbers from 1 joined by `+`,
 /// states separated by commas; `none` or `0` is the state with no switched step). Fixed
 /// steps (`fixed`) are added to every state, since they are always connected. Returns the
-/// masks in the order given, without repeats.
-pub fn parse_states(text: &str, n_steps: usize, fixed: u64) -> Result<Vec<u64>, String> {
+/// states in the order given, without repeats.
+pub fn parse_states(
+    text: &str,
+    n_steps: usize,
+    fixed: BankState,
+) -> Result<Vec<BankState>, String> {
     let mut out = Vec::new();
     for part in text.split(',') {
         let part = part.trim();
@@ -41,7 +45,7 @@ pub fn parse_states(text: &str, n_steps: usize, fixed: u64) -> Result<Vec<u64>, 
                         "step {n} in `{part}` does not exist; the bank has steps 1 to {n_steps}"
                     ));
                 }
-                mask |= 1u64 << (n - 1);
+                mask = mask.with(n);
             }
         }
         if !out.contains(&mask) {
@@ -54,8 +58,8 @@ pub fn parse_states(text: &str, n_steps: usize, fixed: u64) -> Result<Vec<u64>, 
 /// One state of the survey.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SurveyState {
-    /// Connected steps (mask).
-    pub mask: u64,
+    /// Connected steps.
+    pub mask: BankState,
     /// Step numbers connected.
     pub steps: Vec<usize>,
     /// Nominal kvar connected.
@@ -88,7 +92,8 @@ pub struct DetuningCase {
 pub struct Survey {
     /// The precomputed scan of the site as configured (for the curves).
     pub scanner: Scanner,
-    /// The surveyed states, in the order asked for (all states: by mask).
+    /// The surveyed states, in the order asked for (all states: by number of steps, then
+    /// by [`BankState`]'s order).
     pub states: Vec<SurveyState>,
     /// The bank as configured: plain steps' orders from sqrt(S_sc/Q_c), full bank.
     pub full_bank_order: Option<f64>,
@@ -102,26 +107,26 @@ pub enum Selection {
     /// Every combination of the switched steps, with the fixed ones.
     All,
     /// These states, in this order, with the time spent in each (from a run, or `None`).
-    Masks(Vec<(u64, Option<f64>)>),
+    Masks(Vec<(BankState, Option<f64>)>),
 }
 
 impl Survey {
     /// Surveys `model` over the states `selection` picks, on `grid`, and compares the
-    /// detuning ratios `detunings` (fractions). `fixed` and `switched` are the masks of
-    /// the fixed and switched steps. Errors (as a message) when "all states" would exceed
+    /// detuning ratios `detunings` (fractions). `fixed` and `switched` are the fixed and
+    /// the switched steps. Errors (as a message) when "all states" would exceed
     /// [`MAX_ALL_FREE_STEPS`] switched steps.
     pub fn build(
         model: &HarmonicModel,
-        fixed: u64,
-        switched: u64,
+        fixed: BankState,
+        switched: BankState,
         selection: &Selection,
         grid: ScanGrid,
         detunings: &[f64],
     ) -> Result<Survey, String> {
         let scanner = Scanner::new(model.clone(), grid);
-        let mut entries: Vec<(u64, Option<f64>, Vec<super::scan::Peak>)> = match selection {
+        let mut entries: Vec<(BankState, Option<f64>, Vec<super::scan::Peak>)> = match selection {
             Selection::All => {
-                let free = switched.count_ones() as usize;
+                let free = switched.len();
                 if free > MAX_ALL_FREE_STEPS {
                     return Err(format!(
                         "{free} switched steps make 2^{free} states; \"all\" allows at most \
@@ -133,7 +138,7 @@ impl Survey {
                     .into_iter()
                     .map(|(m, p)| (m, None, p))
                     .collect();
-                v.sort_by_key(|e| (e.0.count_ones(), e.0));
+                v.sort_by_key(|e| (e.0.len(), e.0));
                 v
             }
             Selection::Masks(list) => list.iter().map(|&(m, t)| (m, t, scanner.scan(m))).collect(),
@@ -142,7 +147,7 @@ impl Survey {
             .drain(..)
             .map(|(mask, time_s, peaks)| SurveyState {
                 mask,
-                steps: Bank::numbers(mask),
+                steps: mask.numbers(),
                 kvar: model.q_c(mask),
                 harmonics: model.state_with_peaks(mask, peaks),
                 time_s,
@@ -158,7 +163,7 @@ impl Survey {
                 let state_orders: Vec<Option<f64>> = match selection {
                     Selection::All => {
                         let mut v = sp.scan_all(fixed, switched);
-                        v.sort_by_key(|e| (e.0.count_ones(), e.0));
+                        v.sort_by_key(|e| (e.0.len(), e.0));
                         v.into_iter()
                             .map(|(_, peaks)| peaks.first().map(|x| x.order))
                             .collect()
@@ -193,15 +198,22 @@ mod tests {
 
     #[test]
     fn state_lists_parse_with_fixed_steps() {
-        assert_eq!(parse_states("1+2, 1+2+3", 4, 0).unwrap(), vec![0b11, 0b111]);
+        let none = BankState::EMPTY;
+        let states = |list: &[&[usize]]| -> Vec<BankState> {
+            list.iter().map(|s| BankState::of_steps(s)).collect()
+        };
         assert_eq!(
-            parse_states("2,none", 4, 0b1000).unwrap(),
-            vec![0b1010, 0b1000]
+            parse_states("1+2, 1+2+3", 4, none).unwrap(),
+            states(&[&[1, 2], &[1, 2, 3]])
         );
-        let e = parse_states("1+5", 4, 0).unwrap_err();
+        assert_eq!(
+            parse_states("2,none", 4, BankState::of_steps(&[4])).unwrap(),
+            states(&[&[2, 4], &[4]])
+        );
+        let e = parse_states("1+5", 4, none).unwrap_err();
         assert!(e.contains("steps 1 to 4"), "{e}");
-        let e = parse_states("1+x", 4, 0).unwrap_err();
+        let e = parse_states("1+x", 4, none).unwrap_err();
         assert!(e.contains("`x`"), "{e}");
-        assert!(parse_states("1,,2", 4, 0).is_err());
+        assert!(parse_states("1,,2", 4, none).is_err());
     }
 }

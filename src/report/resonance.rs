@@ -6,11 +6,12 @@
 //! (e.g. 1+2 and 3+4 of equal steps) behave alike and share one row; the CSV and JSON
 //! keep every state.
 
+use crate::bank::BankState;
 use crate::harmonics::limits::CapacitorLimits;
 use crate::harmonics::scan::{Peak, ScanGrid};
 use crate::harmonics::survey::{Survey, SurveyState};
 use crate::harmonics::{Breach, HarmonicVoltage, NearResonance, StepStress};
-use crate::report::{approx, count, harmonic_name, num, steps_label, ReportError};
+use crate::report::{approx, count, harmonic_name, num, ReportError};
 use crate::report::{file_name, Provenance, Tool, HARDWARE_CAUTION, TOOL};
 use crate::scenario::Scenario;
 use crate::timebase::HOURS_PER_YEAR;
@@ -42,13 +43,11 @@ const MAX_ROWS: usize = 64;
 const MAX_AMPLIFICATION: usize = 4;
 
 /// Key of states that behave alike: the size, detuning and phase of each connected step.
-fn likeness(sc: &Scenario, mask: u64) -> Vec<(u64, u64, usize)> {
-    let mut k: Vec<(u64, u64, usize)> = sc
-        .steps
+fn likeness(sc: &Scenario, state: BankState) -> Vec<(u64, u64, usize)> {
+    let mut k: Vec<(u64, u64, usize)> = state
         .iter()
-        .enumerate()
-        .filter(|(i, _)| mask & (1u64 << i) != 0)
-        .map(|(_, s)| {
+        .filter_map(|n| sc.steps.get(n - 1))
+        .map(|s| {
             let phase = match s.phase {
                 crate::bank::StepPhase::Three => 0,
                 crate::bank::StepPhase::Single(p) => 1 + p,
@@ -84,7 +83,7 @@ fn groups(ctx: &ResonanceContext<'_>) -> Vec<(usize, Vec<usize>, Option<f64>)> {
 
 /// The label of a group's row: its first state's steps, and how many alike.
 fn group_label(sv: &Survey, first: usize, members: usize) -> String {
-    let mut label = steps_label(&sv.states[first].steps);
+    let mut label = sv.states[first].mask.label();
     if members > 1 {
         label.push_str(&format!(" (+{} alike)", count(members as u64 - 1)));
     }
@@ -506,7 +505,7 @@ pub fn write_csv(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(), 
     let sc = &sv.scanner;
     let mut line = String::from("h,supply_only_ohm");
     for s in &sv.states {
-        line.push_str(&format!(",z_{}_ohm", steps_label(&s.steps)));
+        line.push_str(&format!(",z_{}_ohm", s.mask.label()));
     }
     line.push('\n');
     out.write_all(line.as_bytes())?;
@@ -514,7 +513,7 @@ pub fn write_csv(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(), 
     for j in 0..sc.grid().len() {
         line.clear();
         line.push_str(&format!("{:.*}", decimals, sc.grid().order(j)));
-        line.push_str(&format!(",{}", sig(sc.impedance_at(j, 0))));
+        line.push_str(&format!(",{}", sig(sc.impedance_at(j, BankState::EMPTY))));
         for s in &sv.states {
             line.push_str(&format!(",{}", sig(sc.impedance_at(j, s.mask))));
         }
@@ -588,7 +587,7 @@ struct DetuningJson<'a> {
 /// memory twice).
 struct Curves<'a>(&'a Survey);
 
-struct Curve<'a>(&'a Survey, u64);
+struct Curve<'a>(&'a Survey, BankState);
 
 impl Serialize for Curve<'_> {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
@@ -624,7 +623,7 @@ impl Serialize for Curves<'_> {
         let sv = self.0;
         let mut st = s.serialize_struct("Curves", 3)?;
         st.serialize_field("h", &Orders(sv.scanner.grid()))?;
-        st.serialize_field("supply_only_ohm", &Curve(sv, 0))?;
+        st.serialize_field("supply_only_ohm", &Curve(sv, BankState::EMPTY))?;
         let states: Vec<CurveJson<'_>> = sv
             .states
             .iter()

@@ -18,6 +18,7 @@
 //!
 //! Rows are written with `write!` straight into the buffer: nothing is allocated per row.
 
+use crate::bank::BankState;
 use crate::engine::{IntervalRecord, Observer};
 use crate::error::RunError;
 use crate::pf::{pf_of, quadrant_of};
@@ -109,21 +110,21 @@ impl<W: Write> TimeseriesWriter<W> {
             r.decision.demand_kvar,
             bank,
         )?;
-        write_mask(o, r.mask)?;
+        write_steps(o, r.mask)?;
         o.write_all(b",")?;
         let d = r.decision;
         if let Some(t) = d.trip {
             write!(o, "trip {}", crate::text::trip_word(t))?;
         } else {
             let mut sep = "";
-            if d.closed != 0 {
+            if !d.closed.is_empty() {
                 o.write_all(b"close ")?;
-                write_mask(o, d.closed)?;
+                write_steps(o, d.closed)?;
                 sep = " ";
             }
-            if d.opened != 0 {
+            if !d.opened.is_empty() {
                 write!(o, "{sep}open ")?;
-                write_mask(o, d.opened)?;
+                write_steps(o, d.opened)?;
             }
         }
         o.write_all(b"\n")
@@ -143,18 +144,14 @@ impl<W: Write> Observer for TimeseriesWriter<W> {
     }
 }
 
-/// Writes the step numbers of a mask joined by `+`.
-fn write_mask<W: Write + ?Sized>(o: &mut W, mask: u64) -> std::io::Result<()> {
-    let mut m = mask;
-    let mut first = true;
-    while m != 0 {
-        let i = m.trailing_zeros();
-        m &= m - 1;
-        if !first {
+/// Writes the step numbers of a state joined by `+`, nothing for the empty state (unlike
+/// [`BankState::label`], which says `none`), without allocating.
+fn write_steps<W: Write + ?Sized>(o: &mut W, state: BankState) -> std::io::Result<()> {
+    for (i, n) in state.iter().enumerate() {
+        if i > 0 {
             o.write_all(b"+")?;
         }
-        first = false;
-        write!(o, "{}", i + 1)?;
+        write!(o, "{n}")?;
     }
     Ok(())
 }
@@ -183,7 +180,7 @@ mod tests {
         load: &'a LoadSample,
         phases: &'a [PhaseSolution; 3],
         decision: &'a Decision,
-        mask: u64,
+        mask: BankState,
     ) -> IntervalRecord<'a> {
         IntervalRecord {
             k,
@@ -207,11 +204,11 @@ mod tests {
         let phases = [ph; 3];
         let close = Decision {
             demand_kvar: 40.0,
-            closed: 0b100,
+            closed: BankState::of_steps(&[3]),
             ..Decision::default()
         };
         let trip = Decision {
-            opened: 0b101,
+            opened: BankState::of_steps(&[1, 3]),
             trip: Some(crate::controller::Trip::Export),
             ..Decision::default()
         };
@@ -220,7 +217,8 @@ mod tests {
             .into_iter()
             .enumerate()
         {
-            w.interval(&record(k as u64, &load, &phases, d, 0b011))
+            let on = BankState::of_steps(&[1, 2]);
+            w.interval(&record(k as u64, &load, &phases, d, on))
                 .unwrap();
         }
         assert_eq!(w.rows(), 2);

@@ -3,6 +3,7 @@
 #![allow(dead_code)]
 
 use bankstep::analysis::Assessment;
+use bankstep::bank::BankState;
 use bankstep::engine::{IntervalRecord, Observer, Quiet, RunResult};
 use bankstep::error::{ProfileError, RunError};
 use bankstep::profile::{LoadSample, LoadSource};
@@ -62,7 +63,7 @@ pub struct Recorder {
     pub q: Vec<f64>,
     pub p: Vec<f64>,
     pub demand: Vec<f64>,
-    pub masks: Vec<u64>,
+    pub masks: Vec<BankState>,
     dt: f64,
 }
 
@@ -78,21 +79,12 @@ impl Recorder {
 impl Observer for Recorder {
     fn interval(&mut self, r: &IntervalRecord<'_>) -> Result<(), RunError> {
         let t_next = r.t_s + self.dt;
-        for i in 0..64 {
-            if r.decision.closed & (1 << i) != 0 {
-                self.ops.push(Op {
-                    t: t_next,
-                    step: i + 1,
-                    close: true,
-                });
-            }
-            if r.decision.opened & (1 << i) != 0 {
-                self.ops.push(Op {
-                    t: t_next,
-                    step: i + 1,
-                    close: false,
-                });
-            }
+        for step in r.decision.closed.or(r.decision.opened) {
+            self.ops.push(Op {
+                t: t_next,
+                step,
+                close: r.decision.closed.contains(step),
+            });
         }
         let v: f64 = r.phases.iter().map(|p| p.v_ln).sum::<f64>() / 3.0;
         self.u_ll.push(v * 3f64.sqrt());
