@@ -789,12 +789,18 @@ fn voltage(ctx: &ReportContext<'_>, t: &mut String) {
         t,
         "Bus voltage",
         &format!(
-            "min {} V, max {} V line to line ({} % to {} % of the {} V nominal)",
+            "min {} V, max {} V line to line ({} % to {} % of the {} V nominal){}",
             num(v.min_v, 1),
             num(v.max_v, 1),
             num(100.0 * v.min_v / u_n, 1),
             num(100.0 * v.max_v / u_n, 1),
-            num(u_n, 0)
+            num(u_n, 0),
+            if ctx.result.nonconverged_intervals > 0 {
+                "; these include intervals the supply could not carry, taken at the limit of \
+                 what it can deliver, so they are not real voltages"
+            } else {
+                ""
+            }
         ),
     );
     field(t, "Above 110 %", &duration(v.above_110pct_s));
@@ -803,7 +809,11 @@ fn voltage(ctx: &ReportContext<'_>, t: &mut String) {
         field(
             t,
             "Not solved",
-            &format!("{} intervals (load beyond the supply)", count(nc)),
+            &format!(
+                "{} of {} intervals (load beyond what the supply can carry)",
+                count(nc),
+                count(ctx.result.metrics.run.samples)
+            ),
         );
     }
 }
