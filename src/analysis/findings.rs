@@ -400,7 +400,7 @@ fn overcorrection(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let mut text = format!(
         "Overcorrected {} in {} episode{}",
         duration(o.total_s),
-        o.episodes,
+        count(o.episodes),
         if o.episodes == 1 { "" } else { "s" }
     );
     let (day, day_s) =

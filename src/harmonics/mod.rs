@@ -561,10 +561,7 @@ impl HarmonicModel {
             .iter()
             .map(|s| {
                 let p = s.detuning.unwrap_or(0.0);
-                let u_conn = match s.phase {
-                    StepPhase::Three => u_n,
-                    StepPhase::Single(_) => u_n / 3f64.sqrt(),
-                };
+                let u_conn = s.connection_voltage_v(u_n);
                 StepModel {
                     kvar: s.kvar,
                     p,
