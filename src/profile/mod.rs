@@ -41,8 +41,17 @@ impl LoadSample {
 /// A source of load samples on the simulation grid t_k = t_first + k·Δt.
 pub trait LoadSource {
     /// Writes the load of interval k, starting at `t_s`, into `out`. The engine calls this
-    /// once per interval with k = 0, 1, 2, … in order. Must not allocate.
+    /// with k increasing (0, 1, 2, …), and may skip intervals that the source declared
+    /// unchanged with [`LoadSource::unchanged_until`]. Must not allocate.
     fn sample(&mut self, k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError>;
+
+    /// After `sample(k, …)`: the first interval index after k whose sample may differ from
+    /// interval k's. The source promises that every interval from k + 1 up to (not
+    /// including) the returned index would receive exactly the sample of interval k, so
+    /// the engine may step over them as one block. The default, k + 1, promises nothing.
+    fn unchanged_until(&self, k: u64) -> u64 {
+        k + 1
+    }
 }
 
 /// What to do with a defect in a CSV profile. Which policies apply depends on the kind
