@@ -109,6 +109,14 @@ impl LoadSource for Source {
             Source::Synthetic(s) => s.sample(k, t_s, out),
         }
     }
+
+    #[inline]
+    fn unchanged_until(&self, k: u64) -> u64 {
+        match self {
+            Source::Csv(s) => s.unchanged_until(k),
+            Source::Synthetic(s) => s.unchanged_until(k),
+        }
+    }
 }
 
 /// Validated settings joined to a prepared profile: everything one run needs.

@@ -637,3 +637,184 @@ fn unequal_duty_cycles_give_their_share_of_power() {
         assert!((m - 12.0).abs() < 0.02 * 12.0, "{cycle}: {m}");
     }
 }
+
+/// Samples every interval of `c` at `dt_s` from `t_first_s` and, after each, asks the
+/// generator for its promise (`unchanged_until`).
+fn run_with_promises(
+    c: &SyntheticConfig,
+    seed: u64,
+    t_first_s: f64,
+    dt_s: f64,
+    n: u64,
+) -> (Vec<LoadSample>, Vec<u64>) {
+    let mut p = SyntheticProfile::new(c, seed, monday(), t_first_s, dt_s);
+    let mut s = LoadSample::default();
+    let (mut samples, mut promises) = (Vec::new(), Vec::new());
+    for k in 0..n {
+        p.sample(k, t_first_s + k as f64 * dt_s, &mut s).unwrap();
+        samples.push(s);
+        promises.push(p.unchanged_until(k));
+    }
+    (samples, promises)
+}
+
+/// The bit patterns of a sample, so that a promise is checked bit for bit.
+fn bits(s: &LoadSample) -> [u64; 6] {
+    std::array::from_fn(|i| {
+        if i < 3 {
+            s.p_kw[i].to_bits()
+        } else {
+            s.q_kvar[i - 3].to_bits()
+        }
+    })
+}
+
+/// A shift-level base load and nothing else: between the level changes the generator
+/// promises long runs of the same sample, and a caller that steps over them (as the
+/// engine may) still gets the right energy. Independent count: Monday to Friday have
+/// 16 h of shifts (06:00–22:00) at 300 kW and 8 h at 120 kW; Saturday and Sunday 48 h at
+/// 60 kW, so one week holds 5 × (16 × 300 + 8 × 120) + 48 × 60 = 31,680 kWh.
+#[test]
+fn a_steady_base_load_is_promised_unchanged_between_level_changes() {
+    let c = cfg(r#"
+        [base]
+        kw = 300
+        night_kw = 120
+        weekend_kw = 60
+        "#);
+    let mut p = SyntheticProfile::new(&c, 3, monday(), 0.0, 1.0);
+    let n = (7.0 * DAY_S) as u64;
+    let mut s = LoadSample::default();
+    let (mut k, mut calls, mut kwh) = (0u64, 0u32, 0.0);
+    while k < n {
+        p.sample(k, k as f64, &mut s).unwrap();
+        let next = p.unchanged_until(k).min(n);
+        assert!(next > k);
+        kwh += s.p_total() * (next - k) as f64 / 3600.0;
+        calls += 1;
+        k = next;
+    }
+    assert!((kwh - 31_680.0).abs() < 1e-6, "{kwh}");
+    // Two level changes on each working day and a look at every midnight: a few dozen
+    // samples, not 604,800.
+    assert!(calls < 60, "{calls} samples taken");
+}
+
+mod promises {
+    use super::*;
+    use bankstep::profile::synthetic::{
+        BaseLoad, Clouds, DayList, DutyCycle, MachineGroup, Phase, PvArray, RunWhen, ShiftPattern,
+        WelderGroup,
+    };
+    use proptest::prelude::*;
+
+    const PHASES: [Phase; 7] = [
+        Phase::Abc,
+        Phase::A,
+        Phase::B,
+        Phase::C,
+        Phase::Ab,
+        Phase::Bc,
+        Phase::Ca,
+    ];
+    const RUNS: [RunWhen; 3] = [RunWhen::Always, RunWhen::Shifts, RunWhen::Window];
+
+    fn window(a: u32, len: u32) -> String {
+        format!("{:02}:00-{:02}:00", a % 24, (a + len) % 24)
+    }
+
+    prop_compose! {
+        fn machine()(units in 1u32..5, kw in 1.0f64..80.0, phase in 0usize..7,
+                     runs in 0usize..3, w in 0u32..24, wl in 1u32..20, fixed in any::<bool>(),
+                     on_s in 20.0f64..5000.0, off_s in prop_oneof![Just(0.0), 20.0f64..5000.0])
+                    -> MachineGroup {
+            MachineGroup {
+                units, kw, phase: PHASES[phase], runs: RUNS[runs], window: window(w, wl),
+                cycle: if fixed { DutyCycle::Fixed } else { DutyCycle::Random },
+                on_s, off_s, ..MachineGroup::default()
+            }
+        }
+    }
+
+    prop_compose! {
+        fn welder()(units in 1u32..4, kw in 1.0f64..50.0, runs in 0usize..3,
+                    w in 0u32..24, wl in 1u32..20, burst_s in 0.5f64..5.0,
+                    pause_s in 2.0f64..60.0) -> WelderGroup {
+            WelderGroup {
+                units, kw, runs: RUNS[runs], window: window(w, wl), window_days:
+                DayList::Text("mon-fri".into()), burst_s, pause_s, ..WelderGroup::default()
+            }
+        }
+    }
+
+    prop_compose! {
+        fn pv()(peak_kw in 0.0f64..200.0, rise in 4.0f64..9.0, len in 6.0f64..15.0,
+                clouds in any::<bool>(), clear_s in 60.0f64..3000.0,
+                shade_s in 30.0f64..1000.0, depth in 0.0f64..1.0) -> PvArray {
+            PvArray {
+                peak_kw, sunrise_h: rise, sunset_h: (rise + len).min(24.0),
+                clouds: clouds.then_some(Clouds { clear_s, shade_s, depth }),
+                ..PvArray::default()
+            }
+        }
+    }
+
+    prop_compose! {
+        fn config()(kw in 0.0f64..400.0, night in 0.0f64..400.0, weekend in 0.0f64..400.0,
+                    s0 in 0u32..24, sl in 1u32..20, machines in proptest::collection::vec(machine(), 0..3),
+                    welders in proptest::collection::vec(welder(), 0..2),
+                    pv in proptest::collection::vec(pv(), 0..2)) -> SyntheticConfig {
+            SyntheticConfig {
+                noise_percent: 0.0,
+                base: BaseLoad { kw, night_kw: Some(night), weekend_kw: Some(weekend),
+                                 ..BaseLoad::default() },
+                shifts: ShiftPattern { hours: vec![window(s0, sl)], ..ShiftPattern::default() },
+                machines, welders, pv,
+            }
+        }
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(24))]
+
+        /// Without noise, every interval the generator promises unchanged gets, when
+        /// sampled, exactly the promised sample; and a caller that steps over the
+        /// promised runs gets the same samples where it asks as one that asks for every
+        /// interval.
+        #[test]
+        fn promised_intervals_repeat_the_sample_bit_for_bit(
+            c in config(), seed in any::<u64>(), dt_pick in 0usize..5, start_h in 0u32..168,
+        ) {
+            c.validate("load.synthetic").unwrap();
+            let dt = [1.0, 2.5, 15.0, 60.0, 900.0][dt_pick];
+            // About 12,000 intervals, from a whole hour of the week.
+            let n = 12_000u64;
+            let t_first = f64::from(start_h) * H;
+            let (samples, promises) = run_with_promises(&c, seed, t_first, dt, n);
+            // The first later interval whose sample differs from each interval's.
+            let n_us = n as usize;
+            let mut next_diff = vec![n; n_us];
+            for j in (0..n_us - 1).rev() {
+                next_diff[j] = if bits(&samples[j + 1]) != bits(&samples[j]) {
+                    j as u64 + 1
+                } else {
+                    next_diff[j + 1]
+                };
+            }
+            for k in 0..n_us {
+                prop_assert!(promises[k] > k as u64);
+                prop_assert!(promises[k].min(n) <= next_diff[k],
+                    "interval {} promised unchanged up to {}, but {} differs",
+                    k, promises[k], next_diff[k]);
+            }
+            let mut p = SyntheticProfile::new(&c, seed, monday(), t_first, dt);
+            let mut s = LoadSample::default();
+            let mut k = 0u64;
+            while k < n {
+                p.sample(k, t_first + k as f64 * dt, &mut s).unwrap();
+                prop_assert_eq!(bits(&s), bits(&samples[k as usize]), "interval {}", k);
+                k = p.unchanged_until(k);
+            }
+        }
+    }
+}

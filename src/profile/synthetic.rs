@@ -715,9 +715,15 @@ impl Pv {
 /// [`SyntheticConfig`]. See the module documentation for what a sample means.
 #[derive(Debug, Clone)]
 pub struct SyntheticProfile {
+    /// Start of interval 0, s: interval k starts at t_first + k·Δt.
+    t_first: f64,
     /// Interval length Δt, s.
     dt: f64,
     inv_dt: f64,
+    /// Whether the last sample took anything beyond the running sum (an event inside
+    /// it, a group summed every sample, PV in daylight, or noise), so that the next
+    /// sample may differ from it.
+    last_varied: bool,
     /// Base load plus the groups kept in the running sum, in force now,
     /// `[Pa, Pb, Pc, Qa, Qb, Qc]`.
     steady: [f64; 6],
@@ -913,8 +919,10 @@ impl SyntheticProfile {
             .collect();
 
         let mut prof = SyntheticProfile {
+            t_first: t0,
             dt,
             inv_dt: 1.0 / dt,
+            last_varied: true,
             steady: [0.0; 6],
             next_event: f64::INFINITY,
             fast,
@@ -966,12 +974,13 @@ impl SyntheticProfile {
         self.refresh_steady();
     }
 
-    /// Adds the PV output of [t0, t1) to `v`.
+    /// Adds the PV output of [t0, t1) to `v`; returns whether any array is in daylight
+    /// (and so may change from one sample to the next).
     #[inline]
-    fn add_pv(&mut self, t0: f64, t1: f64, v: &mut [f64; 6]) {
+    fn add_pv(&mut self, t0: f64, t1: f64, v: &mut [f64; 6]) -> bool {
         let tm = t0 + 0.5 * self.dt;
         if tm < self.pv_idle_until {
-            return;
+            return false;
         }
         let inv_dt = self.inv_dt;
         let mut dark_until = f64::INFINITY;
@@ -994,6 +1003,21 @@ impl SyntheticProfile {
         }
         // When every array is dark, nothing to do until the first sunrise.
         self.pv_idle_until = dark_until;
+        dark_until != f64::NEG_INFINITY
+    }
+
+    /// Whether interval j would take the running sum alone, as the last sample did: it
+    /// ends no later than the next event of the running sum and of the groups summed
+    /// every sample (shut by their gates), and its midpoint falls in the PV arrays'
+    /// night. The times are those of the engine's grid, computed the same way.
+    #[inline]
+    fn quiet_at(&self, j: u64) -> bool {
+        let t0 = self.t_first + j as f64 * self.dt;
+        let t1 = t0 + self.dt;
+        let tm = t0 + 0.5 * self.dt;
+        t1 <= self.next_event
+            && t1 <= self.fast_idle_until
+            && (self.pv.is_empty() || tm < self.pv_idle_until)
     }
 }
 
@@ -1005,10 +1029,13 @@ impl LoadSource for SyntheticProfile {
         let t0 = t_s;
         let t1 = t_s + self.dt;
         let mut v = self.steady;
+        let mut varied = self.noise_sigma > 0.0;
         if t1 > self.next_event {
             self.integrate_slow(t0, t1, &mut v);
+            varied = true;
         }
         if t1 > self.fast_idle_until {
+            varied |= !self.fast.is_empty();
             let mut idle_until = f64::INFINITY;
             for g in &mut self.fast {
                 let m = g.mean_every_sample(&self.cal, t0, t1, self.inv_dt);
@@ -1025,8 +1052,9 @@ impl LoadSource for SyntheticProfile {
             self.fast_idle_until = idle_until;
         }
         if !self.pv.is_empty() {
-            self.add_pv(t0, t1, &mut v);
+            varied |= self.add_pv(t0, t1, &mut v);
         }
+        self.last_varied = varied;
         if self.noise_sigma > 0.0 {
             let n = self.noise.six(&mut self.noise_rng);
             for (vi, ni) in v.iter_mut().zip(n) {
@@ -1036,6 +1064,60 @@ impl LoadSource for SyntheticProfile {
         out.p_kw.copy_from_slice(&v[..3]);
         out.q_kvar.copy_from_slice(&v[3..]);
         Ok(())
+    }
+
+    /// After a sample that took the running sum alone (no event inside, no group summed
+    /// every sample running, every PV array dark, no noise), every later interval that
+    /// again takes the running sum alone repeats it bit for bit; the first that may not
+    /// is returned. Otherwise k + 1. Assumes the grid t_k = t_first + k·Δt of the
+    /// constructor's arguments, as the engine uses.
+    fn unchanged_until(&self, k: u64) -> u64 {
+        if self.last_varied || !self.quiet_at(k + 1) {
+            return k + 1;
+        }
+        // The quiet intervals form a run from k + 1 (the interval times grow with the
+        // index). No interval past 2^51 is promised: no run is that long, and indices
+        // stay exact in floating point below it.
+        const CAP: u64 = 1 << 51;
+        if k + 1 >= CAP {
+            return k + 1;
+        }
+        // Estimate where the run ends from the bounds, then make sure: `lo` is quiet,
+        // and `hi` is not (or is past the cap).
+        let mut bound = fmin(self.next_event, self.fast_idle_until) - self.dt;
+        if !self.pv.is_empty() {
+            bound = fmin(bound, self.pv_idle_until - 0.5 * self.dt);
+        }
+        let est = ((bound - self.t_first) * self.inv_dt).floor();
+        let est = if est >= CAP as f64 {
+            CAP
+        } else if est > (k + 1) as f64 {
+            est as u64
+        } else {
+            k + 1
+        };
+        let (mut lo, mut hi) = (k + 1, CAP + 1);
+        if self.quiet_at(est) {
+            if est == CAP || !self.quiet_at(est + 1) {
+                return est + 1;
+            }
+            lo = est + 1;
+        } else {
+            // est > k + 1 here, since interval k + 1 is quiet.
+            if self.quiet_at(est - 1) {
+                return est;
+            }
+            hi = est - 1;
+        }
+        while hi - lo > 1 {
+            let mid = lo + (hi - lo) / 2;
+            if self.quiet_at(mid) {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        lo + 1
     }
 }
 
