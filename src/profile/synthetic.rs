@@ -124,8 +124,8 @@ use crate::error::ProfileError;
 use crate::pf::tan_phi_of;
 use crate::profile::{LoadSample, LoadSource};
 use crate::timebase::{Calendar, DAY_S};
-use draws::{FastExp, FastNormal};
-use rand::{Rng, SeedableRng};
+use draws::{FastExp, NoiseFactors};
+use rand::{Rng, RngCore, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
 use schedule::{week_intervals, Clock, WeekTable};
 
@@ -248,6 +248,18 @@ fn finite_or(x: f64, dflt: f64) -> f64 {
     }
 }
 
+/// The integer form of the test `u < p` for a uniform number u = m·2⁻⁵³ made, as `rand`
+/// makes its `f64`, from the top 53 bits m of a 64-bit draw: u < p exactly when
+/// m < ⌈p·2⁵³⌉ (the scaling by a power of two is exact), for any p in [0, 1].
+fn stop_threshold(p: f64) -> u64 {
+    let scaled = (p.clamp(0.0, 1.0) * (1u64 << 53) as f64).ceil();
+    if scaled.is_nan() {
+        0
+    } else {
+        scaled as u64
+    }
+}
+
 /// Switchings a group draws ahead of time, so that the per-sample test only compares
 /// the next prepared time.
 const EVENT_BATCH: usize = 32;
@@ -266,10 +278,10 @@ enum Process {
         /// Long-run share of time a unit runs, on/(on + off).
         p_on: f64,
         /// For each number of running units k: 1/λ_k, the mean time to the next
-        /// switching, s, with λ_k = k/on + (n − k)/off.
-        mean_wait: Vec<f64>,
-        /// For each k: the chance (k/on)/λ_k that the next switching stops a unit.
-        p_stop: Vec<f64>,
+        /// switching, s, with λ_k = k/on + (n − k)/off; and the chance (k/on)/λ_k that
+        /// the next switching stops a unit, as a threshold on 53 random bits (see
+        /// [`stop_threshold`]).
+        per_k: Vec<(f64, u64)>,
         /// Units running and run time after the last prepared switching.
         k: u32,
         t: f64,
@@ -352,8 +364,7 @@ impl Process {
         match self {
             Process::NonStop => out.fill((f64::INFINITY, 0.0)),
             Process::Random {
-                mean_wait,
-                p_stop,
+                per_k,
                 k,
                 t,
                 exp,
@@ -362,8 +373,10 @@ impl Process {
             } => {
                 for slot in out.iter_mut() {
                     let e = exp.draw(rng);
-                    *t += e * mean_wait[*k as usize];
-                    let stops = rng.random::<f64>() < p_stop[*k as usize];
+                    let (mean_wait, stop_below) = per_k[*k as usize];
+                    *t += e * mean_wait;
+                    // The same decision as `rng.random::<f64>() < p_stop`, in integers.
+                    let stops = (rng.next_u64() >> 11) < stop_below;
                     // −1 when a unit stops, +1 when one starts, without a branch.
                     let step = 1 - 2 * i32::from(stops);
                     *k = (*k as i32 + step) as u32;
@@ -436,8 +449,9 @@ impl Group {
                     let lam = |k: u32| f64::from(k) / on_s + f64::from(n - k) / off_s;
                     Process::Random {
                         p_on: on_s / (on_s + off_s),
-                        mean_wait: (0..=n).map(|k| 1.0 / lam(k)).collect(),
-                        p_stop: (0..=n).map(|k| f64::from(k) / on_s / lam(k)).collect(),
+                        per_k: (0..=n)
+                            .map(|k| (1.0 / lam(k), stop_threshold(f64::from(k) / on_s / lam(k))))
+                            .collect(),
                         k: 0,
                         t: t0,
                         exp: FastExp::new(),
@@ -739,7 +753,8 @@ pub struct SyntheticProfile {
     pv_idle_until: f64,
     /// Relative noise, one standard deviation (0 for none).
     noise_sigma: f64,
-    noise: FastNormal,
+    /// The factors 1 + σ·x of the noise draws (all 1 when σ is 0, and then unused).
+    noise: NoiseFactors,
     noise_rng: Xoshiro256PlusPlus,
     cal: Calendar,
     base: Base,
@@ -918,6 +933,7 @@ impl SyntheticProfile {
             })
             .collect();
 
+        let noise_sigma = finite_or(cfg.noise_percent, 0.0).clamp(0.0, 100.0) / 100.0;
         let mut prof = SyntheticProfile {
             t_first: t0,
             dt,
@@ -929,8 +945,8 @@ impl SyntheticProfile {
             fast_idle_until: f64::NEG_INFINITY,
             pv,
             pv_idle_until: f64::NEG_INFINITY,
-            noise_sigma: finite_or(cfg.noise_percent, 0.0).clamp(0.0, 100.0) / 100.0,
-            noise: FastNormal::new(),
+            noise_sigma,
+            noise: NoiseFactors::new(noise_sigma),
             noise_rng: stream(seed, STREAM_NOISE, 0),
             cal,
             base,
@@ -1056,9 +1072,9 @@ impl LoadSource for SyntheticProfile {
         }
         self.last_varied = varied;
         if self.noise_sigma > 0.0 {
-            let n = self.noise.six(&mut self.noise_rng);
-            for (vi, ni) in v.iter_mut().zip(n) {
-                *vi *= 1.0 + self.noise_sigma * ni;
+            let f = self.noise.six(&mut self.noise_rng);
+            for (vi, fi) in v.iter_mut().zip(f) {
+                *vi *= fi;
             }
         }
         out.p_kw.copy_from_slice(&v[..3]);

@@ -144,17 +144,22 @@ pub(crate) fn probit(p: f64) -> f64 {
 }
 
 /// A source of approximately standard-normal numbers (see the module documentation).
+/// The generator uses them through [`NoiseFactors`]; this plain form is the reference
+/// the tests check the distribution and the factors against.
+#[cfg(test)]
 #[derive(Clone)]
 pub(crate) struct FastNormal {
     table: &'static [f32; SIZE],
 }
 
+#[cfg(test)]
 impl std::fmt::Debug for FastNormal {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         f.write_str("FastNormal")
     }
 }
 
+#[cfg(test)]
 impl FastNormal {
     pub(crate) fn new() -> Self {
         FastNormal { table: table() }
@@ -168,6 +173,44 @@ impl FastNormal {
         let m = (SIZE - 1) as u64;
         let t = self.table;
         let at = |x: u64, k: u32| f64::from(t[((x >> (k * BITS)) & m) as usize]);
+        [at(a, 0), at(a, 1), at(a, 2), at(a, 3), at(a, 4), at(b, 0)]
+    }
+}
+
+/// Measurement-noise factors 1 + σ·x for normal draws x as [`FastNormal`] makes them:
+/// the same table with the factor worked out once per value, so that a sample takes six
+/// loads and six products. Each factor is computed exactly as `1.0 + sigma * x` would be
+/// per sample, so the results are the same to the bit.
+#[derive(Clone)]
+pub(crate) struct NoiseFactors {
+    table: Box<[f64; SIZE]>,
+}
+
+impl std::fmt::Debug for NoiseFactors {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("NoiseFactors")
+    }
+}
+
+impl NoiseFactors {
+    /// The factors for relative noise `sigma` (one standard deviation).
+    pub(crate) fn new(sigma: f64) -> Self {
+        let mut table = Box::new([1.0; SIZE]);
+        for (dst, &x) in table.iter_mut().zip(self::table().iter()) {
+            *dst = 1.0 + sigma * f64::from(x);
+        }
+        NoiseFactors { table }
+    }
+
+    /// Six factors, for the P and Q of three phases, from two random numbers: the draws
+    /// of [`FastNormal::six`] in the same order.
+    #[inline]
+    pub(crate) fn six<R: RngCore>(&self, rng: &mut R) -> [f64; 6] {
+        let a = rng.next_u64();
+        let b = rng.next_u64();
+        let m = (SIZE - 1) as u64;
+        let t = &self.table;
+        let at = |x: u64, k: u32| t[((x >> (k * BITS)) & m) as usize];
         [at(a, 0), at(a, 1), at(a, 2), at(a, 3), at(a, 4), at(b, 0)]
     }
 }
@@ -205,6 +248,21 @@ mod tests {
             / EXP_SIZE as f64
             + (t[EXP_SIZE - 1].0 + 1.0) / EXP_SIZE as f64;
         assert!((mean - 1.0).abs() < 1e-4, "{mean}");
+    }
+
+    #[test]
+    fn noise_factors_are_one_plus_sigma_times_the_draws() {
+        let n = FastNormal::new();
+        let f = NoiseFactors::new(0.013);
+        let mut r1 = Xoshiro256PlusPlus::seed_from_u64(8);
+        let mut r2 = r1.clone();
+        for _ in 0..10_000 {
+            let x = n.six(&mut r1);
+            let y = f.six(&mut r2);
+            for i in 0..6 {
+                assert_eq!((1.0 + 0.013 * x[i]).to_bits(), y[i].to_bits());
+            }
+        }
     }
 
     #[test]
