@@ -751,8 +751,8 @@ pub struct SyntheticProfile {
     pv: Vec<Pv>,
     /// Run time before which every PV array is in its night, or −∞.
     pv_idle_until: f64,
-    /// Relative noise, one standard deviation (0 for none).
-    noise_sigma: f64,
+    /// Whether there is measurement noise (a relative σ above 0).
+    noise_on: bool,
     /// The factors 1 + σ·x of the noise draws (all 1 when σ is 0, and then unused).
     noise: NoiseFactors,
     noise_rng: Xoshiro256PlusPlus,
@@ -945,7 +945,7 @@ impl SyntheticProfile {
             fast_idle_until: f64::NEG_INFINITY,
             pv,
             pv_idle_until: f64::NEG_INFINITY,
-            noise_sigma,
+            noise_on: noise_sigma > 0.0,
             noise: NoiseFactors::new(noise_sigma),
             noise_rng: stream(seed, STREAM_NOISE, 0),
             cal,
@@ -990,13 +990,13 @@ impl SyntheticProfile {
         self.refresh_steady();
     }
 
-    /// Adds the PV output of [t0, t1) to `v`; returns whether any array is in daylight
-    /// (and so may change from one sample to the next).
+    /// Adds the PV output of [t0, t1) to `v`; an array in daylight marks the sample as
+    /// varied.
     #[inline]
-    fn add_pv(&mut self, t0: f64, t1: f64, v: &mut [f64; 6]) -> bool {
+    fn add_pv(&mut self, t0: f64, t1: f64, v: &mut [f64; 6]) {
         let tm = t0 + 0.5 * self.dt;
         if tm < self.pv_idle_until {
-            return false;
+            return;
         }
         let inv_dt = self.inv_dt;
         let mut dark_until = f64::INFINITY;
@@ -1013,13 +1013,13 @@ impl SyntheticProfile {
                 }
                 axpy(v, f, &a.peak);
                 dark_until = f64::NEG_INFINITY;
+                self.last_varied = true;
             } else {
                 dark_until = fmin(dark_until, a.to);
             }
         }
         // When every array is dark, nothing to do until the first sunrise.
         self.pv_idle_until = dark_until;
-        dark_until != f64::NEG_INFINITY
     }
 
     /// Whether interval j would take the running sum alone, as the last sample did: it
@@ -1045,15 +1045,16 @@ impl LoadSource for SyntheticProfile {
         let t0 = t_s;
         let t1 = t_s + self.dt;
         let mut v = self.steady;
-        let mut varied = self.noise_sigma > 0.0;
+        // Each part that takes more than the running sum marks the sample as varied.
+        self.last_varied = self.noise_on;
         if t1 > self.next_event {
             self.integrate_slow(t0, t1, &mut v);
-            varied = true;
+            self.last_varied = true;
         }
         if t1 > self.fast_idle_until {
-            varied |= !self.fast.is_empty();
             let mut idle_until = f64::INFINITY;
             for g in &mut self.fast {
+                self.last_varied = true;
                 let m = g.mean_every_sample(&self.cal, t0, t1, self.inv_dt);
                 axpy(&mut v, m, &g.unit);
                 idle_until = fmin(
@@ -1068,10 +1069,9 @@ impl LoadSource for SyntheticProfile {
             self.fast_idle_until = idle_until;
         }
         if !self.pv.is_empty() {
-            varied |= self.add_pv(t0, t1, &mut v);
+            self.add_pv(t0, t1, &mut v);
         }
-        self.last_varied = varied;
-        if self.noise_sigma > 0.0 {
+        if self.noise_on {
             let f = self.noise.six(&mut self.noise_rng);
             for (vi, fi) in v.iter_mut().zip(f) {
                 *vi *= fi;
