@@ -108,8 +108,15 @@
 //! their switchings prepared ahead in small batches; the others are kept in a running
 //! sum refreshed only when one of them switches, and groups shut by their gate cost
 //! nothing. The PV curve is drawn in straight one-minute pieces and skipped through the
-//! night. Noise takes six quantised normal draws from two random numbers, and spell
-//! lengths use a table-based exponential (see `draws`). `sample` never allocates.
+//! night. Noise takes six quantised normal draws from two random numbers, each looked up
+//! directly as its factor 1 + σ·x, and spell lengths use a table-based exponential (see
+//! `draws`). `sample` never allocates.
+//!
+//! Without noise, a sample that takes the running sum alone (no event inside it, the
+//! groups summed every sample shut by their gates, every PV array in its night) repeats
+//! until the next event of the running sum, the next gate opening or the next sunrise;
+//! [`LoadSource::unchanged_until`] returns the first interval past that run, worked out
+//! on the grid t_k = t_first + k·Δt, so that a caller can step over the run.
 
 mod config;
 mod draws;
