@@ -579,14 +579,31 @@ impl Group {
         self.n_on += d;
         self.pos += usize::from(hit);
         if self.pos == EVENT_BATCH {
-            self.process.prepare(&mut self.events);
-            self.pos = 0;
+            self.refill();
         }
         if self.events[self.pos].0 < t1 {
-            let before = self.n_on;
-            corr += self.run_units(t0, t1) - before * (t1 - t0);
+            corr += self.more_switchings(t0, t1);
         }
         start + corr * inv_dt
+    }
+
+    /// Prepares the next batch of switchings once the last one is used up (out of line,
+    /// so that the per-sample path stays small).
+    #[cold]
+    #[inline(never)]
+    fn refill(&mut self) {
+        self.process.prepare(&mut self.events);
+        self.pos = 0;
+    }
+
+    /// For [`Group::mean_every_sample`]: the unit-seconds over [t0, t1) beyond the
+    /// running count, when a second switching falls inside the interval (out of line:
+    /// rare at the Δt such groups are summed at).
+    #[cold]
+    #[inline(never)]
+    fn more_switchings(&mut self, t0: f64, t1: f64) -> f64 {
+        let before = self.n_on;
+        self.run_units(t0, t1) - before * (t1 - t0)
     }
 }
 
@@ -648,6 +665,13 @@ impl CloudState {
         if self.next >= t1 {
             return if self.shaded { 1.0 - self.depth } else { 1.0 };
         }
+        self.switch(t0, t1, inv_dt)
+    }
+
+    /// [`CloudState::factor`] for an interval with switchings inside (out of line).
+    #[cold]
+    #[inline(never)]
+    fn switch(&mut self, t0: f64, t1: f64, inv_dt: f64) -> f64 {
         let mut shaded_t = if self.shaded { t1 - t0 } else { 0.0 };
         while self.next < t1 {
             let te = fmax(self.next, t0);
