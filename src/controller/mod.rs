@@ -277,6 +277,11 @@ struct Averager {
     sum_p: f64,
     sum_q: f64,
     inv_n: f64,
+    /// Consecutive pushes of the same (P, Q), at most the window length.
+    same: usize,
+    /// The window holds n copies of the latest value and has been resummed since, so
+    /// every further push of that value returns exactly the same mean.
+    steady: bool,
 }
 
 impl Averager {
@@ -289,6 +294,24 @@ impl Averager {
             sum_p: 0.0,
             sum_q: 0.0,
             inv_n: 1.0 / n as f64,
+            same: 0,
+            steady: n == 1,
+        }
+    }
+
+    /// True when pushing the latest value again returns exactly the same mean.
+    #[inline]
+    fn steady(&self) -> bool {
+        self.steady
+    }
+
+    /// Pushes the latest value `m` more times, which a steady window allows without
+    /// touching the values or the sums: only the write position moves.
+    #[inline]
+    fn skip(&mut self, m: u64) {
+        let n = self.p.len();
+        if n > 1 {
+            self.next = ((self.next as u64 + m % n as u64) % n as u64) as usize;
         }
     }
 
@@ -297,6 +320,16 @@ impl Averager {
         let n = self.p.len();
         if n == 1 {
             return (p, q);
+        }
+        let prev = (self.next + n - 1) % n;
+        if self.filled > 0
+            && p.to_bits() == self.p[prev].to_bits()
+            && q.to_bits() == self.q[prev].to_bits()
+        {
+            self.same = (self.same + 1).min(n);
+        } else {
+            self.same = 1;
+            self.steady = false;
         }
         self.sum_p += p - self.p[self.next];
         self.sum_q += q - self.q[self.next];
@@ -308,6 +341,9 @@ impl Averager {
             self.next = 0;
             self.sum_p = self.p.iter().sum();
             self.sum_q = self.q.iter().sum();
+            // The sums of n equal values do not change when one of them is replaced by
+            // itself, and the next resum gives the same sums again.
+            self.steady = self.same == n;
         }
         if self.filled < n {
             self.filled += 1;
@@ -322,12 +358,66 @@ impl Averager {
 #[derive(Debug, Clone, Copy, Default)]
 struct Timer {
     count: u64,
+    /// The condition was present in the latest interval.
+    active: bool,
+    /// Intervals of a present condition until the timer fires: the smallest count with
+    /// count·Δt ≥ delay (within the time tolerance).
+    period: u64,
+}
+
+/// The smallest number of intervals c ≥ 1 with c·Δt ≥ `delay_s` − [`TIME_EPS_S`], by the
+/// same floating-point comparison the timers make.
+fn intervals_for(delay_s: f64, dt: f64) -> u64 {
+    let met = |c: u64| c as f64 * dt >= delay_s - TIME_EPS_S;
+    let guess = ((delay_s - TIME_EPS_S) / dt).ceil();
+    let mut c = if guess.is_finite() && guess > 1.0 {
+        guess as u64
+    } else {
+        1
+    };
+    while c > 1 && met(c - 1) {
+        c -= 1;
+    }
+    while !met(c) {
+        c += 1;
+    }
+    c
 }
 
 impl Timer {
+    fn new(delay_s: f64, dt: f64) -> Self {
+        Timer {
+            count: 0,
+            active: false,
+            period: intervals_for(delay_s, dt),
+        }
+    }
+
+    /// Intervals after the latest one before the timer fires, given the condition stays
+    /// as it is (`u64::MAX`: never).
+    #[inline]
+    fn quiet(&self) -> u64 {
+        if self.active {
+            self.period - self.count - 1
+        } else {
+            u64::MAX
+        }
+    }
+
+    /// Advances the timer by `m` intervals of an unchanged condition, firing with no
+    /// effect whenever it expires (the caller has made sure that a firing changes nothing
+    /// else).
+    #[inline]
+    fn skip(&mut self, m: u64) {
+        if self.active {
+            self.count = (self.count + m % self.period) % self.period;
+        }
+    }
+
     /// Advances the timer; returns true when the condition has held for `delay_s`.
     #[inline]
     fn advance(&mut self, active: bool, dt: f64, delay_s: f64) -> bool {
+        self.active = active;
         if !active {
             self.count = 0;
             return false;
@@ -364,6 +454,12 @@ pub struct Controller {
     op_times: Vec<f64>,
     op_head: usize,
     op_len: usize,
+    /// Intervals of an unchanged wish before a connection is attempted.
+    connect_n: u64,
+    /// Intervals of an unchanged wish before a disconnection is attempted.
+    disconnect_n: u64,
+    /// A protection condition blocked closings in the latest interval.
+    blocked_close: bool,
 }
 
 impl Controller {
@@ -402,13 +498,16 @@ impl Controller {
             wish: 0,
             count: 0,
             avg: Averager::new(n_avg),
-            ov: Timer::default(),
-            low: Timer::default(),
-            export: Timer::default(),
-            thd: Timer::default(),
+            ov: Timer::new(params.protection.overvoltage_delay_s, dt_s),
+            low: Timer::new(params.protection.min_current_delay_s, dt_s),
+            export: Timer::new(params.protection.export_delay_s, dt_s),
+            thd: Timer::new(params.protection.thd_delay_s, dt_s),
             op_times: vec![0.0; cap],
             op_head: 0,
             op_len: 0,
+            connect_n: intervals_for(params.connect_delay_s, dt_s),
+            disconnect_n: intervals_for(params.disconnect_delay_s, dt_s),
+            blocked_close: false,
         }
     }
 
@@ -509,6 +608,7 @@ impl Controller {
             }
             blocked_close = ov_on || low_on || exp_on || thd_on;
         }
+        self.blocked_close = blocked_close;
 
         if wish == 0 {
             return d;
@@ -572,6 +672,81 @@ impl Controller {
         self.count = 0;
         self.record_op(t_next);
         d
+    }
+
+    /// After an interval in which [`Controller::decide`] made no operation: how many of the
+    /// following intervals are sure to make none either if they read exactly the same
+    /// measurement (`u64::MAX`: as many as there are). `t_next` is the time t_{k+1} at
+    /// which the latest interval's decision took effect.
+    ///
+    /// The answer is 0 while the averaging window is still changing. Otherwise a repeated
+    /// reading gives the same mean, demand and wish, so the only things that move are the
+    /// counters and the clock, and the quiet stretch ends before the first of: a
+    /// protection timer expiring while a switched step is on (it would trip), the
+    /// switching timer reaching its delay, and, once the delay is met but the operation
+    /// could not be made, the cap on operations per hour leaving room or a step leaving
+    /// its discharge lockout. Clock events are taken two intervals early, so rounding in
+    /// the time of an interval cannot move one into the stretch.
+    pub fn quiet_after(&self, t_next: f64) -> u64 {
+        if !self.avg.steady() {
+            return 0;
+        }
+        let mut quiet = u64::MAX;
+        if self.any_protection && !self.mask.and(self.switched).is_empty() {
+            for t in [&self.ov, &self.low, &self.export, &self.thd] {
+                quiet = quiet.min(t.quiet());
+            }
+        }
+        if self.wish == 0 {
+            return quiet;
+        }
+        let needed = if self.wish > 0 {
+            self.connect_n
+        } else {
+            self.disconnect_n
+        };
+        if self.count < needed {
+            return quiet.min(needed - self.count - 1);
+        }
+        // The delay is met and the latest attempt made no operation: only the clock can
+        // change that.
+        let dt = self.dt;
+        let before = |t_event: f64| -> u64 {
+            let n = ((t_event - t_next) / dt).floor() - 2.0;
+            if n <= 0.0 {
+                0
+            } else if n >= u64::MAX as f64 {
+                u64::MAX
+            } else {
+                n as u64
+            }
+        };
+        if !self.cap_allows(t_next) && !self.op_times.is_empty() {
+            quiet = quiet.min(before(self.op_times[self.op_head] + 3600.0));
+        }
+        if self.wish > 0 && !self.blocked_close {
+            let td = self.params.discharge_time_s;
+            for n in self.switched.minus(self.mask) {
+                let free_at = self.steps[n - 1].last_open_s + td;
+                if t_next - self.steps[n - 1].last_open_s < td - TIME_EPS_S {
+                    quiet = quiet.min(before(free_at));
+                }
+            }
+        }
+        quiet
+    }
+
+    /// Steps over `m` intervals that read the latest measurement again, all of them quiet
+    /// by [`Controller::quiet_after`]: the averaging window, the switching timer and the
+    /// protection timers move on as `m` calls of [`Controller::decide`] would move them.
+    pub fn skip(&mut self, m: u64) {
+        self.avg.skip(m);
+        if self.wish != 0 {
+            self.count += m;
+        }
+        for t in [&mut self.ov, &mut self.low, &mut self.export, &mut self.thd] {
+            t.skip(m);
+        }
     }
 
     /// Switched steps that are off and out of their discharge lockout at `t_close`.
