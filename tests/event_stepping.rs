@@ -74,6 +74,7 @@ struct OpRecorder {
     ops: Vec<Op>,
     covered: u64,
     stepped: u64,
+    progress: Vec<(u64, u64)>,
 }
 
 impl Observer for OpRecorder {
@@ -98,6 +99,10 @@ impl Observer for OpRecorder {
         assert!(n > 0);
         self.covered += n;
         Ok(())
+    }
+
+    fn progress(&mut self, done: u64, total: u64) {
+        self.progress.push((done, total));
     }
 }
 
@@ -163,6 +168,12 @@ fn both_ways(study: &Study, samples: &[LoadSample]) -> Result<u64, String> {
             "operations differ from number {first}: {:?} against {:?}",
             rec_every.ops.get(first),
             rec_events.ops.get(first)
+        ));
+    }
+    if rec_every.progress != rec_events.progress {
+        return Err(format!(
+            "progress reports differ: {:?} against {:?}",
+            rec_every.progress, rec_events.progress
         ));
     }
     let a = serde_json::to_value(&every).expect("json");
@@ -243,6 +254,7 @@ fn bundled_scenarios_agree_both_ways() {
 #[derive(Debug, Clone)]
 struct Case {
     steps: Vec<(f64, bool)>,
+    transformer_kva: f64,
     ordering: &'static str,
     target: &'static str,
     band: f64,
@@ -263,7 +275,11 @@ struct Case {
 
 fn case() -> impl Strategy<Value = Case> {
     let settings = (
-        prop::collection::vec((5.0f64..100.0, prop::bool::weighted(0.15)), 1..6),
+        (
+            prop::collection::vec((5.0f64..100.0, prop::bool::weighted(0.15)), 1..6),
+            // A 150 kVA transformer cannot carry the heaviest loads: unsolved intervals.
+            prop::sample::select(vec![800.0, 800.0, 150.0]),
+        ),
         prop::sample::select(vec!["sequential", "rotating", "best-fit"]),
         prop::sample::select(vec!["0.95 lag", "1.0", "0.98 lead", "0.9 lag"]),
         0.2f64..1.2,
@@ -292,7 +308,8 @@ fn case() -> impl Strategy<Value = Case> {
         3..30,
     );
     (settings, protections, pieces).prop_map(|(s, p, pieces)| Case {
-        steps: s.0,
+        steps: s.0 .0,
+        transformer_kva: s.0 .1,
         ordering: s.1,
         target: s.2,
         band: s.3,
@@ -318,7 +335,10 @@ impl Case {
     }
 
     fn toml(&self) -> String {
-        let mut s = String::from("[supply.transformer]\nrated_kva = 800\nimpedance_pct = 6\n");
+        let mut s = format!(
+            "[supply.transformer]\nrated_kva = {}\nimpedance_pct = 6\n",
+            self.transformer_kva
+        );
         for (i, (kvar, fixed)) in self.steps.iter().enumerate() {
             s += &format!("[[steps]]\nkvar = {kvar}\nfixed = {fixed}\n");
             if let (0, Some(at)) = (i, self.fault_at) {
