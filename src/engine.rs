@@ -29,7 +29,8 @@
 //!   next calendar midnight (overcorrection is counted by weekday; the time per bank state
 //!   and its `max_day_s` change only with operations, which blocks never hold);
 //! - the controller's quiet stretch ([`Controller::quiet_after`]): none while the averaging
-//!   window is still changing, and otherwise until a protection timer would trip, the
+//!   window still holds older values, and not past the push that first resums a window
+//!   full of one value; otherwise until a protection timer would trip, the
 //!   switching timer meets its delay, or (delay met, operation not possible) the cap on
 //!   operations per hour or a discharge lockout ends.
 //!
@@ -277,12 +278,16 @@ fn block_end<S: LoadSource + ?Sized>(
     ctl: &Controller,
     t_prev: f64,
 ) -> u64 {
+    let same_until = source.unchanged_until(k - 1);
+    if same_until <= k {
+        return k;
+    }
     let quiet = ctl.quiet_after(t0 + k as f64 * dt);
     if quiet == 0 {
         return k;
     }
     let mut end = n
-        .min(source.unchanged_until(k - 1))
+        .min(same_until)
         .min(k.saturating_add(quiet))
         .min((k / PROGRESS_EVERY + 1) * PROGRESS_EVERY);
     // The first interval whose start may lie within two intervals of `t_s` (profile time)

@@ -299,14 +299,25 @@ impl Averager {
         }
     }
 
-    /// True when pushing the latest value again returns exactly the same mean.
+    /// How many more pushes of the latest value return exactly the latest mean
+    /// (`u64::MAX`: any number). Once the window holds n copies of the value, a push
+    /// replaces a value by itself and leaves the sums as they are, until the push that
+    /// completes a round and resums; from then on the resummed sums never change. While
+    /// older values are still in the window, every push changes the mean: none.
     #[inline]
-    fn steady(&self) -> bool {
-        self.steady
+    fn quiet(&self) -> u64 {
+        let n = self.p.len();
+        if self.steady {
+            u64::MAX
+        } else if self.same >= n {
+            (n - 1 - self.next) as u64
+        } else {
+            0
+        }
     }
 
-    /// Pushes the latest value `m` more times, which a steady window allows without
-    /// touching the values or the sums: only the write position moves.
+    /// Pushes the latest value `m` more times, at most [`Averager::quiet`] of them: the
+    /// values and the sums stay as they are and only the write position moves.
     #[inline]
     fn skip(&mut self, m: u64) {
         let n = self.p.len();
@@ -679,19 +690,21 @@ impl Controller {
     /// measurement (`u64::MAX`: as many as there are). `t_next` is the time t_{k+1} at
     /// which the latest interval's decision took effect.
     ///
-    /// The answer is 0 while the averaging window is still changing. Otherwise a repeated
-    /// reading gives the same mean, demand and wish, so the only things that move are the
-    /// counters and the clock, and the quiet stretch ends before the first of: a
+    /// The answer is 0 while the averaging window still holds older values, and the stretch
+    /// ends before the push that resums a window full of one value (the sums may then
+    /// change in the last digit). Otherwise a repeated reading gives the same mean, demand
+    /// and wish, so the only things that move are the counters and the clock, and the
+    /// quiet stretch ends before the first of: a
     /// protection timer expiring while a switched step is on (it would trip), the
     /// switching timer reaching its delay, and, once the delay is met but the operation
     /// could not be made, the cap on operations per hour leaving room or a step leaving
     /// its discharge lockout. Clock events are taken two intervals early, so rounding in
     /// the time of an interval cannot move one into the stretch.
     pub fn quiet_after(&self, t_next: f64) -> u64 {
-        if !self.avg.steady() {
+        let mut quiet = self.avg.quiet();
+        if quiet == 0 {
             return 0;
         }
-        let mut quiet = u64::MAX;
         if self.any_protection && !self.mask.and(self.switched).is_empty() {
             for t in [&self.ov, &self.low, &self.export, &self.thd] {
                 quiet = quiet.min(t.quiet());
