@@ -828,3 +828,74 @@ impl Controller {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // The averager's promise, checked by pushing: after any history, `quiet` further
+    // pushes of the latest value return exactly the latest mean, bit for bit. Values of
+    // very different sizes make the running sum differ from the resummed one in the last
+    // digits, so a promise that reached past the resum would be caught.
+    #[test]
+    fn averager_quiet_pushes_repeat_the_mean_exactly() {
+        let values = [0.1, 1e6 + 0.3, 0.7, 3.3e-3, 250.0, 1e6 / 3.0, 0.1];
+        let mut caught_change = false;
+        for n in [2usize, 3, 5, 7] {
+            for start in 0..values.len() {
+                let mut a = Averager::new(n);
+                // A varied history, then one value repeated for three windows.
+                for i in 0..(start + n) {
+                    a.push(values[(start + i) % values.len()], values[i % values.len()]);
+                }
+                let v = (values[start], values[(start + 1) % values.len()]);
+                let mut mean = a.push(v.0, v.1);
+                for _ in 0..3 * n {
+                    let quiet = a.quiet().min(4 * n as u64);
+                    for _ in 0..quiet {
+                        let m = a.push(v.0, v.1);
+                        assert_eq!(
+                            (m.0.to_bits(), m.1.to_bits()),
+                            (mean.0.to_bits(), mean.1.to_bits())
+                        );
+                    }
+                    let next = a.push(v.0, v.1);
+                    caught_change |= next.0.to_bits() != mean.0.to_bits();
+                    mean = next;
+                }
+                assert_eq!(a.quiet(), u64::MAX, "steady after three windows");
+            }
+        }
+        // The values do make the resum change the mean somewhere.
+        assert!(caught_change);
+    }
+
+    // Skipping m quiet pushes leaves the averager where m pushes would have left it.
+    #[test]
+    fn averager_skip_equals_pushes() {
+        let mut a = Averager::new(4);
+        let mut b = Averager::new(4);
+        for x in [1.0, 2.0, 0.3, 0.3, 0.3, 0.3, 0.3, 0.3] {
+            a.push(x, -x);
+            b.push(x, -x);
+        }
+        assert_eq!(a.quiet(), u64::MAX);
+        for _ in 0..11 {
+            a.push(0.3, -0.3);
+        }
+        b.skip(11);
+        assert_eq!((a.next, a.sum_p, a.sum_q), (b.next, b.sum_p, b.sum_q));
+        assert_eq!(a.push(5.0, 1.0), b.push(5.0, 1.0));
+    }
+
+    // Delays in intervals by the timers' own comparison: 3 s at 0.1 s is 30 intervals
+    // although 30 × 0.1 is not exactly 3 in binary (the 1e-9 s tolerance, DEVELOPERS.md);
+    // 40 s at 1 s is 40; a zero delay is met by the first interval.
+    #[test]
+    fn delays_in_intervals() {
+        assert_eq!(intervals_for(3.0, 0.1), 30);
+        assert_eq!(intervals_for(40.0, 1.0), 40);
+        assert_eq!(intervals_for(0.0, 1.0), 1);
+        assert_eq!(intervals_for(2.5, 1.0), 3);
+    }
+}
