@@ -5,7 +5,8 @@
 //! cost per interval when no block is possible. The rows come from an in-memory source
 //! that implements `LoadSource::unchanged_until`. Run with `cargo bench --bench stepping`.
 
-use bankstep::engine::Quiet;
+use bankstep::engine::{IntervalRecord, Observer, Quiet};
+use bankstep::error::RunError;
 use bankstep::error::ProfileError;
 use bankstep::profile::{LoadSample, LoadSource};
 use bankstep::scenario::Scenario;
@@ -94,17 +95,47 @@ fn study(days: f64, stepping: Stepping) -> Study {
     st
 }
 
-/// Best engine time of `reps` runs, s, and the operations of the last run.
-fn time(st: &Study, rows: &mut Rows, reps: usize) -> (f64, u64) {
+/// Counts the intervals the engine steps on its own; allows blocks.
+#[derive(Default)]
+struct Count(u64);
+
+impl Observer for Count {
+    fn wants_every_interval(&self) -> bool {
+        false
+    }
+
+    #[inline]
+    fn interval(&mut self, _r: &IntervalRecord<'_>) -> Result<(), RunError> {
+        self.0 += 1;
+        Ok(())
+    }
+}
+
+/// Best engine time of `reps` runs, s, the operations and the intervals stepped on their
+/// own in the last run.
+fn time(st: &Study, rows: &mut Rows, reps: usize) -> (f64, u64, u64) {
+    time_with::<Count>(st, rows, reps, |c| c.0)
+}
+
+/// As [`time`] with any observer; `alone` reads the count from it.
+fn time_with<O: Observer + Default>(
+    st: &Study,
+    rows: &mut Rows,
+    reps: usize,
+    alone_of: impl Fn(&O) -> u64,
+) -> (f64, u64, u64) {
     let mut best = f64::INFINITY;
     let mut ops = 0;
+    let mut alone = 0;
     for _ in 0..reps {
+        let mut obs = O::default();
         let t = Instant::now();
-        let r = st.run_on(rows, &mut Quiet).expect("run");
+        let r = st.run_on(rows, &mut obs).expect("run");
         best = best.min(t.elapsed().as_secs_f64());
         ops = r.metrics.switching.total_operations;
+        alone = alone_of(&obs);
     }
-    (best, ops)
+    (best, ops, alone)
 }
 
 fn main() {
@@ -114,11 +145,11 @@ fn main() {
     let mut rows = Rows::new(n / 900, 900.0, 900);
     let events = study(year, Stepping::Events);
     let every = study(year, Stepping::EveryInterval);
-    let (t_ev, ops_ev) = time(&events, &mut rows, 5);
-    let (t_all, ops_all) = time(&every, &mut rows, 1);
+    let (t_ev, ops_ev, alone) = time(&events, &mut rows, 5);
+    let (t_all, ops_all, _) = time(&every, &mut rows, 1);
     assert_eq!(ops_ev, ops_all, "both ways make the same operations");
     println!(
-        "15-min rows, 1 year at 1 s ({n} intervals, {} rows, {ops_ev} operations): events {:.4} s ({:.2} ns/interval), every interval {:.3} s ({:.2} ns/interval), {:.0}x",
+        "15-min rows, 1 year at 1 s ({n} intervals, {} rows, {ops_ev} operations, {alone} intervals stepped alone): events {:.4} s ({:.2} ns/interval), every interval {:.3} s ({:.2} ns/interval), {:.0}x",
         n / 900,
         t_ev,
         t_ev * 1e9 / n as f64,
@@ -136,8 +167,8 @@ fn main() {
     let mut rows = Rows::new(n, 1.0, 1);
     let events = study(days, Stepping::Events);
     let every = study(days, Stepping::EveryInterval);
-    let (t_ev, _) = time(&events, &mut rows, 3);
-    let (t_all, _) = time(&every, &mut rows, 3);
+    let (t_ev, _, _) = time_with::<Quiet>(&events, &mut rows, 3, |_| 0);
+    let (t_all, _, _) = time_with::<Quiet>(&every, &mut rows, 3, |_| 0);
     println!(
         "1 s rows, {days} days ({n} intervals): events {:.2} ns/interval, every interval {:.2} ns/interval",
         t_ev * 1e9 / n as f64,

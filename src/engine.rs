@@ -40,6 +40,11 @@
 //! closes, on an interval that is not overcorrected and so not inside its block. The
 //! nonconverged count adds the block's intervals when interval k had no bus solution.
 //!
+//! Intervals stepped on their own inside the source's promise (while the averaging
+//! window fills, or while a delay runs out after a block) keep the sample and, unless the
+//! bank changed, the bus solution of the interval before: the same inputs give the same
+//! solution, so only the controller and the metrics run.
+//!
 //! Observers that need every interval (time series, recorders in tests) say so with
 //! [`Observer::wants_every_interval`] (the default), and then every interval is stepped
 //! on its own; [`Stepping::EveryInterval`] forces it for any observer.
@@ -159,11 +164,14 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     solver.set_bank(&bank.susceptance(ctl.mask()));
     let mut b_fixed = bank.susceptance(bank.fixed_mask);
     let mut thd = thd_of(ctl.mask());
-    let sqrt3 = 3f64.sqrt();
     let want_current = sc.controller.protection.min_current_a.is_some();
     let has_fixed = !bank.fixed_mask.is_empty();
     let n = plan.intervals;
     let blocks = plan.stepping == Stepping::Events && !observer.wants_every_interval();
+    // With blocks: the interval before which the latest sample holds, by the source's
+    // promise (0 once the bank has changed, so that the bus is solved again).
+    let mut same_until = 0;
+    let mut bus = Bus::default();
     observer.progress(0, n);
     let mut k = 0;
     while k < n {
@@ -172,8 +180,104 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         if bank.advance_faults(k as f64 * dt) {
             solver.set_bank(&bank.susceptance(ctl.mask()));
             b_fixed = bank.susceptance(bank.fixed_mask);
+            same_until = 0;
         }
-        source.sample(k, t, &mut sample)?;
+        if k < same_until {
+            // The same sample on the same bank: the same solution.
+            solver.nonconverged += bus.unsolved;
+        } else {
+            source.sample(k, t, &mut sample)?;
+            if blocks {
+                same_until = source.unchanged_until(k);
+            }
+            bus = Bus::solve(&mut solver, &sample, &b_fixed, thd, want_current, has_fixed);
+        }
+        let mask = ctl.mask();
+        let d = ctl.decide(&bus.reading, t_next);
+        let obs = IntervalObs {
+            t_s: t,
+            p_kw: bus.p_kw,
+            q_kvar: bus.q_kvar,
+            load_q_kvar: sample.q_total(),
+            load_p_kw: sample.p_total(),
+            fixed_q_kvar: bus.fixed_q_kvar,
+            v_ll_min: bus.v_ll_min,
+            v_ll_max: bus.reading.v_ll_max,
+            decision: &d,
+        };
+        met.record(&obs);
+        let record = IntervalRecord {
+            k,
+            t_s: t,
+            load: &sample,
+            phases: &bus.phases,
+            mask,
+            decision: &d,
+        };
+        observer.interval(&record)?;
+        if (k + 1) % PROGRESS_EVERY == 0 {
+            observer.progress(k + 1, n);
+        }
+        let operated = !d.closed.or(d.opened).is_empty();
+        if operated {
+            met.record_ops(k, &d, t_next);
+            solver.set_bank(&bank.susceptance(ctl.mask()));
+            thd = thd_of(ctl.mask());
+            same_until = 0;
+        }
+        k += 1;
+        if blocks && !operated {
+            let end = block_end(k, n, same_until, t0, dt, &bank, &met, &ctl, t);
+            if end > k {
+                let m = end - k;
+                met.record_block(&obs, m);
+                ctl.skip(m);
+                solver.nonconverged += bus.unsolved * m;
+                observer.block(&record, m)?;
+                k = end;
+                if k % PROGRESS_EVERY == 0 {
+                    observer.progress(k, n);
+                }
+            }
+        }
+    }
+    observer.progress(n, n);
+    let metrics = met.finish(&bank, ctl.steps());
+    Ok(RunResult {
+        metrics,
+        nonconverged_intervals: solver.nonconverged,
+    })
+}
+
+/// The bus as one interval finds it: the solution at the metering point and what the
+/// controller and the metrics read from it.
+#[derive(Debug, Clone, Copy, Default)]
+struct Bus {
+    phases: [PhaseSolution; 3],
+    reading: Reading,
+    /// Three-phase supply P and Q, kW and kvar.
+    p_kw: f64,
+    q_kvar: f64,
+    /// Reactive power of the fixed steps, kvar.
+    fixed_q_kvar: f64,
+    /// Lowest line-to-line-equivalent bus voltage, V.
+    v_ll_min: f64,
+    /// 1 when the bus had no solution (the nose of the curve was used), else 0.
+    unsolved: u64,
+}
+
+impl Bus {
+    /// Solves the bus for `sample` with the bank as `solver` holds it.
+    #[inline]
+    fn solve(
+        solver: &mut BusSolver,
+        sample: &LoadSample,
+        b_fixed: &[f64; 3],
+        thd_pct: f64,
+        want_current: bool,
+        has_fixed: bool,
+    ) -> Bus {
+        let sqrt3 = 3f64.sqrt();
         let unsolved_before = solver.nonconverged;
         let sol = solver.solve(&sample.p_kw, &sample.q_kvar);
         let unsolved = solver.nonconverged - unsolved_before;
@@ -182,7 +286,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         let mut i2_max: f64 = 0.0;
         let mut fixed_q = 0.0;
         let mut reading = Reading {
-            thd_pct: thd,
+            thd_pct,
             ..Reading::default()
         };
         for ph in 0..3 {
@@ -207,78 +311,33 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         }
         reading.v_ll_max = v_max * sqrt3;
         reading.current_a = i2_max.sqrt() * 1e3;
-        let mask = ctl.mask();
-        let d = ctl.decide(&reading, t_next);
-        let obs = IntervalObs {
-            t_s: t,
+        Bus {
+            phases: sol,
             p_kw: reading.p_kw[0] + reading.p_kw[1] + reading.p_kw[2],
             q_kvar: reading.q_kvar[0] + reading.q_kvar[1] + reading.q_kvar[2],
-            load_q_kvar: sample.q_total(),
-            load_p_kw: sample.p_total(),
+            reading,
             fixed_q_kvar: fixed_q,
             v_ll_min: v_min * sqrt3,
-            v_ll_max: v_max * sqrt3,
-            decision: &d,
-        };
-        met.record(&obs);
-        let record = IntervalRecord {
-            k,
-            t_s: t,
-            load: &sample,
-            phases: &sol,
-            mask,
-            decision: &d,
-        };
-        observer.interval(&record)?;
-        if (k + 1) % PROGRESS_EVERY == 0 {
-            observer.progress(k + 1, n);
-        }
-        let operated = !d.closed.or(d.opened).is_empty();
-        if operated {
-            met.record_ops(k, &d, t_next);
-            solver.set_bank(&bank.susceptance(ctl.mask()));
-            thd = thd_of(ctl.mask());
-        }
-        k += 1;
-        if blocks && !operated {
-            let end = block_end(k, n, t0, dt, &*source, &bank, &met, &ctl, t);
-            if end > k {
-                let m = end - k;
-                met.record_block(&obs, m);
-                ctl.skip(m);
-                solver.nonconverged += unsolved * m;
-                observer.block(&record, m)?;
-                k = end;
-                if k % PROGRESS_EVERY == 0 {
-                    observer.progress(k, n);
-                }
-            }
+            unsolved,
         }
     }
-    observer.progress(n, n);
-    let metrics = met.finish(&bank, ctl.steps());
-    Ok(RunResult {
-        metrics,
-        nonconverged_intervals: solver.nonconverged,
-    })
 }
 
 /// The end (exclusive) of the block of intervals identical to interval `k − 1`, which was
-/// just stepped on its own at `t_prev` and made no operation: `k` when there is none. See
-/// the module documentation for what ends a block.
+/// just stepped on its own at `t_prev` and made no operation: `k` when there is none. The
+/// sample holds until `same_until`. See the module documentation for what ends a block.
 #[allow(clippy::too_many_arguments)]
-fn block_end<S: LoadSource + ?Sized>(
+fn block_end(
     k: u64,
     n: u64,
+    same_until: u64,
     t0: f64,
     dt: f64,
-    source: &S,
     bank: &Bank,
     met: &Metrics,
     ctl: &Controller,
     t_prev: f64,
 ) -> u64 {
-    let same_until = source.unchanged_until(k - 1);
     if same_until <= k {
         return k;
     }
