@@ -52,10 +52,10 @@
 use crate::bank::{Bank, BankState};
 use crate::controller::{Controller, Decision, Reading};
 use crate::error::RunError;
+use crate::metrics::Metrics;
 use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::Scenario;
-use crate::metrics::Metrics;
 use crate::study::{RunPlan, Stepping};
 use crate::supply::{BusSolver, PhaseSolution};
 use serde::Serialize;
@@ -171,7 +171,10 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     // With blocks: the interval before which the latest sample holds, by the source's
     // promise (0 once the bank has changed, so that the bus is solved again).
     let mut same_until = 0;
-    let mut bus = Bus::default();
+    let mut sol = [PhaseSolution::default(); 3];
+    // 1 when the latest solution had no solution (the nose of the curve was used).
+    let mut unsolved = 0;
+    let sqrt3 = 3f64.sqrt();
     observer.progress(0, n);
     let mut k = 0;
     while k < n {
@@ -184,109 +187,22 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         }
         if k < same_until {
             // The same sample on the same bank: the same solution.
-            solver.nonconverged += bus.unsolved;
+            solver.nonconverged += unsolved;
         } else {
             source.sample(k, t, &mut sample)?;
             if blocks {
                 same_until = source.unchanged_until(k);
             }
-            bus = Bus::solve(&mut solver, &sample, &b_fixed, thd, want_current, has_fixed);
+            let before = solver.nonconverged;
+            sol = solver.solve(&sample.p_kw, &sample.q_kvar);
+            unsolved = solver.nonconverged - before;
         }
-        let mask = ctl.mask();
-        let d = ctl.decide(&bus.reading, t_next);
-        let obs = IntervalObs {
-            t_s: t,
-            p_kw: bus.p_kw,
-            q_kvar: bus.q_kvar,
-            load_q_kvar: sample.q_total(),
-            load_p_kw: sample.p_total(),
-            fixed_q_kvar: bus.fixed_q_kvar,
-            v_ll_min: bus.v_ll_min,
-            v_ll_max: bus.reading.v_ll_max,
-            decision: &d,
-        };
-        met.record(&obs);
-        let record = IntervalRecord {
-            k,
-            t_s: t,
-            load: &sample,
-            phases: &bus.phases,
-            mask,
-            decision: &d,
-        };
-        observer.interval(&record)?;
-        if (k + 1) % PROGRESS_EVERY == 0 {
-            observer.progress(k + 1, n);
-        }
-        let operated = !d.closed.or(d.opened).is_empty();
-        if operated {
-            met.record_ops(k, &d, t_next);
-            solver.set_bank(&bank.susceptance(ctl.mask()));
-            thd = thd_of(ctl.mask());
-            same_until = 0;
-        }
-        k += 1;
-        if blocks && !operated {
-            let end = block_end(k, n, same_until, t0, dt, &bank, &met, &ctl, t);
-            if end > k {
-                let m = end - k;
-                met.record_block(&obs, m);
-                ctl.skip(m);
-                solver.nonconverged += bus.unsolved * m;
-                observer.block(&record, m)?;
-                k = end;
-                if k % PROGRESS_EVERY == 0 {
-                    observer.progress(k, n);
-                }
-            }
-        }
-    }
-    observer.progress(n, n);
-    let metrics = met.finish(&bank, ctl.steps());
-    Ok(RunResult {
-        metrics,
-        nonconverged_intervals: solver.nonconverged,
-    })
-}
-
-/// The bus as one interval finds it: the solution at the metering point and what the
-/// controller and the metrics read from it.
-#[derive(Debug, Clone, Copy, Default)]
-struct Bus {
-    phases: [PhaseSolution; 3],
-    reading: Reading,
-    /// Three-phase supply P and Q, kW and kvar.
-    p_kw: f64,
-    q_kvar: f64,
-    /// Reactive power of the fixed steps, kvar.
-    fixed_q_kvar: f64,
-    /// Lowest line-to-line-equivalent bus voltage, V.
-    v_ll_min: f64,
-    /// 1 when the bus had no solution (the nose of the curve was used), else 0.
-    unsolved: u64,
-}
-
-impl Bus {
-    /// Solves the bus for `sample` with the bank as `solver` holds it.
-    #[inline]
-    fn solve(
-        solver: &mut BusSolver,
-        sample: &LoadSample,
-        b_fixed: &[f64; 3],
-        thd_pct: f64,
-        want_current: bool,
-        has_fixed: bool,
-    ) -> Bus {
-        let sqrt3 = 3f64.sqrt();
-        let unsolved_before = solver.nonconverged;
-        let sol = solver.solve(&sample.p_kw, &sample.q_kvar);
-        let unsolved = solver.nonconverged - unsolved_before;
         let mut v_min = sol[0].v_ln;
         let mut v_max = sol[0].v_ln;
         let mut i2_max: f64 = 0.0;
         let mut fixed_q = 0.0;
         let mut reading = Reading {
-            thd_pct,
+            thd_pct: thd,
             ..Reading::default()
         };
         for ph in 0..3 {
@@ -311,22 +227,71 @@ impl Bus {
         }
         reading.v_ll_max = v_max * sqrt3;
         reading.current_a = i2_max.sqrt() * 1e3;
-        Bus {
-            phases: sol,
+        let mask = ctl.mask();
+        let d = ctl.decide(&reading, t_next);
+        // What the metrics and the observer see of the interval (built again for a block,
+        // so that nothing is kept alive across the common path).
+        let obs = || IntervalObs {
+            t_s: t,
             p_kw: reading.p_kw[0] + reading.p_kw[1] + reading.p_kw[2],
             q_kvar: reading.q_kvar[0] + reading.q_kvar[1] + reading.q_kvar[2],
-            reading,
+            load_q_kvar: sample.q_total(),
+            load_p_kw: sample.p_total(),
             fixed_q_kvar: fixed_q,
             v_ll_min: v_min * sqrt3,
-            unsolved,
+            v_ll_max: v_max * sqrt3,
+            decision: &d,
+        };
+        let k_now = k;
+        let record = |sample, sol| IntervalRecord {
+            k: k_now,
+            t_s: t,
+            load: sample,
+            phases: sol,
+            mask,
+            decision: &d,
+        };
+        met.record(&obs());
+        observer.interval(&record(&sample, &sol))?;
+        if (k + 1) % PROGRESS_EVERY == 0 {
+            observer.progress(k + 1, n);
+        }
+        let operated = !d.closed.or(d.opened).is_empty();
+        if operated {
+            met.record_ops(k, &d, t_next);
+            solver.set_bank(&bank.susceptance(ctl.mask()));
+            thd = thd_of(ctl.mask());
+            same_until = 0;
+        }
+        k += 1;
+        if blocks && !operated && same_until > k {
+            let end = block_end(k, n, same_until, t0, dt, &bank, &met, &ctl, t);
+            if end > k {
+                let m = end - k;
+                met.record_block(&obs(), m);
+                ctl.skip(m);
+                solver.nonconverged += unsolved * m;
+                observer.block(&record(&sample, &sol), m)?;
+                k = end;
+                if k % PROGRESS_EVERY == 0 {
+                    observer.progress(k, n);
+                }
+            }
         }
     }
+    observer.progress(n, n);
+    let metrics = met.finish(&bank, ctl.steps());
+    Ok(RunResult {
+        metrics,
+        nonconverged_intervals: solver.nonconverged,
+    })
 }
 
 /// The end (exclusive) of the block of intervals identical to interval `k − 1`, which was
 /// just stepped on its own at `t_prev` and made no operation: `k` when there is none. The
 /// sample holds until `same_until`. See the module documentation for what ends a block.
 #[allow(clippy::too_many_arguments)]
+#[inline(never)]
 fn block_end(
     k: u64,
     n: u64,

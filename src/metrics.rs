@@ -493,7 +493,7 @@ impl Metrics {
     }
 
     /// Records interval k with the bank state as it stood.
-    #[inline]
+    #[inline(always)]
     pub fn record(&mut self, o: &IntervalObs<'_>) {
         self.n += 1;
         let (p, q) = (o.p_kw, o.q_kvar);

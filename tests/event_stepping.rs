@@ -113,7 +113,10 @@ fn run_one(study: &Study, samples: &[LoadSample], stepping: Stepping) -> (RunRes
     let mut src = Stretches::new(samples.to_vec());
     let mut rec = OpRecorder::default();
     let r = st.run_on(&mut src, &mut rec).expect("run");
-    assert_eq!(rec.covered, st.plan.intervals, "every interval heard of once");
+    assert_eq!(
+        rec.covered, st.plan.intervals,
+        "every interval heard of once"
+    );
     (r, rec)
 }
 
@@ -140,7 +143,10 @@ fn same_json(a: &Value, b: &Value, path: &str) -> Result<(), String> {
             Ok(())
         }
         (Value::Number(x), Value::Number(y)) if x.is_f64() || y.is_f64() => {
-            let (u, v) = (x.as_f64().unwrap_or(f64::NAN), y.as_f64().unwrap_or(f64::NAN));
+            let (u, v) = (
+                x.as_f64().unwrap_or(f64::NAN),
+                y.as_f64().unwrap_or(f64::NAN),
+            );
             if u == v || (u - v).abs() <= 1e-9 * u.abs().max(v.abs()) {
                 Ok(())
             } else {
@@ -444,7 +450,10 @@ fn billing_windows_midnights_and_faults_inside_stretches() {
         })
         .collect();
     let stepped = both_ways(&st, &samples).unwrap_or_else(|e| panic!("{e}"));
-    assert!(stepped * 50 < n as u64, "{stepped} of {n} intervals stepped alone");
+    assert!(
+        stepped * 50 < n as u64,
+        "{stepped} of {n} intervals stepped alone"
+    );
 }
 
 // A 15-minute staircase stepped at 1 s with a 40 s switching delay, worked on paper. Two

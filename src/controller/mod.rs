@@ -277,7 +277,9 @@ struct Averager {
     sum_p: f64,
     sum_q: f64,
     inv_n: f64,
-    /// Consecutive pushes of the same (P, Q), at most the window length.
+    /// Bits of the latest (P, Q) pushed (0.0 before any).
+    last: (u64, u64),
+    /// Consecutive pushes of the latest (P, Q), at most the window length.
     same: usize,
     /// The window holds n copies of the latest value and has been resummed since, so
     /// every further push of that value returns exactly the same mean.
@@ -294,6 +296,7 @@ impl Averager {
             sum_p: 0.0,
             sum_q: 0.0,
             inv_n: 1.0 / n as f64,
+            last: (0, 0),
             same: 0,
             steady: n == 1,
         }
@@ -326,19 +329,18 @@ impl Averager {
         }
     }
 
-    #[inline]
+    #[inline(always)]
     fn push(&mut self, p: f64, q: f64) -> (f64, f64) {
         let n = self.p.len();
         if n == 1 {
             return (p, q);
         }
-        let prev = (self.next + n - 1) % n;
-        if self.filled > 0
-            && p.to_bits() == self.p[prev].to_bits()
-            && q.to_bits() == self.q[prev].to_bits()
-        {
-            self.same = (self.same + 1).min(n);
+        if p.to_bits() == self.last.0 && q.to_bits() == self.last.1 {
+            if self.same < n {
+                self.same += 1;
+            }
         } else {
+            self.last = (p.to_bits(), q.to_bits());
             self.same = 1;
             self.steady = false;
         }
