@@ -381,6 +381,12 @@ impl Bank {
         }
     }
 
+    /// Run time of the next fault still to start, s (`None` when every fault has started
+    /// or there is none).
+    pub fn next_fault_s(&self) -> Option<f64> {
+        self.fault_times.get(self.next_fault).copied()
+    }
+
     fn refresh_health(&mut self, elapsed_s: f64) {
         for (h, s) in self.health.iter_mut().zip(&self.steps) {
             *h = s.health(elapsed_s);

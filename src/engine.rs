@@ -8,16 +8,55 @@
 //! The engine does no I/O and allocates nothing inside the loop. It reads the settings
 //! ([`Scenario`]) and the time base ([`RunPlan`]) and changes neither, so one set of
 //! settings can serve many runs; the per-run state lives on the stack of [`run`]. Observers
-//! see every interval (time series, progress) and are the only way out of the loop. The
-//! engine judges nothing: what the metrics mean is the business of [`crate::analysis`].
+//! are the only way out of the loop. The engine judges nothing: what the metrics mean is
+//! the business of [`crate::analysis`].
+//!
+//! # Blocks of identical intervals
+//!
+//! While the load sample, the bank state and the controller's inputs stay the same, the
+//! intervals are identical: the same bus solution, the same reading, the same decision
+//! (no operation) and the same metrics. Logger data at 1 min or 15 min stepped at 1 s is
+//! mostly such stretches, so with [`Stepping::Events`] (the default) the engine steps
+//! through interval k as usual and then, if k made no operation, adds the identical
+//! intervals that follow as one block: the metrics take them as a count
+//! ([`Metrics::record_block`]) and the controller moves its counters on
+//! ([`Controller::skip`]). The next interval stepped on its own is the block's end,
+//! the earliest of:
+//!
+//! - the next interval whose sample may differ ([`LoadSource::unchanged_until`]);
+//! - the end of the run and the next progress report (every [`PROGRESS_EVERY`] intervals);
+//! - two intervals before the next fault starts, the next billing window starts or the
+//!   next calendar midnight (overcorrection is counted by weekday; the time per bank state
+//!   and its `max_day_s` change only with operations, which blocks never hold);
+//! - the controller's quiet stretch ([`Controller::quiet_after`]): none while the averaging
+//!   window still holds older values, and not past the push that first resums a window
+//!   full of one value; otherwise until a protection timer would trip, the
+//!   switching timer meets its delay, or (delay met, operation not possible) the cap on
+//!   operations per hour or a discharge lockout ends.
+//!
+//! Every interval that ends a block is stepped on its own, so anything it starts (an
+//! operation, a trip, a new sample) happens exactly as interval-by-interval stepping would
+//! have it. An episode's minimum length needs no boundary: an episode is judged when it
+//! closes, on an interval that is not overcorrected and so not inside its block. The
+//! nonconverged count adds the block's intervals when interval k had no bus solution.
+//!
+//! Intervals stepped on their own inside the source's promise (while the averaging
+//! window fills, or while a delay runs out after a block) keep the sample and, unless the
+//! bank changed, the bus solution of the interval before: the same inputs give the same
+//! solution, so only the controller and the metrics run.
+//!
+//! Observers that need every interval (time series, recorders in tests) say so with
+//! [`Observer::wants_every_interval`] (the default), and then every interval is stepped
+//! on its own; [`Stepping::EveryInterval`] forces it for any observer.
 
 use crate::bank::{Bank, BankState};
 use crate::controller::{Controller, Decision, Reading};
 use crate::error::RunError;
+use crate::metrics::Metrics;
 use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::Scenario;
-use crate::study::RunPlan;
+use crate::study::{RunPlan, Stepping};
 use crate::supply::{BusSolver, PhaseSolution};
 use serde::Serialize;
 use std::collections::HashMap;
@@ -39,10 +78,25 @@ pub struct IntervalRecord<'a> {
     pub decision: &'a Decision,
 }
 
-/// Receives every interval. The default methods do nothing and compile away.
+/// Receives the intervals of a run. The default methods do nothing and compile away.
 pub trait Observer {
-    /// Called once per interval, after the controller has decided.
+    /// True (the default) when [`Observer::interval`] must see every interval; false lets
+    /// the engine add stretches of identical intervals as blocks, reported to
+    /// [`Observer::block`] instead. Asked once, before the first interval.
+    fn wants_every_interval(&self) -> bool {
+        true
+    }
+    /// Called once per interval stepped on its own, after the controller has decided:
+    /// every interval when [`Observer::wants_every_interval`] is true, and otherwise every
+    /// interval outside a block (among them every interval with an operation).
     fn interval(&mut self, _r: &IntervalRecord<'_>) -> Result<(), RunError> {
+        Ok(())
+    }
+    /// Called after [`Observer::interval`] of interval `r.k` when the `n` intervals
+    /// `r.k + 1 ..= r.k + n` are identical to it (same load, solution, state and
+    /// decision, no operation) and were added as one block. Only when
+    /// [`Observer::wants_every_interval`] is false.
+    fn block(&mut self, _r: &IntervalRecord<'_>, _n: u64) -> Result<(), RunError> {
         Ok(())
     }
     /// Called every few thousand intervals with the number done and the total.
@@ -52,7 +106,11 @@ pub trait Observer {
 /// An observer that ignores everything.
 #[derive(Debug, Default, Clone, Copy)]
 pub struct Quiet;
-impl Observer for Quiet {}
+impl Observer for Quiet {
+    fn wants_every_interval(&self) -> bool {
+        false
+    }
+}
 
 /// The result of one run.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -66,10 +124,10 @@ pub struct RunResult {
 }
 
 /// How often observers hear about progress, intervals.
-const PROGRESS_EVERY: u64 = 1 << 16;
+pub const PROGRESS_EVERY: u64 = 1 << 16;
 
 /// Runs the settings `sc` over `source` on the time base `plan`, telling `observer`
-/// about every interval.
+/// about the intervals (all of them, or blocks of identical ones when it allows).
 pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     sc: &Scenario,
     plan: &RunPlan,
@@ -106,20 +164,39 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     solver.set_bank(&bank.susceptance(ctl.mask()));
     let mut b_fixed = bank.susceptance(bank.fixed_mask);
     let mut thd = thd_of(ctl.mask());
-    let sqrt3 = 3f64.sqrt();
     let want_current = sc.controller.protection.min_current_a.is_some();
     let has_fixed = !bank.fixed_mask.is_empty();
     let n = plan.intervals;
+    let blocks = plan.stepping == Stepping::Events && !observer.wants_every_interval();
+    // With blocks: the interval before which the latest sample holds, by the source's
+    // promise (0 once the bank has changed, so that the bus is solved again).
+    let mut same_until = 0;
+    let mut sol = [PhaseSolution::default(); 3];
+    // 1 when the latest solution had no solution (the nose of the curve was used).
+    let mut unsolved = 0;
+    let sqrt3 = 3f64.sqrt();
     observer.progress(0, n);
-    for k in 0..n {
+    let mut k = 0;
+    while k < n {
         let t = t0 + k as f64 * dt;
         let t_next = t0 + (k + 1) as f64 * dt;
         if bank.advance_faults(k as f64 * dt) {
             solver.set_bank(&bank.susceptance(ctl.mask()));
             b_fixed = bank.susceptance(bank.fixed_mask);
+            same_until = 0;
         }
-        source.sample(k, t, &mut sample)?;
-        let sol = solver.solve(&sample.p_kw, &sample.q_kvar);
+        if k < same_until {
+            // The same sample on the same bank: the same solution.
+            solver.nonconverged += unsolved;
+        } else {
+            source.sample(k, t, &mut sample)?;
+            if blocks {
+                same_until = source.unchanged_until(k);
+            }
+            let before = solver.nonconverged;
+            sol = solver.solve(&sample.p_kw, &sample.q_kvar);
+            unsolved = solver.nonconverged - before;
+        }
         let mut v_min = sol[0].v_ln;
         let mut v_max = sol[0].v_ln;
         let mut i2_max: f64 = 0.0;
@@ -152,7 +229,9 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         reading.current_a = i2_max.sqrt() * 1e3;
         let mask = ctl.mask();
         let d = ctl.decide(&reading, t_next);
-        met.record(&IntervalObs {
+        // What the metrics and the observer see of the interval (built again for a block,
+        // so that nothing is kept alive across the common path).
+        let obs = || IntervalObs {
             t_s: t,
             p_kw: reading.p_kw[0] + reading.p_kw[1] + reading.p_kw[2],
             q_kvar: reading.q_kvar[0] + reading.q_kvar[1] + reading.q_kvar[2],
@@ -162,22 +241,42 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             v_ll_min: v_min * sqrt3,
             v_ll_max: v_max * sqrt3,
             decision: &d,
-        });
-        observer.interval(&IntervalRecord {
-            k,
+        };
+        let k_now = k;
+        let record = |sample, sol| IntervalRecord {
+            k: k_now,
             t_s: t,
-            load: &sample,
-            phases: &sol,
+            load: sample,
+            phases: sol,
             mask,
             decision: &d,
-        })?;
-        if !d.closed.or(d.opened).is_empty() {
+        };
+        met.record(&obs());
+        observer.interval(&record(&sample, &sol))?;
+        if (k + 1) % PROGRESS_EVERY == 0 {
+            observer.progress(k + 1, n);
+        }
+        let operated = !d.closed.or(d.opened).is_empty();
+        if operated {
             met.record_ops(k, &d, t_next);
             solver.set_bank(&bank.susceptance(ctl.mask()));
             thd = thd_of(ctl.mask());
+            same_until = 0;
         }
-        if (k + 1) % PROGRESS_EVERY == 0 {
-            observer.progress(k + 1, n);
+        k += 1;
+        if blocks && !operated && same_until > k {
+            let end = block_end(k, n, same_until, t0, dt, &bank, &met, &ctl, t);
+            if end > k {
+                let m = end - k;
+                met.record_block(&obs(), m);
+                ctl.skip(m);
+                solver.nonconverged += unsolved * m;
+                observer.block(&record(&sample, &sol), m)?;
+                k = end;
+                if k % PROGRESS_EVERY == 0 {
+                    observer.progress(k, n);
+                }
+            }
         }
     }
     observer.progress(n, n);
@@ -186,4 +285,51 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         metrics,
         nonconverged_intervals: solver.nonconverged,
     })
+}
+
+/// The end (exclusive) of the block of intervals identical to interval `k − 1`, which was
+/// just stepped on its own at `t_prev` and made no operation: `k` when there is none. The
+/// sample holds until `same_until`. See the module documentation for what ends a block.
+#[allow(clippy::too_many_arguments)]
+#[inline(never)]
+fn block_end(
+    k: u64,
+    n: u64,
+    same_until: u64,
+    t0: f64,
+    dt: f64,
+    bank: &Bank,
+    met: &Metrics,
+    ctl: &Controller,
+    t_prev: f64,
+) -> u64 {
+    if same_until <= k {
+        return k;
+    }
+    let quiet = ctl.quiet_after(t0 + k as f64 * dt);
+    if quiet == 0 {
+        return k;
+    }
+    let mut end = n
+        .min(same_until)
+        .min(k.saturating_add(quiet))
+        .min((k / PROGRESS_EVERY + 1) * PROGRESS_EVERY);
+    // The first interval whose start may lie within two intervals of `t_s` (profile time)
+    // ends the block.
+    let before = |t_s: f64| -> u64 {
+        let j = ((t_s - t0) / dt).floor() - 2.0;
+        if j <= 0.0 {
+            0
+        } else if j >= u64::MAX as f64 {
+            u64::MAX
+        } else {
+            j as u64
+        }
+    };
+    end = end.min(before(met.next_boundary_s(t_prev)));
+    if let Some(f) = bank.next_fault_s() {
+        // Faults start in run time (seconds from the first interval).
+        end = end.min(before(t0 + f));
+    }
+    end.max(k)
 }

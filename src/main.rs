@@ -372,6 +372,10 @@ struct CliObserver {
 }
 
 impl Observer for CliObserver {
+    fn wants_every_interval(&self) -> bool {
+        self.series.is_some()
+    }
+
     #[inline]
     fn interval(&mut self, r: &IntervalRecord<'_>) -> Result<(), RunError> {
         match &mut self.series {

@@ -493,7 +493,7 @@ impl Metrics {
     }
 
     /// Records interval k with the bank state as it stood.
-    #[inline]
+    #[inline(always)]
     pub fn record(&mut self, o: &IntervalObs<'_>) {
         self.n += 1;
         let (p, q) = (o.p_kw, o.q_kvar);
@@ -529,6 +529,28 @@ impl Metrics {
         if o.v_ll_max > self.v_110 {
             self.over_110_n += 1;
         }
+        match self.overcorrection_cause(o) {
+            Some(cause) => {
+                if !self.ep.open {
+                    self.ep = Episode {
+                        open: true,
+                        ..Episode::default()
+                    };
+                }
+                self.ep.intervals += 1;
+                self.ep.worst = self.ep.worst.max(-q);
+                self.ep.cause_n[cause] += 1;
+                self.ep.weekday_n[self.calendar.weekday(o.t_s)] += 1;
+            }
+            None if self.ep.open => self.close_episode(),
+            None => {}
+        }
+    }
+
+    /// The cause (index into `CAUSES`) when the interval is overcorrected.
+    #[inline]
+    fn overcorrection_cause(&self, o: &IntervalObs<'_>) -> Option<usize> {
+        let (p, q) = (o.p_kw, o.q_kvar);
         let thr = self.p.overcorrection_threshold_kvar;
         // Reactive power below which the interval is overcorrected: past zero for a lagging
         // or unity target, past the target for a leading one (tan φ_t < 0).
@@ -538,15 +560,7 @@ impl Metrics {
             -thr
         };
         if q < limit {
-            if !self.ep.open {
-                self.ep = Episode {
-                    open: true,
-                    ..Episode::default()
-                };
-            }
-            self.ep.intervals += 1;
-            self.ep.worst = self.ep.worst.max(-q);
-            let cause = if p < 0.0 {
+            Some(if p < 0.0 {
                 0
             } else if o.load_q_kvar - o.fixed_q_kvar < limit {
                 1
@@ -554,11 +568,51 @@ impl Metrics {
                 2
             } else {
                 3
-            };
-            self.ep.cause_n[cause] += 1;
-            self.ep.weekday_n[self.calendar.weekday(o.t_s)] += 1;
-        } else if self.ep.open {
-            self.close_episode();
+            })
+        } else {
+            None
+        }
+    }
+
+    /// The first run time after `t_s` at which [`Metrics::record`] treats an interval
+    /// differently for a reason of the clock alone: the start of the next billing window
+    /// or the next midnight of the run's calendar (overcorrection by weekday).
+    pub fn next_boundary_s(&self, t_s: f64) -> f64 {
+        let midnight = t_s + (DAY_S - self.calendar.second_of_day(t_s));
+        match self.p.billing_starts.get(self.next_bill) {
+            Some(&b) => b.min(midnight),
+            None => midnight,
+        }
+    }
+
+    /// Records `m` more intervals equal to `o`, the interval just recorded, as `m` calls of
+    /// [`Metrics::record`] would (energies summed as one product, so they may differ from
+    /// the interval-by-interval sums in the last digits). The caller makes sure that no
+    /// interval of the block reaches [`Metrics::next_boundary_s`].
+    pub fn record_block(&mut self, o: &IntervalObs<'_>, m: u64) {
+        if m == 0 {
+            return;
+        }
+        let (p, q) = (o.p_kw, o.q_kvar);
+        self.n += m;
+        let h = self.h * m as f64;
+        self.reg.add(p, q, h);
+        self.win.add(p, q, h);
+        if p > 0.0 && q > p * self.tan_t {
+            self.under_n += m;
+        }
+        if q < 0.0 {
+            self.lead_n += m;
+        }
+        if o.v_ll_max > self.v_110 {
+            self.over_110_n += m;
+        }
+        // The extremes were taken by the interval just recorded.
+        if let Some(cause) = self.overcorrection_cause(o) {
+            // The interval just recorded opened or continued the episode.
+            self.ep.intervals += m;
+            self.ep.cause_n[cause] += m;
+            self.ep.weekday_n[self.calendar.weekday(o.t_s)] += m;
         }
     }
 

@@ -84,6 +84,20 @@ pub struct RunPlan {
     pub intervals: u64,
     /// Run times at which a new billing window starts (after the first), ascending.
     pub billing_starts: Vec<f64>,
+    /// How the engine steps through the intervals. Default [`Stepping::Events`].
+    pub stepping: Stepping,
+}
+
+/// How the engine steps through the intervals. Both give the same results (energies to
+/// rounding in the last digits); `EveryInterval` is there to check that.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Stepping {
+    /// Every interval on its own.
+    EveryInterval,
+    /// Stretches of identical intervals (the same sample, bank state and timers' outcome)
+    /// as one block, when the observer allows it (see `engine`). The default.
+    #[default]
+    Events,
 }
 
 impl RunPlan {
@@ -261,5 +275,6 @@ fn plan(scenario: &Scenario, profile: &PreparedProfile) -> Result<RunPlan, RunEr
         dt_s: dt,
         intervals,
         billing_starts,
+        stepping: Stepping::Events,
     })
 }

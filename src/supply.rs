@@ -180,7 +180,7 @@ impl BusSolver {
 
     /// Solves the three phases for a load of `p_kw`/`q_kvar` per phase with the bank set
     /// by [`BusSolver::set_bank`].
-    #[inline]
+    #[inline(always)]
     pub fn solve(&mut self, p_kw: &[f64; 3], q_kvar: &[f64; 3]) -> [PhaseSolution; 3] {
         let mut out = [PhaseSolution::default(); 3];
         let mut unsolved = false;

@@ -277,6 +277,13 @@ struct Averager {
     sum_p: f64,
     sum_q: f64,
     inv_n: f64,
+    /// Bits of the latest (P, Q) pushed (0.0 before any).
+    last: (u64, u64),
+    /// Consecutive pushes of the latest (P, Q), at most the window length.
+    same: usize,
+    /// The window holds n copies of the latest value and has been resummed since, so
+    /// every further push of that value returns exactly the same mean.
+    steady: bool,
 }
 
 impl Averager {
@@ -289,14 +296,53 @@ impl Averager {
             sum_p: 0.0,
             sum_q: 0.0,
             inv_n: 1.0 / n as f64,
+            last: (0, 0),
+            same: 0,
+            steady: n == 1,
         }
     }
 
+    /// How many more pushes of the latest value return exactly the latest mean
+    /// (`u64::MAX`: any number). Once the window holds n copies of the value, a push
+    /// replaces a value by itself and leaves the sums as they are, until the push that
+    /// completes a round and resums; from then on the resummed sums never change. While
+    /// older values are still in the window, every push changes the mean: none.
     #[inline]
+    fn quiet(&self) -> u64 {
+        let n = self.p.len();
+        if self.steady {
+            u64::MAX
+        } else if self.same >= n {
+            (n - 1 - self.next) as u64
+        } else {
+            0
+        }
+    }
+
+    /// Pushes the latest value `m` more times, at most [`Averager::quiet`] of them: the
+    /// values and the sums stay as they are and only the write position moves.
+    #[inline]
+    fn skip(&mut self, m: u64) {
+        let n = self.p.len();
+        if n > 1 {
+            self.next = ((self.next as u64 + m % n as u64) % n as u64) as usize;
+        }
+    }
+
+    #[inline(always)]
     fn push(&mut self, p: f64, q: f64) -> (f64, f64) {
         let n = self.p.len();
         if n == 1 {
             return (p, q);
+        }
+        if p.to_bits() == self.last.0 && q.to_bits() == self.last.1 {
+            if self.same < n {
+                self.same += 1;
+            }
+        } else {
+            self.last = (p.to_bits(), q.to_bits());
+            self.same = 1;
+            self.steady = false;
         }
         self.sum_p += p - self.p[self.next];
         self.sum_q += q - self.q[self.next];
@@ -308,6 +354,9 @@ impl Averager {
             self.next = 0;
             self.sum_p = self.p.iter().sum();
             self.sum_q = self.q.iter().sum();
+            // The sums of n equal values do not change when one of them is replaced by
+            // itself, and the next resum gives the same sums again.
+            self.steady = self.same == n;
         }
         if self.filled < n {
             self.filled += 1;
@@ -322,12 +371,66 @@ impl Averager {
 #[derive(Debug, Clone, Copy, Default)]
 struct Timer {
     count: u64,
+    /// The condition was present in the latest interval.
+    active: bool,
+    /// Intervals of a present condition until the timer fires: the smallest count with
+    /// count·Δt ≥ delay (within the time tolerance).
+    period: u64,
+}
+
+/// The smallest number of intervals c ≥ 1 with c·Δt ≥ `delay_s` − [`TIME_EPS_S`], by the
+/// same floating-point comparison the timers make.
+fn intervals_for(delay_s: f64, dt: f64) -> u64 {
+    let met = |c: u64| c as f64 * dt >= delay_s - TIME_EPS_S;
+    let guess = ((delay_s - TIME_EPS_S) / dt).ceil();
+    let mut c = if guess.is_finite() && guess > 1.0 {
+        guess as u64
+    } else {
+        1
+    };
+    while c > 1 && met(c - 1) {
+        c -= 1;
+    }
+    while !met(c) {
+        c += 1;
+    }
+    c
 }
 
 impl Timer {
+    fn new(delay_s: f64, dt: f64) -> Self {
+        Timer {
+            count: 0,
+            active: false,
+            period: intervals_for(delay_s, dt),
+        }
+    }
+
+    /// Intervals after the latest one before the timer fires, given the condition stays
+    /// as it is (`u64::MAX`: never).
+    #[inline]
+    fn quiet(&self) -> u64 {
+        if self.active {
+            self.period - self.count - 1
+        } else {
+            u64::MAX
+        }
+    }
+
+    /// Advances the timer by `m` intervals of an unchanged condition, firing with no
+    /// effect whenever it expires (the caller has made sure that a firing changes nothing
+    /// else).
+    #[inline]
+    fn skip(&mut self, m: u64) {
+        if self.active {
+            self.count = (self.count + m % self.period) % self.period;
+        }
+    }
+
     /// Advances the timer; returns true when the condition has held for `delay_s`.
     #[inline]
     fn advance(&mut self, active: bool, dt: f64, delay_s: f64) -> bool {
+        self.active = active;
         if !active {
             self.count = 0;
             return false;
@@ -364,6 +467,12 @@ pub struct Controller {
     op_times: Vec<f64>,
     op_head: usize,
     op_len: usize,
+    /// Intervals of an unchanged wish before a connection is attempted.
+    connect_n: u64,
+    /// Intervals of an unchanged wish before a disconnection is attempted.
+    disconnect_n: u64,
+    /// A protection condition blocked closings in the latest interval.
+    blocked_close: bool,
 }
 
 impl Controller {
@@ -402,13 +511,16 @@ impl Controller {
             wish: 0,
             count: 0,
             avg: Averager::new(n_avg),
-            ov: Timer::default(),
-            low: Timer::default(),
-            export: Timer::default(),
-            thd: Timer::default(),
+            ov: Timer::new(params.protection.overvoltage_delay_s, dt_s),
+            low: Timer::new(params.protection.min_current_delay_s, dt_s),
+            export: Timer::new(params.protection.export_delay_s, dt_s),
+            thd: Timer::new(params.protection.thd_delay_s, dt_s),
             op_times: vec![0.0; cap],
             op_head: 0,
             op_len: 0,
+            connect_n: intervals_for(params.connect_delay_s, dt_s),
+            disconnect_n: intervals_for(params.disconnect_delay_s, dt_s),
+            blocked_close: false,
         }
     }
 
@@ -509,6 +621,7 @@ impl Controller {
             }
             blocked_close = ov_on || low_on || exp_on || thd_on;
         }
+        self.blocked_close = blocked_close;
 
         if wish == 0 {
             return d;
@@ -572,6 +685,83 @@ impl Controller {
         self.count = 0;
         self.record_op(t_next);
         d
+    }
+
+    /// After an interval in which [`Controller::decide`] made no operation: how many of the
+    /// following intervals are sure to make none either if they read exactly the same
+    /// measurement (`u64::MAX`: as many as there are). `t_next` is the time t_{k+1} at
+    /// which the latest interval's decision took effect.
+    ///
+    /// The answer is 0 while the averaging window still holds older values, and the stretch
+    /// ends before the push that resums a window full of one value (the sums may then
+    /// change in the last digit). Otherwise a repeated reading gives the same mean, demand
+    /// and wish, so the only things that move are the counters and the clock, and the
+    /// quiet stretch ends before the first of: a
+    /// protection timer expiring while a switched step is on (it would trip), the
+    /// switching timer reaching its delay, and, once the delay is met but the operation
+    /// could not be made, the cap on operations per hour leaving room or a step leaving
+    /// its discharge lockout. Clock events are taken two intervals early, so rounding in
+    /// the time of an interval cannot move one into the stretch.
+    pub fn quiet_after(&self, t_next: f64) -> u64 {
+        let mut quiet = self.avg.quiet();
+        if quiet == 0 {
+            return 0;
+        }
+        if self.any_protection && !self.mask.and(self.switched).is_empty() {
+            for t in [&self.ov, &self.low, &self.export, &self.thd] {
+                quiet = quiet.min(t.quiet());
+            }
+        }
+        if self.wish == 0 {
+            return quiet;
+        }
+        let needed = if self.wish > 0 {
+            self.connect_n
+        } else {
+            self.disconnect_n
+        };
+        if self.count < needed {
+            return quiet.min(needed - self.count - 1);
+        }
+        // The delay is met and the latest attempt made no operation: only the clock can
+        // change that.
+        let dt = self.dt;
+        let before = |t_event: f64| -> u64 {
+            let n = ((t_event - t_next) / dt).floor() - 2.0;
+            if n <= 0.0 {
+                0
+            } else if n >= u64::MAX as f64 {
+                u64::MAX
+            } else {
+                n as u64
+            }
+        };
+        if !self.cap_allows(t_next) && !self.op_times.is_empty() {
+            quiet = quiet.min(before(self.op_times[self.op_head] + 3600.0));
+        }
+        if self.wish > 0 && !self.blocked_close {
+            let td = self.params.discharge_time_s;
+            for n in self.switched.minus(self.mask) {
+                let free_at = self.steps[n - 1].last_open_s + td;
+                if t_next - self.steps[n - 1].last_open_s < td - TIME_EPS_S {
+                    quiet = quiet.min(before(free_at));
+                }
+            }
+        }
+        quiet
+    }
+
+    /// Steps over `m` intervals that read the latest measurement again, all of them quiet
+    /// by [`Controller::quiet_after`]: the averaging window, the switching timer and the
+    /// protection timers move on as `m` calls of [`Controller::decide`] would move them.
+    pub fn skip(&mut self, m: u64) {
+        self.avg.skip(m);
+        if self.wish != 0 {
+            self.count += m;
+        }
+        for t in [&mut self.ov, &mut self.low, &mut self.export, &mut self.thd] {
+            t.skip(m);
+        }
     }
 
     /// Switched steps that are off and out of their discharge lockout at `t_close`.
@@ -638,5 +828,76 @@ impl Controller {
             self.op_times[self.op_head] = t;
             self.op_head = (self.op_head + 1) % cap;
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // The averager's promise, checked by pushing: after any history, `quiet` further
+    // pushes of the latest value return exactly the latest mean, bit for bit. Values of
+    // very different sizes make the running sum differ from the resummed one in the last
+    // digits, so a promise that reached past the resum would be caught.
+    #[test]
+    fn averager_quiet_pushes_repeat_the_mean_exactly() {
+        let values = [0.1, 1e6 + 0.3, 0.7, 3.3e-3, 250.0, 1e6 / 3.0, 0.1];
+        let mut caught_change = false;
+        for n in [2usize, 3, 5, 7] {
+            for start in 0..values.len() {
+                let mut a = Averager::new(n);
+                // A varied history, then one value repeated for three windows.
+                for i in 0..(start + n) {
+                    a.push(values[(start + i) % values.len()], values[i % values.len()]);
+                }
+                let v = (values[start], values[(start + 1) % values.len()]);
+                let mut mean = a.push(v.0, v.1);
+                for _ in 0..3 * n {
+                    let quiet = a.quiet().min(4 * n as u64);
+                    for _ in 0..quiet {
+                        let m = a.push(v.0, v.1);
+                        assert_eq!(
+                            (m.0.to_bits(), m.1.to_bits()),
+                            (mean.0.to_bits(), mean.1.to_bits())
+                        );
+                    }
+                    let next = a.push(v.0, v.1);
+                    caught_change |= next.0.to_bits() != mean.0.to_bits();
+                    mean = next;
+                }
+                assert_eq!(a.quiet(), u64::MAX, "steady after three windows");
+            }
+        }
+        // The values do make the resum change the mean somewhere.
+        assert!(caught_change);
+    }
+
+    // Skipping m quiet pushes leaves the averager where m pushes would have left it.
+    #[test]
+    fn averager_skip_equals_pushes() {
+        let mut a = Averager::new(4);
+        let mut b = Averager::new(4);
+        for x in [1.0, 2.0, 0.3, 0.3, 0.3, 0.3, 0.3, 0.3] {
+            a.push(x, -x);
+            b.push(x, -x);
+        }
+        assert_eq!(a.quiet(), u64::MAX);
+        for _ in 0..11 {
+            a.push(0.3, -0.3);
+        }
+        b.skip(11);
+        assert_eq!((a.next, a.sum_p, a.sum_q), (b.next, b.sum_p, b.sum_q));
+        assert_eq!(a.push(5.0, 1.0), b.push(5.0, 1.0));
+    }
+
+    // Delays in intervals by the timers' own comparison: 3 s at 0.1 s is 30 intervals
+    // although 30 × 0.1 is not exactly 3 in binary (the 1e-9 s tolerance, DEVELOPERS.md);
+    // 40 s at 1 s is 40; a zero delay is met by the first interval.
+    #[test]
+    fn delays_in_intervals() {
+        assert_eq!(intervals_for(3.0, 0.1), 30);
+        assert_eq!(intervals_for(40.0, 1.0), 40);
+        assert_eq!(intervals_for(0.0, 1.0), 1);
+        assert_eq!(intervals_for(2.5, 1.0), 3);
     }
 }
