@@ -55,6 +55,7 @@
 //! in length and width, the spacing histogram is capped in size, and at most
 //! [`MAX_DEFECTS_KEPT`] defects are kept in full.
 
+mod block;
 mod defect;
 mod errors;
 mod gaps;
@@ -77,10 +78,13 @@ mod tolerance;
 
 pub use defect::{Defect, DefectAction, DefectCounts, DefectKind, MAX_DEFECTS_KEPT};
 pub use header::{ColumnMatch, COLUMNS};
-pub use memory::{MemoryCursor, MemoryProfile};
+pub use memory::{MemoryCursor, MemoryProfile, SharedCursor};
 pub use options::{CsvOptions, OptionError};
 pub use rules::{MAX_ELAPSED_S, MAX_POWER};
-pub use scan::{scan, scan_bytes, scan_source, CsvScan};
+pub use scan::{
+    scan, scan_bytes, scan_source, scan_source_with, CsvScan, ScanSettings, BYTES_PER_ROW,
+    DEFAULT_KEEP_BYTES,
+};
 pub use source::{CsvSource, OpenFn, MAX_FIELDS, MAX_RECORD_BYTES};
 pub use stream::CsvStream;
 pub use summary::{DefectSummary, KindSummary, FIRST_LINES_KEPT};

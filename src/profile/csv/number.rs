@@ -1,5 +1,12 @@
 //! Numbers as a profile writes them: with a decimal point, or with a decimal comma (in
 //! which case a point is refused, since it would be a thousands separator or a mix-up).
+//!
+//! The bytes are parsed as they stand, with no UTF-8 check, by `fast-float2` (the
+//! Eisel-Lemire algorithm, correctly rounded). The Rust standard library's
+//! `str::parse::<f64>` is the reference: a number `fast-float2` finds finite is taken as
+//! it is (the tests check the two agree on many random decimal strings), and the rare
+//! other outcomes (no number, NaN, an infinity) are settled by the standard library, so
+//! what counts as a number and what is refused cannot differ from it.
 
 /// Longest number copied for decimal-comma conversion, bytes; longer ones are malformed.
 const MAX_NUMBER_BYTES: usize = 64;
@@ -7,6 +14,16 @@ const MAX_NUMBER_BYTES: usize = 64;
 /// Parses a number written with a point as the decimal mark.
 #[inline]
 pub(super) fn parse_f64(bytes: &[u8]) -> Option<f64> {
+    match fast_float2::parse::<f64, _>(bytes) {
+        Ok(v) if v.is_finite() => Some(v),
+        _ => parse_f64_std(bytes),
+    }
+}
+
+/// The standard library's reading of `bytes`, kept out of line: it settles the rare
+/// numbers that are not finite or not numbers at all.
+#[inline(never)]
+fn parse_f64_std(bytes: &[u8]) -> Option<f64> {
     std::str::from_utf8(bytes).ok()?.parse::<f64>().ok()
 }
 
