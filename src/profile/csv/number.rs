@@ -66,4 +66,85 @@ mod tests {
         assert_eq!(parse_number(&[b'1'; 65], b','), None);
         assert!(parse_number(b"NaN", b',').is_some_and(f64::is_nan));
     }
+
+    /// A random decimal string: sign, digits, point, exponent, and now and then a stray
+    /// character, a space or an edge case, so that some strings are not numbers.
+    fn random_number(rng: &mut impl rand::Rng) -> String {
+        const EDGE: [&str; 24] = [
+            "", ".", "+", "-", "e5", ".e1", "1e", "1e+", "1.e3", ".5", "5.", "-0", "+.5e-3",
+            "inf", "-Infinity", "nan", "NaN", "1_000", "0x10", "1e400", "-1e-400",
+            "4.9e-324", "1.7976931348623157e308", "00012.50",
+        ];
+        if rng.random_ratio(1, 10) {
+            return EDGE[rng.random_range(0..EDGE.len())].to_string();
+        }
+        let mut s = String::new();
+        match rng.random_range(0..4) {
+            0 => s.push('-'),
+            1 => s.push('+'),
+            _ => {}
+        }
+        for _ in 0..rng.random_range(0..=20) {
+            s.push(char::from(b'0' + rng.random_range(0..10u8)));
+        }
+        if rng.random_bool(0.7) {
+            s.push('.');
+            for _ in 0..rng.random_range(0..=20) {
+                s.push(char::from(b'0' + rng.random_range(0..10u8)));
+            }
+        }
+        if rng.random_bool(0.3) {
+            s.push(if rng.random_bool(0.5) { 'e' } else { 'E' });
+            match rng.random_range(0..3) {
+                0 => s.push('-'),
+                1 => s.push('+'),
+                _ => {}
+            }
+            for _ in 0..rng.random_range(0..=3) {
+                s.push(char::from(b'0' + rng.random_range(0..10u8)));
+            }
+        }
+        if rng.random_ratio(1, 20) {
+            let junk = [' ', 'x', ',', '.', 'e', '-', '\u{e9}'];
+            let at = rng.random_range(0..=s.len());
+            if s.is_char_boundary(at) {
+                s.insert(at, junk[rng.random_range(0..junk.len())]);
+            }
+        }
+        s
+    }
+
+    fn same(a: Option<f64>, b: Option<f64>) -> bool {
+        match (a, b) {
+            (Some(x), Some(y)) => x.to_bits() == y.to_bits() || (x.is_nan() && y.is_nan()),
+            (None, None) => true,
+            _ => false,
+        }
+    }
+
+    #[test]
+    fn reads_every_number_as_the_standard_library_does() {
+        // Reference: the Rust standard library's `str::parse::<f64>` (correctly rounded,
+        // IEEE 754 round-to-nearest-even), on the same text; with a decimal comma, on the
+        // text with the comma turned into a point (and nothing when a point is present).
+        use rand::SeedableRng;
+        let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(0x5eed_f10a7);
+        let mut numbers = 0;
+        for _ in 0..200_000 {
+            let s = random_number(&mut rng);
+            let want = s.parse::<f64>().ok();
+            numbers += usize::from(want.is_some());
+            let got = parse_number(s.as_bytes(), b'.');
+            assert!(same(got, want), "{s:?}: {got:?}, the standard library {want:?}");
+            let comma = s.replace('.', ",");
+            let want_comma = s.replace(',', ".").parse::<f64>().ok();
+            let got_comma = parse_number(comma.as_bytes(), b',');
+            assert!(
+                same(got_comma, want_comma),
+                "{comma:?} with a decimal comma: {got_comma:?}, the standard library {want_comma:?}"
+            );
+        }
+        // Most strings are numbers, and some are not.
+        assert!(numbers > 150_000 && numbers < 200_000, "{numbers}");
+    }
 }

@@ -716,22 +716,16 @@ fn fast_pass(
     let name = source.name();
     let io = |e| io_error(name, e);
     let mut input = RawInput::open(source, *offset).map_err(io)?;
-    let mut buf: Vec<u8> = Vec::with_capacity(BLOCK_BYTES + (64 << 10));
+    let mut buf: Vec<u8> = Vec::new();
     let mut parsed = Parsed::default();
     let mut eof = false;
     loop {
-        while !eof && buf.len() < BLOCK_BYTES {
-            let old = buf.len();
-            buf.resize(BLOCK_BYTES.max(old + (64 << 10)), 0);
-            let got = loop {
-                match input.read(&mut buf[old..]) {
-                    Ok(n) => break n,
-                    Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
-                    Err(e) => return Err(io(e)),
-                }
-            };
-            buf.truncate(old + got);
-            eof = got == 0;
+        if !eof && buf.len() < BLOCK_BYTES {
+            // Reads to the end of the block or of the input; the buffer grows as the
+            // bytes come, so a small file costs a small buffer.
+            let want = (BLOCK_BYTES - buf.len()) as u64;
+            let got = (&mut input).take(want).read_to_end(&mut buf).map_err(io)?;
+            eof = (got as u64) < want;
         }
         if buf.is_empty() {
             return Ok(true);
