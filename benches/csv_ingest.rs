@@ -24,7 +24,7 @@
 //! `CSV_INGEST_SKIP_LONG=1` to time parts 2 and 3 only).
 
 use bankstep::profile::csv::{
-    scan, scan_source, scan_source_with, CsvOptions, CsvSource, ScanSettings, BYTES_PER_ROW,
+    scan, scan_source_with, CsvOptions, CsvSource, ScanSettings, BYTES_PER_ROW,
 };
 use bankstep::profile::{LoadSample, LoadSource};
 use std::io::{BufWriter, Read, Write};

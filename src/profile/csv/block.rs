@@ -17,7 +17,7 @@
 //! of the record reader.
 
 use super::header::Columns;
-use super::number::parse_number;
+use super::number::{parse_number, parse_plain_prefix};
 use super::rules::{MAX_ELAPSED_S, MAX_POWER};
 use super::source::Record;
 use rayon::prelude::*;
@@ -108,6 +108,9 @@ pub(super) struct Layout {
     header_fields: usize,
     delimiter: u8,
     decimal: u8,
+    /// The header is exactly the seven columns and numbers have a decimal point, so a
+    /// line can be read in one sweep ([`parse_line_quick`]).
+    quick: bool,
 }
 
 impl Layout {
@@ -127,6 +130,7 @@ impl Layout {
             header_fields: cols.header_fields,
             delimiter,
             decimal,
+            quick: cols.header_fields == 7 && decimal == b'.',
         })
     }
 
@@ -164,6 +168,12 @@ pub(super) fn has_doubt(bytes: &[u8]) -> bool {
 fn number_at(line: &[u8], pos: usize, lay: &Layout) -> (Option<f64>, usize) {
     let rest = &line[pos..];
     if lay.decimal == b'.' {
+        if let Some((v, n)) = parse_plain_prefix(rest) {
+            let next = rest.get(n).copied();
+            if next.is_none() || next == Some(lay.delimiter) {
+                return (Some(v), pos + n);
+            }
+        }
         if let Ok((v, n)) = fast_float2::parse_partial::<f64, _>(rest) {
             let next = rest.get(n).copied();
             if (next.is_none() || next == Some(lay.delimiter)) && v.is_finite() {
@@ -232,6 +242,39 @@ fn parse_line(line: &[u8], lay: &Layout, row: &mut Row) -> bool {
     true
 }
 
+/// Reads the line starting at `start` of `piece` the quick way, when it is exactly the
+/// seven columns in any order, each a plain number ([`parse_plain_prefix`]), ended by a
+/// line feed, CRLF or the end of the piece. Returns the end of the line (before any CR)
+/// and where its line end is, or `None` to read the line the general way.
+#[inline]
+fn parse_line_quick(piece: &[u8], start: usize, lay: &Layout, row: &mut Row) -> Option<(usize, usize)> {
+    let mut vals = [0.0f64; 7];
+    let mut pos = start;
+    for field in 0..7 {
+        let (v, n) = parse_plain_prefix(piece.get(pos..)?)?;
+        vals[lay.column_of[field] as usize] = v;
+        pos += n;
+        if field < 6 {
+            if piece.get(pos) != Some(&lay.delimiter) {
+                return None;
+            }
+            pos += 1;
+        }
+    }
+    let lf = match piece.get(pos) {
+        None => piece.len(),
+        Some(b'\n') => pos,
+        Some(b'\r') if piece.get(pos + 1) == Some(&b'\n') => pos + 1,
+        _ => return None,
+    };
+    if !(vals[0].abs() <= MAX_ELAPSED_S) || vals[1..].iter().any(|v| !(v.abs() <= MAX_POWER)) {
+        return None;
+    }
+    row.t = vals[0];
+    row.v.copy_from_slice(&vals[1..]);
+    Some((pos, lf))
+}
+
 /// Cuts `piece` (whole lines, the last one possibly without its line end) into rows,
 /// appended to `rows`. Returns the line feeds in the piece, or `None` for a doubt (a line
 /// too long or too wide for the fast path).
@@ -239,6 +282,23 @@ fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> 
     let mut lf = 0u32;
     let mut start = 0usize;
     while start < piece.len() {
+        if lay.quick {
+            let mut row = Row {
+                lf_before: lf,
+                start: (base + start) as u32,
+                clean: true,
+                ..Row::default()
+            };
+            if let Some((stop, end)) = parse_line_quick(piece, start, lay, &mut row) {
+                row.len = (stop - start) as u32;
+                rows.push(row);
+                if end < piece.len() {
+                    lf += 1;
+                }
+                start = end + 1;
+                continue;
+            }
+        }
         let end = piece[start..]
             .iter()
             .position(|&b| b == b'\n')

@@ -11,9 +11,80 @@
 /// Longest number copied for decimal-comma conversion, bytes; longer ones are malformed.
 const MAX_NUMBER_BYTES: usize = 64;
 
+/// Powers of ten exactly representable as f64 (10^0 to 10^22).
+const POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// The plain numbers loggers write, `[+-]digits[.digits]` with at most 15 digits in all,
+/// read from the start of `bytes`: the value and the bytes it took, or `None` for
+/// anything else (which then goes to the full parser). The digits make an integer w below
+/// 2^53 and the result is w / 10^f with f ≤ 22 digits after the point: both are exact in
+/// an f64 and IEEE 754 division rounds correctly, so this is the correctly rounded value
+/// (Clinger's fast path, W. D. Clinger, "How to read floating point numbers accurately",
+/// PLDI 1990), the same as the standard library gives.
+#[inline]
+pub(super) fn parse_plain_prefix(bytes: &[u8]) -> Option<(f64, usize)> {
+    let mut i = 0;
+    let neg = match bytes.first() {
+        Some(b'-') => {
+            i = 1;
+            true
+        }
+        Some(b'+') => {
+            i = 1;
+            false
+        }
+        _ => false,
+    };
+    let mut w: u64 = 0;
+    let mut digits = 0usize;
+    while let Some(&b) = bytes.get(i) {
+        let d = b.wrapping_sub(b'0');
+        if d > 9 {
+            break;
+        }
+        w = w * 10 + u64::from(d);
+        digits += 1;
+        i += 1;
+        if digits > 15 {
+            return None;
+        }
+    }
+    let mut frac = 0usize;
+    if bytes.get(i) == Some(&b'.') {
+        i += 1;
+        while let Some(&b) = bytes.get(i) {
+            let d = b.wrapping_sub(b'0');
+            if d > 9 {
+                break;
+            }
+            w = w * 10 + u64::from(d);
+            digits += 1;
+            frac += 1;
+            i += 1;
+            if digits > 15 {
+                return None;
+            }
+        }
+    }
+    if digits == 0 || matches!(bytes.get(i), Some(b'e' | b'E')) {
+        return None;
+    }
+    // 15 digits keep w below 10^15 < 2^53, and f ≤ 15 ≤ 22.
+    let v = w as f64 / POW10[frac];
+    Some((if neg { -v } else { v }, i))
+}
+
 /// Parses a number written with a point as the decimal mark.
 #[inline]
 pub(super) fn parse_f64(bytes: &[u8]) -> Option<f64> {
+    if let Some((v, n)) = parse_plain_prefix(bytes) {
+        if n == bytes.len() {
+            return Some(v);
+        }
+    }
     match fast_float2::parse::<f64, _>(bytes) {
         Ok(v) if v.is_finite() => Some(v),
         _ => parse_f64_std(bytes),
@@ -120,6 +191,18 @@ mod tests {
             (None, None) => true,
             _ => false,
         }
+    }
+
+    #[test]
+    fn plain_prefixes() {
+        assert_eq!(parse_plain_prefix(b"1234.567,8"), Some((1234.567, 8)));
+        assert_eq!(parse_plain_prefix(b"-0.25"), Some((-0.25, 5)));
+        assert_eq!(parse_plain_prefix(b"+.5;"), Some((0.5, 3)));
+        assert_eq!(parse_plain_prefix(b"7."), Some((7.0, 2)));
+        assert!(parse_plain_prefix(b"-0").is_some_and(|(v, _)| v == 0.0 && v.is_sign_negative()));
+        assert_eq!(parse_plain_prefix(b"."), None);
+        assert_eq!(parse_plain_prefix(b"1e3"), None);
+        assert_eq!(parse_plain_prefix(b"1234567890123456"), None);
     }
 
     #[test]
