@@ -427,11 +427,9 @@ fn simulate_week(dir: &Path, csv: &Path) -> Result<(), Box<dyn std::error::Error
             .output()?;
         times.push(t0.elapsed().as_secs_f64());
         if !out.status.success() {
-            return Err(format!(
-                "simulate failed: {}",
-                String::from_utf8_lossy(&out.stderr)
-            )
-            .into());
+            return Err(
+                format!("simulate failed: {}", String::from_utf8_lossy(&out.stderr)).into(),
+            );
         }
     }
     report("simulate, whole process", ROWS, &mut times);

@@ -192,15 +192,9 @@ impl Study {
             (LoadSpec::Csv { .. }, Some(scan), None) => Ok(Source::Csv(Box::new(
                 scan.stream()?.on_grid(p.t_first_s, p.dt_s),
             ))),
-            (LoadSpec::Synthetic(cfg), _, _) => {
-                Ok(Source::Synthetic(Box::new(SyntheticProfile::new(
-                    cfg,
-                    self.scenario.seed,
-                    p.calendar,
-                    p.t_first_s,
-                    p.dt_s,
-                ))))
-            }
+            (LoadSpec::Synthetic(cfg), _, _) => Ok(Source::Synthetic(Box::new(
+                SyntheticProfile::new(cfg, self.scenario.seed, p.calendar, p.t_first_s, p.dt_s),
+            ))),
             (LoadSpec::Csv { .. }, None, _) => {
                 Err(RunError::Config("the CSV profile was not scanned".into()))
             }

@@ -37,7 +37,11 @@ fn profile_with_defects(seed: u64, rows: u64, quote: bool) -> Vec<u8> {
     for i in 0..rows {
         let p = 50.0 + 20.0 * rng.random::<f64>();
         let q = 0.6 * p;
-        let line = format!("{t},{p:.3},{q:.3},{p:.2},{q:.2},{:.1},{:.1}", p + 1.0, q + 1.0);
+        let line = format!(
+            "{t},{p:.3},{q:.3},{p:.2},{q:.2},{:.1},{:.1}",
+            p + 1.0,
+            q + 1.0
+        );
         match rng.random_range(0..400) {
             0 => s.push_str(&format!("{t},{p:.3},x{q},1,2,3,4\n")),
             1 => s.push_str(&format!("{t},{p:.3}\n")),
@@ -122,7 +126,11 @@ fn fast_and_parallel_paths_report_the_same_defects_on_the_same_lines() {
             assert!(want.defect_counts.total() > 300, "{:?}", want.defect_counts);
             for threads in [1, 2, 5] {
                 let got = scan_with(&data, &opts, &fast(threads)).unwrap();
-                assert_eq!(report(&got), report(&want), "seed {seed}, {threads} threads");
+                assert_eq!(
+                    report(&got),
+                    report(&want),
+                    "seed {seed}, {threads} threads"
+                );
                 // The rows kept in one pass are the rows a second reading loads.
                 let kept = got.memory().expect("a small profile is kept");
                 assert_eq!(**kept, want.load().unwrap(), "seed {seed}");
@@ -154,7 +162,10 @@ fn a_stop_names_the_same_line_and_message_on_every_path() {
 #[test]
 fn decimal_commas_read_alike_on_every_path() {
     let text = profile_with_defects(5, 20_000, false);
-    let text = String::from_utf8(text).unwrap().replace(',', ";").replace('.', ",");
+    let text = String::from_utf8(text)
+        .unwrap()
+        .replace(',', ";")
+        .replace('.', ",");
     let opts = CsvOptions {
         delimiter: ';',
         decimal: ',',
@@ -201,7 +212,14 @@ fn values_read_are_the_standard_librarys() {
     let m = sc.memory().unwrap();
     assert_eq!(m.len(), want.len());
     for (s, w) in m.samples.iter().zip(&want) {
-        let got = [s.p_kw[0], s.q_kvar[0], s.p_kw[1], s.q_kvar[1], s.p_kw[2], s.q_kvar[2]];
+        let got = [
+            s.p_kw[0],
+            s.q_kvar[0],
+            s.p_kw[1],
+            s.q_kvar[1],
+            s.p_kw[2],
+            s.q_kvar[2],
+        ];
         for (g, w) in got.iter().zip(w) {
             assert_eq!(g.to_bits(), w.to_bits(), "{g} vs {w}");
         }

@@ -87,7 +87,7 @@ impl Record for PlainLine<'_> {
             .nth(i)
             .unwrap_or(&[])
     }
-    fn line(&self) -> u64 {
+    fn record_line(&self) -> u64 {
         self.line
     }
     fn unterminated(&self) -> bool {
@@ -145,7 +145,9 @@ impl Layout {
 pub(super) fn has_doubt(bytes: &[u8]) -> bool {
     let mut cr_or_quote = false;
     for chunk in bytes.chunks(64) {
-        cr_or_quote |= chunk.iter().fold(false, |a, &b| a | (b == b'"') | (b == b'\r'));
+        cr_or_quote |= chunk
+            .iter()
+            .fold(false, |a, &b| a | (b == b'"') | (b == b'\r'));
         if cr_or_quote {
             break;
         }
@@ -160,6 +162,12 @@ pub(super) fn has_doubt(bytes: &[u8]) -> bool {
         .iter()
         .enumerate()
         .any(|(i, &b)| b == b'\r' && bytes.get(i + 1) != Some(&b'\n'))
+}
+
+/// True when `v` is a number within ±`limit` (false for NaN).
+#[inline]
+fn within(v: f64, limit: f64) -> bool {
+    v.abs() <= limit
 }
 
 /// Parses one field of a clean row: the fast way when the number runs exactly to the
@@ -229,11 +237,11 @@ fn parse_line(line: &[u8], lay: &Layout, row: &mut Row) -> bool {
         return false;
     }
     let t = vals[0];
-    if !(t.abs() <= MAX_ELAPSED_S) {
+    if !within(t, MAX_ELAPSED_S) {
         return false;
     }
     for &v in &vals[1..] {
-        if !(v.abs() <= MAX_POWER) {
+        if !within(v, MAX_POWER) {
             return false;
         }
     }
@@ -247,7 +255,12 @@ fn parse_line(line: &[u8], lay: &Layout, row: &mut Row) -> bool {
 /// line feed, CRLF or the end of the piece. Returns the end of the line (before any CR)
 /// and where its line end is, or `None` to read the line the general way.
 #[inline]
-fn parse_line_quick(piece: &[u8], start: usize, lay: &Layout, row: &mut Row) -> Option<(usize, usize)> {
+fn parse_line_quick(
+    piece: &[u8],
+    start: usize,
+    lay: &Layout,
+    row: &mut Row,
+) -> Option<(usize, usize)> {
     let mut vals = [0.0f64; 7];
     let mut pos = start;
     for field in 0..7 {
@@ -267,7 +280,7 @@ fn parse_line_quick(piece: &[u8], start: usize, lay: &Layout, row: &mut Row) -> 
         Some(b'\r') if piece.get(pos + 1) == Some(&b'\n') => pos + 1,
         _ => return None,
     };
-    if !(vals[0].abs() <= MAX_ELAPSED_S) || vals[1..].iter().any(|v| !(v.abs() <= MAX_POWER)) {
+    if !within(vals[0], MAX_ELAPSED_S) || vals[1..].iter().any(|&v| !within(v, MAX_POWER)) {
         return None;
     }
     row.t = vals[0];
@@ -319,7 +332,8 @@ fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> 
                 ..Row::default()
             };
             row.clean = parse_line(line, lay, &mut row);
-            if !row.clean && line.iter().filter(|&&b| b == lay.delimiter).count() >= MAX_PLAIN_FIELDS
+            if !row.clean
+                && line.iter().filter(|&&b| b == lay.delimiter).count() >= MAX_PLAIN_FIELDS
             {
                 return None;
             }
@@ -344,7 +358,10 @@ impl Parsed {
     /// Parses `block` (whole lines) in `threads` pieces cut at line ends. False for a
     /// doubt.
     pub(super) fn parse(&mut self, block: &[u8], lay: &Layout, threads: usize) -> bool {
-        let n = threads.clamp(1, 64).min(block.len() / MIN_PIECE_BYTES).max(1);
+        let n = threads
+            .clamp(1, 64)
+            .min(block.len() / MIN_PIECE_BYTES)
+            .max(1);
         let mut cuts = Vec::with_capacity(n + 1);
         cuts.push(0usize);
         for i in 1..n {
@@ -417,7 +434,7 @@ mod tests {
                 let end = (r.start + r.len) as usize;
                 let pl = PlainLine::new(bytes, b',', 1 + u64::from(r.lf_before), end == text.len());
                 let f: Vec<Vec<u8>> = (0..pl.n_fields()).map(|i| pl.field(i).to_vec()).collect();
-                (pl.line(), f, pl.unterminated())
+                (pl.record_line(), f, pl.unterminated())
             })
             .collect();
         assert_eq!(got, want);
@@ -444,8 +461,11 @@ mod tests {
         assert!(one.parse(&text, &layout(), 1));
         assert!(many.parse(&text, &layout(), 4));
         assert!(many.pieces.len() > 1);
-        let rows_one: Vec<(f64, [f64; 6], u32)> =
-            one.pieces[0].0.iter().map(|r| (r.t, r.v, r.start)).collect();
+        let rows_one: Vec<(f64, [f64; 6], u32)> = one.pieces[0]
+            .0
+            .iter()
+            .map(|r| (r.t, r.v, r.start))
+            .collect();
         let rows_many: Vec<(f64, [f64; 6], u32)> = many
             .pieces
             .iter()

@@ -9,11 +9,11 @@ use super::interpolate::lerp;
 use super::replay::AcceptedRows;
 use super::scan::CsvScan;
 use super::text::fmt_time;
+use super::tolerance::first_interval_reaching;
 use super::tolerance::{is_gap, time_tolerance};
 use crate::error::ProfileError;
 use crate::profile::{LoadSample, LoadSource};
 use crate::timebase::TimeKind;
-use super::tolerance::first_interval_reaching;
 use std::path::PathBuf;
 use std::sync::Arc;
 
@@ -264,7 +264,10 @@ impl MemoryProfile {
         };
         let t_next = match next {
             Some(&tb) => {
-                if self.gap_interpolation_us.is_some_and(|thr| is_gap(tb - ta, thr)) {
+                if self
+                    .gap_interpolation_us
+                    .is_some_and(|thr| is_gap(tb - ta, thr))
+                {
                     // Interpolated across a gap: every interval differs.
                     return k + 1;
                 }

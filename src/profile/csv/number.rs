@@ -24,7 +24,7 @@ const POW10: [f64; 23] = [
 /// an f64 and IEEE 754 division rounds correctly, so this is the correctly rounded value
 /// (Clinger's fast path, W. D. Clinger, "How to read floating point numbers accurately",
 /// PLDI 1990), the same as the standard library gives.
-#[inline]
+#[inline(always)]
 pub(super) fn parse_plain_prefix(bytes: &[u8]) -> Option<(f64, usize)> {
     let mut i = 0;
     let neg = match bytes.first() {
@@ -142,9 +142,30 @@ mod tests {
     /// character, a space or an edge case, so that some strings are not numbers.
     fn random_number(rng: &mut impl rand::Rng) -> String {
         const EDGE: [&str; 24] = [
-            "", ".", "+", "-", "e5", ".e1", "1e", "1e+", "1.e3", ".5", "5.", "-0", "+.5e-3",
-            "inf", "-Infinity", "nan", "NaN", "1_000", "0x10", "1e400", "-1e-400",
-            "4.9e-324", "1.7976931348623157e308", "00012.50",
+            "",
+            ".",
+            "+",
+            "-",
+            "e5",
+            ".e1",
+            "1e",
+            "1e+",
+            "1.e3",
+            ".5",
+            "5.",
+            "-0",
+            "+.5e-3",
+            "inf",
+            "-Infinity",
+            "nan",
+            "NaN",
+            "1_000",
+            "0x10",
+            "1e400",
+            "-1e-400",
+            "4.9e-324",
+            "1.7976931348623157e308",
+            "00012.50",
         ];
         if rng.random_ratio(1, 10) {
             return EDGE[rng.random_range(0..EDGE.len())].to_string();
@@ -218,7 +239,10 @@ mod tests {
             let want = s.parse::<f64>().ok();
             numbers += usize::from(want.is_some());
             let got = parse_number(s.as_bytes(), b'.');
-            assert!(same(got, want), "{s:?}: {got:?}, the standard library {want:?}");
+            assert!(
+                same(got, want),
+                "{s:?}: {got:?}, the standard library {want:?}"
+            );
             let comma = s.replace('.', ",");
             let want_comma = s.replace(',', ".").parse::<f64>().ok();
             let got_comma = parse_number(comma.as_bytes(), b',');

@@ -293,7 +293,7 @@ impl Rules {
             })
         };
         let text = rec.field(self.cols.idx[0]).trim_ascii();
-        let t = match self.parse_time(text, rec.line()) {
+        let t = match self.parse_time(text, rec.record_line()) {
             Ok(t) => t,
             Err(p) => {
                 return if rec.is_blank() {
@@ -351,7 +351,8 @@ impl Rules {
                 return reject(p, Some(t));
             }
             if rec.n_fields() > self.cols.header_fields
-                && (self.cols.header_fields..rec.n_fields()).any(|i| !rec.field(i).trim_ascii().is_empty())
+                && (self.cols.header_fields..rec.n_fields())
+                    .any(|i| !rec.field(i).trim_ascii().is_empty())
             {
                 return reject(Problem::Extra, Some(t));
             }
@@ -490,7 +491,7 @@ impl Rules {
         let one_hour = (dt + 3600.0).abs() <= DST_TOLERANCE_S
             || (self.prev_dt > 0.0 && (dt + 3600.0 - self.prev_dt).abs() <= DST_TOLERANCE_S);
         if one_hour && self.naive(rec) && plausible_change(t) {
-            self.dst_back = Some((self.prev_t, rec.line()));
+            self.dst_back = Some((self.prev_t, rec.record_line()));
             Dst::Starts
         } else {
             Dst::No
@@ -518,7 +519,7 @@ impl Rules {
             );
         }
         if rec.inner_lf() > 0 {
-            let (a, b) = (rec.line(), rec.line() + rec.inner_lf());
+            let (a, b) = (rec.record_line(), rec.record_line() + rec.inner_lf());
             m.push_str(&format!(
                 "; the record runs from line {a} to line {b}: is a quote not closed?"
             ));
@@ -572,7 +573,8 @@ impl Rules {
             Problem::Extra => {
                 let mut m = format!(
                     "the row has {} fields but the header has {}",
-                    rec.n_fields(), self.cols.header_fields
+                    rec.n_fields(),
+                    self.cols.header_fields
                 );
                 if self.delimiter == ',' && !decimal_comma {
                     m.push_str(

@@ -6,19 +6,19 @@
 //! The later passes over a scan are [`CsvScan::stream`] (in `stream.rs`) and
 //! [`CsvScan::load`] (in `memory.rs`).
 
+use super::block::{has_doubt, Layout, Parsed, PlainLine, BLOCK_BYTES};
 use super::defect::{
     merge_by_line, Defect, DefectAction, DefectCounts, DefectKind, MAX_DEFECTS_KEPT,
 };
+use super::errors::io_error;
 use super::errors::{file_error, read_error};
 use super::gaps::find_gaps;
-use super::interpolate::lerp;
 use super::header::{read_header, ColumnMatch, COLUMNS};
+use super::interpolate::lerp;
+use super::memory::MemoryProfile;
 use super::options::CsvOptions;
 use super::replay::{FileStamp, Plan};
 use super::rules::{self, Action, Fill, Rejection, Rules};
-use super::block::{has_doubt, Layout, Parsed, PlainLine, BLOCK_BYTES};
-use super::errors::io_error;
-use super::memory::MemoryProfile;
 use super::source::{CsvSource, RawInput, Record, RecordReader};
 use super::spacings::Spacings;
 use super::summary::{DefectSummary, Tally};
@@ -307,7 +307,9 @@ pub fn scan_source_with(
         _ => false,
     };
     let sha256 = if done {
-        hasher.map(|h| hex_lower(h.finalize().as_slice())).unwrap_or_default()
+        hasher
+            .map(|h| hex_lower(h.finalize().as_slice()))
+            .unwrap_or_default()
     } else {
         let mut rdr = RecordReader::resume(source, delimiter, offset, line, hasher)
             .map_err(|e| read_error(&name, e))?;
@@ -449,8 +451,7 @@ pub fn scan_source_with(
             samples,
             end_s,
             time_kind,
-            gap_interpolation_us: (policies[DefectKind::Gap.index()]
-                == DefectPolicy::Interpolate)
+            gap_interpolation_us: (policies[DefectKind::Gap.index()] == DefectPolicy::Interpolate)
                 .then_some(gap_threshold_us),
             source: name.clone(),
         })
@@ -506,8 +507,7 @@ impl KeptRows {
     fn push(&mut self, t: f64, s: &LoadSample) -> bool {
         self.times.push(t);
         self.samples.push(*s);
-        (self.times.len() as u64) * BYTES_PER_ROW + (self.filled.len() as u64) * 8
-            <= self.budget
+        (self.times.len() as u64) * BYTES_PER_ROW + (self.filled.len() as u64) * 8 <= self.budget
     }
 
     /// The rows with the values of interpolated rows filled in as the stream fills them:
@@ -622,7 +622,7 @@ impl Pass1 {
     /// Applies the rules and the policies to one record.
     fn record<R: Record>(&mut self, rec: &R, name: &Path) -> Result<(), ProfileError> {
         let verdict = self.rules.check(rec, &mut self.sample);
-        let line = rec.line();
+        let line = rec.record_line();
         match self.rules.decide(verdict) {
             Action::Good(t) => self.good(t, line),
             Action::Blank => self.n.blank += 1,
@@ -676,7 +676,7 @@ impl Pass1 {
     /// Counts a row defect, notes it in the tally and keeps it in full if there is room.
     fn defect<R: Record>(&mut self, rec: &R, r: &Rejection, action: DefectAction) {
         let kind = r.kind();
-        let line = rec.line();
+        let line = rec.record_line();
         self.counts.add(kind);
         if r.dst() == rules::Dst::Starts {
             self.tally.dst_line(line);
@@ -778,7 +778,10 @@ fn fast_pass(
                 } else {
                     let (a, b) = (r.start as usize, (r.start + r.len) as usize);
                     let unterminated = eof && b == block.len();
-                    st.record(&PlainLine::new(&block[a..b], lay.delimiter(), l, unterminated), name)?;
+                    st.record(
+                        &PlainLine::new(&block[a..b], lay.delimiter(), l, unterminated),
+                        name,
+                    )?;
                 }
             }
             lf_done += u64::from(*lf);

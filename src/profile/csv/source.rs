@@ -551,7 +551,7 @@ pub(super) trait Record {
     /// Field i (empty if there is no such field).
     fn field(&self, i: usize) -> &[u8];
     /// Line on which the record starts.
-    fn line(&self) -> u64;
+    fn record_line(&self) -> u64;
     /// True when the record ended at the end of the input with no line end.
     fn unterminated(&self) -> bool;
     /// Line feeds inside the record (in quoted fields), not counting its end.
@@ -572,7 +572,7 @@ impl Record for RecordReader {
         RecordReader::field(self, i)
     }
     #[inline]
-    fn line(&self) -> u64 {
+    fn record_line(&self) -> u64 {
         self.record_line
     }
     #[inline]

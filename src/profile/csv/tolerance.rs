@@ -73,7 +73,11 @@ mod tests {
         // Never before k + 1.
         assert_eq!(first_interval_reaching(0.0, 1.0, 7, 2.0), 8);
         // The same answer as stepping the grid one interval at a time.
-        for (t0, dt, t_next) in [(5.0, 0.3, 17.9), (1.7e9, 0.25, 1.7e9 + 3.0), (0.0, 0.7, 7.0)] {
+        for (t0, dt, t_next) in [
+            (5.0, 0.3, 17.9),
+            (1.7e9, 0.25, 1.7e9 + 3.0),
+            (0.0, 0.7, 7.0),
+        ] {
             let mut j = 1u64;
             loop {
                 let t = t0 + j as f64 * dt;
