@@ -128,7 +128,8 @@ pub const BYTES_PER_ROW: u64 = 56;
 /// them from there instead of the file) and whether it may parse on several threads.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct ScanSettings {
-    /// Keep the used rows while they take at most this many bytes
+    /// Keep the used rows while they take at most this many bytes (and not at all when the
+    /// first block of a file shows that the whole would need more than 1.25 times it)
     /// ([`BYTES_PER_ROW`] per row, plus 8 per held or interpolated row); beyond it, drop
     /// them and let runs stream the file, so that memory stays flat. 0 keeps nothing.
     /// Default [`DEFAULT_KEEP_BYTES`].
@@ -716,6 +717,12 @@ fn fast_pass(
     let name = source.name();
     let io = |e| io_error(name, e);
     let mut input = RawInput::open(source, *offset).map_err(io)?;
+    // The size of the source, when it is known before reading it.
+    let mut total_len = match source {
+        CsvSource::File(p) => std::fs::metadata(p).ok().map(|m| m.len()),
+        CsvSource::Bytes { data, .. } => Some(data.len() as u64),
+        CsvSource::Reader { .. } => None,
+    };
     let mut buf: Vec<u8> = Vec::new();
     let mut parsed = Parsed::default();
     let mut eof = false;
@@ -785,6 +792,24 @@ fn fast_pass(
                 }
             }
             lf_done += u64::from(*lf);
+        }
+        if let (Some(budget), Some(total)) = (st.kept.as_ref().map(|k| k.budget), total_len.take())
+        {
+            // After the first block: give up keeping at once when the whole source
+            // would clearly not fit, so that a long profile never fills the budget.
+            let rows: usize = parsed.pieces.iter().map(|p| p.0.len()).sum();
+            let estimate = rows as f64 * total as f64 / end.max(1) as f64;
+            if estimate * BYTES_PER_ROW as f64 > 1.25 * budget as f64 {
+                st.kept = None;
+            } else if let Some(k) = st.kept.as_mut() {
+                // Room for the estimate and a little more, so that the columns are not
+                // copied as they grow.
+                let want =
+                    ((estimate * 1.02) as usize + 16).min((k.budget / BYTES_PER_ROW) as usize + 1);
+                let more = want.saturating_sub(k.times.len());
+                k.times.reserve_exact(more);
+                k.samples.reserve_exact(more);
+            }
         }
         *line += lf_done;
         *offset += end as u64;
