@@ -750,49 +750,42 @@ fn fast_pass(
         if has_doubt(block) {
             return Ok(false);
         }
-        let clean = if threads > 1 {
-            let before = hasher.clone();
-            let (_, clean) = rayon::join(
-                || {
-                    if let Some(h) = hasher.as_mut() {
-                        h.update(block);
-                    }
-                },
-                || parsed.parse(block, lay, threads),
-            );
-            if !clean {
-                *hasher = before;
-            }
-            clean
-        } else {
-            let clean = parsed.parse(block, lay, 1);
-            if clean {
-                if let Some(h) = hasher.as_mut() {
-                    h.update(block);
-                }
-            }
-            clean
-        };
-        if !clean {
+        if !parsed.parse(block, lay, threads) {
             return Ok(false);
         }
-        let mut lf_done = 0u64;
-        for (rows, lf) in &parsed.pieces {
-            for r in rows {
-                let l = *line + lf_done + u64::from(r.lf_before);
-                if r.clean && st.rules.accepts_clean(r.t) {
-                    st.good_values(r.t, l, &r.v);
-                } else {
-                    let (a, b) = (r.start as usize, (r.start + r.len) as usize);
-                    let unterminated = eof && b == block.len();
-                    st.record(
-                        &PlainLine::new(&block[a..b], lay.delimiter(), l, unterminated),
-                        name,
-                    )?;
+        // The rules go through the rows in order on this thread while another hashes
+        // the block.
+        let apply = |st: &mut Pass1| -> Result<u64, ProfileError> {
+            let mut lf_done = 0u64;
+            for (rows, lf) in &parsed.pieces {
+                for r in rows {
+                    let l = *line + lf_done + u64::from(r.lf_before);
+                    if r.clean && st.rules.accepts_clean(r.t) {
+                        st.good_values(r.t, l, &r.v);
+                    } else {
+                        let (a, b) = (r.start as usize, (r.start + r.len) as usize);
+                        let unterminated = eof && b == block.len();
+                        st.record(
+                            &PlainLine::new(&block[a..b], lay.delimiter(), l, unterminated),
+                            name,
+                        )?;
+                    }
                 }
+                lf_done += u64::from(*lf);
             }
-            lf_done += u64::from(*lf);
-        }
+            Ok(lf_done)
+        };
+        let hash = |hasher: &mut Option<Sha256>| {
+            if let Some(h) = hasher.as_mut() {
+                h.update(block);
+            }
+        };
+        let lf_done = if threads > 1 {
+            rayon::join(|| hash(hasher), || apply(st)).1?
+        } else {
+            hash(hasher);
+            apply(st)?
+        };
         if let (Some(budget), Some(total)) = (st.kept.as_ref().map(|k| k.budget), total_len.take())
         {
             // After the first block: give up keeping at once when the whole source
