@@ -11,10 +11,21 @@
 //!    times `load` into memory and a pass of the memory cursor, and a scan of a shorter
 //!    ISO 8601 profile.
 //!
+//!    The scan is timed four ways: as `scan` does it (fast path, rows kept in memory,
+//!    parsing on every thread of rayon's pool), on one thread, on the pool without
+//!    keeping the rows, and through the record reader alone (the reading before the fast
+//!    path, as a reference).
+//! 3. The whole `simulate` command: the one-week profile with a scenario of six 50 kvar
+//!    steps on an infinite bus, run as a process of the release binary several times
+//!    (wall time), and in process split into preparing the study (reading the CSV) and
+//!    running the engine.
+//!
 //! Run with `cargo bench --bench csv_ingest` (about a minute and a half; set
-//! `CSV_INGEST_SKIP_LONG=1` to time part 2 only).
+//! `CSV_INGEST_SKIP_LONG=1` to time parts 2 and 3 only).
 
-use bankstep::profile::csv::{scan, scan_source, CsvOptions, CsvSource};
+use bankstep::profile::csv::{
+    scan, scan_source_with, CsvOptions, CsvSource, ScanSettings, BYTES_PER_ROW,
+};
 use bankstep::profile::{LoadSample, LoadSource};
 use std::io::{BufWriter, Read, Write};
 use std::path::Path;
@@ -168,7 +179,13 @@ fn memory_flat_as_length_doubles() -> Result<(), Box<dyn std::error::Error>> {
             Ok(Box::new(GenReader::new(rows)) as Box<dyn Read + Send>)
         });
         let t0 = Instant::now();
-        let sc = scan_source(&src, &opts)?;
+        // Rows are not kept, so that the run streams, as every profile beyond the
+        // memory budget does.
+        let streaming = ScanSettings {
+            keep_bytes: 0,
+            ..ScanSettings::default()
+        };
+        let sc = scan_source_with(&src, &opts, &streaming)?;
         let t_scan = t0.elapsed().as_secs_f64();
         assert_eq!(sc.rows_used, rows);
         let bytes = GENERATED_BYTES.load(std::sync::atomic::Ordering::Relaxed);
@@ -249,7 +266,60 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     }
     assert_eq!(sc.rows_used, ROWS);
     assert_eq!(sc.end_s, ROWS as f64);
-    report("scan", ROWS, &mut times);
+    report(
+        &format!("scan ({} threads)", rayon::current_num_threads()),
+        ROWS,
+        &mut times,
+    );
+    println!(
+        "  rows kept in memory: {} ({} bytes per row, {:.1} MB)",
+        sc.memory().map_or(0, |m| m.len()),
+        BYTES_PER_ROW,
+        sc.memory().map_or(0, |m| m.len()) as f64 * BYTES_PER_ROW as f64 / 1e6
+    );
+    let file = CsvSource::File(path.clone());
+    let variants = [
+        (
+            "scan, 1 thread",
+            ScanSettings {
+                threads: Some(1),
+                ..ScanSettings::default()
+            },
+        ),
+        (
+            "scan, not keeping rows",
+            ScanSettings {
+                keep_bytes: 0,
+                ..ScanSettings::default()
+            },
+        ),
+        (
+            "scan, 1 thread, not keeping",
+            ScanSettings {
+                keep_bytes: 0,
+                threads: Some(1),
+                ..ScanSettings::default()
+            },
+        ),
+        (
+            "scan, record reader only",
+            ScanSettings {
+                keep_bytes: 0,
+                threads: Some(1),
+                fast: false,
+            },
+        ),
+    ];
+    for (name, settings) in variants {
+        let mut times = Vec::new();
+        for _ in 0..REPS {
+            let t0 = Instant::now();
+            let s = std::hint::black_box(scan_source_with(&file, &opts, &settings)?);
+            times.push(t0.elapsed().as_secs_f64());
+            assert_eq!(s.sha256, sc.sha256);
+        }
+        report(name, ROWS, &mut times);
+    }
 
     let mut times = Vec::new();
     let mut checksum = 0.0;
@@ -305,5 +375,77 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         times.push(t0.elapsed().as_secs_f64());
     }
     report("scan, ISO 8601 times", iso_rows, &mut times);
+
+    simulate_week(dir.path(), &path)?;
+    Ok(())
+}
+
+/// Six 50 kvar steps on an infinite bus (no grid impedance, no transformer), over the
+/// one-week profile at Δt = 1 s.
+const WEEK_SCENARIO: &str = r#"
+[study]
+name = "One week at 1 s"
+
+[supply]
+nominal_voltage_v = 400
+frequency_hz = 50
+
+[[steps]]
+kvar = 50
+count = 6
+
+[controller]
+target_pf = "0.95 lag"
+switching_delay_s = 30
+discharge_time_s = 60
+
+[load]
+csv = "week_1s.csv"
+
+[run]
+time_step_s = 1
+start = "2026-03-02T00:00:00"
+"#;
+
+/// Times `bankstep simulate` on the one-week profile: the release binary as a process,
+/// and in process the preparation (reading the CSV) and the engine run apart.
+fn simulate_week(dir: &Path, csv: &Path) -> Result<(), Box<dyn std::error::Error>> {
+    let scenario = dir.join("week.toml");
+    std::fs::write(&scenario, WEEK_SCENARIO)?;
+    assert!(csv.starts_with(dir));
+    let exe = env!("CARGO_BIN_EXE_bankstep");
+    let json = dir.join("week.json");
+    let mut times = Vec::new();
+    for _ in 0..REPS {
+        let t0 = Instant::now();
+        let out = std::process::Command::new(exe)
+            .arg("simulate")
+            .arg(&scenario)
+            .arg("--quiet")
+            .arg("--json")
+            .arg(&json)
+            .output()?;
+        times.push(t0.elapsed().as_secs_f64());
+        if !out.status.success() {
+            return Err(
+                format!("simulate failed: {}", String::from_utf8_lossy(&out.stderr)).into(),
+            );
+        }
+    }
+    report("simulate, whole process", ROWS, &mut times);
+
+    let sc = bankstep::scenario::Scenario::from_file(&scenario)?;
+    let (mut prep, mut run) = (Vec::new(), Vec::new());
+    for _ in 0..REPS {
+        let t0 = Instant::now();
+        let study = bankstep::study::Study::prepare(sc.clone())?;
+        prep.push(t0.elapsed().as_secs_f64());
+        let t1 = Instant::now();
+        let r = study.run(&mut bankstep::engine::Quiet)?;
+        run.push(t1.elapsed().as_secs_f64());
+        std::hint::black_box(r);
+    }
+    report("  of which: prepare (CSV)", ROWS, &mut prep);
+    report("  of which: engine run", ROWS, &mut run);
     Ok(())
 }

@@ -13,7 +13,7 @@
 use crate::engine::{self, Observer, RunResult};
 use crate::error::{ProfileError, RunError};
 use crate::harmonics::HarmonicModel;
-use crate::profile::csv::{self, CsvScan, CsvStream};
+use crate::profile::csv::{self, CsvScan, CsvStream, MemoryProfile, SharedCursor};
 use crate::profile::synthetic::SyntheticProfile;
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::{BillingWindows, LoadSpec, Scenario};
@@ -30,10 +30,18 @@ pub const MAX_INTERVALS: f64 = 1e10;
 pub const SHORT_RUN_S: f64 = 30.0 * DAY_S;
 
 /// A load profile made ready for runs: scanned and hashed once, shared by every run.
+///
+/// A CSV profile whose rows fit in the scan's memory budget
+/// ([`csv::DEFAULT_KEEP_BYTES`], [`csv::BYTES_PER_ROW`] per row) is read once: the scan
+/// keeps its rows, and every run reads them from memory. A longer one is streamed from
+/// the file by each run, with memory flat in its length.
 #[derive(Debug, Clone)]
 pub struct PreparedProfile {
     /// The CSV scan, for a CSV profile; `None` for the synthetic generator.
     pub csv: Option<Arc<CsvScan>>,
+    /// The CSV profile's rows in memory, when the scan kept them; runs then read them
+    /// instead of streaming the file. `None` for a synthetic profile or a long CSV one.
+    pub memory: Option<Arc<MemoryProfile>>,
     /// SHA-256 of the CSV profile file, lowercase hex (none for a synthetic profile).
     pub sha256: Option<String>,
     /// Time of the first sample in the profile's own time base, s (0 for synthetic).
@@ -57,11 +65,13 @@ impl PreparedProfile {
                     available_s: Some(scan.end_s - scan.t_first_s),
                     calendar: scan.calendar(scenario.start),
                     sha256: Some(scan.sha256.clone()),
+                    memory: scan.memory().cloned(),
                     csv: Some(Arc::new(scan)),
                 })
             }
             LoadSpec::Synthetic(_) => Ok(PreparedProfile {
                 csv: None,
+                memory: None,
                 sha256: None,
                 t_first_s: 0.0,
                 available_s: None,
@@ -111,6 +121,8 @@ impl RunPlan {
 pub enum Source {
     /// Streaming CSV.
     Csv(Box<CsvStream>),
+    /// A CSV profile held in memory by its scan.
+    Memory(Box<SharedCursor>),
     /// Synthetic generator.
     Synthetic(Box<SyntheticProfile>),
 }
@@ -120,6 +132,7 @@ impl LoadSource for Source {
     fn sample(&mut self, k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
         match self {
             Source::Csv(s) => s.sample(k, t_s, out),
+            Source::Memory(s) => s.sample(k, t_s, out),
             Source::Synthetic(s) => s.sample(k, t_s, out),
         }
     }
@@ -128,6 +141,7 @@ impl LoadSource for Source {
     fn unchanged_until(&self, k: u64) -> u64 {
         match self {
             Source::Csv(s) => s.unchanged_until(k),
+            Source::Memory(s) => s.unchanged_until(k),
             Source::Synthetic(s) => s.unchanged_until(k),
         }
     }
@@ -181,21 +195,21 @@ impl Study {
         self.profile.csv.as_deref()
     }
 
-    /// A fresh load source positioned at the start of the run.
+    /// A fresh load source positioned at the start of the run, on the run's grid: the
+    /// rows in memory when the scan kept them, else a stream over the file.
     pub fn source(&self) -> Result<Source, RunError> {
-        match (&self.scenario.load, &self.profile.csv) {
-            (LoadSpec::Csv { .. }, Some(scan)) => Ok(Source::Csv(Box::new(scan.stream()?))),
-            (LoadSpec::Synthetic(cfg), _) => {
-                let p = &self.plan;
-                Ok(Source::Synthetic(Box::new(SyntheticProfile::new(
-                    cfg,
-                    self.scenario.seed,
-                    p.calendar,
-                    p.t_first_s,
-                    p.dt_s,
-                ))))
-            }
-            (LoadSpec::Csv { .. }, None) => {
+        let p = &self.plan;
+        match (&self.scenario.load, &self.profile.csv, &self.profile.memory) {
+            (LoadSpec::Csv { .. }, Some(_), Some(m)) => Ok(Source::Memory(Box::new(
+                m.shared_cursor().on_grid(p.t_first_s, p.dt_s),
+            ))),
+            (LoadSpec::Csv { .. }, Some(scan), None) => Ok(Source::Csv(Box::new(
+                scan.stream()?.on_grid(p.t_first_s, p.dt_s),
+            ))),
+            (LoadSpec::Synthetic(cfg), _, _) => Ok(Source::Synthetic(Box::new(
+                SyntheticProfile::new(cfg, self.scenario.seed, p.calendar, p.t_first_s, p.dt_s),
+            ))),
+            (LoadSpec::Csv { .. }, None, _) => {
                 Err(RunError::Config("the CSV profile was not scanned".into()))
             }
         }

@@ -1,22 +1,46 @@
-//! A whole profile in memory ([`MemoryProfile`], made by [`CsvScan::load`] or from
-//! parts), for many runs over one profile, and its sample-and-hold cursor
-//! ([`MemoryCursor`]), which may also go back in time.
+//! A whole profile in memory ([`MemoryProfile`], kept by the scan when it fits in its
+//! budget, made by [`CsvScan::load`] or from parts), for many runs over one profile, and
+//! its sample-and-hold cursors: [`MemoryCursor`] borrows the profile, [`SharedCursor`]
+//! shares it through an `Arc` (the source of a study's runs); both may also go back in
+//! time, and on a known grid they say how long a sample stays unchanged.
 
 use super::errors::file_error;
 use super::interpolate::lerp;
 use super::replay::AcceptedRows;
 use super::scan::CsvScan;
 use super::text::fmt_time;
+use super::tolerance::first_interval_reaching;
 use super::tolerance::{is_gap, time_tolerance};
 use crate::error::ProfileError;
 use crate::profile::{LoadSample, LoadSource};
 use crate::timebase::TimeKind;
 use std::path::PathBuf;
+use std::sync::Arc;
 
 impl CsvScan {
+    /// The used rows as the scan kept them in memory, when they fitted in its budget
+    /// ([`ScanSettings::keep_bytes`](super::ScanSettings)); `None` when the scan kept
+    /// nothing, and runs stream the file.
+    pub fn memory(&self) -> Option<&Arc<MemoryProfile>> {
+        self.memory.0.as_ref()
+    }
+
+    /// The whole profile in memory, shared: the rows the scan kept, or else read again
+    /// from the source ([`CsvScan::load`]).
+    pub fn load_shared(&self) -> Result<Arc<MemoryProfile>, ProfileError> {
+        match self.memory() {
+            Some(m) => Ok(Arc::clone(m)),
+            None => self.load().map(Arc::new),
+        }
+    }
+
     /// Reads the whole profile into memory (the used rows only), for many runs over one
-    /// profile. Memory: 56 bytes per used row.
+    /// profile: a copy of the rows the scan kept, or else read again from the source.
+    /// Memory: 56 bytes per used row.
     pub fn load(&self) -> Result<MemoryProfile, ProfileError> {
+        if let Some(m) = self.memory() {
+            return Ok(MemoryProfile::clone(m));
+        }
         let mut rows = AcceptedRows::open(&self.plan, false, true)?;
         let n = usize::try_from(self.rows_used).unwrap_or(usize::MAX);
         let mut times = Vec::with_capacity(n);
@@ -130,7 +154,15 @@ impl MemoryProfile {
     pub fn cursor(&self) -> MemoryCursor<'_> {
         MemoryCursor {
             profile: self,
-            idx: 0,
+            at: At::default(),
+        }
+    }
+
+    /// A sample-and-hold source sharing this profile, for a run that must own its source.
+    pub fn shared_cursor(self: &Arc<Self>) -> SharedCursor {
+        SharedCursor {
+            profile: Arc::clone(self),
+            at: At::default(),
         }
     }
 
@@ -159,29 +191,31 @@ impl MemoryProfile {
     }
 }
 
-/// Sample-and-hold over a [`MemoryProfile`]. Moving forward costs O(1) amortised per
-/// row passed (a short linear walk, then a binary search for long jumps); asking for an
-/// earlier time than the last is allowed and costs a binary search.
-#[derive(Debug, Clone)]
-pub struct MemoryCursor<'a> {
-    profile: &'a MemoryProfile,
+/// Where a cursor stands: the row in force, and the grid it is asked on when known.
+#[derive(Debug, Clone, Copy, Default)]
+struct At {
     idx: usize,
+    /// The run's grid (first time, Δt), s, for [`LoadSource::unchanged_until`].
+    grid: Option<(f64, f64)>,
 }
 
-impl LoadSource for MemoryCursor<'_> {
-    fn sample(&mut self, _k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
-        let p = self.profile;
-        let times = &p.times;
+impl MemoryProfile {
+    /// Sample-and-hold at `t_s` from the row at `at.idx`. Moving forward costs O(1)
+    /// amortised per row passed (a short linear walk, then a binary search for long
+    /// jumps); going back costs a binary search.
+    #[inline]
+    fn sample_at(&self, at: &mut At, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
+        let times = &self.times;
         let tq = t_s + time_tolerance(t_s);
         let first = match times.first() {
             Some(&f) => f,
-            None => return Err(p.coverage_error(t_s)),
+            None => return Err(self.coverage_error(t_s)),
         };
-        if !(tq >= first && tq < p.end_s) {
-            return Err(p.coverage_error(t_s));
+        if !(tq >= first && tq < self.end_s) {
+            return Err(self.coverage_error(t_s));
         }
         let n = times.len();
-        let mut idx = self.idx.min(n - 1);
+        let mut idx = at.idx.min(n - 1);
         if times[idx] > tq {
             // Going back: search the whole profile.
             idx = times.partition_point(|&x| x <= tq).saturating_sub(1);
@@ -197,25 +231,112 @@ impl LoadSource for MemoryCursor<'_> {
                 }
             }
         }
-        self.idx = idx;
-        let (Some(s), Some(&ta)) = (p.samples.get(idx), times.get(idx)) else {
+        at.idx = idx;
+        let (Some(s), Some(&ta)) = (self.samples.get(idx), times.get(idx)) else {
             return Err(file_error(
-                &p.source,
+                &self.source,
                 format!(
                     "the profile has {} times but only {} samples",
                     n,
-                    p.samples.len()
+                    self.samples.len()
                 ),
             ));
         };
         *out = *s;
-        if let Some(thr) = p.gap_interpolation_us {
-            if let (Some(&tb), Some(b)) = (times.get(idx + 1), p.samples.get(idx + 1)) {
+        if let Some(thr) = self.gap_interpolation_us {
+            if let (Some(&tb), Some(b)) = (times.get(idx + 1), self.samples.get(idx + 1)) {
                 if is_gap(tb - ta, thr) {
                     *out = lerp(s, ta, b, tb, t_s);
                 }
             }
         }
         Ok(())
+    }
+
+    /// After sampling interval k from the row at `at.idx`: the first interval whose
+    /// sample may differ (the next row, or the end of coverage), on the cursor's grid.
+    fn next_change(&self, at: &At, k: u64) -> u64 {
+        let Some((t0, dt)) = at.grid else {
+            return k + 1;
+        };
+        let (Some(&ta), next) = (self.times.get(at.idx), self.times.get(at.idx + 1)) else {
+            return k + 1;
+        };
+        let t_next = match next {
+            Some(&tb) => {
+                if self
+                    .gap_interpolation_us
+                    .is_some_and(|thr| is_gap(tb - ta, thr))
+                {
+                    // Interpolated across a gap: every interval differs.
+                    return k + 1;
+                }
+                tb
+            }
+            None => self.end_s,
+        };
+        first_interval_reaching(t0, dt, k, t_next)
+    }
+}
+
+/// Sample-and-hold over a borrowed [`MemoryProfile`]. Moving forward costs O(1)
+/// amortised per row passed; asking for an earlier time than the last is allowed and
+/// costs a binary search.
+#[derive(Debug, Clone)]
+pub struct MemoryCursor<'a> {
+    profile: &'a MemoryProfile,
+    at: At,
+}
+
+impl MemoryCursor<'_> {
+    /// Tells the cursor the run's grid t_k = `t_first_s` + k·`dt_s` (s), so that
+    /// [`LoadSource::unchanged_until`] can promise the intervals until the next row.
+    pub fn on_grid(mut self, t_first_s: f64, dt_s: f64) -> Self {
+        self.at.grid = Some((t_first_s, dt_s));
+        self
+    }
+}
+
+impl LoadSource for MemoryCursor<'_> {
+    #[inline]
+    fn sample(&mut self, _k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
+        self.profile.sample_at(&mut self.at, t_s, out)
+    }
+
+    fn unchanged_until(&self, k: u64) -> u64 {
+        self.profile.next_change(&self.at, k)
+    }
+}
+
+/// Sample-and-hold over a [`MemoryProfile`] shared through an `Arc`: the same as
+/// [`MemoryCursor`], for a source that must own what it reads (a study's runs).
+#[derive(Debug, Clone)]
+pub struct SharedCursor {
+    profile: Arc<MemoryProfile>,
+    at: At,
+}
+
+impl SharedCursor {
+    /// Tells the cursor the run's grid t_k = `t_first_s` + k·`dt_s` (s), so that
+    /// [`LoadSource::unchanged_until`] can promise the intervals until the next row.
+    pub fn on_grid(mut self, t_first_s: f64, dt_s: f64) -> Self {
+        self.at.grid = Some((t_first_s, dt_s));
+        self
+    }
+
+    /// The profile read.
+    pub fn profile(&self) -> &Arc<MemoryProfile> {
+        &self.profile
+    }
+}
+
+impl LoadSource for SharedCursor {
+    #[inline]
+    fn sample(&mut self, _k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
+        self.profile.sample_at(&mut self.at, t_s, out)
+    }
+
+    fn unchanged_until(&self, k: u64) -> u64 {
+        self.profile.next_change(&self.at, k)
     }
 }

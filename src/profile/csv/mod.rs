@@ -11,21 +11,30 @@
 //!   ([`DefectAction`]), a reported [`Defect`] and exact [`DefectCounts`];
 //! - `header.rs`: the required [`COLUMNS`], found by base name, with or without a unit
 //!   (`p_a_kw`, `P_a [kW]`, `p_a_kw (kW)`), a contradicting unit being an error;
-//! - `number.rs`: numbers with a decimal point or a decimal comma;
+//! - `number.rs`: numbers with a decimal point or a decimal comma, parsed from the bytes
+//!   (plain numbers by Clinger's fast path, others by `fast-float2`, the rare rest by
+//!   the standard library);
 //! - `rules.rs`: the row rules: what makes a row defective, by [`DefectKind`], and what
 //!   each kind's policy does with it: stop, skip, hold or interpolate;
 //! - `scan.rs`: pass 1, [`scan`]: validates the whole source and collects its statistics
 //!   (time kind, row counts, median spacing, coverage end, defects with line numbers,
-//!   gaps, the [`DefectSummary`], the SHA-256 of the bytes) in [`CsvScan`], with memory
-//!   that stays flat however long the file; `spacings.rs` keeps the spacing histogram
-//!   and `gaps.rs` finds the gaps once the median is known;
+//!   gaps, the [`DefectSummary`], the SHA-256 of the bytes) in [`CsvScan`]; it keeps the
+//!   used rows as a [`MemoryProfile`] while they fit in its budget ([`ScanSettings`],
+//!   [`DEFAULT_KEEP_BYTES`], [`BYTES_PER_ROW`]), so that a run need not read the file
+//!   again, and beyond it gives them up, so that memory stays flat however long the
+//!   file; `spacings.rs` keeps the spacing histogram and `gaps.rs` finds the gaps once
+//!   the median is known;
+//! - `block.rs`: the scan's fast path: plain text read in blocks of whole lines, the
+//!   numbers of each block parsed in pieces on rayon's threads, then the row rules
+//!   applied in file order; a quote, a lone carriage return or an overlong line sends
+//!   the scan back to the record reader from the start of that block;
 //! - `replay.rs`: reading the used rows again exactly as the scan did;
 //! - `stream.rs`: pass 2, [`CsvScan::stream`]: reads the source again and yields samples
 //!   on the simulation grid by sample-and-hold, applying the same rules so that it uses
 //!   exactly the rows pass 1 used;
 //! - `memory.rs`: [`CsvScan::load`] and [`MemoryProfile`]: the whole profile in memory,
-//!   for many runs over one profile, with a [`MemoryCursor`] that does the same
-//!   sample-and-hold;
+//!   for many runs over one profile, with a [`MemoryCursor`] (borrowing) or a
+//!   [`SharedCursor`] (through an `Arc`) that does the same sample-and-hold;
 //! - `tolerance.rs`, `interpolate.rs`, `text.rs`, `errors.rs`, `summary.rs`: time
 //!   tolerances, linear interpolation, message text, error wording, and the defect
 //!   summary for the reports.
@@ -55,6 +64,7 @@
 //! in length and width, the spacing histogram is capped in size, and at most
 //! [`MAX_DEFECTS_KEPT`] defects are kept in full.
 
+mod block;
 mod defect;
 mod errors;
 mod gaps;
@@ -77,10 +87,13 @@ mod tolerance;
 
 pub use defect::{Defect, DefectAction, DefectCounts, DefectKind, MAX_DEFECTS_KEPT};
 pub use header::{ColumnMatch, COLUMNS};
-pub use memory::{MemoryCursor, MemoryProfile};
+pub use memory::{MemoryCursor, MemoryProfile, SharedCursor};
 pub use options::{CsvOptions, OptionError};
 pub use rules::{MAX_ELAPSED_S, MAX_POWER};
-pub use scan::{scan, scan_bytes, scan_source, CsvScan};
+pub use scan::{
+    scan, scan_bytes, scan_source, scan_source_with, CsvScan, ScanSettings, BYTES_PER_ROW,
+    DEFAULT_KEEP_BYTES,
+};
 pub use source::{CsvSource, OpenFn, MAX_FIELDS, MAX_RECORD_BYTES};
 pub use stream::CsvStream;
 pub use summary::{DefectSummary, KindSummary, FIRST_LINES_KEPT};

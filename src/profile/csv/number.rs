@@ -1,12 +1,100 @@
 //! Numbers as a profile writes them: with a decimal point, or with a decimal comma (in
 //! which case a point is refused, since it would be a thousands separator or a mix-up).
+//!
+//! The bytes are parsed as they stand, with no UTF-8 check, by `fast-float2` (the
+//! Eisel-Lemire algorithm, correctly rounded). The Rust standard library's
+//! `str::parse::<f64>` is the reference: a number `fast-float2` finds finite is taken as
+//! it is (the tests check the two agree on many random decimal strings), and the rare
+//! other outcomes (no number, NaN, an infinity) are settled by the standard library, so
+//! what counts as a number and what is refused cannot differ from it.
 
 /// Longest number copied for decimal-comma conversion, bytes; longer ones are malformed.
 const MAX_NUMBER_BYTES: usize = 64;
 
+/// Powers of ten exactly representable as f64 (10^0 to 10^22).
+const POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// The plain numbers loggers write, `[+-]digits[.digits]` with at most 15 digits in all,
+/// read from the start of `bytes`: the value and the bytes it took, or `None` for
+/// anything else (which then goes to the full parser). The digits make an integer w below
+/// 2^53 and the result is w / 10^f with f ≤ 22 digits after the point: both are exact in
+/// an f64 and IEEE 754 division rounds correctly, so this is the correctly rounded value
+/// (Clinger's fast path, W. D. Clinger, "How to read floating point numbers accurately",
+/// PLDI 1990), the same as the standard library gives.
+#[inline(always)]
+pub(super) fn parse_plain_prefix(bytes: &[u8]) -> Option<(f64, usize)> {
+    let mut i = 0;
+    let neg = match bytes.first() {
+        Some(b'-') => {
+            i = 1;
+            true
+        }
+        Some(b'+') => {
+            i = 1;
+            false
+        }
+        _ => false,
+    };
+    let mut w: u64 = 0;
+    let mut digits = 0usize;
+    while let Some(&b) = bytes.get(i) {
+        let d = b.wrapping_sub(b'0');
+        if d > 9 {
+            break;
+        }
+        w = w * 10 + u64::from(d);
+        digits += 1;
+        i += 1;
+        if digits > 15 {
+            return None;
+        }
+    }
+    let mut frac = 0usize;
+    if bytes.get(i) == Some(&b'.') {
+        i += 1;
+        while let Some(&b) = bytes.get(i) {
+            let d = b.wrapping_sub(b'0');
+            if d > 9 {
+                break;
+            }
+            w = w * 10 + u64::from(d);
+            digits += 1;
+            frac += 1;
+            i += 1;
+            if digits > 15 {
+                return None;
+            }
+        }
+    }
+    if digits == 0 || matches!(bytes.get(i), Some(b'e' | b'E')) {
+        return None;
+    }
+    // 15 digits keep w below 10^15 < 2^53, and f ≤ 15 ≤ 22.
+    let v = w as f64 / POW10[frac];
+    Some((if neg { -v } else { v }, i))
+}
+
 /// Parses a number written with a point as the decimal mark.
 #[inline]
 pub(super) fn parse_f64(bytes: &[u8]) -> Option<f64> {
+    if let Some((v, n)) = parse_plain_prefix(bytes) {
+        if n == bytes.len() {
+            return Some(v);
+        }
+    }
+    match fast_float2::parse::<f64, _>(bytes) {
+        Ok(v) if v.is_finite() => Some(v),
+        _ => parse_f64_std(bytes),
+    }
+}
+
+/// The standard library's reading of `bytes`, kept out of line: it settles the rare
+/// numbers that are not finite or not numbers at all.
+#[inline(never)]
+fn parse_f64_std(bytes: &[u8]) -> Option<f64> {
     std::str::from_utf8(bytes).ok()?.parse::<f64>().ok()
 }
 
@@ -48,5 +136,122 @@ mod tests {
         assert_eq!(parse_number(b"1.234,5", b','), None);
         assert_eq!(parse_number(&[b'1'; 65], b','), None);
         assert!(parse_number(b"NaN", b',').is_some_and(f64::is_nan));
+    }
+
+    /// A random decimal string: sign, digits, point, exponent, and now and then a stray
+    /// character, a space or an edge case, so that some strings are not numbers.
+    fn random_number(rng: &mut impl rand::Rng) -> String {
+        const EDGE: [&str; 24] = [
+            "",
+            ".",
+            "+",
+            "-",
+            "e5",
+            ".e1",
+            "1e",
+            "1e+",
+            "1.e3",
+            ".5",
+            "5.",
+            "-0",
+            "+.5e-3",
+            "inf",
+            "-Infinity",
+            "nan",
+            "NaN",
+            "1_000",
+            "0x10",
+            "1e400",
+            "-1e-400",
+            "4.9e-324",
+            "1.7976931348623157e308",
+            "00012.50",
+        ];
+        if rng.random_ratio(1, 10) {
+            return EDGE[rng.random_range(0..EDGE.len())].to_string();
+        }
+        let mut s = String::new();
+        match rng.random_range(0..4) {
+            0 => s.push('-'),
+            1 => s.push('+'),
+            _ => {}
+        }
+        for _ in 0..rng.random_range(0..=20) {
+            s.push(char::from(b'0' + rng.random_range(0..10u8)));
+        }
+        if rng.random_bool(0.7) {
+            s.push('.');
+            for _ in 0..rng.random_range(0..=20) {
+                s.push(char::from(b'0' + rng.random_range(0..10u8)));
+            }
+        }
+        if rng.random_bool(0.3) {
+            s.push(if rng.random_bool(0.5) { 'e' } else { 'E' });
+            match rng.random_range(0..3) {
+                0 => s.push('-'),
+                1 => s.push('+'),
+                _ => {}
+            }
+            for _ in 0..rng.random_range(0..=3) {
+                s.push(char::from(b'0' + rng.random_range(0..10u8)));
+            }
+        }
+        if rng.random_ratio(1, 20) {
+            let junk = [' ', 'x', ',', '.', 'e', '-', '\u{e9}'];
+            let at = rng.random_range(0..=s.len());
+            if s.is_char_boundary(at) {
+                s.insert(at, junk[rng.random_range(0..junk.len())]);
+            }
+        }
+        s
+    }
+
+    fn same(a: Option<f64>, b: Option<f64>) -> bool {
+        match (a, b) {
+            (Some(x), Some(y)) => x.to_bits() == y.to_bits() || (x.is_nan() && y.is_nan()),
+            (None, None) => true,
+            _ => false,
+        }
+    }
+
+    #[test]
+    fn plain_prefixes() {
+        assert_eq!(parse_plain_prefix(b"1234.567,8"), Some((1234.567, 8)));
+        assert_eq!(parse_plain_prefix(b"-0.25"), Some((-0.25, 5)));
+        assert_eq!(parse_plain_prefix(b"+.5;"), Some((0.5, 3)));
+        assert_eq!(parse_plain_prefix(b"7."), Some((7.0, 2)));
+        assert!(parse_plain_prefix(b"-0").is_some_and(|(v, _)| v == 0.0 && v.is_sign_negative()));
+        assert_eq!(parse_plain_prefix(b"."), None);
+        assert_eq!(parse_plain_prefix(b"1e3"), None);
+        assert_eq!(parse_plain_prefix(b"1234567890123456"), None);
+    }
+
+    #[test]
+    fn reads_every_number_as_the_standard_library_does() {
+        // Reference: the Rust standard library's `str::parse::<f64>` (correctly rounded,
+        // IEEE 754 round-to-nearest-even), on the same text; with a decimal comma, on the
+        // text with the comma turned into a point (and nothing when a point is present).
+        use rand::SeedableRng;
+        let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(0x5eed_f10a7);
+        let mut numbers = 0;
+        for _ in 0..200_000 {
+            let s = random_number(&mut rng);
+            let want = s.parse::<f64>().ok();
+            numbers += usize::from(want.is_some());
+            let got = parse_number(s.as_bytes(), b'.');
+            assert!(
+                same(got, want),
+                "{s:?}: {got:?}, the standard library {want:?}"
+            );
+            let comma = s.replace('.', ",");
+            let want_comma = s.replace(',', ".").parse::<f64>().ok();
+            let got_comma = parse_number(comma.as_bytes(), b',');
+            assert!(
+                same(got_comma, want_comma),
+                "{comma:?} with a decimal comma: {got_comma:?}, the standard library {want_comma:?}"
+            );
+        }
+        // Most strings are numbers, and some are not.
+        assert!(numbers > 150_000 && numbers < 200_000, "{numbers}");
     }
 }

@@ -8,7 +8,7 @@ use super::defect::DefectKind;
 use super::header::{Columns, COLUMNS};
 use super::number::{parse_f64, parse_number};
 use super::options::delimiter_name;
-use super::source::RecordReader;
+use super::source::Record;
 use super::text::{fmt_secs, quoted};
 use super::tolerance::time_tolerance;
 use crate::profile::{DefectPolicy, LoadSample};
@@ -267,14 +267,14 @@ impl Rules {
     /// changes only through [`Rules::commit`], apart from the time kind (set by the first
     /// readable time) and the note of a daylight-saving change.
     #[inline]
-    pub(super) fn check(&mut self, rec: &RecordReader, out: &mut LoadSample) -> Verdict {
-        let short = rec.len < self.cols.min_fields;
+    pub(super) fn check<R: Record>(&mut self, rec: &R, out: &mut LoadSample) -> Verdict {
+        let short = rec.n_fields() < self.cols.min_fields;
         if short && rec.is_blank() {
             return Verdict::Blank;
         }
         // A record that ends without a line end is a truncated last line only when it is
         // one physical line; one over several lines is an unclosed quote, which is worse.
-        let truncated = rec.unterminated && rec.inner_lf == 0;
+        let truncated = rec.unterminated() && rec.inner_lf() == 0;
         let reject = |problem, fill_t| {
             Verdict::Reject(Rejection {
                 problem,
@@ -293,7 +293,7 @@ impl Rules {
             })
         };
         let text = rec.field(self.cols.idx[0]).trim_ascii();
-        let t = match self.parse_time(text, rec.record_line) {
+        let t = match self.parse_time(text, rec.record_line()) {
             Ok(t) => t,
             Err(p) => {
                 return if rec.is_blank() {
@@ -350,8 +350,9 @@ impl Rules {
             if let Err(p) = self.read_values(rec, out) {
                 return reject(p, Some(t));
             }
-            if rec.len > self.cols.header_fields
-                && (self.cols.header_fields..rec.len).any(|i| !rec.field(i).trim_ascii().is_empty())
+            if rec.n_fields() > self.cols.header_fields
+                && (self.cols.header_fields..rec.n_fields())
+                    .any(|i| !rec.field(i).trim_ascii().is_empty())
             {
                 return reject(Problem::Extra, Some(t));
             }
@@ -359,9 +360,20 @@ impl Rules {
         Verdict::Accept(t)
     }
 
+    /// True when [`Rules::check`] would accept a row whose fields all read cleanly (enough
+    /// fields, nothing beyond the header, an elapsed time `t` within range and six finite
+    /// values within range): the file's times are elapsed seconds and `t` is after the
+    /// previous used row's by more than the tolerance.
+    #[inline]
+    pub(super) fn accepts_clean(&self, t: f64) -> bool {
+        self.kind == Some(TimeKind::Elapsed)
+            && !self.time_only
+            && (!self.has_prev || t - self.prev_t > time_tolerance(t))
+    }
+
     /// Reads the six values of the current record into `out`.
     #[inline]
-    fn read_values(&self, rec: &RecordReader, out: &mut LoadSample) -> Result<(), Problem> {
+    fn read_values<R: Record>(&self, rec: &R, out: &mut LoadSample) -> Result<(), Problem> {
         for c in 1..7 {
             let v = match parse_number(rec.field(self.cols.idx[c]).trim_ascii(), self.decimal) {
                 Some(v) if v.abs() <= MAX_POWER => v,
@@ -466,20 +478,20 @@ impl Rules {
     }
 
     /// True when the current record's time is an ISO 8601 date-time without an offset.
-    pub(super) fn naive(&self, rec: &RecordReader) -> bool {
+    pub(super) fn naive<R: Record>(&self, rec: &R) -> bool {
         self.kind == Some(TimeKind::Absolute)
             && !has_offset(rec.field(self.cols.idx[0]).trim_ascii())
     }
 
     /// Is a backwards time at `t`, `dt` s before the previous row, part of a repeated hour?
-    fn backwards_dst(&mut self, rec: &RecordReader, t: f64, dt: f64) -> Dst {
+    fn backwards_dst<R: Record>(&mut self, rec: &R, t: f64, dt: f64) -> Dst {
         if let Dst::Within(l) = self.within_dst(t) {
             return Dst::Within(l);
         }
         let one_hour = (dt + 3600.0).abs() <= DST_TOLERANCE_S
             || (self.prev_dt > 0.0 && (dt + 3600.0 - self.prev_dt).abs() <= DST_TOLERANCE_S);
         if one_hour && self.naive(rec) && plausible_change(t) {
-            self.dst_back = Some((self.prev_t, rec.record_line));
+            self.dst_back = Some((self.prev_t, rec.record_line()));
             Dst::Starts
         } else {
             Dst::No
@@ -498,7 +510,7 @@ impl Rules {
     }
 
     /// The message for a rejected row (the record must still be the current one).
-    pub(super) fn describe(&self, rec: &RecordReader, r: &Rejection) -> String {
+    pub(super) fn describe<R: Record>(&self, rec: &R, r: &Rejection) -> String {
         let mut m = self.describe_problem(rec, &r.problem);
         if r.truncated {
             m = format!(
@@ -506,8 +518,8 @@ impl Rules {
                  the logger was writing?): {m}"
             );
         }
-        if rec.inner_lf > 0 {
-            let (a, b) = (rec.record_line, rec.record_line + rec.inner_lf);
+        if rec.inner_lf() > 0 {
+            let (a, b) = (rec.record_line(), rec.record_line() + rec.inner_lf());
             m.push_str(&format!(
                 "; the record runs from line {a} to line {b}: is a quote not closed?"
             ));
@@ -538,7 +550,7 @@ impl Rules {
         m
     }
 
-    fn describe_problem(&self, rec: &RecordReader, p: &Problem) -> String {
+    fn describe_problem<R: Record>(&self, rec: &R, p: &Problem) -> String {
         let time_text = || quoted(rec.field(self.cols.idx[0]).trim_ascii());
         let decimal_comma = self.decimal == b',';
         match *p {
@@ -546,13 +558,13 @@ impl Rules {
                 let missing: Vec<&str> = COLUMNS
                     .iter()
                     .zip(self.cols.idx)
-                    .filter(|(_, i)| *i >= rec.len)
+                    .filter(|(_, i)| *i >= rec.n_fields())
                     .map(|(n, _)| *n)
                     .collect();
                 format!(
                     "the row has {} field{} but the header has {}, so {} {} missing",
-                    rec.len,
-                    if rec.len == 1 { "" } else { "s" },
+                    rec.n_fields(),
+                    if rec.n_fields() == 1 { "" } else { "s" },
                     self.cols.header_fields,
                     missing.join(", "),
                     if missing.len() == 1 { "is" } else { "are" }
@@ -561,7 +573,8 @@ impl Rules {
             Problem::Extra => {
                 let mut m = format!(
                     "the row has {} fields but the header has {}",
-                    rec.len, self.cols.header_fields
+                    rec.n_fields(),
+                    self.cols.header_fields
                 );
                 if self.delimiter == ',' && !decimal_comma {
                     m.push_str(
@@ -672,7 +685,7 @@ impl Rules {
     }
 
     /// The row's time as the messages show it.
-    fn time_for_message(&self, rec: &RecordReader) -> String {
+    fn time_for_message<R: Record>(&self, rec: &R) -> String {
         match self.kind {
             Some(TimeKind::Absolute) => quoted(rec.field(self.cols.idx[0]).trim_ascii()),
             _ => format!("{} s", fmt_secs(self.prev_t)),

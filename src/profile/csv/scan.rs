@@ -6,16 +6,20 @@
 //! The later passes over a scan are [`CsvScan::stream`] (in `stream.rs`) and
 //! [`CsvScan::load`] (in `memory.rs`).
 
+use super::block::{has_doubt, Layout, Parsed, PlainLine, BLOCK_BYTES};
 use super::defect::{
     merge_by_line, Defect, DefectAction, DefectCounts, DefectKind, MAX_DEFECTS_KEPT,
 };
+use super::errors::io_error;
 use super::errors::{file_error, read_error};
 use super::gaps::find_gaps;
 use super::header::{read_header, ColumnMatch, COLUMNS};
+use super::interpolate::lerp;
+use super::memory::MemoryProfile;
 use super::options::CsvOptions;
 use super::replay::{FileStamp, Plan};
-use super::rules::{self, Action, Fill, Rejection, Rules, Verdict};
-use super::source::{CsvSource, RecordReader};
+use super::rules::{self, Action, Fill, Rejection, Rules};
+use super::source::{CsvSource, RawInput, Record, RecordReader};
 use super::spacings::Spacings;
 use super::summary::{DefectSummary, Tally};
 use super::tolerance::spacing_key;
@@ -24,6 +28,8 @@ use crate::profile::{DefectPolicy, LoadSample};
 use crate::scenario::hex_lower;
 use crate::timebase::{Calendar, TimeKind};
 use chrono::NaiveDateTime;
+use sha2::{Digest, Sha256};
+use std::io::Read;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
@@ -90,6 +96,68 @@ pub struct CsvScan {
     /// not read again to hash it.
     pub sha256: String,
     pub(super) plan: Plan,
+    /// The used rows, kept by the scan when they fit in its memory budget.
+    pub(super) memory: Kept,
+}
+
+/// The used rows kept in memory by the scan (shown by their count in debug output).
+#[derive(Clone, Default)]
+pub(super) struct Kept(pub(super) Option<Arc<MemoryProfile>>);
+
+impl std::fmt::Debug for Kept {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match &self.0 {
+            Some(m) => write!(f, "Kept({} rows)", m.len()),
+            None => f.write_str("Kept(none)"),
+        }
+    }
+}
+
+/// Default memory budget for keeping a profile's rows during the scan, bytes (512 MiB:
+/// about 9.6 million rows at [`BYTES_PER_ROW`], 111 days at 1 s).
+pub const DEFAULT_KEEP_BYTES: u64 = 512 << 20;
+
+/// Memory of one row kept by the scan, bytes: its time and six values as f64 (8 + 48).
+/// The values stay f64: f32 carries about 7 significant digits, so a reading of
+/// 1234.567 kW would keep only 1234.57, and energies summed over millions of intervals
+/// would drift from those of the file; the text is read once and the numbers must be
+/// exactly the ones the stream gives.
+pub const BYTES_PER_ROW: u64 = 56;
+
+/// How the first pass reads: whether it keeps the used rows in memory (so that runs read
+/// them from there instead of the file) and whether it may parse on several threads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct ScanSettings {
+    /// Keep the used rows while they take at most this many bytes (and not at all when the
+    /// first block of a file shows that the whole would need more than 1.25 times it)
+    /// ([`BYTES_PER_ROW`] per row, plus 8 per held or interpolated row); beyond it, drop
+    /// them and let runs stream the file, so that memory stays flat. 0 keeps nothing.
+    /// Default [`DEFAULT_KEEP_BYTES`].
+    pub keep_bytes: u64,
+    /// Parse blocks of plain lines on this many threads of rayon's pool (`None`: as many
+    /// as the pool has; `Some(1)`: on the calling thread only). Default `None`.
+    pub threads: Option<usize>,
+    /// Take the fast path on plain text (default true); false reads every record with
+    /// the record reader, as a reference for the tests.
+    pub fast: bool,
+}
+
+impl Default for ScanSettings {
+    fn default() -> Self {
+        ScanSettings {
+            keep_bytes: DEFAULT_KEEP_BYTES,
+            threads: None,
+            fast: true,
+        }
+    }
+}
+
+impl ScanSettings {
+    fn threads(&self) -> usize {
+        self.threads
+            .unwrap_or_else(rayon::current_num_threads)
+            .max(1)
+    }
 }
 
 impl CsvScan {
@@ -188,6 +256,15 @@ struct Counts {
 /// for the first defect whose kind's policy is `stop` (gaps included), and for a record
 /// that is too long or too wide.
 pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, ProfileError> {
+    scan_source_with(source, opts, &ScanSettings::default())
+}
+
+/// Pass 1 as [`scan_source`], with a choice of how to read: see [`ScanSettings`].
+pub fn scan_source_with(
+    source: &CsvSource,
+    opts: &CsvOptions,
+    settings: &ScanSettings,
+) -> Result<CsvScan, ProfileError> {
     let name = source.name().to_path_buf();
     if let Err(e) = opts.check() {
         return Err(file_error(
@@ -201,7 +278,7 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
         .map_err(|e| read_error(&name, e))?;
     let (columns, matches) = read_header(&mut rdr, &name, opts)?;
     let header_line = rdr.record_line;
-    let mut rules = Rules::new(
+    let rules = Rules::new(
         columns,
         None,
         0,
@@ -210,84 +287,51 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
         opts.delimiter,
         false,
     );
-    let mut sample = LoadSample::default();
+    let mut st = Pass1::new(rules, settings.keep_bytes);
 
-    let mut n = Counts::default();
-    let mut line_of_time = Timeline::default();
-    let mut row_defects: Vec<Defect> = Vec::new();
-    let mut counts = DefectCounts::default();
-    let mut tally = Tally::default();
-
-    while rdr.read().map_err(|e| read_error(&name, e))? {
-        let verdict = rules.check(&rdr, &mut sample);
-        let line = rdr.record_line;
-        // The common case first, without going through the policies.
-        let verdict = match verdict {
-            Verdict::Accept(t) => {
-                line_of_time.add(t, line);
-                n.good += 1;
-                tally.timed(t, None);
-                rules.commit(t, line, Some(&sample));
-                continue;
-            }
-            v => v,
-        };
-        match rules.decide(verdict) {
-            Action::Blank => n.blank += 1,
-            Action::Stop(r) => {
-                return Err(ProfileError::Row {
-                    file: name,
-                    line,
-                    message: rules.describe(&rdr, &r),
-                });
-            }
-            Action::Skip(r) => {
-                let kind = r.kind();
-                n.skipped += 1;
-                record_defect(
-                    &mut counts,
-                    &mut tally,
-                    &mut row_defects,
-                    &rules,
-                    &rdr,
-                    &r,
-                    DefectAction::Skipped,
-                );
-                match r.fill_t {
-                    Some(t) => tally.timed(t, Some(kind)),
-                    None => tally.untimed(kind),
-                }
-            }
-            // Good rows took the path above; this arm only keeps the match complete.
-            Action::Good(t) => {
-                line_of_time.add(t, line);
-                n.good += 1;
-                tally.timed(t, None);
-                rules.commit(t, line, Some(&sample));
-            }
-            Action::Fill(t, fill, r) => {
-                line_of_time.add(t, line);
-                let action = if fill == Fill::Hold {
-                    n.held += 1;
-                    DefectAction::Held
-                } else {
-                    n.interpolated += 1;
-                    DefectAction::Interpolated
-                };
-                record_defect(
-                    &mut counts,
-                    &mut tally,
-                    &mut row_defects,
-                    &rules,
-                    &rdr,
-                    &r,
-                    action,
-                );
-                tally.timed(t, Some(r.kind()));
-                rules.commit(t, line, None);
-            }
+    // The fast path takes the plain text in blocks; the record reader goes on from where
+    // it stopped (the start of a block it had a doubt about), or from the header.
+    let mut hasher = rdr.take_hasher();
+    let (mut offset, mut line) = (rdr.offset, rdr.next_line());
+    drop(rdr);
+    let delimiter = opts.delimiter as u8;
+    let layout = Layout::new(&columns, delimiter, opts.decimal as u8);
+    let done = match layout {
+        Some(lay) if settings.fast => fast_pass(
+            source,
+            &lay,
+            &mut st,
+            &mut hasher,
+            (&mut offset, &mut line),
+            settings.threads(),
+        )?,
+        _ => false,
+    };
+    let sha256 = if done {
+        hasher
+            .map(|h| hex_lower(h.finalize().as_slice()))
+            .unwrap_or_default()
+    } else {
+        let mut rdr = RecordReader::resume(source, delimiter, offset, line, hasher)
+            .map_err(|e| read_error(&name, e))?;
+        while rdr.read().map_err(|e| read_error(&name, e))? {
+            st.record(&rdr, &name)?;
         }
-    }
+        match rdr.finish_sha256().map_err(|e| read_error(&name, e))? {
+            Some(digest) => hex_lower(&digest),
+            None => String::new(),
+        }
+    };
+    let Pass1 {
+        rules,
+        mut n,
+        line_of_time,
+        row_defects,
+        mut counts,
+        mut tally,
+        kept,
+        ..
+    } = st;
     let Timeline {
         used,
         t_first,
@@ -298,11 +342,6 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
     } = line_of_time;
     n.used = used;
     spacings.flush();
-    let sha256 = match rdr.finish_sha256().map_err(|e| read_error(&name, e))? {
-        Some(digest) => hex_lower(&digest),
-        None => String::new(),
-    };
-
     let rows_read = n.used + n.skipped;
     let first_defect = || {
         row_defects
@@ -407,7 +446,19 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
         ],
         list_truncated,
     );
+    let memory = kept.and_then(|k| k.finish()).map(|(times, samples)| {
+        Arc::new(MemoryProfile {
+            times,
+            samples,
+            end_s,
+            time_kind,
+            gap_interpolation_us: (policies[DefectKind::Gap.index()] == DefectPolicy::Interpolate)
+                .then_some(gap_threshold_us),
+            source: name.clone(),
+        })
+    });
     Ok(CsvScan {
+        memory: Kept(memory),
         path: name,
         options: *opts,
         time_kind,
@@ -438,35 +489,327 @@ pub fn scan_source(source: &CsvSource, opts: &CsvOptions) -> Result<CsvScan, Pro
     })
 }
 
-/// Counts a row defect, notes it in the tally and keeps it in full if there is room.
-fn record_defect(
-    counts: &mut DefectCounts,
-    tally: &mut Tally,
-    kept: &mut Vec<Defect>,
-    rules: &Rules,
-    rdr: &RecordReader,
-    r: &Rejection,
-    action: DefectAction,
-) {
-    let kind = r.kind();
-    let line = rdr.record_line;
-    counts.add(kind);
-    if r.dst() == rules::Dst::Starts {
-        tally.dst_line(line);
+/// The rows kept in memory during the first pass.
+#[derive(Debug, Default)]
+struct KeptRows {
+    times: Vec<f64>,
+    samples: Vec<LoadSample>,
+    /// Indices of interpolated rows, to be filled in once the next good row is known.
+    interpolated: Vec<usize>,
+    /// Indices of held and interpolated rows (those that are not good rows), ascending.
+    filled: Vec<usize>,
+    /// Most bytes the rows may take.
+    budget: u64,
+}
+
+impl KeptRows {
+    /// Adds a row; false when the budget is exceeded.
+    #[inline]
+    fn push(&mut self, t: f64, s: &LoadSample) -> bool {
+        self.times.push(t);
+        self.samples.push(*s);
+        (self.times.len() as u64) * BYTES_PER_ROW + (self.filled.len() as u64) * 8 <= self.budget
     }
-    let mut message = None;
-    tally.count(kind, line, action, || {
-        let m = rules.describe(rdr, r);
-        message = Some(m.clone());
-        format!("line {line}: {m}")
-    });
-    if kept.len() < MAX_DEFECTS_KEPT {
-        kept.push(Defect {
-            line,
-            kind,
-            action,
-            message: message.unwrap_or_else(|| rules.describe(rdr, r)),
+
+    /// The rows with the values of interpolated rows filled in as the stream fills them:
+    /// linear between the last good row before and the next good row after (the nearest
+    /// one at either end). `None` when there are no rows.
+    fn finish(mut self) -> Option<(Vec<f64>, Vec<LoadSample>)> {
+        if self.times.is_empty() {
+            return None;
+        }
+        let n = self.times.len();
+        let filled = &self.filled;
+        // The run of consecutive filled rows being worked on: positions in `filled`.
+        let (mut f, mut run) = (0usize, None::<(usize, usize)>);
+        for &i in &self.interpolated {
+            while filled[f] < i {
+                f += 1;
+            }
+            let (ra, rb) = match run {
+                Some((ra, rb)) if ra <= f && f <= rb => (ra, rb),
+                _ => {
+                    let (mut ra, mut rb) = (f, f);
+                    while ra > 0 && filled[ra - 1] + 1 == filled[ra] {
+                        ra -= 1;
+                    }
+                    while rb + 1 < filled.len() && filled[rb] + 1 == filled[rb + 1] {
+                        rb += 1;
+                    }
+                    run = Some((ra, rb));
+                    (ra, rb)
+                }
+            };
+            let left = filled[ra].checked_sub(1);
+            let right = Some(filled[rb] + 1).filter(|&r| r < n);
+            self.samples[i] = match (left, right) {
+                (Some(l), Some(r)) => lerp(
+                    &self.samples[l],
+                    self.times[l],
+                    &self.samples[r],
+                    self.times[r],
+                    self.times[i],
+                ),
+                (Some(l), None) => self.samples[l],
+                (None, Some(r)) => self.samples[r],
+                (None, None) => return None,
+            };
+        }
+        Some((self.times, self.samples))
+    }
+}
+
+/// The state of the first pass: the rules, the counters, the time line, the defects and
+/// the rows kept in memory.
+struct Pass1 {
+    rules: Rules,
+    sample: LoadSample,
+    n: Counts,
+    line_of_time: Timeline,
+    row_defects: Vec<Defect>,
+    counts: DefectCounts,
+    tally: Tally,
+    kept: Option<KeptRows>,
+}
+
+impl Pass1 {
+    fn new(rules: Rules, keep_bytes: u64) -> Self {
+        Pass1 {
+            rules,
+            sample: LoadSample::default(),
+            n: Counts::default(),
+            line_of_time: Timeline::default(),
+            row_defects: Vec::new(),
+            counts: DefectCounts::default(),
+            tally: Tally::default(),
+            kept: (keep_bytes > 0).then(|| KeptRows {
+                budget: keep_bytes,
+                ..KeptRows::default()
+            }),
+        }
+    }
+
+    /// Keeps a used row, or gives up keeping rows when the budget is exceeded.
+    #[inline]
+    fn keep(&mut self, t: f64, s: &LoadSample) {
+        if let Some(k) = self.kept.as_mut() {
+            if !k.push(t, s) {
+                self.kept = None;
+            }
+        }
+    }
+
+    /// A good row at time `t` on `line`, its values in `self.sample`.
+    #[inline]
+    fn good(&mut self, t: f64, line: u64) {
+        self.line_of_time.add(t, line);
+        self.n.good += 1;
+        self.tally.timed(t, None);
+        self.rules.commit(t, line, Some(&self.sample));
+        let s = self.sample;
+        self.keep(t, &s);
+    }
+
+    /// A clean row the rules accept: time `t`, values in column order.
+    #[inline]
+    fn good_values(&mut self, t: f64, line: u64, v: &[f64; 6]) {
+        self.sample = LoadSample {
+            p_kw: [v[0], v[2], v[4]],
+            q_kvar: [v[1], v[3], v[5]],
+        };
+        self.good(t, line);
+    }
+
+    /// Applies the rules and the policies to one record.
+    fn record<R: Record>(&mut self, rec: &R, name: &Path) -> Result<(), ProfileError> {
+        let verdict = self.rules.check(rec, &mut self.sample);
+        let line = rec.record_line();
+        match self.rules.decide(verdict) {
+            Action::Good(t) => self.good(t, line),
+            Action::Blank => self.n.blank += 1,
+            Action::Stop(r) => {
+                return Err(ProfileError::Row {
+                    file: name.to_path_buf(),
+                    line,
+                    message: self.rules.describe(rec, &r),
+                });
+            }
+            Action::Skip(r) => {
+                let kind = r.kind();
+                self.n.skipped += 1;
+                self.defect(rec, &r, DefectAction::Skipped);
+                match r.fill_t {
+                    Some(t) => self.tally.timed(t, Some(kind)),
+                    None => self.tally.untimed(kind),
+                }
+            }
+            Action::Fill(t, fill, r) => {
+                self.line_of_time.add(t, line);
+                let action = if fill == Fill::Hold {
+                    self.n.held += 1;
+                    DefectAction::Held
+                } else {
+                    self.n.interpolated += 1;
+                    DefectAction::Interpolated
+                };
+                self.defect(rec, &r, action);
+                self.tally.timed(t, Some(r.kind()));
+                self.rules.commit(t, line, None);
+                // A held row takes the last good row's values; an interpolated one is
+                // filled in once the scan has seen the next good row.
+                let held = match self.rules.last_good() {
+                    Some((_, s)) if fill == Fill::Hold => *s,
+                    _ => LoadSample::default(),
+                };
+                if let Some(k) = self.kept.as_mut() {
+                    let i = k.times.len();
+                    k.filled.push(i);
+                    if fill == Fill::Interpolate {
+                        k.interpolated.push(i);
+                    }
+                }
+                self.keep(t, &held);
+            }
+        }
+        Ok(())
+    }
+
+    /// Counts a row defect, notes it in the tally and keeps it in full if there is room.
+    fn defect<R: Record>(&mut self, rec: &R, r: &Rejection, action: DefectAction) {
+        let kind = r.kind();
+        let line = rec.record_line();
+        self.counts.add(kind);
+        if r.dst() == rules::Dst::Starts {
+            self.tally.dst_line(line);
+        }
+        let rules = &self.rules;
+        let mut message = None;
+        self.tally.count(kind, line, action, || {
+            let m = rules.describe(rec, r);
+            message = Some(m.clone());
+            format!("line {line}: {m}")
         });
+        if self.row_defects.len() < MAX_DEFECTS_KEPT {
+            self.row_defects.push(Defect {
+                line,
+                kind,
+                action,
+                message: message.unwrap_or_else(|| rules.describe(rec, r)),
+            });
+        }
+    }
+}
+
+/// The fast path of the first pass (see `block.rs`): reads `source` from byte `at.0`
+/// (line `at.1`) in blocks of plain lines, parses each block on `threads` threads and
+/// applies the rules in file order, hashing every byte it takes. Returns true when it
+/// reached the end of the source; false when it met a doubt, with `at` and `hasher` at
+/// the start of the block it left to the record reader.
+fn fast_pass(
+    source: &CsvSource,
+    lay: &Layout,
+    st: &mut Pass1,
+    hasher: &mut Option<Sha256>,
+    at: (&mut u64, &mut u64),
+    threads: usize,
+) -> Result<bool, ProfileError> {
+    let (offset, line) = at;
+    let name = source.name();
+    let io = |e| io_error(name, e);
+    let mut input = RawInput::open(source, *offset).map_err(io)?;
+    // The size of the source, when it is known before reading it.
+    let mut total_len = match source {
+        CsvSource::File(p) => std::fs::metadata(p).ok().map(|m| m.len()),
+        CsvSource::Bytes { data, .. } => Some(data.len() as u64),
+        CsvSource::Reader { .. } => None,
+    };
+    let mut buf: Vec<u8> = Vec::new();
+    let mut parsed = Parsed::default();
+    let mut eof = false;
+    loop {
+        if !eof && buf.len() < BLOCK_BYTES {
+            // Reads to the end of the block or of the input; the buffer grows as the
+            // bytes come, so a small file costs a small buffer.
+            let want = (BLOCK_BYTES - buf.len()) as u64;
+            let got = (&mut input).take(want).read_to_end(&mut buf).map_err(io)?;
+            eof = (got as u64) < want;
+        }
+        if buf.is_empty() {
+            return Ok(true);
+        }
+        let end = if eof {
+            buf.len()
+        } else {
+            match buf.iter().rposition(|&b| b == b'\n') {
+                Some(p) => p + 1,
+                // A line longer than a block.
+                None => return Ok(false),
+            }
+        };
+        let block = &buf[..end];
+        if has_doubt(block) {
+            return Ok(false);
+        }
+        if !parsed.parse(block, lay, threads) {
+            return Ok(false);
+        }
+        // The rules go through the rows in order on this thread while another hashes
+        // the block.
+        let apply = |st: &mut Pass1| -> Result<u64, ProfileError> {
+            let mut lf_done = 0u64;
+            for (rows, lf) in &parsed.pieces {
+                for r in rows {
+                    let l = *line + lf_done + u64::from(r.lf_before);
+                    if r.clean && st.rules.accepts_clean(r.t) {
+                        st.good_values(r.t, l, &r.v);
+                    } else {
+                        let (a, b) = (r.start as usize, (r.start + r.len) as usize);
+                        let unterminated = eof && b == block.len();
+                        st.record(
+                            &PlainLine::new(&block[a..b], lay.delimiter(), l, unterminated),
+                            name,
+                        )?;
+                    }
+                }
+                lf_done += u64::from(*lf);
+            }
+            Ok(lf_done)
+        };
+        let hash = |hasher: &mut Option<Sha256>| {
+            if let Some(h) = hasher.as_mut() {
+                h.update(block);
+            }
+        };
+        let lf_done = if threads > 1 {
+            rayon::join(|| hash(hasher), || apply(st)).1?
+        } else {
+            hash(hasher);
+            apply(st)?
+        };
+        if let (Some(budget), Some(total)) = (st.kept.as_ref().map(|k| k.budget), total_len.take())
+        {
+            // After the first block: give up keeping at once when the whole source
+            // would clearly not fit, so that a long profile never fills the budget.
+            let rows: usize = parsed.pieces.iter().map(|p| p.0.len()).sum();
+            let estimate = rows as f64 * total as f64 / end.max(1) as f64;
+            if estimate * BYTES_PER_ROW as f64 > 1.25 * budget as f64 {
+                st.kept = None;
+            } else if let Some(k) = st.kept.as_mut() {
+                // Room for the estimate and a little more, so that the columns are not
+                // copied as they grow.
+                let want =
+                    ((estimate * 1.02) as usize + 16).min((k.budget / BYTES_PER_ROW) as usize + 1);
+                let more = want.saturating_sub(k.times.len());
+                k.times.reserve_exact(more);
+                k.samples.reserve_exact(more);
+            }
+        }
+        *line += lf_done;
+        *offset += end as u64;
+        buf.drain(..end);
+        if eof && buf.is_empty() {
+            return Ok(true);
+        }
     }
 }
 

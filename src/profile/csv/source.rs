@@ -182,6 +182,33 @@ impl Input {
     }
 }
 
+/// Bytes straight from a source, from a byte offset, for the block reader of the fast
+/// path (`block.rs`).
+pub(super) struct RawInput(Input);
+
+impl RawInput {
+    /// Opens `src` at byte `offset`.
+    pub(super) fn open(src: &CsvSource, offset: u64) -> io::Result<Self> {
+        Input::open(src, offset).map(RawInput)
+    }
+}
+
+impl Read for RawInput {
+    fn read(&mut self, out: &mut [u8]) -> io::Result<usize> {
+        match &mut self.0 {
+            Input::File(r) => r.read(out),
+            Input::Reader(r) => r.read(out),
+            Input::Bytes { data, pos } => {
+                let rest = data.get(*pos..).unwrap_or(&[]);
+                let n = rest.len().min(out.len());
+                out[..n].copy_from_slice(&rest[..n]);
+                *pos += n;
+                Ok(n)
+            }
+        }
+    }
+}
+
 /// Why a record could not be read.
 #[derive(Debug)]
 pub(super) enum ReadError {
@@ -365,6 +392,27 @@ impl RecordReader {
         Ok(Some(h.finalize().into()))
     }
 
+    /// Takes the hash of the bytes read so far out of this reader (which then stops
+    /// hashing), so that another reader can go on with it.
+    pub(super) fn take_hasher(&mut self) -> Option<Sha256> {
+        self.hasher.take()
+    }
+
+    /// Opens `src` at byte `offset` (a record boundary) on line `line`, going on with the
+    /// hash `hasher` of every byte before `offset`.
+    pub(super) fn resume(
+        src: &CsvSource,
+        delimiter: u8,
+        offset: u64,
+        line: u64,
+        hasher: Option<Sha256>,
+    ) -> Result<Self, ReadError> {
+        let mut r = RecordReader::open(src, delimiter)?;
+        r.reposition(src, offset, line)?;
+        r.hasher = hasher;
+        Ok(r)
+    }
+
     /// Moves this reader to byte `offset` (a record boundary) on line `line`, as if it
     /// had read everything before.
     pub(super) fn reposition(
@@ -491,6 +539,52 @@ impl RecordReader {
     /// True when every field of the current record is empty or white space.
     pub(super) fn is_blank(&self) -> bool {
         (0..self.len).all(|i| self.field(i).trim_ascii().is_empty())
+    }
+}
+
+/// One CSV record as the row rules see it: its fields, where it starts and how it ends.
+/// The record reader is one; a plain line cut out of a block by the fast path
+/// (`block.rs`) is another, and both give the same answers for the same bytes.
+pub(super) trait Record {
+    /// Number of fields.
+    fn n_fields(&self) -> usize;
+    /// Field i (empty if there is no such field).
+    fn field(&self, i: usize) -> &[u8];
+    /// Line on which the record starts.
+    fn record_line(&self) -> u64;
+    /// True when the record ended at the end of the input with no line end.
+    fn unterminated(&self) -> bool;
+    /// Line feeds inside the record (in quoted fields), not counting its end.
+    fn inner_lf(&self) -> u64;
+    /// True when every field is empty or white space.
+    fn is_blank(&self) -> bool {
+        (0..self.n_fields()).all(|i| self.field(i).trim_ascii().is_empty())
+    }
+}
+
+impl Record for RecordReader {
+    #[inline]
+    fn n_fields(&self) -> usize {
+        self.len
+    }
+    #[inline]
+    fn field(&self, i: usize) -> &[u8] {
+        RecordReader::field(self, i)
+    }
+    #[inline]
+    fn record_line(&self) -> u64 {
+        self.record_line
+    }
+    #[inline]
+    fn unterminated(&self) -> bool {
+        self.unterminated
+    }
+    #[inline]
+    fn inner_lf(&self) -> u64 {
+        self.inner_lf
+    }
+    fn is_blank(&self) -> bool {
+        RecordReader::is_blank(self)
     }
 }
 

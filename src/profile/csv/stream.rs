@@ -8,7 +8,7 @@ use super::interpolate::lerp;
 use super::replay::AcceptedRows;
 use super::scan::CsvScan;
 use super::text::{fmt_secs, fmt_time};
-use super::tolerance::{is_gap, time_tolerance};
+use super::tolerance::{first_interval_reaching, is_gap, time_tolerance};
 use crate::error::ProfileError;
 use crate::profile::{LoadSample, LoadSource};
 use crate::timebase::TimeKind;
@@ -40,6 +40,7 @@ impl CsvScan {
             last_line: self.last_line,
             first_line: self.first_line,
             time_kind: self.time_kind,
+            grid: None,
         };
         st.update_gap();
         Ok(st)
@@ -68,9 +69,18 @@ pub struct CsvStream {
     first_line: u64,
     last_line: u64,
     time_kind: TimeKind,
+    /// The run's grid (first time, Δt), s, for [`LoadSource::unchanged_until`].
+    grid: Option<(f64, f64)>,
 }
 
 impl CsvStream {
+    /// Tells the stream the run's grid t_k = `t_first_s` + k·`dt_s` (s), so that
+    /// [`LoadSource::unchanged_until`] can promise the intervals until the next row.
+    pub fn on_grid(mut self, t_first_s: f64, dt_s: f64) -> Self {
+        self.grid = Some((t_first_s, dt_s));
+        self
+    }
+
     /// End of coverage, s.
     pub fn end_s(&self) -> f64 {
         self.end_s
@@ -123,6 +133,22 @@ impl LoadSource for CsvStream {
             self.cur
         };
         Ok(())
+    }
+
+    /// On a known grid: the interval at which the row read ahead (or the end of
+    /// coverage) comes into force; across an interpolated gap, k + 1.
+    fn unchanged_until(&self, k: u64) -> u64 {
+        match self.grid {
+            Some((t0, dt)) if !self.cur_gap => {
+                let t_next = if self.next_t.is_finite() {
+                    self.next_t
+                } else {
+                    self.end_s
+                };
+                first_interval_reaching(t0, dt, k, t_next)
+            }
+            _ => k + 1,
+        }
     }
 }
 

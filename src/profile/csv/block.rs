@@ -1,0 +1,478 @@
+//! The fast path of the first pass: the source read in large blocks of whole lines, each
+//! block cut into lines and its numbers parsed (in parallel pieces on several cores),
+//! before the row rules are applied to the rows one by one, in file order.
+//!
+//! Only plain text takes this path: a block holding a quote character, a carriage return
+//! that is not part of a CRLF line end, a line longer than [`MAX_PLAIN_LINE`] bytes or
+//! with more than [`MAX_PLAIN_FIELDS`] fields is a doubt, and the scan goes on from the
+//! start of that block with the record reader (`source.rs`), which handles everything.
+//! On plain text a line is exactly one record and its fields are the bytes between
+//! delimiters, as the record reader would give them, so the rules see the same records.
+//!
+//! Parsing a line succeeds ("the row is clean") when it has at least the fields the
+//! columns need, no non-blank field beyond the header, an elapsed time and six values that
+//! are finite numbers within range. A clean row whose time is after the previous row's is
+//! a good row and is taken without further checks; every other row is handed to the
+//! rules as a [`PlainLine`] record, so defects get exactly the messages and line numbers
+//! of the record reader.
+
+use super::header::Columns;
+use super::number::{parse_number, parse_plain_prefix};
+use super::rules::{MAX_ELAPSED_S, MAX_POWER};
+use super::source::Record;
+use rayon::prelude::*;
+
+/// Bytes read per block.
+pub(super) const BLOCK_BYTES: usize = 1 << 20;
+
+/// Longest line the fast path takes, bytes; a longer one sends the scan to the record
+/// reader (which enforces its own bounds).
+pub(super) const MAX_PLAIN_LINE: usize = 64 * 1024;
+
+/// Most fields the fast path takes in a line.
+pub(super) const MAX_PLAIN_FIELDS: usize = 256;
+
+/// Smallest piece of a block parsed on its own thread, bytes.
+const MIN_PIECE_BYTES: usize = 64 * 1024;
+
+/// One line of a block: where it is, and its time and values when it is clean.
+#[derive(Debug, Clone, Copy, Default)]
+pub(super) struct Row {
+    /// Time, s (clean rows only).
+    pub(super) t: f64,
+    /// Values in column order p_a, q_a, p_b, q_b, p_c, q_c (clean rows only).
+    pub(super) v: [f64; 6],
+    /// Line feeds in the block before this line.
+    pub(super) lf_before: u32,
+    /// Start of the line in the block, bytes.
+    pub(super) start: u32,
+    /// Length of the line without its line end, bytes.
+    pub(super) len: u32,
+    /// The line parsed cleanly.
+    pub(super) clean: bool,
+}
+
+/// A plain line as a record: no quotes, so the fields are the bytes between delimiters.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct PlainLine<'a> {
+    bytes: &'a [u8],
+    delimiter: u8,
+    n: usize,
+    line: u64,
+    unterminated: bool,
+}
+
+impl<'a> PlainLine<'a> {
+    /// The line `bytes` (without its line end), starting on `line`; `unterminated` when it
+    /// is the last of the input and has no line end.
+    pub(super) fn new(bytes: &'a [u8], delimiter: u8, line: u64, unterminated: bool) -> Self {
+        let n = bytes.iter().filter(|&&b| b == delimiter).count() + 1;
+        PlainLine {
+            bytes,
+            delimiter,
+            n,
+            line,
+            unterminated,
+        }
+    }
+}
+
+impl Record for PlainLine<'_> {
+    fn n_fields(&self) -> usize {
+        self.n
+    }
+    fn field(&self, i: usize) -> &[u8] {
+        self.bytes
+            .split(|&b| b == self.delimiter)
+            .nth(i)
+            .unwrap_or(&[])
+    }
+    fn record_line(&self) -> u64 {
+        self.line
+    }
+    fn unterminated(&self) -> bool {
+        self.unterminated
+    }
+    fn inner_lf(&self) -> u64 {
+        0
+    }
+}
+
+/// What the fast path needs to know of the file's layout.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct Layout {
+    /// For each field index below [`MAX_PLAIN_FIELDS`]: the column it holds (0 = time,
+    /// 1..=6 the values), or `u8::MAX` for none.
+    column_of: [u8; MAX_PLAIN_FIELDS],
+    min_fields: usize,
+    header_fields: usize,
+    delimiter: u8,
+    decimal: u8,
+    /// The header is exactly the seven columns and numbers have a decimal point, so a
+    /// line can be read in one sweep ([`parse_line_quick`]).
+    quick: bool,
+}
+
+impl Layout {
+    /// The layout of a file with these columns; `None` when the header is too wide for
+    /// the fast path.
+    pub(super) fn new(cols: &Columns, delimiter: u8, decimal: u8) -> Option<Layout> {
+        if cols.header_fields > MAX_PLAIN_FIELDS || cols.min_fields > MAX_PLAIN_FIELDS {
+            return None;
+        }
+        let mut column_of = [u8::MAX; MAX_PLAIN_FIELDS];
+        for (c, &i) in cols.idx.iter().enumerate() {
+            column_of[i] = c as u8;
+        }
+        Some(Layout {
+            column_of,
+            min_fields: cols.min_fields,
+            header_fields: cols.header_fields,
+            delimiter,
+            decimal,
+            quick: cols.header_fields == 7 && decimal == b'.',
+        })
+    }
+
+    /// The column delimiter.
+    pub(super) fn delimiter(&self) -> u8 {
+        self.delimiter
+    }
+}
+
+/// True when `bytes` hold something the fast path leaves to the record reader: a quote,
+/// or a carriage return not followed by a line feed.
+pub(super) fn has_doubt(bytes: &[u8]) -> bool {
+    let mut cr_or_quote = false;
+    for chunk in bytes.chunks(64) {
+        cr_or_quote |= chunk
+            .iter()
+            .fold(false, |a, &b| a | (b == b'"') | (b == b'\r'));
+        if cr_or_quote {
+            break;
+        }
+    }
+    if !cr_or_quote {
+        return false;
+    }
+    if bytes.contains(&b'"') {
+        return true;
+    }
+    bytes
+        .iter()
+        .enumerate()
+        .any(|(i, &b)| b == b'\r' && bytes.get(i + 1) != Some(&b'\n'))
+}
+
+/// True when `v` is a number within ±`limit` (false for NaN).
+#[inline]
+fn within(v: f64, limit: f64) -> bool {
+    v.abs() <= limit
+}
+
+/// Parses one field of a clean row: the fast way when the number runs exactly to the
+/// delimiter, else by cutting the field and trimming it as the rules do.
+#[inline]
+fn number_at(line: &[u8], pos: usize, lay: &Layout) -> (Option<f64>, usize) {
+    let rest = &line[pos..];
+    if lay.decimal == b'.' {
+        if let Some((v, n)) = parse_plain_prefix(rest) {
+            let next = rest.get(n).copied();
+            if next.is_none() || next == Some(lay.delimiter) {
+                return (Some(v), pos + n);
+            }
+        }
+        if let Ok((v, n)) = fast_float2::parse_partial::<f64, _>(rest) {
+            let next = rest.get(n).copied();
+            if (next.is_none() || next == Some(lay.delimiter)) && v.is_finite() {
+                return (Some(v), pos + n);
+            }
+        }
+    }
+    let end = rest
+        .iter()
+        .position(|&b| b == lay.delimiter)
+        .map_or(line.len(), |e| pos + e);
+    (parse_number(line[pos..end].trim_ascii(), lay.decimal), end)
+}
+
+/// Parses a line (without its line end) into `row`; false when it is not clean.
+#[inline]
+fn parse_line(line: &[u8], lay: &Layout, row: &mut Row) -> bool {
+    let mut vals = [0.0f64; 7];
+    let mut found = 0u8;
+    let mut pos = 0;
+    let mut field = 0usize;
+    loop {
+        if field >= MAX_PLAIN_FIELDS {
+            return false;
+        }
+        let col = lay.column_of[field];
+        let end = if col != u8::MAX {
+            let (v, end) = number_at(line, pos, lay);
+            match v {
+                Some(v) => vals[col as usize] = v,
+                None => return false,
+            }
+            found += 1;
+            end
+        } else {
+            let rest = &line[pos..];
+            let end = rest
+                .iter()
+                .position(|&b| b == lay.delimiter)
+                .map_or(line.len(), |e| pos + e);
+            if field >= lay.header_fields && !line[pos..end].trim_ascii().is_empty() {
+                return false;
+            }
+            end
+        };
+        field += 1;
+        if end >= line.len() {
+            break;
+        }
+        pos = end + 1;
+    }
+    if found != 7 || field < lay.min_fields {
+        return false;
+    }
+    let t = vals[0];
+    if !within(t, MAX_ELAPSED_S) {
+        return false;
+    }
+    for &v in &vals[1..] {
+        if !within(v, MAX_POWER) {
+            return false;
+        }
+    }
+    row.t = t;
+    row.v.copy_from_slice(&vals[1..]);
+    true
+}
+
+/// Reads the line starting at `start` of `piece` the quick way, when it is exactly the
+/// seven columns in any order, each a plain number ([`parse_plain_prefix`]), ended by a
+/// line feed, CRLF or the end of the piece. Returns the end of the line (before any CR)
+/// and where its line end is, or `None` to read the line the general way.
+#[inline]
+fn parse_line_quick(
+    piece: &[u8],
+    start: usize,
+    lay: &Layout,
+    row: &mut Row,
+) -> Option<(usize, usize)> {
+    let mut vals = [0.0f64; 7];
+    let mut pos = start;
+    for field in 0..7 {
+        let (v, n) = parse_plain_prefix(piece.get(pos..)?)?;
+        vals[lay.column_of[field] as usize] = v;
+        pos += n;
+        if field < 6 {
+            if piece.get(pos) != Some(&lay.delimiter) {
+                return None;
+            }
+            pos += 1;
+        }
+    }
+    let lf = match piece.get(pos) {
+        None => piece.len(),
+        Some(b'\n') => pos,
+        Some(b'\r') if piece.get(pos + 1) == Some(&b'\n') => pos + 1,
+        _ => return None,
+    };
+    if !within(vals[0], MAX_ELAPSED_S) || vals[1..].iter().any(|&v| !within(v, MAX_POWER)) {
+        return None;
+    }
+    row.t = vals[0];
+    row.v.copy_from_slice(&vals[1..]);
+    Some((pos, lf))
+}
+
+/// Cuts `piece` (whole lines, the last one possibly without its line end) into rows,
+/// appended to `rows`. Returns the line feeds in the piece, or `None` for a doubt (a line
+/// too long or too wide for the fast path).
+fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> Option<u32> {
+    let mut lf = 0u32;
+    let mut start = 0usize;
+    while start < piece.len() {
+        if lay.quick {
+            let mut row = Row {
+                lf_before: lf,
+                start: (base + start) as u32,
+                clean: true,
+                ..Row::default()
+            };
+            if let Some((stop, end)) = parse_line_quick(piece, start, lay, &mut row) {
+                row.len = (stop - start) as u32;
+                rows.push(row);
+                if end < piece.len() {
+                    lf += 1;
+                }
+                start = end + 1;
+                continue;
+            }
+        }
+        let end = piece[start..]
+            .iter()
+            .position(|&b| b == b'\n')
+            .map_or(piece.len(), |e| start + e);
+        let mut stop = end;
+        if stop > start && piece[stop - 1] == b'\r' {
+            stop -= 1;
+        }
+        if stop - start > MAX_PLAIN_LINE {
+            return None;
+        }
+        if stop > start {
+            let line = &piece[start..stop];
+            let mut row = Row {
+                lf_before: lf,
+                start: (base + start) as u32,
+                len: (stop - start) as u32,
+                ..Row::default()
+            };
+            row.clean = parse_line(line, lay, &mut row);
+            if !row.clean
+                && line.iter().filter(|&&b| b == lay.delimiter).count() >= MAX_PLAIN_FIELDS
+            {
+                return None;
+            }
+            rows.push(row);
+        }
+        if end < piece.len() {
+            lf += 1;
+        }
+        start = end + 1;
+    }
+    Some(lf)
+}
+
+/// The rows of one block, parsed in pieces.
+#[derive(Debug, Default)]
+pub(super) struct Parsed {
+    /// Rows of each piece, in order, with line feeds counted from the piece's start.
+    pub(super) pieces: Vec<(Vec<Row>, u32)>,
+}
+
+impl Parsed {
+    /// Parses `block` (whole lines) in `threads` pieces cut at line ends. False for a
+    /// doubt.
+    pub(super) fn parse(&mut self, block: &[u8], lay: &Layout, threads: usize) -> bool {
+        let n = threads
+            .clamp(1, 64)
+            .min(block.len() / MIN_PIECE_BYTES)
+            .max(1);
+        let mut cuts = Vec::with_capacity(n + 1);
+        cuts.push(0usize);
+        for i in 1..n {
+            let want = block.len() * i / n;
+            let at = block[want..]
+                .iter()
+                .position(|&b| b == b'\n')
+                .map_or(block.len(), |p| want + p + 1);
+            if at > *cuts.last().unwrap_or(&0) {
+                cuts.push(at);
+            }
+        }
+        cuts.push(block.len());
+        cuts.dedup();
+        let pieces = cuts.len() - 1;
+        self.pieces.resize_with(pieces, Default::default);
+        let work = |(i, (rows, lf)): (usize, &mut (Vec<Row>, u32))| {
+            rows.clear();
+            let (a, b) = (cuts[i], cuts[i + 1]);
+            match parse_piece(&block[a..b], a, lay, rows) {
+                Some(n) => {
+                    *lf = n;
+                    true
+                }
+                None => false,
+            }
+        };
+        if pieces == 1 {
+            self.pieces.iter_mut().enumerate().all(work)
+        } else {
+            self.pieces.par_iter_mut().enumerate().all(work)
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::profile::csv::source::{CsvSource, RecordReader};
+
+    fn layout() -> Layout {
+        let cols = Columns {
+            idx: [0, 1, 2, 3, 4, 5, 6],
+            min_fields: 7,
+            header_fields: 7,
+        };
+        Layout::new(&cols, b',', b'.').unwrap()
+    }
+
+    #[test]
+    fn plain_lines_read_like_the_record_reader() {
+        // The record reader (csv-core) is the reference for how a plain line splits.
+        let text = b"0,1,2,3,4,5,6\r\n\n  1 ,x,,3\n,,,,,,\n2,1e3,-2.5,3,4,5,6,,\n3,1";
+        let src = CsvSource::bytes("t.csv", text.to_vec());
+        let mut rdr = RecordReader::open(&src, b',').unwrap();
+        let mut want = Vec::new();
+        while rdr.read().unwrap() {
+            let f: Vec<Vec<u8>> = (0..rdr.len).map(|i| rdr.field(i).to_vec()).collect();
+            want.push((rdr.record_line, f, rdr.unterminated));
+        }
+        assert!(!has_doubt(text));
+        let mut p = Parsed::default();
+        assert!(p.parse(text, &layout(), 1));
+        let (rows, lf) = &p.pieces[0];
+        assert_eq!(*lf, 5);
+        let got: Vec<_> = rows
+            .iter()
+            .map(|r| {
+                let bytes = &text[r.start as usize..(r.start + r.len) as usize];
+                let end = (r.start + r.len) as usize;
+                let pl = PlainLine::new(bytes, b',', 1 + u64::from(r.lf_before), end == text.len());
+                let f: Vec<Vec<u8>> = (0..pl.n_fields()).map(|i| pl.field(i).to_vec()).collect();
+                (pl.record_line(), f, pl.unterminated())
+            })
+            .collect();
+        assert_eq!(got, want);
+        let clean: Vec<bool> = rows.iter().map(|r| r.clean).collect();
+        assert_eq!(clean, vec![true, false, false, true, false]);
+        assert_eq!(rows[3].v, [1000.0, -2.5, 3.0, 4.0, 5.0, 6.0]);
+    }
+
+    #[test]
+    fn quotes_and_lone_carriage_returns_are_doubts() {
+        assert!(has_doubt(b"1,\"2\",3\n"));
+        assert!(has_doubt(b"1,2\r3,4\n"));
+        assert!(has_doubt(b"1,2\r"));
+        assert!(!has_doubt(b"1,2\r\n3,4\r\n"));
+    }
+
+    #[test]
+    fn pieces_cut_at_line_ends_give_the_same_rows() {
+        let mut text = Vec::new();
+        for i in 0..20_000 {
+            text.extend_from_slice(format!("{i},1.5,2,3,4,5,{}\n", i % 7).as_bytes());
+        }
+        let (mut one, mut many) = (Parsed::default(), Parsed::default());
+        assert!(one.parse(&text, &layout(), 1));
+        assert!(many.parse(&text, &layout(), 4));
+        assert!(many.pieces.len() > 1);
+        let rows_one: Vec<(f64, [f64; 6], u32)> = one.pieces[0]
+            .0
+            .iter()
+            .map(|r| (r.t, r.v, r.start))
+            .collect();
+        let rows_many: Vec<(f64, [f64; 6], u32)> = many
+            .pieces
+            .iter()
+            .flat_map(|(rows, _)| rows.iter().map(|r| (r.t, r.v, r.start)))
+            .collect();
+        assert_eq!(rows_one, rows_many);
+        let lf: u32 = many.pieces.iter().map(|p| p.1).sum();
+        assert_eq!(lf, one.pieces[0].1);
+    }
+}
