@@ -13,25 +13,11 @@ use bankstep::study::Study;
 use std::path::Path;
 use std::time::Instant;
 
+/// The site: supply, the 12-step bank and the controller settings.
+const SITE: &str = include_str!("site_12_steps.toml");
+
+/// The rest of the scenario, after the site.
 const SCENARIO: &str = r#"
-[supply]
-nominal_voltage_v = 400
-grid_short_circuit_mva = 250
-[supply.transformer]
-rated_kva = 1600
-impedance_pct = 6
-[[steps]]
-kvar = 25
-count = 4
-[[steps]]
-kvar = 50
-count = 8
-[controller]
-target_pf = "0.95 lag"
-switching_delay_s = 20
-discharge_time_s = 60
-ordering = "rotating"
-averaging_s = 5
 [harmonics]
 preset = "six-pulse"
 reference_kva = 300
@@ -81,7 +67,7 @@ fn main() {
 
 /// The study of the bench scenario over `days`, with the generator section `synth`.
 fn study(days: f64, synth: &str) -> Study {
-    let text = SCENARIO
+    let text = format!("{SITE}{SCENARIO}")
         .replace("__DAYS__", &days.to_string())
         .replace("__SYNTH__", synth);
     let sc = Scenario::from_str(&text, Path::new("bench.toml")).expect("bench scenario");

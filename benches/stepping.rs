@@ -14,25 +14,11 @@ use bankstep::study::{Stepping, Study};
 use std::path::Path;
 use std::time::Instant;
 
+/// The site: supply, the 12-step bank and the controller settings.
+const SITE: &str = include_str!("site_12_steps.toml");
+
+/// The rest of the scenario, after the site.
 const SCENARIO: &str = r#"
-[supply]
-nominal_voltage_v = 400
-grid_short_circuit_mva = 250
-[supply.transformer]
-rated_kva = 1600
-impedance_pct = 6
-[[steps]]
-kvar = 25
-count = 4
-[[steps]]
-kvar = 50
-count = 8
-[controller]
-target_pf = "0.95 lag"
-switching_delay_s = 20
-discharge_time_s = 60
-ordering = "rotating"
-averaging_s = 5
 [run]
 duration_days = __DAYS__
 time_step_s = 1
@@ -96,7 +82,7 @@ impl LoadSource for Rows {
 }
 
 fn study(days: f64, stepping: Stepping) -> Study {
-    let text = SCENARIO.replace("__DAYS__", &days.to_string());
+    let text = format!("{SITE}{SCENARIO}").replace("__DAYS__", &days.to_string());
     let sc = Scenario::from_str(&text, Path::new("stepping-bench.toml")).expect("scenario");
     let mut st = Study::prepare(sc).expect("study");
     st.plan.stepping = stepping;

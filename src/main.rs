@@ -568,7 +568,7 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
                 .run(&mut bankstep::engine::Quiet)
                 .map_err(|e| Failure::simulation(e, &file))?;
             run_s = Some(result.metrics.run.duration_s);
-            profile_sha256 = study.profile.sha256.clone();
+            profile_sha256 = study.profile.sha256().map(str::to_string);
             Selection::Masks(
                 result
                     .metrics

@@ -844,6 +844,17 @@ mod tests {
     use chrono::NaiveDate;
 
     /// One switched 50 kvar step at 400 V.
+    /// The one switched step of these tests, never operated.
+    fn idle_step() -> StepState {
+        StepState {
+            on: false,
+            since_s: 0.0,
+            last_open_s: f64::NEG_INFINITY,
+            closings: 0,
+            openings: 0,
+        }
+    }
+
     fn bank() -> Bank {
         Bank::new(vec![StepSpec::plain(50.0)], 400.0)
     }
@@ -903,16 +914,7 @@ mod tests {
             let (p, q) = if k < 12 { (100.0, 60.0) } else { (10.0, -70.0) };
             record(&mut m, k as f64 * 3600.0, p, q);
         }
-        let r = m.finish(
-            &b,
-            &[StepState {
-                on: false,
-                since_s: 0.0,
-                last_open_s: f64::NEG_INFINITY,
-                closings: 0,
-                openings: 0,
-            }],
-        );
+        let r = m.finish(&b, &[idle_step()]);
         let pf = &r.pf;
         assert!((pf.kwh_import - 1320.0).abs() < 1e-9);
         assert!((pf.kvarh_inductive - 720.0).abs() < 1e-9);
@@ -937,17 +939,7 @@ mod tests {
         for k in 0..600 {
             record(&mut m, k as f64, 100.0, if k < 300 { -20.0 } else { -40.0 });
         }
-        m.finish(
-            &b,
-            &[StepState {
-                on: false,
-                since_s: 0.0,
-                last_open_s: f64::NEG_INFINITY,
-                closings: 0,
-                openings: 0,
-            }],
-        )
-        .overcorrection
+        m.finish(&b, &[idle_step()]).overcorrection
     }
 
     // With a 0.98 lead target, tan φ_t = −sqrt(1 − 0.98²) / 0.98 = −0.2031 (common

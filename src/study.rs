@@ -17,7 +17,7 @@ use crate::profile::csv::{self, CsvScan, CsvStream, MemoryProfile, SharedCursor}
 use crate::profile::synthetic::SyntheticProfile;
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::{BillingWindows, LoadSpec, Scenario};
-use crate::timebase::{Calendar, TimeKind, DAY_S};
+use crate::timebase::{Calendar, DAY_S};
 use std::sync::Arc;
 
 /// Default length of a synthetic run: one week, s.
@@ -37,46 +37,51 @@ pub const SHORT_RUN_S: f64 = 30.0 * DAY_S;
 /// the file by each run, with memory flat in its length.
 #[derive(Debug, Clone)]
 pub struct PreparedProfile {
-    /// The CSV scan, for a CSV profile; `None` for the synthetic generator.
+    /// The CSV scan, for a CSV profile; `None` for the synthetic generator. Everything
+    /// else a run needs of the profile (hash, coverage, calendar, rows kept in memory) is
+    /// read from it, so nothing here can disagree with the scan.
     pub csv: Option<Arc<CsvScan>>,
-    /// The CSV profile's rows in memory, when the scan kept them; runs then read them
-    /// instead of streaming the file. `None` for a synthetic profile or a long CSV one.
-    pub memory: Option<Arc<MemoryProfile>>,
-    /// SHA-256 of the CSV profile file, lowercase hex (none for a synthetic profile).
-    pub sha256: Option<String>,
-    /// Time of the first sample in the profile's own time base, s (0 for synthetic).
-    pub t_first_s: f64,
-    /// Time the profile covers, s (`None`: the generator runs as long as asked).
-    pub available_s: Option<f64>,
-    /// Calendar of the profile's time base.
-    pub calendar: Calendar,
 }
 
 impl PreparedProfile {
-    /// Prepares the load profile a scenario names: scans and hashes a CSV file, or sets up
-    /// the calendar of the synthetic generator.
+    /// Prepares the load profile a scenario names: scans and hashes a CSV file (one read);
+    /// the synthetic generator needs no preparing.
     pub fn prepare(scenario: &Scenario) -> Result<PreparedProfile, RunError> {
         match &scenario.load {
-            LoadSpec::Csv { path, options } => {
-                // One read of the file scans it, hashes it and finds its local offset.
-                let scan = csv::scan(path, options)?;
-                Ok(PreparedProfile {
-                    t_first_s: scan.t_first_s,
-                    available_s: Some(scan.end_s - scan.t_first_s),
-                    calendar: scan.calendar(scenario.start),
-                    sha256: Some(scan.sha256.clone()),
-                    memory: scan.memory().cloned(),
-                    csv: Some(Arc::new(scan)),
-                })
-            }
-            LoadSpec::Synthetic(_) => Ok(PreparedProfile {
-                csv: None,
-                memory: None,
-                sha256: None,
-                t_first_s: 0.0,
-                available_s: None,
-                calendar: Calendar::elapsed_from(scenario.start),
+            LoadSpec::Csv { path, options } => Ok(PreparedProfile {
+                csv: Some(Arc::new(csv::scan(path, options)?)),
             }),
+            LoadSpec::Synthetic(_) => Ok(PreparedProfile { csv: None }),
+        }
+    }
+
+    /// SHA-256 of the CSV profile file, lowercase hex (none for a synthetic profile).
+    pub fn sha256(&self) -> Option<&str> {
+        self.csv.as_deref().map(|c| c.sha256.as_str())
+    }
+
+    /// The CSV profile's rows in memory, when the scan kept them; runs then read them
+    /// instead of streaming the file. `None` for a synthetic profile or a long CSV one.
+    pub fn memory(&self) -> Option<&Arc<MemoryProfile>> {
+        self.csv.as_deref().and_then(CsvScan::memory)
+    }
+
+    /// Time of the first sample in the profile's own time base, s (0 for synthetic).
+    pub fn t_first_s(&self) -> f64 {
+        self.csv.as_deref().map_or(0.0, |c| c.t_first_s)
+    }
+
+    /// Time the profile covers, s (`None`: the generator runs as long as asked).
+    pub fn available_s(&self) -> Option<f64> {
+        self.csv.as_deref().map(|c| c.end_s - c.t_first_s)
+    }
+
+    /// The calendar of a run starting at `start` (used for elapsed times and the
+    /// generator; a profile with absolute times carries its own, in its local time).
+    pub fn calendar(&self, start: chrono::NaiveDateTime) -> Calendar {
+        match self.csv.as_deref() {
+            Some(c) => c.calendar(start),
+            None => Calendar::elapsed_from(start),
         }
     }
 }
@@ -199,7 +204,11 @@ impl Study {
     /// rows in memory when the scan kept them, else a stream over the file.
     pub fn source(&self) -> Result<Source, RunError> {
         let p = &self.plan;
-        match (&self.scenario.load, &self.profile.csv, &self.profile.memory) {
+        match (
+            &self.scenario.load,
+            &self.profile.csv,
+            self.profile.memory(),
+        ) {
             (LoadSpec::Csv { .. }, Some(_), Some(m)) => Ok(Source::Memory(Box::new(
                 m.shared_cursor().on_grid(p.t_first_s, p.dt_s),
             ))),
@@ -240,8 +249,8 @@ impl Study {
 /// Works out the time base of a run of `scenario` on `profile`.
 fn plan(scenario: &Scenario, profile: &PreparedProfile) -> Result<RunPlan, RunError> {
     let dt = scenario.dt_s;
-    let t_first = profile.t_first_s;
-    let duration = match (scenario.duration_s, profile.available_s) {
+    let t_first = profile.t_first_s();
+    let duration = match (scenario.duration_s, profile.available_s()) {
         (Some(d), Some(a)) if d > a + 1e-9 => {
             return Err(RunError::Profile(ProfileError::Coverage {
                 file: profile
@@ -273,10 +282,7 @@ fn plan(scenario: &Scenario, profile: &PreparedProfile) -> Result<RunPlan, RunEr
     let t_end = t_first + intervals as f64 * dt;
     // An absolute time base carries its own calendar; elapsed seconds and the generator
     // count from the scenario's start.
-    let calendar = match profile.csv.as_ref().map(|c| c.time_kind) {
-        Some(TimeKind::Absolute) => profile.calendar,
-        _ => Calendar::elapsed_from(scenario.start),
-    };
+    let calendar = profile.calendar(scenario.start);
     let billing_starts = match scenario.billing {
         BillingWindows::Run => Vec::new(),
         // A run shorter than a (30-day) month is billed as one window.

@@ -17,6 +17,27 @@ pub struct Advice {
     pub message: String,
 }
 
+/// The largest switched step, kvar, when the ordering is not `best-fit`, the steps are
+/// unequal and that step is wider than the whole dead band (2B): sequential and rotating
+/// ordering close whichever step is next, not the one that fits, so closing it can carry
+/// the demand past the far edge of the band and the bank can hunt between it and a
+/// smaller step. `None` otherwise.
+pub fn step_wider_than_band(sc: &Scenario) -> Option<f64> {
+    let c = &sc.controller;
+    let smallest = crate::bank::smallest_switched_kvar(&sc.steps);
+    let largest = sc
+        .steps
+        .iter()
+        .filter(|s| !s.fixed)
+        .map(|s| s.kvar)
+        .fold(f64::NEG_INFINITY, f64::max);
+    (c.ordering != OrderingKind::BestFit
+        && largest.is_finite()
+        && largest > 2.0 * c.dead_band_kvar
+        && largest > smallest * (1.0 + 1e-9))
+        .then_some(largest)
+}
+
 /// The key that set the dead band, as the user wrote it; the fraction key when the
 /// default applies (the default is a fraction of the smallest step).
 fn dead_band_key(sc: &Scenario) -> &'static str {
@@ -76,20 +97,7 @@ pub fn review_settings(sc: &Scenario) -> Vec<Advice> {
             ),
         ));
     }
-    // With sequential or rotating ordering the controller closes whichever step is next,
-    // not the one that fits: a step larger than the whole dead band (2B) overshoots it and
-    // the bank can hunt between that step and a smaller one.
-    let largest = sc
-        .steps
-        .iter()
-        .filter(|s| !s.fixed)
-        .map(|s| s.kvar)
-        .fold(0.0, f64::max);
-    if switched
-        && c.ordering != OrderingKind::BestFit
-        && largest > 2.0 * c.dead_band_kvar
-        && largest > smallest * (1.0 + 1e-9)
-    {
+    if let Some(largest) = step_wider_than_band(sc) {
         out.push(advice(
             "controller.ordering",
             format!(

@@ -134,12 +134,12 @@ fn pf(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     let p = &m.pf;
     let target = ctx.scenario().controller.target;
     let target_text = target.to_string();
-    let goal = billed_goal(target);
     // The billed PF comes from the inductive register, so it is a lagging figure and falls
     // short whatever the capacitive register holds.
+    let goal = ctx.billed_pf.goal;
+    let below = ctx.billed_pf.below_target;
     let billed = pf_vs(p.energy_pf, Quadrant::Lag, goal);
     let under = pct(p.share_under_target);
-    let below = p.energy_pf < goal;
     let registers = format!(
         " (inductive register {} kvarh against {} kWh imported{})",
         num(p.kvarh_inductive, 0),
@@ -503,17 +503,8 @@ fn hunting(ctx: &Context<'_>, out: &mut Vec<Finding>) {
     } else {
         0.0
     };
-    let largest = ctx
-        .scenario()
-        .steps
-        .iter()
-        .filter(|s| !s.fixed)
-        .map(|s| s.kvar)
-        .fold(0.0, f64::max);
-    let advice = if fraction >= 0.5
-        && c.ordering != crate::controller::OrderingKind::BestFit
-        && largest > 2.0 * c.dead_band_kvar
-    {
+    let wide = crate::analysis::advice::step_wider_than_band(ctx.scenario());
+    let advice = if let (true, Some(largest)) = (fraction >= 0.5, wide) {
         // The band is wide enough for the smallest step but not for the largest one that a
         // fixed order may pick.
         format!(
@@ -1063,11 +1054,16 @@ mod tests {
         let model = st.harmonic_model();
         let mut resonance = crate::analysis::resonance::assess(st, &model, &r.metrics);
         edit(&mut resonance);
+        let goal = billed_goal(st.scenario.controller.target);
         findings(&Context {
             study: st,
             result: r,
             model: &model,
             resonance: &resonance,
+            billed_pf: crate::analysis::BilledPf {
+                goal,
+                below_target: r.metrics.pf.energy_pf < goal,
+            },
         })
     }
 

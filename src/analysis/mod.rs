@@ -20,9 +20,20 @@ use crate::scenario::Scenario;
 use crate::study::Study;
 use serde::Serialize;
 
+/// The billed PF against the target, decided once for every line that states it.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct BilledPf {
+    /// The billed PF the target asks for (see [`findings::billed_goal`]).
+    pub goal: f64,
+    /// True when the billed PF of the run falls short of `goal`.
+    pub below_target: bool,
+}
+
 /// Everything the analysis concluded about one run.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Assessment {
+    /// The billed PF against the target.
+    pub billed_pf: BilledPf,
     /// Findings, most serious first.
     pub findings: Vec<Finding>,
     /// Legal but unwise settings, with the key concerned and why.
@@ -42,6 +53,8 @@ pub struct Context<'a> {
     pub model: &'a HarmonicModel,
     /// The harmonic assessment of the states reached.
     pub resonance: &'a ResonanceReport,
+    /// The billed PF against the target.
+    pub billed_pf: BilledPf,
 }
 
 impl<'a> Context<'a> {
@@ -60,15 +73,22 @@ impl<'a> Context<'a> {
 pub fn assess(study: &Study, result: &RunResult) -> Assessment {
     let model = study.harmonic_model();
     let resonance = resonance::assess(study, &model, &result.metrics);
+    let goal = findings::billed_goal(study.scenario.controller.target);
+    let billed_pf = BilledPf {
+        goal,
+        below_target: result.metrics.pf.energy_pf < goal,
+    };
     let ctx = Context {
         study,
         result,
         model: &model,
         resonance: &resonance,
+        billed_pf,
     };
     let findings = findings::findings(&ctx);
     let settings_to_check = advice::review(&ctx);
     Assessment {
+        billed_pf,
         findings,
         settings_to_check,
         resonance,

@@ -144,7 +144,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
     let fixed: f64 = sc.steps.iter().filter(|s| s.fixed).map(|s| s.kvar).sum();
     Document {
         tool: TOOL,
-        provenance: Provenance::new(sc, ctx.study.profile.sha256.as_deref()),
+        provenance: Provenance::new(sc, ctx.study.profile.sha256()),
         study: StudyJson {
             name: sc.name.clone(),
             description: sc.description.clone(),

@@ -5,7 +5,7 @@
 //! recommends a change to hardware the safety caution follows the findings, and the
 //! resonance section repeats it when a state resonates near a harmonic of the load.
 
-use crate::analysis::findings::{billed_goal, cause_words};
+use crate::analysis::findings::cause_words;
 use crate::analysis::resonance::breach_lines;
 use crate::bank::FaultKind;
 use crate::controller::{ExportMode, Measurement};
@@ -339,7 +339,8 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
 
 fn pf_energy(ctx: &ReportContext<'_>, t: &mut String) {
     let p = &ctx.result.metrics.pf;
-    let goal = billed_goal(ctx.scenario().controller.target);
+    let verdict = ctx.assessment.billed_pf;
+    let goal = verdict.goal;
     heading(t, "PF and energy");
     field(
         t,
@@ -347,7 +348,11 @@ fn pf_energy(ctx: &ReportContext<'_>, t: &mut String) {
         &format!(
             "{}, {} the {} target (from the inductive register)",
             pf_vs(p.energy_pf, Quadrant::Lag, goal),
-            if p.energy_pf < goal { "below" } else { "meets" },
+            if verdict.below_target {
+                "below"
+            } else {
+                "meets"
+            },
             p.target
         ),
     );

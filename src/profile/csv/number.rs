@@ -43,34 +43,12 @@ pub(super) fn parse_plain_prefix(bytes: &[u8]) -> Option<(f64, usize)> {
     };
     let mut w: u64 = 0;
     let mut digits = 0usize;
-    while let Some(&b) = bytes.get(i) {
-        let d = b.wrapping_sub(b'0');
-        if d > 9 {
-            break;
-        }
-        w = w * 10 + u64::from(d);
-        digits += 1;
-        i += 1;
-        if digits > 15 {
-            return None;
-        }
-    }
+    i = digit_run(bytes, i, &mut w, &mut digits)?;
     let mut frac = 0usize;
     if bytes.get(i) == Some(&b'.') {
-        i += 1;
-        while let Some(&b) = bytes.get(i) {
-            let d = b.wrapping_sub(b'0');
-            if d > 9 {
-                break;
-            }
-            w = w * 10 + u64::from(d);
-            digits += 1;
-            frac += 1;
-            i += 1;
-            if digits > 15 {
-                return None;
-            }
-        }
+        let start = digits;
+        i = digit_run(bytes, i + 1, &mut w, &mut digits)?;
+        frac = digits - start;
     }
     if digits == 0 || matches!(bytes.get(i), Some(b'e' | b'E')) {
         return None;
@@ -78,6 +56,25 @@ pub(super) fn parse_plain_prefix(bytes: &[u8]) -> Option<(f64, usize)> {
     // 15 digits keep w below 10^15 < 2^53, and f ≤ 15 ≤ 22.
     let v = w as f64 / POW10[frac];
     Some((if neg { -v } else { v }, i))
+}
+
+/// Appends the run of decimal digits starting at `i` to `w`, counting them in `digits`;
+/// the index after the run, or `None` past 15 digits in all (the fast path's limit).
+#[inline(always)]
+fn digit_run(bytes: &[u8], mut i: usize, w: &mut u64, digits: &mut usize) -> Option<usize> {
+    while let Some(&b) = bytes.get(i) {
+        let d = b.wrapping_sub(b'0');
+        if d > 9 {
+            break;
+        }
+        *w = *w * 10 + u64::from(d);
+        *digits += 1;
+        i += 1;
+        if *digits > 15 {
+            return None;
+        }
+    }
+    Some(i)
 }
 
 /// Parses a number written with a point as the decimal mark.
