@@ -10,6 +10,7 @@
 pub mod analysis;
 pub mod bank;
 pub mod controller;
+pub mod design;
 pub mod engine;
 pub mod error;
 pub mod harmonics;

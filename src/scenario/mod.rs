@@ -24,6 +24,7 @@ pub use schema::{
     ReportSection, RunSection, ScenarioFile, StepSection, StudySection, SupplySection,
     TargetPfValue, TransformerSection,
 };
+pub use steps::effective_kvar;
 
 use crate::bank::StepSpec;
 use crate::controller::ControllerParams;

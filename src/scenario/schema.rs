@@ -1,6 +1,7 @@
 //! The scenario file as written: the serde structures of every TOML section, with unknown
-//! keys refused. Every field is optional here (apart from a step's `kvar` and a
-//! transformer's `rated_kva`); the validation modules apply the defaults and check ranges.
+//! keys refused. Every field is optional here (apart from a transformer's `rated_kva`);
+//! the validation modules apply the defaults, check ranges and require what a section
+//! needs (a step's `kvar` or its catalogue rating).
 
 use crate::controller::{ExportMode, OrderingKind};
 use crate::harmonics::limits::{CapacitorLimits, VoltageLimits};
@@ -84,8 +85,17 @@ pub struct TransformerSection {
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct StepSection {
-    /// Effective output at U_n, kvar.
-    pub kvar: f64,
+    /// Effective output at U_n, kvar. Give this or the catalogue rating (`rated_kvar`
+    /// with `rated_voltage_v`), not both.
+    pub kvar: Option<f64>,
+    /// Catalogue rating of the step's capacitors: rated output at `rated_voltage_v`, kvar
+    /// (instead of `kvar`). The effective output at U_n is then Q_R·(U/U_R)²/(1 − p), with
+    /// U the connection voltage and p the detuning ratio (0 for a plain step).
+    pub rated_kvar: Option<f64>,
+    /// Rated voltage of the capacitors that `rated_kvar` refers to, V (line to line; line
+    /// to neutral for a single-phase step). Required with `rated_kvar`; it is also the
+    /// capacitors' rated voltage for the harmonic limits.
+    pub rated_voltage_v: Option<f64>,
     /// `abc` (three-phase, default) or `a`, `b`, `c` (single-phase, line to neutral).
     pub phase: Option<String>,
     /// Fixed step (on from the start, never switched). Default false.

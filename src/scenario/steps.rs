@@ -1,5 +1,14 @@
-//! Validation of the `[[steps]]` tables: output, phase, detuning, contactor life,
-//! capacitor rating, repetition and fault injection.
+//! Validation of the `[[steps]]` tables: output (effective kvar at U_n, or the
+//! capacitors' catalogue rating), phase, detuning, contactor life, capacitor rating,
+//! repetition and fault injection.
+//!
+//! A step's output is given one of two ways. `kvar` is the effective output at U_n, what
+//! the step delivers on the bus whatever its parts. `rated_kvar` with `rated_voltage_v` is
+//! the catalogue rating of its capacitors, Q_R at U_R; behind a detuning reactor of ratio p
+//! the capacitors see U/(1 − p), so the step delivers Q = Q_R·(U/U_R)²/(1 − p) at the
+//! connection voltage U (line to line for a three-phase step, line to neutral for a
+//! single-phase one). For example 50 kvar rated at 440 V behind a 7 % reactor on a 400 V
+//! bus delivers 50·(400/440)²/0.93 = 44.43 kvar.
 //!
 //! Steps are numbered from 1 in the order the tables expand (a table with `count = 3`
 //! makes three consecutive numbers). Errors name a table the way a user counts it, by its
@@ -62,7 +71,6 @@ pub(super) fn steps(tables: &[StepSection], u_n: f64) -> Result<Vec<StepSpec>, F
 
 /// One table's step; `key` turns a field name into the key errors show.
 fn step(st: &StepSection, u_n: f64, key: &dyn Fn(&str) -> String) -> Result<StepSpec, FieldError> {
-    let kvar = range_open(&key("kvar"), st.kvar, 0.0, 100_000.0, "kvar")?;
     let phase = match st.phase.as_deref().map(str::trim) {
         None | Some("abc") | Some("ABC") | Some("3") => StepPhase::Three,
         Some(p) => StepPhase::Single(phase_index(&key("phase"), p).map_err(|e| {
@@ -85,18 +93,76 @@ fn step(st: &StepSection, u_n: f64, key: &dyn Fn(&str) -> String) -> Result<Step
     )?;
     let fault = st.fault.as_ref().map(|f| fault(f, key)).transpose()?;
     let u_conn = phase.connection_voltage_v(u_n);
-    let capacitor_rated_voltage_v = st
+    let rated_voltage = |name: &str, v: f64| {
+        range(
+            &key(name),
+            v,
+            (0.8 * u_conn).round(),
+            (3.0 * u_conn).round(),
+            "V",
+        )
+    };
+    let mut capacitor_rated_voltage_v = st
         .capacitor_rated_voltage_v
-        .map(|v| {
-            range(
-                &key("capacitor_rated_voltage_v"),
-                v,
-                (0.8 * u_conn).round(),
-                (3.0 * u_conn).round(),
-                "V",
-            )
-        })
+        .map(|v| rated_voltage("capacitor_rated_voltage_v", v))
         .transpose()?;
+    let kvar = match (st.kvar, st.rated_kvar) {
+        (Some(_), Some(_)) => {
+            return Err(FieldError::new(
+                key("rated_kvar"),
+                "give `kvar` (the effective output at U_n) or `rated_kvar` with \
+                 `rated_voltage_v` (the capacitors' catalogue rating), not both",
+            ))
+        }
+        (None, None) => {
+            return Err(FieldError::new(
+                key("kvar"),
+                "missing: give `kvar` (the effective output at U_n, kvar) or `rated_kvar` \
+                 with `rated_voltage_v` (the capacitors' catalogue rating)",
+            ))
+        }
+        (Some(q), None) => {
+            if st.rated_voltage_v.is_some() {
+                return Err(FieldError::new(
+                    key("rated_voltage_v"),
+                    "belongs with `rated_kvar` (the catalogue rating); with `kvar` give the \
+                     capacitors' rated voltage as `capacitor_rated_voltage_v`",
+                ));
+            }
+            range_open(&key("kvar"), q, 0.0, 100_000.0, "kvar")?
+        }
+        (None, Some(q_r)) => {
+            let q_r = range_open(&key("rated_kvar"), q_r, 0.0, 100_000.0, "kvar")?;
+            let u_r = st.rated_voltage_v.ok_or_else(|| {
+                FieldError::new(
+                    key("rated_voltage_v"),
+                    format!(
+                        "missing: `rated_kvar` needs the voltage it is rated at, V ({} to {} \
+                         here)",
+                        (0.8 * u_conn).round(),
+                        (3.0 * u_conn).round()
+                    ),
+                )
+            })?;
+            if capacitor_rated_voltage_v.is_some() {
+                return Err(FieldError::new(
+                    key("capacitor_rated_voltage_v"),
+                    "`rated_voltage_v` already gives the capacitors' rated voltage; leave \
+                     this key out",
+                ));
+            }
+            let u_r = rated_voltage("rated_voltage_v", u_r)?;
+            capacitor_rated_voltage_v = Some(u_r);
+            let q = effective_kvar(q_r, u_r, u_conn, detuning);
+            range_open(
+                &key("rated_kvar"),
+                q,
+                0.0,
+                100_000.0,
+                "kvar (effective at U_n)",
+            )?
+        }
+    };
     Ok(StepSpec {
         kvar,
         phase,
@@ -106,6 +172,20 @@ fn step(st: &StepSection, u_n: f64, key: &dyn Fn(&str) -> String) -> Result<Step
         capacitor_rated_voltage_v,
         fault,
     })
+}
+
+/// Effective output at the connection voltage `u_conn_v` of capacitors rated `rated_kvar`
+/// at `rated_voltage_v`, behind a detuning reactor of ratio `detuning` (none: plain), kvar:
+/// Q = Q_R·(U/U_R)²/(1 − p). The reactor's voltage drop raises the capacitor voltage to
+/// U/(1 − p), so the step delivers more than the capacitor's output at U would be.
+pub fn effective_kvar(
+    rated_kvar: f64,
+    rated_voltage_v: f64,
+    u_conn_v: f64,
+    detuning: Option<f64>,
+) -> f64 {
+    let p = detuning.unwrap_or(0.0);
+    rated_kvar * (u_conn_v / rated_voltage_v).powi(2) / (1.0 - p)
 }
 
 /// A step's injected fault.
