@@ -4,8 +4,9 @@
 //! ([`scenario`]), load profiles ([`profile`]), the supply and bank model ([`supply`],
 //! [`bank`]), the step controller ([`controller`]), the time-stepping engine ([`engine`]),
 //! the run metrics ([`metrics`]), harmonic resonance ([`harmonics`]), the analysis that
-//! judges a run ([`analysis`]) and the report writers ([`report`]). It never prints and
-//! knows nothing of the command line; the `bankstep` binary is a thin shell around it.
+//! judges a run ([`analysis`]), sweeps of many settings on one profile ([`sweep`]) and the
+//! report writers ([`report`]). It never prints and knows nothing of the command line; the
+//! `bankstep` binary is a thin shell around it.
 
 pub mod analysis;
 pub mod bank;
@@ -21,5 +22,6 @@ pub mod report;
 pub mod scenario;
 pub mod study;
 pub mod supply;
+pub mod sweep;
 pub mod text;
 pub mod timebase;

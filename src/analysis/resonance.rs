@@ -189,6 +189,18 @@ fn judged_ratio(h: &StateHarmonics, breaches: &[Breach]) -> f64 {
 /// The resonance section of a run: every state reached, solved once each, with the states
 /// near a harmonic of the load.
 pub fn assess(study: &Study, hm: &HarmonicModel, m: &RunMetrics) -> ResonanceReport {
+    assess_with(study, hm, m, &|mask| hm.state(mask))
+}
+
+/// As [`assess`], with each state's harmonics given by `solve` (which must return what
+/// `hm.state(mask)` returns; a sweep passes a cache shared across its runs, so that a
+/// state of a bank is solved once however many runs reach it).
+pub fn assess_with(
+    study: &Study,
+    hm: &HarmonicModel,
+    m: &RunMetrics,
+    solve: &(dyn Fn(crate::bank::BankState) -> StateHarmonics + Sync),
+) -> ResonanceReport {
     let sc = &study.scenario;
     let f = sc.supply.frequency_hz;
     let run_s = m.run.duration_s.max(1e-9);
@@ -199,7 +211,7 @@ pub fn assess(study: &Study, hm: &HarmonicModel, m: &RunMetrics) -> ResonanceRep
     // the report does not depend on the number of threads.
     let solved: Vec<_> = {
         use rayon::prelude::*;
-        m.states.par_iter().map(|st| hm.state(st.mask)).collect()
+        m.states.par_iter().map(|st| solve(st.mask)).collect()
     };
     for (st, h) in m.states.iter().zip(solved) {
         let hours_per_year = st.time_s / run_s * HOURS_PER_YEAR;

@@ -12,19 +12,23 @@ mod check;
 mod controller;
 mod harmonics;
 mod load;
+pub mod overrides;
 mod report;
 mod run;
 pub mod schema;
 mod steps;
 mod supply;
+pub mod tariff;
 
 pub use controller::{DEAD_BAND_FRACTION_KEY, DEAD_BAND_KVAR_KEY};
+pub use overrides::Override;
 pub use schema::{
     ControllerSection, FaultSection, HarmonicsSection, LoadSection, ProtectionSection,
     ReportSection, RunSection, ScenarioFile, StepSection, StudySection, SupplySection,
     TargetPfValue, TransformerSection,
 };
 pub use steps::effective_kvar;
+pub use tariff::{Tariff, TariffSection};
 
 use crate::bank::StepSpec;
 use crate::controller::ControllerParams;
@@ -109,6 +113,9 @@ pub struct Scenario {
     /// (`controller.dead_band_fraction`); `None` when neither was written and the default
     /// (0.65 × the smallest switched step) applies.
     pub dead_band_key: Option<&'static str>,
+    /// Prices of reactive energy, a low PF and worn parts (`[tariff]`); `None` when the
+    /// scenario has no tariff.
+    pub tariff: Option<Tariff>,
     /// SHA-256 of the scenario text, lowercase hex, for provenance.
     pub content_sha256: String,
 }
@@ -168,6 +175,7 @@ impl Scenario {
         let harm = harmonics::harmonics(&f.harmonics)?;
         let run = run::run(&f.run)?;
         let rep = report::report(&f.report, smallest, ctl.params.connect_delay_s)?;
+        let tariff = tariff::tariff(&f.tariff)?;
         let name = f.study.name.clone().unwrap_or_else(|| {
             path.file_stem()
                 .map(|s| s.to_string_lossy().into_owned())
@@ -195,6 +203,7 @@ impl Scenario {
             hunting_window_s: rep.hunting_window_s,
             capacitor_discharge_s: ctl.capacitor_discharge_s,
             dead_band_key: ctl.dead_band_key,
+            tariff,
             content_sha256: String::new(),
         })
     }

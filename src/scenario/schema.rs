@@ -39,6 +39,9 @@ pub struct ScenarioFile {
     /// Report options.
     #[serde(default)]
     pub report: ReportSection,
+    /// Prices of reactive energy, a low PF and worn parts (optional).
+    #[serde(default)]
+    pub tariff: Option<super::tariff::TariffSection>,
 }
 
 /// `[study]`.
