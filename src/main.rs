@@ -17,6 +17,7 @@ use bankstep::engine::{IntervalRecord, Observer};
 use bankstep::error::RunError;
 use bankstep::harmonics::scan::ScanGrid;
 use bankstep::harmonics::survey::{self, Selection, Survey};
+use bankstep::report::design as design_report;
 use bankstep::report::resonance::{self as resonance_report, ResonanceContext};
 use bankstep::report::{
     JsonReport, ReportContext, ReportError, ReportWriter, Summary, TimeseriesWriter,
@@ -136,6 +137,55 @@ persons, to local codes and licensed practice.
     exit_codes!()
 );
 
+const DESIGN_AFTER_HELP: &str = concat!(
+    "How it works:
+  1. The kvar needed. At each instant of the profile the load needs
+     Q_c = Q - P * tan(phi_target) (the three-phase load, kW and kvar) to reach the target
+     PF: the kW-multiplier rule P * (tan phi1 - tan phi2). It needs nothing while the site
+     exports or is idle (P <= 0), while the load already leads, or while it is at or past
+     the target. Weighted by time, these make a duration curve. The recommended total is
+     the kvar that covers the need for --coverage of the time (0.95: all but the 5 % of
+     the time with the largest need); the largest need and the energy-weighted figure (the
+     bank that delivers that share of the kvarh needed) are shown beside it.
+  2. Candidate layouts. From the catalogue sizes (--sizes, kvar at the capacitors' rated
+     voltage) and 2 to --max-steps switched steps: equal steps (6x50), a half-size first
+     step (25+5x50, 1:2:2), binary (25+50+100, 1:2:4) and a small trim step plus equal
+     steps (15+5x50). A layout is kept when its effective total lies within 100 to 130 %
+     of the recommended total. Each comes plain and behind each --detuning ratio; a
+     detuned step uses capacitors of the catalogue size rated at the usual voltage (440 V
+     for 7 % at 400 V) and delivers Q_R * (U/U_R)^2 / (1 - p): 50 kvar rated at 440 V
+     gives 44.4 kvar at 400 V behind 7 %.
+  3. Each layout replaces the scenario's bank and runs with 8 controller settings
+     (best-fit or rotating ordering, dead band 0.65 or 0.9 x the smallest step, the
+     scenario's switching delay or twice it), on the one profile, in parallel; its best
+     settings are those on the trade-off of billed PF against operations a year that meet
+     the target with the fewest operations.
+  4. Ranking: no state over a harmonic or capacitor limit first, then no resonance near
+     a harmonic of the load, then the target met, then overcorrection (leading beyond the
+     threshold more than 1 % of the time), then fewer operations a year, fewer steps and
+     less kvar. Each candidate gets one sentence on why it stands where it does, and a
+     line on its smallest step against the light-load need.
+
+Outputs: the report on standard output; --json FILE the whole design (with the duration
+curve `need.curve` and each candidate's reachable kvar levels `candidates[i].reachable_kvar`
+for figures); --csv FILE one row per candidate. `-` writes either to standard output
+instead of the report.
+
+Examples:
+  bankstep design site.toml
+  bankstep design site.toml --coverage 0.9 --sizes 25,50 --max-steps 6 --detuning 0,7,14
+  bankstep design site.toml --json design.json --csv design.csv --threads 2
+
+",
+    caution!(),
+    "Detuning reactors raise the capacitor voltage to U/(1 - p): detuned steps need
+capacitors rated above it. Confirm a layout with a harmonic study and the makers' data
+before ordering it.
+
+",
+    exit_codes!()
+);
+
 /// Simulates automatic capacitor-bank step control on a site's load.
 ///
 /// A scenario file (TOML) describes the supply, the bank steps, the controller settings
@@ -175,6 +225,81 @@ enum Command {
     /// simulation first.
     #[command(after_help = RESONANCE_AFTER_HELP)]
     Resonance(ResonanceArgs),
+    /// Design a bank: the total kvar the site needs and the best layout of steps.
+    ///
+    /// Reads the load profile of the scenario, works out the kvar needed to reach the
+    /// target PF at each instant and the total that covers it for most of the time, then
+    /// simulates candidate step layouts (equal, 1:2:2, binary, a small step plus equal
+    /// steps; plain and detuned) with a few controller settings each, checks their
+    /// resonance and overcorrection, and ranks them with a reason for each.
+    #[command(after_help = DESIGN_AFTER_HELP)]
+    Design(DesignArgs),
+}
+
+/// Parses a comma-separated list of numbers.
+fn parse_number(text: &str) -> Result<f64, String> {
+    text.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|x| x.is_finite())
+        .ok_or_else(|| format!("`{text}` is not a number"))
+}
+
+/// Options of `bankstep design`.
+#[derive(Debug, Args)]
+struct DesignArgs {
+    /// Scenario file (TOML): the supply, the controller's target and delay, the load (CSV
+    /// or synthetic) and the harmonics; its own steps are replaced by each candidate.
+    #[arg(value_name = "SCENARIO")]
+    scenario: PathBuf,
+
+    /// Share of the time the recommended total covers, more than 0 and at most 1.
+    #[arg(long, value_name = "SHARE", default_value_t = 0.95)]
+    coverage: f64,
+
+    /// Available step sizes, kvar at the capacitors' rated voltage (comma-separated, each
+    /// more than 0 and at most 100 000).
+    #[arg(
+        long,
+        value_name = "KVAR,...",
+        value_delimiter = ',',
+        value_parser = parse_number,
+        default_value = "5,10,12.5,15,20,25,30,40,50,60,75,100"
+    )]
+    sizes: Vec<f64>,
+
+    /// Largest number of switched steps (2 to 64).
+    #[arg(long, value_name = "N", default_value_t = 8)]
+    max_steps: usize,
+
+    /// Detuning ratios to try, % (comma-separated; 0 for plain steps, at most 20).
+    #[arg(
+        long,
+        value_name = "P,...",
+        value_delimiter = ',',
+        value_parser = parse_number,
+        default_value = "0,7"
+    )]
+    detuning: Vec<f64>,
+
+    /// Layouts simulated per detuning ratio (the families take turns, least excess over
+    /// the recommended total first).
+    #[arg(long, value_name = "N", default_value_t = 10)]
+    max_layouts: usize,
+
+    /// Also write the whole design as one JSON object to FILE (`-`: standard output,
+    /// instead of the report).
+    #[arg(long, value_name = "FILE")]
+    json: Option<PathBuf>,
+
+    /// Also write one CSV row per candidate to FILE (`-`: standard output, instead of the
+    /// report).
+    #[arg(long, value_name = "FILE")]
+    csv: Option<PathBuf>,
+
+    /// No progress bar and no notes on standard error.
+    #[arg(long, short)]
+    quiet: bool,
 }
 
 /// Parses `--every N`: a whole number of intervals, at least 1.
@@ -337,6 +462,7 @@ fn main() -> ExitCode {
     let outcome = match cli.command {
         Command::Simulate(args) => simulate(&args),
         Command::Resonance(args) => resonance(&args),
+        Command::Design(args) => design(&args),
     };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,
@@ -614,6 +740,98 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
         })?;
     }
     Ok(())
+}
+
+/// A progress bar for the stages of a design, on standard error when it is a terminal.
+fn design_bar(quiet: bool) -> Option<ProgressBar> {
+    if quiet || !std::io::stderr().is_terminal() {
+        return None;
+    }
+    let bar = ProgressBar::new(1);
+    let style = ProgressStyle::with_template("{msg:>22} [{bar:40}] {percent:>3} % ({eta} left)")
+        .map(|s| s.progress_chars("=> "))
+        .unwrap_or_else(|_| ProgressStyle::default_bar());
+    bar.set_style(style);
+    Some(bar)
+}
+
+fn design(args: &DesignArgs) -> Result<(), Failure> {
+    use bankstep::design::{DesignOptions, Stage};
+    let file = args.scenario.display().to_string();
+    let text = std::fs::read_to_string(&args.scenario)
+        .with_context(|| format!("cannot read the scenario {file}"))
+        .map_err(Failure::input)?;
+    let opts = DesignOptions {
+        coverage: args.coverage,
+        sizes_kvar: args.sizes.clone(),
+        max_steps: args.max_steps,
+        detuning: args.detuning.iter().map(|p| p / 100.0).collect(),
+        max_layouts: args.max_layouts,
+    }
+    .checked()
+    .map_err(|e| Failure::input(anyhow::anyhow!("--{}", option_message(&e))))?;
+    let bar = design_bar(args.quiet);
+    let progress = |stage: Stage, done: u64, total: u64| {
+        if let Some(b) = &bar {
+            let msg = match stage {
+                Stage::Need => "reading the load",
+                Stage::Candidates => "running candidates",
+                Stage::Checks => "checking the best",
+            };
+            b.set_message(msg);
+            b.set_length(total.max(1));
+            b.set_position(done);
+        }
+    };
+    let result = bankstep::design::design(&text, &args.scenario, opts, &progress);
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let d = result.map_err(|e| {
+        use bankstep::design::DesignError as E;
+        use bankstep::sweep::SweepError as S;
+        let code = match &e {
+            E::Options(_) | E::Scenario(_) => 2,
+            E::Run(RunError::Profile(_)) => 2,
+            E::Sweep(S::Scenario(_) | S::Spec { .. }) => 2,
+            _ => 1,
+        };
+        Failure {
+            code,
+            error: anyhow::Error::new(e).context(format!("cannot design a bank for {file}")),
+        }
+    })?;
+    let mut to_stdout = false;
+    if let Some(path) = &args.json {
+        to_stdout |= is_stdout(path);
+        write_output(path, "design (JSON)", args.quiet, |out| {
+            design_report::write_json(&d, out)
+        })?;
+    }
+    if let Some(path) = &args.csv {
+        to_stdout |= is_stdout(path);
+        write_output(path, "candidates (CSV)", args.quiet, |out| {
+            design_report::write_csv(&d, out)
+        })?;
+    }
+    if !to_stdout {
+        write_output(Path::new("-"), "design report", true, |out| {
+            design_report::write_text(&d, out)
+        })?;
+    }
+    Ok(())
+}
+
+/// A design option error as the command line names it.
+fn option_message(e: &bankstep::design::OptionError) -> String {
+    use bankstep::design::OptionError as O;
+    match e {
+        O::Coverage(_) => format!("coverage: {e}"),
+        O::Sizes(_) => format!("sizes: {e}"),
+        O::MaxSteps(_) => format!("max-steps: {e}"),
+        O::Detuning(_) => format!("detuning: {e}"),
+        O::MaxLayouts => format!("max-layouts: {e}"),
+    }
 }
 
 #[cfg(test)]

@@ -7,14 +7,16 @@
 //!
 //! 1. a bank state reached exceeds a harmonic or capacitor limit (damage first);
 //! 2. a bank state reached resonates near a harmonic present in the load;
-//! 3. the billed PF misses the target;
-//! 4. overcorrected (leading beyond the threshold) more than [`OVERCORRECTED_SHARE`] of
+//! 3. a contactor reaches its rated life in less than [`SHORT_LIFE_YEARS`] (the bank
+//!    hunts or switches far too often, whatever the PF it reaches);
+//! 4. the billed PF misses the target;
+//! 5. overcorrected (leading beyond the threshold) more than [`OVERCORRECTED_SHARE`] of
 //!    the time;
-//! 5. operations a year of all contactors, rounded to two significant figures (a yearly
+//! 6. operations a year of all contactors, rounded to two significant figures (a yearly
 //!    extrapolation is not finer than that);
-//! 6. fewer switched steps (fewer contactors and fuses);
-//! 7. the smaller total kvar;
-//! 8. the label, so that the order never depends on anything else.
+//! 7. fewer switched steps (fewer contactors and fuses);
+//! 8. the smaller total kvar;
+//! 9. the label, so that the order never depends on anything else.
 //!
 //! The reason of each candidate below the first names the check on which it lost to the
 //! one ranked just above it.
@@ -24,9 +26,15 @@ use super::need::KvarNeed;
 use crate::analysis::{Assessment, StateResonance};
 use crate::engine::RunResult;
 use crate::pf::{format_pf, Quadrant};
+
 use crate::text::{approx, num, pct};
 use serde::Serialize;
 use std::cmp::Ordering;
+
+/// A candidate whose first contactor reaches its rated life sooner than this wears out
+/// too fast, years (a contactor is expected to last several years between overhauls;
+/// common practice, our choice of figure).
+pub const SHORT_LIFE_YEARS: f64 = 5.0;
 
 /// A candidate counts as overcorrected when it leads beyond the threshold for more than
 /// this share of the run's time (1 %, about 88 h a year).
@@ -212,18 +220,54 @@ impl Candidate {
         self.overcorrected_share > OVERCORRECTED_SHARE
     }
 
+    /// True when a contactor reaches its rated life in less than [`SHORT_LIFE_YEARS`].
+    pub fn wears_out(&self) -> bool {
+        self.years_to_first_contactor_life
+            .is_some_and(|y| y < SHORT_LIFE_YEARS)
+    }
+
     /// True when it passes every check: no limit exceeded, no resonance near a harmonic,
-    /// the target met, not overcorrected.
+    /// no contactor worn out early, the target met, not overcorrected.
     pub fn passes_every_check(&self) -> bool {
         !self.resonance.over_limit
             && !self.resonance.near_harmonic
+            && !self.wears_out()
             && self.meets_target
             && !self.overcorrected()
     }
 
     /// The billed PF with its quadrant, e.g. `0.97 lag`.
+    /// Near the goal it shows the digits that decide it (`0.9795 lag` against 0.98).
     pub fn billed_text(&self) -> String {
-        format_pf(self.billed_pf, self.billed_pf_quadrant)
+        crate::text::pf_vs(self.billed_pf, self.billed_pf_quadrant, self.billed_goal)
+    }
+
+    /// The smallest step against the light-load need, in one sentence.
+    pub fn light_load_sentence(&self) -> String {
+        let (q, l) = (self.smallest_step_kvar, self.light_load_kvar);
+        if l <= 0.0 {
+            return format!(
+                "The load never needs correction, so its smallest step ({} kvar) is never \
+                 needed.",
+                num(q, 1)
+            );
+        }
+        if q > l {
+            format!(
+                "Its smallest step ({} kvar) is larger than the light-load need ({} kvar): at \
+                 light load it leaves the load uncorrected or, switched in, leads by up to {} \
+                 kvar.",
+                num(q, 1),
+                num(l, 1),
+                num(q - l, 1)
+            )
+        } else {
+            format!(
+                "Its smallest step ({} kvar) fits within the light-load need ({} kvar).",
+                num(q, 1),
+                num(l, 1)
+            )
+        }
     }
 
     /// The goal as a lagging PF, e.g. `0.95 lag` (`1.00` for unity).
@@ -237,6 +281,7 @@ impl Candidate {
 enum Decider {
     OverLimit,
     NearHarmonic,
+    WearsOut,
     Target,
     Overcorrected,
     Operations,
@@ -248,7 +293,7 @@ enum Decider {
 /// Compares two candidates by the order of the module docs; returns the ordering and the
 /// check that decided it.
 fn compare(a: &Candidate, b: &Candidate) -> (Ordering, Decider) {
-    let checks: [(Ordering, Decider); 8] = [
+    let checks: [(Ordering, Decider); 9] = [
         (
             a.resonance.over_limit.cmp(&b.resonance.over_limit),
             Decider::OverLimit,
@@ -257,6 +302,7 @@ fn compare(a: &Candidate, b: &Candidate) -> (Ordering, Decider) {
             a.resonance.near_harmonic.cmp(&b.resonance.near_harmonic),
             Decider::NearHarmonic,
         ),
+        (a.wears_out().cmp(&b.wears_out()), Decider::WearsOut),
         (b.meets_target.cmp(&a.meets_target), Decider::Target),
         (
             a.overcorrected().cmp(&b.overcorrected()),
@@ -335,12 +381,20 @@ fn first_reason(c: &Candidate, rest: &[Candidate]) -> String {
             c.goal_text()
         )
     };
-    let ops = format!("{} operations a year", approx(c.operations_per_year));
+    let ops = match c.years_to_first_contactor_life {
+        Some(y) => format!(
+            "{} operations a year (the first contactor reaches its rated life in {} years)",
+            approx(c.operations_per_year),
+            crate::text::years_text(y)
+        ),
+        None => format!("{} operations a year", approx(c.operations_per_year)),
+    };
     let alike = rest
         .iter()
         .filter(|o| {
             o.resonance.over_limit == c.resonance.over_limit
                 && o.resonance.near_harmonic == c.resonance.near_harmonic
+                && o.wears_out() == c.wears_out()
                 && o.meets_target == c.meets_target
                 && o.overcorrected() == c.overcorrected()
         })
@@ -380,6 +434,13 @@ fn below_reason(c: &Candidate, above: &Candidate, why: Decider) -> String {
         Decider::NearHarmonic => format!(
             "Below #{r} because it spends {}, which #{r} avoids.",
             resonance_words(c)
+        ),
+        Decider::WearsOut => format!(
+            "Below #{r} because a contactor reaches its rated life in {} years ({} operations a \
+             year), under the {} years a design should give.",
+            crate::text::years_text(c.years_to_first_contactor_life.unwrap_or(0.0)),
+            approx(c.operations_per_year),
+            num(SHORT_LIFE_YEARS, 0)
         ),
         Decider::Target => format!(
             "Below #{r} because it misses the target: billed {} against {}.",

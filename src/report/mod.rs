@@ -16,6 +16,7 @@
 //! [`crate::analysis`] and handed to the writers in the [`ReportContext`]; quantities are
 //! put into words by [`crate::text`], so a figure reads the same in every output.
 
+pub mod design;
 pub mod json;
 pub mod resonance;
 pub mod summary;
