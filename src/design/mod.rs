@@ -146,11 +146,14 @@ pub fn settings_grid(delay_s: f64) -> Vec<Trial> {
 pub struct Design {
     /// Study name.
     pub scenario: String,
-    /// SHA-256 of the scenario text, lowercase hex.
+    /// SHA-256 of the scenario text, lowercase hex (in the JSON `provenance` object).
+    #[serde(skip)]
     pub scenario_sha256: String,
-    /// SHA-256 of the CSV profile (`null` for the synthetic generator).
+    /// SHA-256 of the CSV profile (`None` for the synthetic generator; in `provenance`).
+    #[serde(skip)]
     pub profile_sha256: Option<String>,
-    /// Seed of the synthetic generator.
+    /// Seed of the synthetic generator (in `provenance`).
+    #[serde(skip)]
     pub seed: u64,
     /// U_n, V.
     pub nominal_voltage_v: f64,
@@ -225,7 +228,7 @@ pub fn design(
         options: opts,
         need,
     };
-    if !(r > 0.0) {
+    if r.is_nan() || r <= 0.0 {
         out.notes.push(format!(
             "The load needs no correction for {} of the time at the target {}, so there is \
              no bank to design at this coverage.",

@@ -53,7 +53,7 @@ pub const GRID_KVAR: f64 = 0.01;
 /// P > 0 import, Q > 0 inductive) to a target of tan φ_t = `tan_target` (positive lagging,
 /// negative leading): Q − P·tan φ_t where positive and P > 0, else 0.
 pub fn kvar_needed(p_kw: f64, q_kvar: f64, tan_target: f64) -> f64 {
-    if !(p_kw > 0.0) {
+    if p_kw.is_nan() || p_kw <= 0.0 {
         return 0.0;
     }
     let q = q_kvar - p_kw * tan_target;
@@ -399,7 +399,7 @@ pub fn measure_source<S: LoadSource + ?Sized>(
         let next = source.unchanged_until(k).clamp(k + 1, n);
         let held = (next - k) as f64 * plan.dt_s;
         let (p, q) = (s.p_total(), s.q_total());
-        if !(p > 0.0) {
+        if p.is_nan() || p <= 0.0 {
             export_s += held;
         } else if q < 0.0 {
             leading_s += held;

@@ -9,7 +9,8 @@
 //! 2. a bank state reached resonates near a harmonic present in the load;
 //! 3. a contactor reaches its rated life in less than [`SHORT_LIFE_YEARS`] (the bank
 //!    hunts or switches far too often, whatever the PF it reaches);
-//! 4. the billed PF misses the target;
+//! 4. the billed PF misses the target, and among those that miss it, by how much (to
+//!    0.001);
 //! 5. overcorrected (leading beyond the threshold) more than [`OVERCORRECTED_SHARE`] of
 //!    the time;
 //! 6. operations a year of all contactors, rounded to two significant figures (a yearly
@@ -220,6 +221,15 @@ impl Candidate {
         self.overcorrected_share > OVERCORRECTED_SHARE
     }
 
+    /// How far the billed PF falls short of the goal, in thousandths (0 when it meets it).
+    pub fn shortfall(&self) -> u64 {
+        if self.meets_target {
+            0
+        } else {
+            ((self.billed_goal - self.billed_pf).max(0.0) * 1000.0).ceil() as u64
+        }
+    }
+
     /// True when a contactor reaches its rated life in less than [`SHORT_LIFE_YEARS`].
     pub fn wears_out(&self) -> bool {
         self.years_to_first_contactor_life
@@ -303,7 +313,7 @@ fn compare(a: &Candidate, b: &Candidate) -> (Ordering, Decider) {
             Decider::NearHarmonic,
         ),
         (a.wears_out().cmp(&b.wears_out()), Decider::WearsOut),
-        (b.meets_target.cmp(&a.meets_target), Decider::Target),
+        (a.shortfall().cmp(&b.shortfall()), Decider::Target),
         (
             a.overcorrected().cmp(&b.overcorrected()),
             Decider::Overcorrected,
@@ -395,7 +405,7 @@ fn first_reason(c: &Candidate, rest: &[Candidate]) -> String {
             o.resonance.over_limit == c.resonance.over_limit
                 && o.resonance.near_harmonic == c.resonance.near_harmonic
                 && o.wears_out() == c.wears_out()
-                && o.meets_target == c.meets_target
+                && o.shortfall() == c.shortfall()
                 && o.overcorrected() == c.overcorrected()
         })
         .count();
@@ -408,7 +418,7 @@ fn first_reason(c: &Candidate, rest: &[Candidate]) -> String {
         if rest.is_empty() {
             "the only layout simulated".to_string()
         } else {
-            "the only layout that does as well on these checks".to_string()
+            "no other layout does as well on these checks".to_string()
         }
     } else {
         format!(
@@ -442,10 +452,17 @@ fn below_reason(c: &Candidate, above: &Candidate, why: Decider) -> String {
             approx(c.operations_per_year),
             num(SHORT_LIFE_YEARS, 0)
         ),
-        Decider::Target => format!(
+        Decider::Target if above.meets_target => format!(
             "Below #{r} because it misses the target: billed {} against {}.",
             c.billed_text(),
             c.goal_text()
+        ),
+        Decider::Target => format!(
+            "Below #{r} because it falls further short of the target {}: billed {} against \
+             {} for #{r}.",
+            c.goal_text(),
+            c.billed_text(),
+            above.billed_text()
         ),
         Decider::Overcorrected => format!(
             "Below #{r} because it is overcorrected {} of the time (leading beyond {} kvar), #{r} {}.",

@@ -11,6 +11,8 @@
 //!   [`crate::engine::Observer`] that writes one CSV row per interval while the run goes.
 //!
 //! - [`resonance`]: the tables, CSV curves and JSON of `bankstep resonance`.
+//! - [`design`]: the report, JSON and CSV of `bankstep design` (rendering a
+//!   [`crate::design::Design`]).
 //!
 //! What a run means (findings, advice, the harmonic assessment) is decided once in
 //! [`crate::analysis`] and handed to the writers in the [`ReportContext`]; quantities are
