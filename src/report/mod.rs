@@ -11,6 +11,7 @@
 //!   [`crate::engine::Observer`] that writes one CSV row per interval while the run goes.
 //!
 //! - [`resonance`]: the tables, CSV curves and JSON of `bankstep resonance`.
+//! - [`sweep`]: the summary, CSV, JSON and shard files of `bankstep sweep` and `merge`.
 //!
 //! What a run means (findings, advice, the harmonic assessment) is decided once in
 //! [`crate::analysis`] and handed to the writers in the [`ReportContext`]; quantities are
@@ -19,6 +20,7 @@
 pub mod json;
 pub mod resonance;
 pub mod summary;
+pub mod sweep;
 pub mod timeseries;
 
 pub use crate::analysis::{Finding, Severity};
