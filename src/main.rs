@@ -19,11 +19,13 @@ use bankstep::harmonics::scan::ScanGrid;
 use bankstep::harmonics::survey::{self, Selection, Survey};
 use bankstep::report::design as design_report;
 use bankstep::report::resonance::{self as resonance_report, ResonanceContext};
+use bankstep::report::sweep as sweep_report;
 use bankstep::report::{
     JsonReport, ReportContext, ReportError, ReportWriter, Summary, TimeseriesWriter,
 };
 use bankstep::scenario::Scenario;
 use bankstep::study::Study;
+use bankstep::sweep::{FrontAxes, Outcome, Shard, Sweep, SweepError, SweepSpec, Variation};
 use clap::{Args, Parser, Subcommand};
 use indicatif::{ProgressBar, ProgressStyle};
 use std::fs::File;
@@ -61,8 +63,10 @@ const TOP_AFTER_HELP: &str = concat!(
     "Example:
   bankstep simulate site.toml --json site.json
 
-Run `bankstep simulate --help` for the options and the time-series columns, and
-`bankstep resonance --help` for the impedance scan and the detuning comparison.
+Run `bankstep simulate --help` for the options and the time-series columns,
+`bankstep resonance --help` for the impedance scan and the detuning comparison,
+`bankstep sweep --help` for trying many settings on one load profile, and
+`bankstep design --help` for the total kvar a site needs and the best layout of steps.
 
 ",
     caution!(),
@@ -132,6 +136,78 @@ Examples:
 Caution: capacitors hold their charge after they are switched off; resonance can destroy
 capacitors, fuses and drives. Changes to steps, reactors or wiring are for qualified
 persons, to local codes and licensed practice.
+
+",
+    exit_codes!()
+);
+
+const SWEEP_AFTER_HELP: &str = concat!(
+    "How it works:
+  Each --vary KEY=VALUES names a scenario key (dotted, as in the file) and the values to
+  try. The settings are every combination of the values (the first key changes slowest),
+  and the scenario's own settings always run too, as setting 0, the reference. Every
+  run uses the same load profile, read once.
+
+Values:
+  30,40,50          numbers (TOML values; bare words such as rotating are text)
+  10:60:10          a range start:stop:step, stop included (10, 20, 30, 40, 50, 60)
+  0.3:0.7:0.1       decimal steps do not drift (0.3, 0.4, 0.5, 0.6, 0.7)
+  \"0.95 lag\",1.0    quoted text; commas inside quotes, [...] or {...} do not split
+  steps=6x50,25+5x50,40f+2x25+5x50,6x50@7%
+                    step layouts: COUNTxKVAR terms joined by +, f for a fixed step,
+                    @P% for a detuning reactor of ratio P on every step
+
+A grid file (--grid) holds the same in a [vary] table:
+  [vary]
+  \"controller.dead_band_kvar\" = [10, 20, 30]
+  \"controller.switching_delay_s\" = \"10:60:10\"
+
+What it prints:
+  The Pareto front of two objectives (--front): pf-ops, billed PF against operations a
+  year (default); under-ops, share of time under target against operations a year;
+  pf-life, billed PF against years to the first contactor's rated life. A setting is on
+  the front when no other setting is at least as good on both and better on one. Then a
+  recommendation in plain words: among the front settings that meet the PF target, the
+  one with the fewest operations (or longest life), what it gives up against its
+  neighbours, and whether any setting beats the scenario's own on both objectives.
+  With a [tariff] in the scenario the front is ranked by cost a year.
+  --csv: one row per run (setting, seed, billed PF, share under target, operations a
+  year, first rated life, hunting, overcorrection, worst resonance state, cost, front).
+  --json: the rows, every setting's figures (median and range over seeds), the front,
+  the recommendation and the provenance (tool, scenario and profile hashes).
+
+Seeds (--seeds N): with a synthetic load each setting runs N times, run.seed = the
+scenario's seed + 0..N-1, and the figures are medians with their range. A CSV profile is
+one realisation, so --seeds is refused for it.
+
+Shards (--shard K/N): run only shard K of N (runs whose index mod N is K-1) and write
+the rows with a fingerprint to --json; then `bankstep merge` joins the shard files into
+exactly the outputs of a single run:
+  for k in 1 2 3 4; do
+    bankstep sweep site.toml --vary controller.dead_band_kvar=10:60:10 \\
+      --shard $k/4 --json shard$k.json --quiet &
+  done; wait
+  bankstep merge shard*.json --csv sweep.csv --json sweep.json
+
+Examples:
+  bankstep sweep site.toml --vary controller.dead_band_kvar=10:60:10 \\
+      --vary controller.ordering=sequential,rotating,best-fit
+  bankstep sweep site.toml --vary steps=6x50,3x100,25+5x50 --front pf-life --csv s.csv
+  bankstep sweep site.toml --grid grid.toml --seeds 5 --json sweep.json --threads 2
+
+",
+    caution!(),
+    exit_codes!()
+);
+
+const MERGE_AFTER_HELP: &str = concat!(
+    "Each shard file is the --json output of `bankstep sweep ... --shard K/N`. The files
+must come from the same sweep (same tool version, scenario, load profile, variations,
+seeds and front: their fingerprints agree) and hold every run exactly once; the merged
+summary, CSV and JSON are then byte for byte those of the sweep run in one go.
+
+Example:
+  bankstep merge shard1.json shard2.json shard3.json shard4.json --csv sweep.csv
 
 ",
     exit_codes!()
@@ -225,6 +301,18 @@ enum Command {
     /// simulation first.
     #[command(after_help = RESONANCE_AFTER_HELP)]
     Resonance(ResonanceArgs),
+    /// Try many settings of one scenario on its load profile and find the trade-off.
+    ///
+    /// Runs the scenario once per combination of the values given with --vary (or in a
+    /// grid file), plus the scenario's own settings, in parallel on one copy of the load
+    /// profile. Prints the Pareto front of billed PF against operations a year (or the
+    /// objectives chosen with --front) as a ranked table, and a recommendation in plain
+    /// words.
+    #[command(after_help = SWEEP_AFTER_HELP)]
+    Sweep(SweepArgs),
+    /// Join the shard files of a sweep run in parts (--shard K/N) into its outputs.
+    #[command(after_help = MERGE_AFTER_HELP)]
+    Merge(MergeArgs),
     /// Design a bank: the total kvar the site needs and the best layout of steps.
     ///
     /// Reads the load profile of the scenario, works out the kvar needed to reach the
@@ -234,6 +322,73 @@ enum Command {
     /// resonance and overcorrection, and ranks them with a reason for each.
     #[command(after_help = DESIGN_AFTER_HELP)]
     Design(DesignArgs),
+}
+
+/// Options of `bankstep sweep`.
+#[derive(Debug, Args)]
+struct SweepArgs {
+    /// Scenario file (TOML): its own settings are the reference (setting 0).
+    #[arg(value_name = "SCENARIO")]
+    scenario: PathBuf,
+
+    /// A key and its values, KEY=V1,V2,... or KEY=START:STOP:STEP (repeat for more keys).
+    #[arg(long, value_name = "KEY=VALUES")]
+    vary: Vec<String>,
+
+    /// A grid file with a [vary] table (key = [values] or "start:stop:step"), after the
+    /// --vary keys.
+    #[arg(long, value_name = "FILE")]
+    grid: Option<PathBuf>,
+
+    /// Seeds per setting (synthetic load only): medians and ranges over N runs.
+    #[arg(long, value_name = "N", default_value_t = 1)]
+    seeds: u32,
+
+    /// The two objectives of the front: pf-ops, under-ops or pf-life.
+    #[arg(long, value_name = "FRONT", default_value = "pf-ops", value_parser = parse_front)]
+    front: FrontAxes,
+
+    /// Run only shard K of N and write its rows with a fingerprint to --json (then join
+    /// the shards with `bankstep merge`).
+    #[arg(long, value_name = "K/N", requires = "json", conflicts_with = "csv")]
+    shard: Option<String>,
+
+    /// Write one row per run (CSV) to FILE (`-`: standard output, instead of the summary).
+    #[arg(long, value_name = "FILE")]
+    csv: Option<PathBuf>,
+
+    /// Write the rows, settings, front, recommendation and provenance (JSON) to FILE; with
+    /// --shard, the shard file (`-`: standard output, instead of the summary).
+    #[arg(long, value_name = "FILE")]
+    json: Option<PathBuf>,
+
+    /// No progress bar and no notes on standard error.
+    #[arg(long, short)]
+    quiet: bool,
+}
+
+/// Options of `bankstep merge`.
+#[derive(Debug, Args)]
+struct MergeArgs {
+    /// Shard files written by `bankstep sweep --shard K/N --json FILE`.
+    #[arg(value_name = "SHARD.json", required = true)]
+    shards: Vec<PathBuf>,
+
+    /// Write one row per run (CSV) to FILE (`-`: standard output, instead of the summary).
+    #[arg(long, value_name = "FILE")]
+    csv: Option<PathBuf>,
+
+    /// Write the merged JSON to FILE (`-`: standard output, instead of the summary).
+    #[arg(long, value_name = "FILE")]
+    json: Option<PathBuf>,
+
+    /// No notes on standard error.
+    #[arg(long, short)]
+    quiet: bool,
+}
+
+fn parse_front(text: &str) -> Result<FrontAxes, String> {
+    FrontAxes::parse(text)
 }
 
 /// Parses a comma-separated list of numbers.
@@ -462,6 +617,8 @@ fn main() -> ExitCode {
     let outcome = match cli.command {
         Command::Simulate(args) => simulate(&args),
         Command::Resonance(args) => resonance(&args),
+        Command::Sweep(args) => sweep(&args),
+        Command::Merge(args) => merge(&args),
         Command::Design(args) => design(&args),
     };
     match outcome {
@@ -740,6 +897,148 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
         })?;
     }
     Ok(())
+}
+
+/// A sweep error with its exit code: a failed run as a run failure (1, or 2 for a profile
+/// defect met while streaming), everything else as bad input (2).
+fn sweep_failure(e: SweepError) -> Failure {
+    match e {
+        SweepError::Run {
+            source: RunError::Config(_),
+            ..
+        } => {
+            Failure::run(anyhow::anyhow!("{e}"))
+        }
+        e => Failure::input(anyhow::Error::new(e)),
+    }
+}
+
+/// A progress bar over the runs of a sweep, on a terminal.
+fn sweep_bar(runs: usize, quiet: bool) -> Option<ProgressBar> {
+    if quiet || !std::io::stderr().is_terminal() {
+        return None;
+    }
+    let bar = ProgressBar::new(runs as u64);
+    let style = ProgressStyle::with_template(
+        "sweeping [{bar:40}] {pos}/{len} runs ({per_sec}, {eta} left)",
+    )
+    .map(|s| s.progress_chars("=> "))
+    .unwrap_or_else(|_| ProgressStyle::default_bar());
+    bar.set_style(style);
+    Some(bar)
+}
+
+fn sweep(args: &SweepArgs) -> Result<(), Failure> {
+    let mut spec = SweepSpec {
+        variations: Vec::new(),
+        seeds: args.seeds,
+    };
+    for v in &args.vary {
+        spec.variations.push(
+            Variation::parse(v)
+                .context("--vary")
+                .map_err(Failure::input)?,
+        );
+    }
+    if let Some(g) = &args.grid {
+        let text = std::fs::read_to_string(g)
+            .with_context(|| format!("cannot read the grid file {}", g.display()))
+            .map_err(Failure::input)?;
+        spec.add_grid(&text, &g.display().to_string())
+            .map_err(|e| Failure::input(anyhow::Error::new(e)))?;
+    }
+    if spec.variations.is_empty() {
+        return Err(Failure::input(anyhow::anyhow!(
+            "nothing to vary: give --vary KEY=VALUES or --grid FILE (see bankstep sweep --help)"
+        )));
+    }
+    let shard = match &args.shard {
+        Some(s) => Some(s.parse::<Shard>().map_err(|e| Failure::input(anyhow::Error::new(e)))?),
+        None => None,
+    };
+    let sw = Sweep::from_file(&args.scenario, &spec, args.front).map_err(sweep_failure)?;
+    let runs = match shard {
+        Some(sh) => sh.runs(sw.run_count()).len(),
+        None => sw.run_count(),
+    };
+    if !args.quiet {
+        eprintln!(
+            "{} settings x {} seed(s) = {} runs{}",
+            sw.setting_count(),
+            sw.seeds,
+            sw.run_count(),
+            shard.map_or(String::new(), |s| format!("; shard {s} runs {runs} of them"))
+        );
+    }
+    let bar = sweep_bar(runs, args.quiet);
+    let progress = |done: u64, _total: u64| {
+        if let Some(b) = &bar {
+            b.set_position(done);
+        }
+    };
+    if let Some(sh) = shard {
+        let file = sw.run_shard(sh, &progress);
+        if let Some(b) = &bar {
+            b.finish_and_clear();
+        }
+        let file = file.map_err(sweep_failure)?;
+        let path = args.json.as_deref().unwrap_or(Path::new("-"));
+        return write_output(path, "shard file (JSON)", args.quiet, |out| {
+            sweep_report::write_shard(&file, out)
+        });
+    }
+    let outcome = sw.run_all(&progress);
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let outcome = outcome.map_err(sweep_failure)?;
+    write_sweep_outputs(&outcome, args.csv.as_deref(), args.json.as_deref(), args.quiet)
+}
+
+/// Writes the summary (unless an output goes to standard output), the CSV and the JSON.
+fn write_sweep_outputs(
+    o: &Outcome,
+    csv: Option<&Path>,
+    json: Option<&Path>,
+    quiet: bool,
+) -> Result<(), Failure> {
+    let mut to_stdout = false;
+    if let Some(path) = csv {
+        to_stdout |= is_stdout(path);
+        write_output(path, "sweep rows (CSV)", quiet, |out| {
+            sweep_report::write_csv(o, out)
+        })?;
+    }
+    if let Some(path) = json {
+        to_stdout |= is_stdout(path);
+        write_output(path, "sweep report (JSON)", quiet, |out| {
+            sweep_report::write_json_report(o, out)
+        })?;
+    }
+    if !to_stdout {
+        write_output(Path::new("-"), "summary", true, |out| {
+            sweep_report::write_summary(o, out)
+        })?;
+    }
+    Ok(())
+}
+
+fn merge(args: &MergeArgs) -> Result<(), Failure> {
+    let mut files = Vec::with_capacity(args.shards.len());
+    let mut names = Vec::with_capacity(args.shards.len());
+    for p in &args.shards {
+        let bytes = std::fs::read(p)
+            .with_context(|| format!("cannot read the shard file {}", p.display()))
+            .map_err(Failure::input)?;
+        let f = sweep_report::read_shard(&bytes)
+            .with_context(|| format!("{} is not a shard file of bankstep sweep", p.display()))
+            .map_err(Failure::input)?;
+        files.push(f);
+        names.push(p.display().to_string());
+    }
+    let outcome = bankstep::sweep::merge(files, &names)
+        .map_err(|e| Failure::input(anyhow::Error::new(e)))?;
+    write_sweep_outputs(&outcome, args.csv.as_deref(), args.json.as_deref(), args.quiet)
 }
 
 /// A progress bar for the stages of a design, on standard error when it is a terminal.

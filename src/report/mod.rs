@@ -13,6 +13,7 @@
 //! - [`resonance`]: the tables, CSV curves and JSON of `bankstep resonance`.
 //! - [`design`]: the report, JSON and CSV of `bankstep design` (rendering a
 //!   [`crate::design::Design`]).
+//! - [`sweep`]: the summary, CSV, JSON and shard files of `bankstep sweep` and `merge`.
 //!
 //! What a run means (findings, advice, the harmonic assessment) is decided once in
 //! [`crate::analysis`] and handed to the writers in the [`ReportContext`]; quantities are
@@ -22,6 +23,7 @@ pub mod design;
 pub mod json;
 pub mod resonance;
 pub mod summary;
+pub mod sweep;
 pub mod timeseries;
 
 pub use crate::analysis::{Finding, Severity};

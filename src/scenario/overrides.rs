@@ -5,7 +5,10 @@
 //! `supply.transformer.rated_kva`, `steps`) and a TOML value (`30`, `"rotating"`, an
 //! array, an inline table). [`Scenario::from_str_with`] parses the scenario text into a
 //! TOML document, writes each override into it (creating tables on the way, replacing
-//! whatever stood there: an array or a table is replaced whole), then deserializes and
+//! whatever stood there: an array or a table is replaced whole; a key that is another
+//! way of giving the same setting, such as `controller.dead_band_kvar` for
+//! `controller.dead_band_fraction` or `run.duration_h` for `run.duration_days`, replaces
+//! the other, see [`ALTERNATIVES`]), then deserializes and
 //! validates the document exactly as a file is. An unknown key is therefore refused by
 //! the same rule as in a file, and any error names the override's key and value.
 //!
@@ -189,9 +192,28 @@ pub fn apply(doc: &mut Table, key: &str, value: &Value) -> Result<(), String> {
             }
         };
     }
+    // A key that is one of several ways to give the same setting replaces the others, so
+    // that `controller.dead_band_kvar` can be varied on a scenario that gives
+    // `dead_band_fraction`.
+    for group in ALTERNATIVES {
+        if let Some(own) = group.iter().find(|k| **k == key) {
+            for other in group.iter().filter(|k| *k != own) {
+                if let Some(name) = other.rsplit('.').next() {
+                    table.remove(name);
+                }
+            }
+        }
+    }
     table.insert(last.to_string(), value);
     Ok(())
 }
+
+/// Keys that give the same setting in different ways: an override of one removes the
+/// others from its table.
+pub const ALTERNATIVES: &[&[&str]] = &[
+    &["controller.dead_band_kvar", "controller.dead_band_fraction"],
+    &["run.duration_s", "run.duration_h", "run.duration_days"],
+];
 
 /// The value at a dotted key of a document, if it is there.
 pub fn lookup<'a>(doc: &'a Table, key: &str) -> Option<&'a Value> {
@@ -274,10 +296,14 @@ impl Scenario {
                 .map(|e| (o, e))
         });
         let (key, message) = match culprit {
-            Some((o, e)) => (
-                o.key.clone(),
-                format!("override `{o}`: {}", field_words(&e)),
-            ),
+            Some((o, e)) => {
+                let words = if e.key == o.key {
+                    e.message.clone()
+                } else {
+                    field_words(&e)
+                };
+                (o.key.clone(), format!("override `{o}`: {words}"))
+            }
             None => {
                 let all: Vec<String> = overrides.iter().map(|o| format!("`{o}`")).collect();
                 (

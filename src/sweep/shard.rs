@@ -132,6 +132,18 @@ pub fn merge(files: Vec<ShardFile>, names: &[String]) -> Result<Outcome, SweepEr
             )));
         }
     }
+    for (i, f) in files.iter().enumerate().skip(1) {
+        if f.shard.n != first.shard.n {
+            return Err(SweepError::Merge(format!(
+                "{} is shard {} but {} is shard {}: the files come from splits into different \
+                 numbers of shards",
+                name(0),
+                first.shard,
+                name(i),
+                f.shard
+            )));
+        }
+    }
     let mut owner: Vec<Option<usize>> = vec![None; fp.runs];
     for (i, f) in files.iter().enumerate() {
         for r in &f.rows {
