@@ -134,3 +134,30 @@ fn help_teaches_the_method_and_the_cautions() {
         .stdout(predicate::str::contains("Q_R * (U/U_R)^2 / (1 - p)"))
         .stdout(predicate::str::contains("licensed practice"));
 }
+
+// Results are the same for any number of threads (the runs are independent and collected
+// in order; the ranking is a total order).
+#[test]
+fn design_is_the_same_on_one_and_two_threads() {
+    let dir = TempDir::new().unwrap();
+    let mut outs = Vec::new();
+    for threads in ["1", "2"] {
+        let json = dir.path().join(format!("d{threads}.json"));
+        bankstep()
+            .args([
+                "--threads",
+                threads,
+                "design",
+                "--quiet",
+                "--max-layouts",
+                "3",
+            ])
+            .arg("--json")
+            .arg(&json)
+            .arg(bundled("pumping-station.toml"))
+            .assert()
+            .success();
+        outs.push(std::fs::read(&json).unwrap());
+    }
+    assert_eq!(outs[0], outs[1]);
+}
