@@ -779,9 +779,7 @@ fn sweep_failure(e: SweepError) -> Failure {
         SweepError::Run {
             source: RunError::Config(_),
             ..
-        } => {
-            Failure::run(anyhow::anyhow!("{e}"))
-        }
+        } => Failure::run(anyhow::anyhow!("{e}")),
         e => Failure::input(anyhow::Error::new(e)),
     }
 }
@@ -826,7 +824,10 @@ fn sweep(args: &SweepArgs) -> Result<(), Failure> {
         )));
     }
     let shard = match &args.shard {
-        Some(s) => Some(s.parse::<Shard>().map_err(|e| Failure::input(anyhow::Error::new(e)))?),
+        Some(s) => Some(
+            s.parse::<Shard>()
+                .map_err(|e| Failure::input(anyhow::Error::new(e)))?,
+        ),
         None => None,
     };
     let sw = Sweep::from_file(&args.scenario, &spec, args.front).map_err(sweep_failure)?;
@@ -840,7 +841,9 @@ fn sweep(args: &SweepArgs) -> Result<(), Failure> {
             sw.setting_count(),
             sw.seeds,
             sw.run_count(),
-            shard.map_or(String::new(), |s| format!("; shard {s} runs {runs} of them"))
+            shard.map_or(String::new(), |s| format!(
+                "; shard {s} runs {runs} of them"
+            ))
         );
     }
     let bar = sweep_bar(runs, args.quiet);
@@ -865,7 +868,12 @@ fn sweep(args: &SweepArgs) -> Result<(), Failure> {
         b.finish_and_clear();
     }
     let outcome = outcome.map_err(sweep_failure)?;
-    write_sweep_outputs(&outcome, args.csv.as_deref(), args.json.as_deref(), args.quiet)
+    write_sweep_outputs(
+        &outcome,
+        args.csv.as_deref(),
+        args.json.as_deref(),
+        args.quiet,
+    )
 }
 
 /// Writes the summary (unless an output goes to standard output), the CSV and the JSON.
@@ -909,9 +917,14 @@ fn merge(args: &MergeArgs) -> Result<(), Failure> {
         files.push(f);
         names.push(p.display().to_string());
     }
-    let outcome = bankstep::sweep::merge(files, &names)
-        .map_err(|e| Failure::input(anyhow::Error::new(e)))?;
-    write_sweep_outputs(&outcome, args.csv.as_deref(), args.json.as_deref(), args.quiet)
+    let outcome =
+        bankstep::sweep::merge(files, &names).map_err(|e| Failure::input(anyhow::Error::new(e)))?;
+    write_sweep_outputs(
+        &outcome,
+        args.csv.as_deref(),
+        args.json.as_deref(),
+        args.quiet,
+    )
 }
 
 #[cfg(test)]

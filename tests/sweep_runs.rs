@@ -142,7 +142,11 @@ fn seeds_give_medians_and_ranges_and_are_refused_for_a_csv_profile() {
     pf.sort_by(f64::total_cmp);
     let s = &o.settings[1].billed_pf;
     assert_eq!((s.min, s.median, s.max), (pf[0], pf[1], pf[2]));
-    assert!(o.recommendation.sentences.iter().any(|l| l.contains("over 3 seeds")));
+    assert!(o
+        .recommendation
+        .sentences
+        .iter()
+        .any(|l| l.contains("over 3 seeds")));
 
     let csv = Path::new("scenarios/pumping-station.toml");
     let ct = std::fs::read_to_string(csv).unwrap();
@@ -150,8 +154,13 @@ fn seeds_give_medians_and_ranges_and_are_refused_for_a_csv_profile() {
         variations: vec![Variation::parse("controller.switching_delay_s=10").unwrap()],
         seeds: 2,
     };
-    let e = Sweep::new(&ct, csv, &spec, FrontAxes::PfOps).unwrap_err().to_string();
-    assert!(e.contains("CSV profile") && e.contains("one realisation"), "{e}");
+    let e = Sweep::new(&ct, csv, &spec, FrontAxes::PfOps)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("CSV profile") && e.contains("one realisation"),
+        "{e}"
+    );
 }
 
 #[test]
@@ -188,7 +197,11 @@ fn tariff_cost_of_a_hand_case() {
     let mut csv = String::from("time,p_a_kw,q_a_kvar,p_b_kw,q_b_kvar,p_c_kw,q_c_kvar\n");
     for h in 0..=24 {
         let t = h * 3600;
-        csv.push_str(&format!("{t},{p},{q},{p},{q},{p},{q}\n", p = 100.0 / 3.0, q = 20.0));
+        csv.push_str(&format!(
+            "{t},{p},{q},{p},{q},{p},{q}\n",
+            p = 100.0 / 3.0,
+            q = 20.0
+        ));
     }
     std::fs::write(dir.path().join("load.csv"), csv).unwrap();
     let scen = r#"
@@ -231,10 +244,16 @@ capacitor_step_price = 1000
         assert!(close(row.billed_pf, pf), "{}", row.billed_pf);
         let c = row.cost.unwrap();
         assert!(close(c.reactive_energy, reactive), "{c:?}");
-        assert!(close(c.pf_penalty, 365.0 * 10.0 * (0.95 - pf) / 0.01), "{c:?}");
+        assert!(
+            close(c.pf_penalty, 365.0 * 10.0 * (0.95 - pf) / 0.01),
+            "{c:?}"
+        );
         assert!(close(c.capacitors, 87.6), "{c:?}");
         assert_eq!(c.contactors, 0.0);
-        assert!(close(c.total, c.reactive_energy + c.pf_penalty + c.capacitors));
+        assert!(close(
+            c.total,
+            c.reactive_energy + c.pf_penalty + c.capacitors
+        ));
     }
     // The scenario's own threshold is the default tan φ 0.4 (common practice).
     assert!(close(o.rows[0].cost.unwrap().reactive_energy, 0.0));

@@ -182,7 +182,9 @@ fn variation_lines(canonical: &str) -> Vec<String> {
 fn front_row(o: &Outcome, s: &SettingStats, rank: usize, seeds: u32) -> Vec<String> {
     let mut r = vec![rank.to_string(), s.setting.to_string()];
     r.extend(s.values.iter().cloned());
-    r.push(spread(&s.billed_pf, seeds, &|x| pf3(x, s.billed_pf_quadrant)));
+    r.push(spread(&s.billed_pf, seeds, &|x| {
+        pf3(x, s.billed_pf_quadrant)
+    }));
     r.push(spread(&s.share_under_target, seeds, &pct));
     r.push(spread(&s.operations_per_year, seeds, &approx));
     // The first rated life of the setting's first run names its step.
@@ -197,7 +199,12 @@ fn front_row(o: &Outcome, s: &SettingStats, rank: usize, seeds: u32) -> Vec<Stri
     } else {
         "never".into()
     });
-    let hunting = Spread::of(&rows.iter().map(|x| x.hunting_cycles as f64).collect::<Vec<_>>());
+    let hunting = Spread::of(
+        &rows
+            .iter()
+            .map(|x| x.hunting_cycles as f64)
+            .collect::<Vec<_>>(),
+    );
     r.push(spread(&hunting, seeds, &|x| num(x, 0)));
     let over = Spread::of(&rows.iter().map(|x| x.overcorrection_s).collect::<Vec<_>>());
     r.push(spread(&over, seeds, &crate::text::duration));
@@ -308,7 +315,14 @@ pub fn write_csv(o: &Outcome, out: &mut dyn Write) -> Result<(), ReportError> {
         if p.currency.is_some() {
             c.push(r.cost.map(|x| f(x.total)).unwrap_or_default());
         }
-        c.push(if o.settings[r.setting].on_front { "1" } else { "0" }.into());
+        c.push(
+            if o.settings[r.setting].on_front {
+                "1"
+            } else {
+                "0"
+            }
+            .into(),
+        );
         writeln!(out, "{}", c.join(","))?;
     }
     out.flush()?;
