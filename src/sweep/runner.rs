@@ -28,7 +28,7 @@ use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
-use std::sync::{Arc, Mutex};
+use std::sync::{Arc, Mutex, OnceLock};
 
 /// Years beyond which the date of a rated life is not given.
 const MAX_DATED_YEARS: f64 = 1000.0;
@@ -101,12 +101,18 @@ pub struct Row {
     pub cost: Option<CostPerYear>,
 }
 
+/// One cached state, solved at most once.
+type StateCell = Arc<OnceLock<StateHarmonics>>;
+
+/// A setting made ready: its overrides, its validated scenario and its values as text.
+type Parsed = (Vec<Override>, Scenario, Vec<String>);
+
 /// Solved harmonics of bank states, shared by the runs of a sweep: each distinct bank
 /// (supply, steps, spectrum, options, background) and state is solved once.
 #[derive(Debug, Default)]
 pub struct ResonanceCache {
     models: Mutex<HashMap<String, usize>>,
-    states: Mutex<HashMap<(usize, BankState), Arc<StateHarmonics>>>,
+    states: Mutex<HashMap<(usize, BankState), StateCell>>,
 }
 
 impl ResonanceCache {
@@ -128,25 +134,17 @@ impl ResonanceCache {
         *m.entry(key).or_insert(n)
     }
 
-    /// The harmonics of `mask` in model `id` (`hm` must be that model).
+    /// The harmonics of `mask` in model `id` (`hm` must be that model). A state is
+    /// solved once: a second thread asking for it meanwhile waits for the first.
     pub fn state(&self, id: usize, hm: &HarmonicModel, mask: BankState) -> StateHarmonics {
-        if let Some(h) = self
+        let cell = self
             .states
             .lock()
             .unwrap_or_else(|e| e.into_inner())
-            .get(&(id, mask))
-        {
-            return (**h).clone();
-        }
-        // Solved outside the lock; two threads may solve the same state at once, and
-        // both get the same answer.
-        let h = Arc::new(hm.state(mask));
-        self.states
-            .lock()
-            .unwrap_or_else(|e| e.into_inner())
             .entry((id, mask))
-            .or_insert_with(|| h.clone());
-        (*h).clone()
+            .or_default()
+            .clone();
+        cell.get_or_init(|| hm.state(mask)).clone()
     }
 
     /// Number of states solved and kept.
@@ -282,7 +280,7 @@ impl Sweep {
         all.push((Vec::new(), base.clone(), reference_values));
         // Validated in parallel: 1000 settings parse and check quickly, but there is no
         // reason to wait on one core.
-        let parsed: Vec<Result<(Vec<Override>, Scenario, Vec<String>), SweepError>> = settings
+        let parsed: Vec<Result<Parsed, SweepError>> = settings
             .into_par_iter()
             .map(|ov| {
                 let sc = Scenario::from_str_with(text, path, &ov)?;
