@@ -299,6 +299,7 @@ pub fn design(
         1,
         FrontAxes::PfOps,
         spec_text,
+        Some(study.profile.clone()),
     )?;
     // Setting 0 is the scenario's own bank; the candidates are settings 1 onwards.
     let runs: Vec<usize> = (1..sweep.run_count()).collect();

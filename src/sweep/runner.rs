@@ -214,12 +214,17 @@ impl Sweep {
             spec.seeds,
             axes,
             spec.canonical(),
+            None,
         )
     }
 
     /// Prepares a sweep of any list of settings (each a list of overrides; the scenario's
     /// own settings are added as setting 0). `keys` are the columns shown (each override
     /// key should be among them); `spec_text` describes the list in the fingerprint.
+    /// `base_profile`, when given, is the scenario's own load prepared before (it must be
+    /// the load the scenario names): settings that keep that load share it instead of
+    /// reading the profile again.
+    #[allow(clippy::too_many_arguments)]
     pub fn with_settings(
         text: &str,
         path: &Path,
@@ -228,6 +233,7 @@ impl Sweep {
         seeds: u32,
         axes: FrontAxes,
         spec_text: String,
+        base_profile: Option<Arc<PreparedProfile>>,
     ) -> Result<Sweep, SweepError> {
         if seeds == 0 {
             return Err(SweepError::Spec {
@@ -304,6 +310,10 @@ impl Sweep {
         let mut loads: Vec<String> = Vec::new();
         let mut prepared: Vec<Setting> = Vec::with_capacity(all.len());
         let mut profiles = Vec::new();
+        if let Some(p) = base_profile {
+            loads.push(lookup(&doc, "load").map(value_text).unwrap_or_default());
+            profiles.push(p);
+        }
         for (overrides, scenario, values) in all {
             let mut d = doc.clone();
             for o in &overrides {
