@@ -332,6 +332,9 @@ struct SweepArgs {
     scenario: PathBuf,
 
     /// A key and its values, KEY=V1,V2,... or KEY=START:STOP:STEP (repeat for more keys).
+    /// With neither --vary nor --grid, the usual controller settings are tried: dead band
+    /// 0.5, 0.65, 0.8 and 1.0 x the smallest switched step, switching delay 1/2, 1, 2 and
+    /// 4 x the scenario's own, and the three orderings (48 settings).
     #[arg(long, value_name = "KEY=VALUES")]
     vary: Vec<String>,
 
@@ -946,9 +949,11 @@ fn sweep(args: &SweepArgs) -> Result<(), Failure> {
             .map_err(|e| Failure::input(anyhow::Error::new(e)))?;
     }
     if spec.variations.is_empty() {
-        return Err(Failure::input(anyhow::anyhow!(
-            "nothing to vary: give --vary KEY=VALUES or --grid FILE (see bankstep sweep --help)"
-        )));
+        // Nothing given: the usual controller settings around the scenario's own.
+        let sc = Scenario::from_file(&args.scenario)
+            .map_err(|e| Failure::input(anyhow::Error::new(e)))?;
+        let usual = SweepSpec::usual_controller_settings(&sc);
+        spec.variations = usual.variations;
     }
     let shard = match &args.shard {
         Some(s) => Some(

@@ -218,6 +218,47 @@ impl Default for SweepSpec {
 }
 
 impl SweepSpec {
+    /// The usual controller settings to try when nothing else is given: the dead band at
+    /// 0.5, 0.65, 0.8 and 1.0 × the smallest switched step (0.65 is the common default;
+    /// below 0.5 one operation overshoots the band), the switching delay at ½, 1, 2 and 4 ×
+    /// the scenario's own (never below one time step, whole seconds), and the three
+    /// orderings: 48 settings besides the scenario's own.
+    pub fn usual_controller_settings(scenario: &crate::scenario::Scenario) -> SweepSpec {
+        let d = scenario.controller.connect_delay_s;
+        let mut delays: Vec<i64> = Vec::new();
+        for m in [0.5, 1.0, 2.0, 4.0] {
+            let v = ((d * m).round() as i64)
+                .max(scenario.dt_s.ceil() as i64)
+                .max(1);
+            if !delays.contains(&v) {
+                delays.push(v);
+            }
+        }
+        SweepSpec {
+            variations: vec![
+                Variation {
+                    key: "controller.dead_band_fraction".into(),
+                    values: [0.5, 0.65, 0.8, 1.0]
+                        .into_iter()
+                        .map(Value::Float)
+                        .collect(),
+                },
+                Variation {
+                    key: "controller.switching_delay_s".into(),
+                    values: delays.into_iter().map(Value::Integer).collect(),
+                },
+                Variation {
+                    key: "controller.ordering".into(),
+                    values: ["sequential", "rotating", "best-fit"]
+                        .into_iter()
+                        .map(|o| Value::String(o.into()))
+                        .collect(),
+                },
+            ],
+            seeds: 1,
+        }
+    }
+
     /// Adds the `[vary]` table of a grid file (`key = [values]` or `key = "start:stop:step"`
     /// or a string of comma-separated values), after the variations already there, in
     /// the file's order.
