@@ -23,9 +23,10 @@ pub const MAX_CURVES: usize = 6;
 /// Spacing of the drawn curves, orders (the true peak of each state is added to it).
 const STEP: f64 = 0.02;
 
-/// One curve to draw.
+/// One curve to draw: the states whose curves coincide share it (same kvar of the same
+/// kinds of step), listed one label each.
 struct Curve {
-    label: String,
+    labels: Vec<String>,
     points: Vec<(f64, f64)>,
 }
 
@@ -193,7 +194,9 @@ impl Draw for ZDraw {
         meta.add("supply alone", "ohm", self.supply.iter().map(|p| p.1));
         for (c, st) in self.curves.iter().zip(STYLES) {
             polyline(area, &px(&c.points), st.0.stroke_width(st.1), st.2)?;
-            meta.add(&c.label, "ohm", c.points.iter().map(|p| p.1));
+            for label in &c.labels {
+                meta.add(label, "ohm", c.points.iter().map(|p| p.1));
+            }
         }
         // The impedance at which each harmonic alone reaches its voltage limit.
         let mut limits = Vec::new();
@@ -226,9 +229,12 @@ impl Draw for ZDraw {
         y += 22;
         for (c, st) in self.curves.iter().zip(STYLES) {
             polyline(&side, &[(8, y), (40, y)], st.0.stroke_width(st.1), st.2)?;
-            side.draw(&Text::new(c.label.clone(), (48, y - 7), text(12.0)))
-                .map_err(de)?;
-            y += 20;
+            for label in &c.labels {
+                side.draw(&Text::new(label.clone(), (48, y - 7), text(12.0)))
+                    .map_err(de)?;
+                y += 16;
+            }
+            y += 6;
         }
         polyline(&side, &[(8, y), (40, y)], MUTED.stroke_width(1), (2, 3))?;
         side.draw(&Text::new(
@@ -319,16 +325,28 @@ pub fn impedance_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> 
         }
         pts
     };
-    let curves = states
-        .iter()
-        .map(|s| Curve {
-            label: steps_label(&s.steps),
-            points: curve(
-                BankState::of_steps(&s.steps),
-                s.peak_order.zip(s.peak_impedance_ohm),
-            ),
-        })
-        .collect();
+    let mut curves: Vec<Curve> = Vec::new();
+    for s in &states {
+        let points = curve(
+            BankState::of_steps(&s.steps),
+            s.peak_order.zip(s.peak_impedance_ohm),
+        );
+        let label = steps_label(&s.steps);
+        let same = |c: &Curve| {
+            c.points.len() == points.len()
+                && c.points
+                    .iter()
+                    .zip(&points)
+                    .all(|(a, b)| a.0 == b.0 && (a.1 - b.1).abs() <= 1e-9 * a.1.abs().max(1e-12))
+        };
+        match curves.iter_mut().find(|c| same(c)) {
+            Some(c) => c.labels.push(label),
+            None => curves.push(Curve {
+                labels: vec![label],
+                points,
+            }),
+        }
+    }
     let supply = curve(BankState::EMPTY, None);
     let u_n = sc.supply.nominal_voltage_v;
     let s_ref = sc.spectrum.reference_kva;
@@ -366,7 +384,8 @@ pub fn impedance_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> 
         "Which bank states resonate".to_string(),
         format!(
             "|Z(h)|, the impedance the load's harmonic currents meet at the bus, for the \
-             bank states reached that count most (time × severity), on a logarithmic scale. \
+             bank states reached that count most (time × severity), on a logarithmic scale; \
+             states with the same connected kvar of the same kinds of step share one curve. \
              A peak inside a shaded band (±{} orders around a harmonic of the load) is a \
              resonance near that harmonic. Where a curve passes above a red mark, the load's \
              current at that harmonic alone would push the bus voltage over its limit \

@@ -533,7 +533,7 @@ impl Draw for RasterDraw<'_> {
             }
             let (px, py) = ch.backend_coord(&(0.0, y0 + 0.5));
             let label = if spec.fixed {
-                format!("step {step} (fixed)")
+                format!("step {step}, {} kvar fixed", num(spec.kvar, 0))
             } else {
                 format!("step {step}, {} kvar", num(spec.kvar, 0))
             };
