@@ -91,8 +91,15 @@ pub struct Bucket {
     /// Supply power factor on the signed scale of [`pf_scale`]: the PF for a lagging
     /// supply, 2 − PF for a leading one (so 1 is unity, 0.9 lag is 0.9, 0.9 lead is 1.1).
     pub pf: Range,
+    /// Supply active power, kW (> 0 import).
+    pub p_kw: Range,
     /// Supply reactive power, kvar (load convention, > 0 lagging).
     pub q_kvar: Range,
+    /// The lowest supply reactive power (the most leading) of the overcorrection episodes
+    /// that reach into the bucket, kvar; +∞ when none does. An episode spanning several
+    /// buckets gives its lowest value to each of them, so the lowest over all buckets is
+    /// the run's worst episode exactly.
+    pub episode_q_min: f64,
     /// The controller's demand ΔQ, kvar (> 0: it wants more capacitance).
     pub demand_kvar: Range,
     /// Reactive power of the load, kvar.
@@ -114,7 +121,9 @@ impl Bucket {
     const EMPTY: Bucket = Bucket {
         intervals: 0,
         pf: Range::EMPTY,
+        p_kw: Range::EMPTY,
         q_kvar: Range::EMPTY,
+        episode_q_min: f64::INFINITY,
         demand_kvar: Range::EMPTY,
         load_q_kvar: Range::EMPTY,
         needed_kvar: Range::EMPTY,
@@ -127,7 +136,9 @@ impl Bucket {
     fn merge(&mut self, o: &Bucket) {
         self.intervals += o.intervals;
         self.pf.merge(&o.pf);
+        self.p_kw.merge(&o.p_kw);
         self.q_kvar.merge(&o.q_kvar);
+        self.episode_q_min = self.episode_q_min.min(o.episode_q_min);
         self.demand_kvar.merge(&o.demand_kvar);
         self.load_q_kvar.merge(&o.load_q_kvar);
         self.needed_kvar.merge(&o.needed_kvar);
@@ -191,6 +202,7 @@ pub struct Trace {
     /// Start and length of the run of overcorrected intervals going on.
     run_start: u64,
     run_len: u64,
+    run_q_min: f64,
     /// Heat map: first local day number, days per column, cells column-major (24 each).
     first_day: i64,
     days_per_column: i64,
@@ -230,6 +242,7 @@ impl Trace {
             seen: 0,
             run_start: 0,
             run_len: 0,
+            run_q_min: f64::INFINITY,
             first_day,
             days_per_column: 1,
             cells: Vec::with_capacity(settings.days * 24),
@@ -367,6 +380,7 @@ impl Trace {
             let b = &mut self.buckets[i];
             b.intervals += c;
             b.pf.add(v.pf);
+            b.p_kw.add(v.p);
             b.q_kvar.add(v.q);
             b.demand_kvar.add(r.decision.demand_kvar);
             b.load_q_kvar.add(v.load_q);
@@ -461,11 +475,14 @@ impl Trace {
             while j < end {
                 let i = self.bucket_of(j);
                 let upto = ((i as u64 + 1) * self.width).min(end);
-                self.buckets[i].overcorrected += upto - j;
+                let b = &mut self.buckets[i];
+                b.overcorrected += upto - j;
+                b.episode_q_min = b.episode_q_min.min(self.run_q_min);
                 j = upto;
             }
         }
         self.run_len = 0;
+        self.run_q_min = f64::INFINITY;
     }
 
     fn record(&mut self, r: &IntervalRecord<'_>, k: u64, m: u64) {
@@ -475,6 +492,7 @@ impl Trace {
                 self.run_start = k;
             }
             self.run_len += m;
+            self.run_q_min = self.run_q_min.min(v.q);
         } else if self.run_len > 0 {
             self.close_run();
         }
@@ -600,6 +618,12 @@ mod tests {
                     r.metrics.overcorrection.total_s
                 );
                 assert_eq!(tr.episodes(), r.metrics.overcorrection.episodes);
+                let worst = tr
+                    .buckets()
+                    .iter()
+                    .map(|b| -b.episode_q_min)
+                    .fold(0.0, f64::max);
+                assert_eq!(worst, r.metrics.overcorrection.worst_leading_kvar);
                 let (_, per_col, cells) = tr.hours();
                 let h: u64 = cells.iter().map(|c| c.intervals).sum();
                 assert_eq!(h, r.metrics.run.samples);

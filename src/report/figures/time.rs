@@ -7,7 +7,7 @@
 
 use super::{
     dashed, de, legend, render, scale_colour, text, tint, Draw, Figure, FigureError, FigureMeta, Key,
-    BAND, BANK, BANK_LIGHT, GRID, INK, MAIN, MAIN_LIGHT, MEDIUM, MUTED, OVER, WIDE,
+    BAND, BANK, BANK_LIGHT, GRID, INK, LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED, OVER, WIDE,
 };
 use crate::pf::Quadrant;
 use crate::report::{num, ReportContext};
@@ -238,21 +238,49 @@ impl Draw for PfDraw<'_> {
         }
         meta.add("supply PF", "PF scale", [pf.lo, pf.hi]);
 
-        // Lower panel: the controller's demand against the dead band.
-        let d = extremes(tr, |b| b.demand_kvar);
-        let (dlo, dhi) = padded(d.lo.min(-band), d.hi.max(band), 0.06);
-        legend(
-            &bottom,
-            90,
-            12,
-            &[
-                (
-                    Key::Fill(MAIN),
-                    "supply kvar off the target (the controller's demand ΔQ)",
-                ),
-                (Key::Fill(BAND), "dead band"),
-            ],
-        )?;
+        // Lower panel: the supply's reactive power against the target and its dead band.
+        let sc = ctx.scenario();
+        let tan_t = sc.controller.target.tan_phi();
+        let thr = sc.overcorrection_threshold_kvar;
+        let q = extremes(tr, |b| b.q_kvar);
+        // The band of reactive power the controller leaves alone: |P|·tan φ_t ± the dead
+        // band, over the range of P in each bucket.
+        let band_of = |b: &Bucket| -> Option<(f64, f64)> {
+            if b.p_kw.is_empty() {
+                return None;
+            }
+            let (lo, hi) = (b.p_kw.lo, b.p_kw.hi);
+            let a_hi = lo.abs().max(hi.abs());
+            let a_lo = if lo <= 0.0 && hi >= 0.0 {
+                0.0
+            } else {
+                lo.abs().min(hi.abs())
+            };
+            let (t0, t1) = (a_lo * tan_t, a_hi * tan_t);
+            Some((t0.min(t1) - band, t0.max(t1) + band))
+        };
+        let (mut blo, mut bhi) = (f64::INFINITY, f64::NEG_INFINITY);
+        for b in tr.buckets() {
+            if let Some((l, h)) = band_of(b) {
+                blo = blo.min(l);
+                bhi = bhi.max(h);
+            }
+        }
+        let lagging_target = tan_t >= 0.0;
+        let (dlo, dhi) = padded(
+            q.lo.min(blo).min(if lagging_target { -thr } else { q.lo }),
+            q.hi.max(bhi),
+            0.06,
+        );
+        let mut keys = vec![
+            (Key::Fill(MAIN), "supply reactive power, lowest to highest"),
+            (Key::Fill(BAND), "target ± dead band"),
+        ];
+        if lagging_target {
+            keys.push((Key::Dash(LIMIT, 1), "overcorrection threshold"));
+        }
+        keys.push((Key::Line(LIMIT, 3), "most leading in an episode"));
+        legend(&bottom, 90, 12, &keys)?;
         let mut ch = ChartBuilder::on(&bottom)
             .margin_top(24)
             .margin_right(20)
@@ -264,7 +292,7 @@ impl Draw for PfDraw<'_> {
             .x_labels(10)
             .y_labels(6)
             .x_desc(ax.desc.as_str())
-            .y_desc("ΔQ, kvar")
+            .y_desc("supply reactive power, kvar")
             .y_label_formatter(&|v| format!("{v:.0}"))
             .label_style(text(12.0))
             .axis_desc_style(text(13.0))
@@ -280,15 +308,44 @@ impl Draw for PfDraw<'_> {
             )))
             .map_err(de)?;
         }
-        ch.draw_series(std::iter::once(Rectangle::new(
-            [(0.0, -band), (ax.end, band)],
-            BAND.filled(),
-        )))
-        .map_err(de)?;
-        let poly = envelope(tr, &ax, |b| b.demand_kvar, (dlo, dhi));
+        // The band, as one polygon over the buckets.
+        let mut upper = Vec::new();
+        let mut lower = Vec::new();
+        for (i, b) in tr.buckets().iter().enumerate() {
+            if let Some((l, h)) = band_of(b) {
+                let (x0, x1) = bucket_x(tr, &ax, i);
+                upper.extend([(x0, h.clamp(dlo, dhi)), (x1, h.clamp(dlo, dhi))]);
+                lower.extend([(x0, l.clamp(dlo, dhi)), (x1, l.clamp(dlo, dhi))]);
+            }
+        }
+        lower.reverse();
+        upper.extend(lower);
+        ch.draw_series(std::iter::once(Polygon::new(upper, BAND.filled())))
+            .map_err(de)?;
+        let poly = envelope(tr, &ax, |b| b.q_kvar, (dlo, dhi));
         ch.draw_series(std::iter::once(Polygon::new(poly, MAIN.filled())))
             .map_err(de)?;
-        meta.add("controller demand", "kvar", [d.lo, d.hi]);
+        if lagging_target {
+            let a = ch.backend_coord(&(0.0, -thr));
+            let b = ch.backend_coord(&(ax.end, -thr));
+            dashed(root, a, b, LIMIT.stroke_width(1))?;
+        }
+        let mut deepest = Vec::new();
+        for (i, b) in tr.buckets().iter().enumerate() {
+            if b.episode_q_min.is_finite() {
+                let (x0, x1) = bucket_x(tr, &ax, i);
+                let y = b.episode_q_min.clamp(dlo, dhi);
+                let (p0, p1) = (ch.backend_coord(&(x0, y)), ch.backend_coord(&(x1, y)));
+                root.draw(&PathElement::new(
+                    vec![p0, (p1.0.max(p0.0 + 2), p1.1)],
+                    LIMIT.stroke_width(3),
+                ))
+                .map_err(de)?;
+                deepest.push(b.episode_q_min);
+            }
+        }
+        meta.add("supply reactive power", "kvar", [q.lo, q.hi]);
+        meta.add("most leading in an episode", "kvar", deepest);
         let over_s: u64 = tr.buckets().iter().map(|b| b.overcorrected).sum();
         meta.add(
             "overcorrection episodes",
@@ -309,10 +366,11 @@ pub fn pf_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, Figur
         "Supply power factor against the target".to_string(),
         format!(
             "Top: the supply PF (lagging below 1.00, leading above), each pixel column from \
-             its lowest to its highest value, against the {} target. Bottom: how far the \
-             supply's reactive power lies from the target, as the controller reckons it, \
-             against its ±{} kvar dead band; above the band it wants more capacitance, below \
-             it less. Shaded: overcorrection episodes ({} of them).",
+             its lowest to its highest value, against the {} target. Bottom: the supply's \
+             reactive power against the band the controller leaves alone (the target's kvar \
+             at the active power drawn, ±{} kvar dead band); above the band it adds \
+             capacitance, below it takes some away. Shaded: overcorrection episodes ({} of \
+             them), with the most leading point of each marked.",
             c.target,
             num(c.dead_band_kvar, 1),
             trace.episodes()
