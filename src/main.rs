@@ -483,7 +483,9 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     if let (Some(mut trace), Some(dir)) = (observer.trace.take(), &args.report) {
         trace.finish();
         let files = html::write_report_dir(&ctx, &trace, dir).map_err(|e| {
-            Failure::report(e, || format!("cannot write the report in {}", dir.display()))
+            Failure::report(e, || {
+                format!("cannot write the report in {}", dir.display())
+            })
         })?;
         if !args.quiet {
             eprintln!(

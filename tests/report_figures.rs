@@ -94,11 +94,19 @@ fn figures_are_xml_with_series_units_and_the_runs_own_extremes() {
     let doc = roxmltree::Document::parse(&text).unwrap();
     let t = texts(&doc);
     assert!(t.iter().any(|s| s == "supply power factor"), "{t:?}");
-    assert!(t.iter().any(|s| s == "supply reactive power, kvar"), "{t:?}");
-    assert!(t.iter().any(|s| s.starts_with("time from 2026-03-02 00:00, days")));
+    assert!(
+        t.iter().any(|s| s == "supply reactive power, kvar"),
+        "{t:?}"
+    );
+    assert!(t
+        .iter()
+        .any(|s| s.starts_with("time from 2026-03-02 00:00, days")));
     assert!(t.iter().any(|s| s.ends_with(" lag")) && t.iter().any(|s| s.ends_with(" lead")));
     let (lo, hi, _) = series(&doc, "supply PF");
-    assert!(lo < 1.0 && hi > 1.0, "the plant lags on weekdays and leads at weekends");
+    assert!(
+        lo < 1.0 && hi > 1.0,
+        "the plant lags on weekdays and leads at weekends"
+    );
     let (over, _, _) = series(&doc, "overcorrection episodes");
     let total = json["overcorrection"]["total_s"].as_f64().unwrap();
     assert!(total > 0.0);
@@ -106,7 +114,9 @@ fn figures_are_xml_with_series_units_and_the_runs_own_extremes() {
     // The most leading point marked in the episodes is the run's worst episode, to the
     // last bit: the trace keeps extremes, it never samples.
     let (deepest, _, _) = series(&doc, "most leading in an episode");
-    let worst = json["overcorrection"]["worst_leading_kvar"].as_f64().unwrap();
+    let worst = json["overcorrection"]["worst_leading_kvar"]
+        .as_f64()
+        .unwrap();
     assert_eq!(-deepest, worst);
     // ... and the supply's lowest reactive power drawn is at or below it.
     let (q_lo, _, _) = series(&doc, "supply reactive power");
@@ -121,7 +131,10 @@ fn figures_are_xml_with_series_units_and_the_runs_own_extremes() {
     let (bank_lo, bank_hi, _) = series(&doc, "delivered by the bank");
     // The bank delivers between nothing and its 315 kvar at nominal voltage (40 + 2 × 25
     // + 5 × 50 in the scenario), a little more when the bus voltage is above nominal.
-    assert!(bank_lo >= 0.0 && bank_hi <= 315.0 * 1.1 * 1.1, "{bank_lo} {bank_hi}");
+    assert!(
+        bank_lo >= 0.0 && bank_hi <= 315.0 * 1.1 * 1.1,
+        "{bank_lo} {bank_hi}"
+    );
 
     // (c) The raster: one row per step, labelled.
     let text = read_svg(&dir, "step-states");
@@ -207,7 +220,9 @@ fn html_is_self_contained_with_findings_and_every_figure() {
     let (dir, json) = report(&tmp, &scenarios().join("rooftop-solar-office.toml"));
     let html = std::fs::read_to_string(dir.join("report.html")).unwrap();
     let lower = html.to_lowercase();
-    for bad in ["http:", "https:", "<script", "src=", "url(", "@import", "<link", "<iframe"] {
+    for bad in [
+        "http:", "https:", "<script", "src=", "url(", "@import", "<link", "<iframe",
+    ] {
         assert!(!lower.contains(bad), "report.html contains {bad:?}");
     }
     assert_eq!(html.matches("<svg").count(), FIGURES.len());
@@ -233,8 +248,18 @@ fn html_is_self_contained_with_findings_and_every_figure() {
             .unwrap_or_else(|| panic!("finding missing or out of order: {text}"));
         at += pos;
     }
-    for section in ["settings", "pf", "switching", "overcorrection", "resonance", "wear"] {
-        assert!(html.contains(&format!("<section id=\"{section}\">")), "{section}");
+    for section in [
+        "settings",
+        "pf",
+        "switching",
+        "overcorrection",
+        "resonance",
+        "wear",
+    ] {
+        assert!(
+            html.contains(&format!("<section id=\"{section}\">")),
+            "{section}"
+        );
     }
     // Provenance: the hashes and the seed of the JSON.
     let prov = &json["provenance"];
@@ -309,7 +334,10 @@ fn screenshot_shows_every_figure() {
         }
     }
     let share = ink as f64 / ((w / 2) * (h / 2)) as f64;
-    assert!(share > 0.05, "the page is nearly blank: {share:.3} of pixels drawn");
+    assert!(
+        share > 0.05,
+        "the page is nearly blank: {share:.3} of pixels drawn"
+    );
     let rule = (0xc9, 0xd1, 0xd7);
     // The figures' left frame lies in one column; find the column with the most long runs.
     let mut best = 0;

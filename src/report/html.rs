@@ -706,8 +706,7 @@ fn resonance(ctx: &ReportContext<'_>, h: &mut String) {
                 steps_label(&s.steps),
                 format!("{} kvar", num(s.kvar, 0)),
                 s.order.map_or("none".to_string(), |o| num(o, 2)),
-                s.nearest_harmonic
-                    .map_or("-".to_string(), |x| harmonic_name(x)),
+                s.nearest_harmonic.map_or("-".to_string(), harmonic_name),
                 duration(s.time_s),
                 format!("{} h", approx(s.hours_per_year)),
                 pct_vs_limit(s.thd_pct, s.thd_limit_pct, 1),

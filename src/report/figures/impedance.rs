@@ -311,11 +311,7 @@ pub fn impedance_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> 
     let scanner = Scanner::new(model.clone(), grid);
     let orders: Vec<f64> = (0..grid.len()).map(|j| grid.order(j)).collect();
     let curve = |mask: BankState, peak: Option<(f64, f64)>| -> Vec<(f64, f64)> {
-        let mut pts: Vec<(f64, f64)> = orders
-            .iter()
-            .copied()
-            .zip(scanner.curve(mask))
-            .collect();
+        let mut pts: Vec<(f64, f64)> = orders.iter().copied().zip(scanner.curve(mask)).collect();
         // The refined peak, so that the curve reaches its true height.
         if let Some((h, z)) = peak {
             if h > 1.0 && h < to {

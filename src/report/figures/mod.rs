@@ -156,7 +156,11 @@ const SCALE: [(u8, u8, u8); 6] = [
 
 /// The colour of `x` in 0..1 on the sequential scale.
 pub fn scale_colour(x: f64) -> RGBColor {
-    let x = if x.is_finite() { x.clamp(0.0, 1.0) } else { 0.0 };
+    let x = if x.is_finite() {
+        x.clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
     let pos = x * (SCALE.len() - 1) as f64;
     let i = (pos.floor() as usize).min(SCALE.len() - 2);
     let f = pos - i as f64;
@@ -291,7 +295,9 @@ fn meta_num(x: f64) -> String {
 
 /// Puts a `<title>` and a `<metadata>` element right after the opening `<svg>` tag.
 fn with_metadata(svg: &str, name: &str, title: &str, meta: &FigureMeta) -> String {
-    let Some(open_end) = svg.find("<svg").and_then(|i| svg[i..].find('>').map(|j| i + j + 1))
+    let Some(open_end) = svg
+        .find("<svg")
+        .and_then(|i| svg[i..].find('>').map(|j| i + j + 1))
     else {
         return svg.to_string();
     };
@@ -435,6 +441,9 @@ mod tests {
 
     #[test]
     fn escaping() {
-        assert_eq!(escape("a<b & \"c\" 'd'>"), "a&lt;b &amp; &quot;c&quot; &#39;d&#39;&gt;");
+        assert_eq!(
+            escape("a<b & \"c\" 'd'>"),
+            "a&lt;b &amp; &quot;c&quot; &#39;d&#39;&gt;"
+        );
     }
 }

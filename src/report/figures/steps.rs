@@ -2,8 +2,8 @@
 //! step, from the run's metrics.
 
 use super::{
-    de, legend, render, text, Draw, Figure, FigureError, FigureMeta, Key, BANK, GRID, INK,
-    MAIN, MEDIUM, MUTED,
+    de, legend, render, text, Draw, Figure, FigureError, FigureMeta, Key, BANK, GRID, INK, MAIN,
+    MEDIUM, MUTED,
 };
 use crate::report::ReportContext;
 use plotters::coord::Shift;
@@ -26,12 +26,7 @@ impl Draw for WearDraw<'_> {
         let n = wear.len().max(1);
         let (left, right) = root.split_horizontally(root.dim_in_pixel().0 / 2);
         let max_ops = wear.iter().map(|w| w.operations).max().unwrap_or(0).max(1) as f64;
-        legend(
-            &left,
-            80,
-            14,
-            &[(Key::Fill(MAIN), "operations in the run")],
-        )?;
+        legend(&left, 80, 14, &[(Key::Fill(MAIN), "operations in the run")])?;
         let mut ch = ChartBuilder::on(&left)
             .margin_top(30)
             .margin_right(16)
@@ -129,21 +124,21 @@ impl Draw for WearDraw<'_> {
                     if *y > YEARS_CAP {
                         let (px, py) = ch.backend_coord(&(x, h));
                         root.draw(&Text::new(
-                                format!("> {YEARS_CAP:.0}"),
-                                (px - 12, py - 16),
-                                text(11.0),
-                            ))
-                            .map_err(de)?;
+                            format!("> {YEARS_CAP:.0}"),
+                            (px - 12, py - 16),
+                            text(11.0),
+                        ))
+                        .map_err(de)?;
                     }
                 }
                 None => {
                     let (px, py) = ch.backend_coord(&(x, 0.0));
                     root.draw(&Text::new(
-                            if w.fixed { "fixed" } else { "none" }.to_string(),
-                            (px - 12, py - 18),
-                            text(10.0).color(&INK),
-                        ))
-                        .map_err(de)?;
+                        if w.fixed { "fixed" } else { "none" }.to_string(),
+                        (px - 12, py - 18),
+                        text(10.0).color(&INK),
+                    ))
+                    .map_err(de)?;
                 }
             }
         }

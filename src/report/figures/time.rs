@@ -6,8 +6,8 @@
 //! pixel still shows at its full height.
 
 use super::{
-    dashed, de, legend, render, scale_colour, text, tint, Draw, Figure, FigureError, FigureMeta, Key,
-    BAND, BANK, BANK_LIGHT, GRID, INK, LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED, OVER, WIDE,
+    dashed, de, legend, render, scale_colour, text, tint, Draw, Figure, FigureError, FigureMeta,
+    Key, BAND, BANK, BANK_LIGHT, GRID, INK, LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED, OVER, WIDE,
 };
 use crate::pf::Quadrant;
 use crate::report::{num, ReportContext};
@@ -34,7 +34,12 @@ impl TimeAxis {
         } else {
             (3600.0, "hours")
         };
-        let start = ctx.study.plan.calendar.datetime(t0).format("%Y-%m-%d %H:%M");
+        let start = ctx
+            .study
+            .plan
+            .calendar
+            .datetime(t0)
+            .format("%Y-%m-%d %H:%M");
         TimeAxis {
             t0,
             unit_s,
@@ -226,7 +231,10 @@ impl Draw for PfDraw<'_> {
             clipped.push(format!("most lagging {} lag", num(pf.lo.min(1.0), 2)));
         }
         if pf.hi > hi {
-            clipped.push(format!("most leading {} lead", num(2.0 - pf.hi.max(1.0), 2)));
+            clipped.push(format!(
+                "most leading {} lead",
+                num(2.0 - pf.hi.max(1.0), 2)
+            ));
         }
         if !clipped.is_empty() {
             top.draw(&Text::new(
@@ -319,12 +327,19 @@ impl Draw for PfDraw<'_> {
             }
         }
         lower.reverse();
-        upper.extend(lower);
-        ch.draw_series(std::iter::once(Polygon::new(upper, BAND.filled())))
-            .map_err(de)?;
         let poly = envelope(tr, &ax, |b| b.q_kvar, (dlo, dhi));
         ch.draw_series(std::iter::once(Polygon::new(poly, MAIN.filled())))
             .map_err(de)?;
+        // The band over the supply's envelope, see-through, with its edges drawn.
+        let edge_hi = upper.clone();
+        let edge_lo = lower.clone();
+        upper.extend(lower);
+        ch.draw_series(std::iter::once(Polygon::new(upper, BAND.mix(0.7).filled())))
+            .map_err(de)?;
+        for edge in [edge_hi, edge_lo] {
+            ch.draw_series(std::iter::once(PathElement::new(edge, INK.stroke_width(1))))
+                .map_err(de)?;
+        }
         if lagging_target {
             let a = ch.backend_coord(&(0.0, -thr));
             let b = ch.backend_coord(&(ax.end, -thr));
@@ -347,11 +362,7 @@ impl Draw for PfDraw<'_> {
         meta.add("supply reactive power", "kvar", [q.lo, q.hi]);
         meta.add("most leading in an episode", "kvar", deepest);
         let over_s: u64 = tr.buckets().iter().map(|b| b.overcorrected).sum();
-        meta.add(
-            "overcorrection episodes",
-            "s",
-            [over_s as f64 * tr.dt_s()],
-        );
+        meta.add("overcorrection episodes", "s", [over_s as f64 * tr.dt_s()]);
         Ok(())
     }
 }
@@ -595,12 +606,8 @@ impl Draw for RasterDraw<'_> {
             } else {
                 format!("step {step}, {} kvar", num(spec.kvar, 0))
             };
-            root.draw(&Text::new(
-                label,
-                (px - 104, py - 7),
-                text(12.0),
-            ))
-            .map_err(de)?;
+            root.draw(&Text::new(label, (px - 104, py - 7), text(12.0)))
+                .map_err(de)?;
         }
         meta.rows = Some(steps.len());
         meta.add("boxes", "count", [boxes as f64]);

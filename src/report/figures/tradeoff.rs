@@ -6,8 +6,8 @@
 //! They take no study and no trace: the caller hands the numbers and the words.
 
 use super::{
-    dashed, de, legend, render, text, Draw, Figure, FigureError, FigureMeta, Key, BANK, GRID,
-    INK, LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED,
+    dashed, de, legend, render, text, Draw, Figure, FigureError, FigureMeta, Key, BANK, GRID, INK,
+    LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED,
 };
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -129,11 +129,8 @@ impl Draw for TradeoffData {
             .axis_style(MUTED)
             .draw()
             .map_err(de)?;
-        let mut front: Vec<(f64, f64)> = pts
-            .iter()
-            .filter(|p| p.front)
-            .map(|p| (p.x, p.y))
-            .collect();
+        let mut front: Vec<(f64, f64)> =
+            pts.iter().filter(|p| p.front).map(|p| (p.x, p.y)).collect();
         front.sort_by(|a, b| a.0.total_cmp(&b.0));
         ch.draw_series(std::iter::once(PathElement::new(
             front.clone(),
@@ -291,12 +288,8 @@ impl Draw for DurationDraw<'_> {
                 area.draw(&PathElement::new(vec![a, b], st.0.stroke_width(st.1)))
                     .map_err(de)?;
             }
-            root.draw(&Text::new(
-                l.label.clone(),
-                (b.0 + 8, b.1 - 7),
-                text(12.0),
-            ))
-            .map_err(de)?;
+            root.draw(&Text::new(l.label.clone(), (b.0 + 8, b.1 - 7), text(12.0)))
+                .map_err(de)?;
         }
         meta.add(&d.y_label, "", self.curve.iter().map(|p| p.1));
         meta.add("levels", "", d.levels.iter().map(|l| l.value));
