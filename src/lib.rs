@@ -3,10 +3,11 @@
 //! The library owns the physics and the bookkeeping: scenario parsing and validation
 //! ([`scenario`]), load profiles ([`profile`]), the supply and bank model ([`supply`],
 //! [`bank`]), the step controller ([`controller`]), the time-stepping engine ([`engine`]),
-//! the run metrics ([`metrics`]), harmonic resonance ([`harmonics`]), the analysis that
-//! judges a run ([`analysis`]), sweeps of many settings on one profile ([`sweep`]) and the
-//! report writers ([`report`]). It never prints and knows nothing of the command line; the
-//! `bankstep` binary is a thin shell around it.
+//! the run metrics ([`metrics`]), the bounded trace of a run that figures draw
+//! ([`trace`]), harmonic resonance ([`harmonics`]), the analysis that judges a run
+//! ([`analysis`]), sweeps of many settings on one profile ([`sweep`]), the step-layout
+//! designer ([`design`]) and the report writers ([`report`]). It never prints and knows nothing
+//! of the command line; the `bankstep` binary is a thin shell around it.
 
 pub mod analysis;
 pub mod bank;
@@ -25,3 +26,4 @@ pub mod supply;
 pub mod sweep;
 pub mod text;
 pub mod timebase;
+pub mod trace;

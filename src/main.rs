@@ -18,6 +18,7 @@ use bankstep::error::RunError;
 use bankstep::harmonics::scan::ScanGrid;
 use bankstep::harmonics::survey::{self, Selection, Survey};
 use bankstep::report::design as design_report;
+use bankstep::report::html;
 use bankstep::report::resonance::{self as resonance_report, ResonanceContext};
 use bankstep::report::sweep as sweep_report;
 use bankstep::report::{
@@ -26,6 +27,7 @@ use bankstep::report::{
 use bankstep::scenario::Scenario;
 use bankstep::study::Study;
 use bankstep::sweep::{FrontAxes, Outcome, Shard, Sweep, SweepError, SweepSpec, Variation};
+use bankstep::trace::Trace;
 use clap::{Args, Parser, Subcommand};
 use indicatif::{ProgressBar, ProgressStyle};
 use std::fs::File;
@@ -90,6 +92,7 @@ const SIMULATE_AFTER_HELP: &str = concat!(
 Examples:
   bankstep simulate site.toml
   bankstep simulate site.toml --json site.json --timeseries site.csv --every 60
+  bankstep simulate site.toml --report site-report
   bankstep simulate site.toml --json - --quiet > site.json
 
 ",
@@ -553,6 +556,13 @@ struct SimulateArgs {
     )]
     every: u64,
 
+    /// Also write a report folder DIR (created if missing): `report.html`, one
+    /// self-contained page with the findings, the figures, the settings, the tables and
+    /// the provenance (open it in a browser; print it to PDF), and every figure as SVG
+    /// and PNG.
+    #[arg(long, value_name = "DIR")]
+    report: Option<PathBuf>,
+
     /// No progress bar and no notes on standard error (the summary and errors still
     /// appear).
     #[arg(long, short)]
@@ -651,9 +661,11 @@ fn message(e: &anyhow::Error) -> String {
     text
 }
 
-/// Observer of a command-line run: the optional time series and the optional progress bar.
+/// Observer of a command-line run: the optional time series, the optional trace of the
+/// figures and the optional progress bar.
 struct CliObserver {
     series: Option<TimeseriesWriter<BufWriter<File>>>,
+    trace: Option<Trace>,
     bar: Option<ProgressBar>,
 }
 
@@ -664,8 +676,18 @@ impl Observer for CliObserver {
 
     #[inline]
     fn interval(&mut self, r: &IntervalRecord<'_>) -> Result<(), RunError> {
+        if let Some(t) = &mut self.trace {
+            t.interval(r)?;
+        }
         match &mut self.series {
             Some(s) => s.interval(r),
+            None => Ok(()),
+        }
+    }
+
+    fn block(&mut self, r: &IntervalRecord<'_>, n: u64) -> Result<(), RunError> {
+        match &mut self.trace {
+            Some(t) => t.block(r, n),
             None => Ok(()),
         }
     }
@@ -722,6 +744,7 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     };
     let mut observer = CliObserver {
         series,
+        trace: args.report.as_ref().map(|_| Trace::new(&study)),
         bar: progress_bar(sim.intervals, args.quiet),
     };
     let result = study.run(&mut observer);
@@ -743,6 +766,22 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
 
     let assessment = bankstep::analysis::assess(&study, &result);
     let ctx = ReportContext::new(&study, &result, &assessment);
+    if let (Some(mut trace), Some(dir)) = (observer.trace.take(), &args.report) {
+        trace.finish();
+        let files = html::write_report_dir(&ctx, &trace, dir).map_err(|e| {
+            Failure::report(e, || {
+                format!("cannot write the report in {}", dir.display())
+            })
+        })?;
+        if !args.quiet {
+            eprintln!(
+                "report: {} and {} figure files written to {}",
+                html::HTML_FILE,
+                files.len().saturating_sub(1),
+                dir.display()
+            );
+        }
+    }
     let mut json_to_stdout = false;
     if let Some(path) = &args.json {
         let what = || format!("cannot write the JSON report {}", path.display());

@@ -14,12 +14,16 @@
 //! - [`design`]: the report, JSON and CSV of `bankstep design` (rendering a
 //!   [`crate::design::Design`]).
 //! - [`sweep`]: the summary, CSV, JSON and shard files of `bankstep sweep` and `merge`.
+//! - [`figures`]: the figures (SVG and PNG, drawn with `plotters`) and [`html`]: the
+//!   one-file HTML report of `simulate --report DIR` that holds them.
 //!
 //! What a run means (findings, advice, the harmonic assessment) is decided once in
 //! [`crate::analysis`] and handed to the writers in the [`ReportContext`]; quantities are
 //! put into words by [`crate::text`], so a figure reads the same in every output.
 
 pub mod design;
+pub mod figures;
+pub mod html;
 pub mod json;
 pub mod resonance;
 pub mod summary;
@@ -96,6 +100,9 @@ pub enum ReportError {
     /// The report could not be encoded as JSON.
     #[error("cannot encode the report as JSON: {0}")]
     Json(#[from] serde_json::Error),
+    /// A figure could not be drawn.
+    #[error(transparent)]
+    Figure(#[from] figures::FigureError),
 }
 
 impl ReportError {
@@ -105,6 +112,7 @@ impl ReportError {
         match self {
             ReportError::Io(e) => e.kind() == std::io::ErrorKind::BrokenPipe,
             ReportError::Json(e) => e.io_error_kind() == Some(std::io::ErrorKind::BrokenPipe),
+            ReportError::Figure(_) => false,
         }
     }
 }

@@ -1,0 +1,106 @@
+//! Report benchmark: a one-year run at a 1 s step (31,536,000 intervals) on the engine
+//! bench's 12-step site and generator, observed by the bounded trace; then the figures of
+//! `simulate --report` drawn (SVG and PNG) and the HTML written to memory.
+//!
+//! Prints the run's time, the trace's heap bytes against the run's peak resident memory,
+//! the time to draw the figures (target: at most 2 s) and the peak resident memory after
+//! drawing them (target: the report adds at most 10 % to the run's). Run with
+//! `cargo bench --bench report`; set `BANKSTEP_BENCH_DAYS` to shorten it.
+
+use bankstep::report::html;
+use bankstep::report::ReportContext;
+use bankstep::scenario::Scenario;
+use bankstep::study::Study;
+use bankstep::trace::{Trace, TraceSettings};
+use std::path::Path;
+use std::time::Instant;
+
+const SITE: &str = include_str!("site_12_steps.toml");
+const SYNTH: &str = include_str!("synthetic_section.toml");
+const SCENARIO: &str = r#"
+[harmonics]
+preset = "six-pulse"
+reference_kva = 300
+[run]
+duration_days = __DAYS__
+time_step_s = 1
+seed = 7
+
+[load.synthetic]
+__SYNTH__
+"#;
+
+/// Peak resident set size of this process, kB (Linux).
+fn peak_rss_kb() -> Option<u64> {
+    let s = std::fs::read_to_string("/proc/self/status").ok()?;
+    s.lines()
+        .find(|l| l.starts_with("VmHWM:"))
+        .and_then(|l| l.split_whitespace().nth(1))
+        .and_then(|v| v.parse().ok())
+}
+
+fn main() {
+    let days: f64 = std::env::var("BANKSTEP_BENCH_DAYS")
+        .ok()
+        .and_then(|d| d.parse().ok())
+        .unwrap_or(365.0);
+    let text = format!("{SITE}{SCENARIO}")
+        .replace("__DAYS__", &days.to_string())
+        .replace("__SYNTH__", SYNTH);
+    let sc = Scenario::from_str(&text, Path::new("bench.toml")).expect("bench scenario");
+    let study = Study::prepare(sc).expect("bench study");
+    let n = study.plan.intervals;
+
+    let t = Instant::now();
+    let mut trace = Trace::new(&study);
+    let result = study.run(&mut trace).expect("run");
+    trace.finish();
+    let run_s = t.elapsed().as_secs_f64();
+    let rss_run = peak_rss_kb();
+    let assessment = bankstep::analysis::assess(&study, &result);
+    let rss_assessed = peak_rss_kb();
+    let ctx = ReportContext::new(&study, &result, &assessment);
+
+    let t = Instant::now();
+    let figs = html::simulate_figures(&ctx, &trace).expect("figures");
+    let figures_s = t.elapsed().as_secs_f64();
+    let t = Instant::now();
+    let mut out = Vec::new();
+    html::write_html(&ctx, &trace, &figs, &mut out).expect("html");
+    let html_s = t.elapsed().as_secs_f64();
+    let rss_report = peak_rss_kb();
+
+    let bytes = trace.heap_bytes();
+    let cap = Trace::capacity_bytes(TraceSettings::default(), study.scenario.steps.len());
+    println!("report bench: {days} days at 1 s, {n} intervals, 12 steps");
+    println!(
+        "  run with the trace:   {run_s:.2} s ({:.1} ns per interval)",
+        run_s * 1e9 / n as f64
+    );
+    println!(
+        "  trace:                {} buckets of {} intervals, {} bytes on the heap (at most {} \
+         for any run length)",
+        trace.buckets().len(),
+        trace.bucket_intervals(),
+        bytes,
+        cap
+    );
+    if let Some(rss) = rss_run {
+        println!(
+            "  peak RSS after run:   {rss} kB; the trace is {:.2} % of it",
+            100.0 * bytes as f64 / (rss as f64 * 1024.0)
+        );
+    }
+    println!(
+        "  figures (6, SVG + PNG): {figures_s:.3} s (target at most 2 s); HTML {html_s:.3} s, {} \
+         bytes",
+        out.len()
+    );
+    if let (Some(a), Some(b)) = (rss_assessed, rss_report) {
+        println!(
+            "  peak RSS after report: {b} kB, {:+.1} % over the assessed run's {a} kB (target \
+             at most +10 %)",
+            100.0 * (b as f64 - a as f64) / a as f64
+        );
+    }
+}

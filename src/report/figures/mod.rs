@@ -1,0 +1,449 @@
+//! Figures: each one drawn with `plotters` twice from the same code, as SVG text and as a
+//! PNG image, with the house style (colours, fonts, legends, axis words) kept here.
+//!
+//! - [`time`]: what a run did over time, from a finished [`crate::trace::Trace`]: the
+//!   supply PF against the target with the controller's demand against the dead band
+//!   (overcorrection episodes shaded), the kvar needed against the kvar delivered, the
+//!   step states as a raster, and the hour-of-day × day heat map of the supply PF;
+//! - [`steps`]: operations and years to rated life per step;
+//! - [`impedance`]: |Z(h)| of the bank states reached, with the load's harmonics and the
+//!   impedance at which each harmonic reaches its voltage limit;
+//! - [`tradeoff`]: plain-data figures for comparing candidate settings or layouts: a
+//!   trade-off scatter with its front and a recommendation, and a duration curve with
+//!   reachable levels.
+//!
+//! Text is measured and, in the PNG, drawn with DejaVu Sans embedded in the binary
+//! (`assets/fonts/`), so no system font is needed; the SVG names the generic
+//! `sans-serif` family. Every SVG carries a `<metadata>` element listing what each figure
+//! plotted (series name, unit, lowest and highest value drawn, number of points), so a
+//! test or a reader can check a figure against the JSON report.
+//!
+//! The palette is chosen to stay apart when printed in grey: the series differ in
+//! lightness and in line pattern, not in hue alone.
+
+pub mod impedance;
+pub mod steps;
+pub mod time;
+pub mod tradeoff;
+
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use std::fmt::Write as _;
+use std::sync::Once;
+
+pub use impedance::impedance_figure;
+pub use steps::wear_figure;
+pub use time::{heatmap_figure, kvar_figure, pf_figure, raster_figure};
+pub use tradeoff::{
+    duration_curve, tradeoff_scatter, DurationData, Level, TradeoffData, TradeoffPoint,
+};
+
+/// A figure made ready for writing: its file name stem, words, SVG and PNG.
+#[derive(Debug, Clone)]
+pub struct Figure {
+    /// File name without extension, e.g. `pf-over-time`.
+    pub name: String,
+    /// The figure's title, a sentence.
+    pub title: String,
+    /// What the figure shows and how to read it, one or two sentences.
+    pub caption: String,
+    /// The SVG document (standalone, with its XML namespace).
+    pub svg: String,
+    /// The PNG image.
+    pub png: Vec<u8>,
+    /// What was plotted.
+    pub meta: FigureMeta,
+}
+
+/// What a figure plotted: its series and their extremes.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct FigureMeta {
+    /// The series drawn.
+    pub series: Vec<SeriesMeta>,
+    /// Rows of a raster or heat map, if the figure has them.
+    pub rows: Option<usize>,
+}
+
+/// One series of a figure.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SeriesMeta {
+    /// Name of the series as the legend says it.
+    pub name: String,
+    /// Unit of its values (`kvar`, `ohm`, `PF scale`, ...).
+    pub unit: String,
+    /// Lowest value drawn.
+    pub min: f64,
+    /// Highest value drawn.
+    pub max: f64,
+    /// Points (or bars, cells) drawn.
+    pub points: usize,
+}
+
+impl FigureMeta {
+    /// Records a series from the values drawn (non-finite values are left out).
+    pub fn add(&mut self, name: &str, unit: &str, values: impl IntoIterator<Item = f64>) {
+        let (mut lo, mut hi, mut n) = (f64::INFINITY, f64::NEG_INFINITY, 0);
+        for v in values {
+            if v.is_finite() {
+                lo = lo.min(v);
+                hi = hi.max(v);
+                n += 1;
+            }
+        }
+        self.series.push(SeriesMeta {
+            name: name.to_string(),
+            unit: unit.to_string(),
+            min: lo,
+            max: hi,
+            points: n,
+        });
+    }
+
+    /// The series named `name`.
+    pub fn get(&self, name: &str) -> Option<&SeriesMeta> {
+        self.series.iter().find(|s| s.name == name)
+    }
+}
+
+/// A figure could not be drawn.
+#[derive(Debug, thiserror::Error)]
+#[error("cannot draw the figure {figure}: {message}")]
+pub struct FigureError {
+    /// The figure's name.
+    pub figure: String,
+    /// What went wrong.
+    pub message: String,
+}
+
+/// Pixel size of a wide figure (time plots).
+pub const WIDE: (u32, u32) = (1100, 520);
+/// Pixel size of a medium figure.
+pub const MEDIUM: (u32, u32) = (1100, 440);
+
+// The palette: ink for text and axes; the main series dark, envelopes light, the bank
+// mid-dark and warm, so that every pair differs in lightness as well as hue.
+/// Text and axes.
+pub const INK: RGBColor = RGBColor(0x24, 0x2c, 0x33);
+/// Grid lines.
+pub const GRID: RGBColor = RGBColor(0xdd, 0xe2, 0xe6);
+/// The main series (deep teal).
+pub const MAIN: RGBColor = RGBColor(0x17, 0x5a, 0x73);
+/// The light envelope of the main series (pale teal).
+pub const MAIN_LIGHT: RGBColor = RGBColor(0xa9, 0xcf, 0xdc);
+/// The bank's output (burnt orange).
+pub const BANK: RGBColor = RGBColor(0xb8, 0x57, 0x1f);
+/// The bank's envelope (pale apricot).
+pub const BANK_LIGHT: RGBColor = RGBColor(0xf2, 0xc9, 0xa8);
+/// The dead band and other allowed zones (pale sage).
+pub const BAND: RGBColor = RGBColor(0xdc, 0xe6, 0xcf);
+/// Overcorrection shading (pale rose).
+pub const OVER: RGBColor = RGBColor(0xf3, 0xb9, 0xc0);
+/// Limits and warnings (dark crimson).
+pub const LIMIT: RGBColor = RGBColor(0x8c, 0x1c, 0x2e);
+/// Secondary lines (mid grey).
+pub const MUTED: RGBColor = RGBColor(0x7d, 0x86, 0x8e);
+
+/// Stops of the sequential colour scale (dark plum to pale straw), monotonic in
+/// lightness so that it reads in grey.
+const SCALE: [(u8, u8, u8); 6] = [
+    (0x1e, 0x14, 0x3c),
+    (0x4a, 0x2a, 0x6e),
+    (0x8a, 0x3b, 0x7c),
+    (0xc9, 0x5c, 0x6a),
+    (0xee, 0x9a, 0x5c),
+    (0xfb, 0xe9, 0xa9),
+];
+
+/// The colour of `x` in 0..1 on the sequential scale.
+pub fn scale_colour(x: f64) -> RGBColor {
+    let x = if x.is_finite() {
+        x.clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
+    let pos = x * (SCALE.len() - 1) as f64;
+    let i = (pos.floor() as usize).min(SCALE.len() - 2);
+    let f = pos - i as f64;
+    let mix = |a: u8, b: u8| (a as f64 + (b as f64 - a as f64) * f).round() as u8;
+    let (a, b) = (SCALE[i], SCALE[i + 1]);
+    RGBColor(mix(a.0, b.0), mix(a.1, b.1), mix(a.2, b.2))
+}
+
+/// `c` blended with white: 1 gives `c`, 0 gives white. Solid tints print the same
+/// everywhere, where transparency may not.
+pub fn tint(c: RGBColor, f: f64) -> RGBColor {
+    let f = f.clamp(0.0, 1.0);
+    let m = |x: u8| (255.0 - (255.0 - x as f64) * f).round() as u8;
+    RGBColor(m(c.0), m(c.1), m(c.2))
+}
+
+/// The font family every figure uses.
+pub const FAMILY: &str = "sans-serif";
+
+static FONT: Once = Once::new();
+
+/// Registers the embedded font under [`FAMILY`] (once per process).
+fn register_font() {
+    FONT.call_once(|| {
+        let bytes: &'static [u8] = include_bytes!("../../../assets/fonts/DejaVuSans.ttf");
+        // The embedded file is a valid font; if it were not, text would be missing from
+        // the figures and the tests that read their labels would fail.
+        let _ = plotters::style::register_font(FAMILY, FontStyle::Normal, bytes);
+    });
+}
+
+/// Text style of a size, in ink.
+pub fn text(size: f64) -> TextStyle<'static> {
+    (FAMILY, size).into_font().color(&INK)
+}
+
+/// Something that draws itself on any plotters backend.
+pub trait Draw {
+    /// Draws on `root` (already filled white) and records what it plotted in `meta`.
+    fn draw<DB: DrawingBackend>(
+        &self,
+        root: &DrawingArea<DB, Shift>,
+        meta: &mut FigureMeta,
+    ) -> Result<(), String>;
+}
+
+/// Converts a drawing error into words.
+pub(crate) fn de<E: std::fmt::Debug>(e: E) -> String {
+    format!("{e:?}")
+}
+
+/// Draws `d` as SVG and as PNG at `size` pixels.
+pub fn render<D: Draw>(
+    d: &D,
+    name: &str,
+    title: String,
+    caption: String,
+    size: (u32, u32),
+) -> Result<Figure, FigureError> {
+    register_font();
+    let err = |message: String| FigureError {
+        figure: name.to_string(),
+        message,
+    };
+    let mut svg = String::new();
+    let mut meta = FigureMeta::default();
+    {
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| err(de(e)))?;
+        d.draw(&root, &mut meta).map_err(err)?;
+        root.present().map_err(|e| err(de(e)))?;
+    }
+    let mut rgb = vec![255u8; (size.0 * size.1 * 3) as usize];
+    {
+        let root = BitMapBackend::with_buffer(&mut rgb, size).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| err(de(e)))?;
+        let mut again = FigureMeta::default();
+        d.draw(&root, &mut again).map_err(err)?;
+        root.present().map_err(|e| err(de(e)))?;
+    }
+    let png = encode_png(&rgb, size).map_err(err)?;
+    let svg = with_metadata(&svg, name, &title, &meta);
+    Ok(Figure {
+        name: name.to_string(),
+        title,
+        caption,
+        svg,
+        png,
+        meta,
+    })
+}
+
+/// Encodes an RGB buffer as PNG.
+fn encode_png(rgb: &[u8], size: (u32, u32)) -> Result<Vec<u8>, String> {
+    let mut out = Vec::new();
+    {
+        let mut enc = png::Encoder::new(&mut out, size.0, size.1);
+        enc.set_color(png::ColorType::Rgb);
+        enc.set_depth(png::BitDepth::Eight);
+        enc.set_compression(png::Compression::Fast);
+        let mut w = enc.write_header().map_err(|e| e.to_string())?;
+        w.write_image_data(rgb).map_err(|e| e.to_string())?;
+        w.finish().map_err(|e| e.to_string())?;
+    }
+    Ok(out)
+}
+
+/// Escapes text for XML and HTML (element content and attribute values).
+pub fn escape(text: &str) -> String {
+    let mut s = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => s.push_str("&amp;"),
+            '<' => s.push_str("&lt;"),
+            '>' => s.push_str("&gt;"),
+            '"' => s.push_str("&quot;"),
+            '\'' => s.push_str("&#39;"),
+            _ => s.push(c),
+        }
+    }
+    s
+}
+
+/// A number for the metadata: shortest round-trip form, `none` when not finite.
+fn meta_num(x: f64) -> String {
+    if x.is_finite() {
+        format!("{x}")
+    } else {
+        "none".to_string()
+    }
+}
+
+/// Puts a `<title>` and a `<metadata>` element right after the opening `<svg>` tag.
+fn with_metadata(svg: &str, name: &str, title: &str, meta: &FigureMeta) -> String {
+    let Some(open_end) = svg
+        .find("<svg")
+        .and_then(|i| svg[i..].find('>').map(|j| i + j + 1))
+    else {
+        return svg.to_string();
+    };
+    let mut m = String::new();
+    let _ = write!(
+        m,
+        "\n<title>{}</title>\n<metadata>\n<figure xmlns=\"urn:bankstep:figure\" name=\"{}\"{}>\n",
+        escape(title),
+        escape(name),
+        meta.rows
+            .map(|r| format!(" rows=\"{r}\""))
+            .unwrap_or_default()
+    );
+    for s in &meta.series {
+        let _ = writeln!(
+            m,
+            "<series name=\"{}\" unit=\"{}\" min=\"{}\" max=\"{}\" points=\"{}\"/>",
+            escape(&s.name),
+            escape(&s.unit),
+            meta_num(s.min),
+            meta_num(s.max),
+            s.points
+        );
+    }
+    m.push_str("</figure>\n</metadata>");
+    let mut out = String::with_capacity(svg.len() + m.len());
+    out.push_str(&svg[..open_end]);
+    out.push_str(&m);
+    out.push_str(&svg[open_end..]);
+    out
+}
+
+/// One key of a legend.
+#[derive(Debug, Clone, Copy)]
+pub enum Key {
+    /// A filled box.
+    Fill(RGBColor),
+    /// A solid line.
+    Line(RGBColor, u32),
+    /// A dashed line.
+    Dash(RGBColor, u32),
+}
+
+/// Draws a legend as one row of keys starting at pixel (x, y) of `area`.
+pub fn legend<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    x: i32,
+    y: i32,
+    keys: &[(Key, &str)],
+) -> Result<(), String> {
+    let style = text(13.0);
+    let mut x = x;
+    for (key, label) in keys {
+        match *key {
+            Key::Fill(c) => {
+                area.draw(&Rectangle::new(
+                    [(x, y - 6), (x + 22, y + 6)],
+                    c.filled().stroke_width(1),
+                ))
+                .map_err(de)?;
+                area.draw(&Rectangle::new([(x, y - 6), (x + 22, y + 6)], MUTED))
+                    .map_err(de)?;
+            }
+            Key::Line(c, w) => {
+                area.draw(&PathElement::new(
+                    vec![(x, y), (x + 22, y)],
+                    c.stroke_width(w),
+                ))
+                .map_err(de)?;
+            }
+            Key::Dash(c, w) => {
+                for s in 0..3 {
+                    let x0 = x + s * 8;
+                    area.draw(&PathElement::new(
+                        vec![(x0, y), (x0 + 5, y)],
+                        c.stroke_width(w),
+                    ))
+                    .map_err(de)?;
+                }
+            }
+        }
+        area.draw(&Text::new(
+            label.to_string(),
+            (x + 28, y - 7),
+            style.clone(),
+        ))
+        .map_err(de)?;
+        let w = area
+            .estimate_text_size(label, &style)
+            .map(|(w, _)| w as i32)
+            .unwrap_or(8 * label.len() as i32);
+        x += 28 + w + 22;
+    }
+    Ok(())
+}
+
+/// Draws a dashed horizontal or sloped line between two pixel points.
+pub fn dashed<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    from: (i32, i32),
+    to: (i32, i32),
+    style: ShapeStyle,
+) -> Result<(), String> {
+    let (dx, dy) = ((to.0 - from.0) as f64, (to.1 - from.1) as f64);
+    let len = dx.hypot(dy);
+    if len < 1.0 {
+        return Ok(());
+    }
+    let (on, off) = (7.0, 5.0);
+    let mut s = 0.0;
+    while s < len {
+        let e = (s + on).min(len);
+        let p = |d: f64| {
+            (
+                from.0 + (dx * d / len).round() as i32,
+                from.1 + (dy * d / len).round() as i32,
+            )
+        };
+        area.draw(&PathElement::new(vec![p(s), p(e)], style))
+            .map_err(de)?;
+        s += on + off;
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn scale_is_monotonic_in_lightness() {
+        // Relative luminance weights of ITU-R BT.709 (common practice for grey conversion).
+        let lum = |c: RGBColor| 0.2126 * c.0 as f64 + 0.7152 * c.1 as f64 + 0.0722 * c.2 as f64;
+        let mut last = -1.0;
+        for i in 0..=50 {
+            let l = lum(scale_colour(i as f64 / 50.0));
+            assert!(l > last, "step {i}: {l} after {last}");
+            last = l;
+        }
+    }
+
+    #[test]
+    fn escaping() {
+        assert_eq!(
+            escape("a<b & \"c\" 'd'>"),
+            "a&lt;b &amp; &quot;c&quot; &#39;d&#39;&gt;"
+        );
+    }
+}

@@ -1,0 +1,870 @@
+//! The HTML report of `simulate --report DIR`: one self-contained `report.html` (figures
+//! inline as SVG, styles inline, no script, no network, no reference to any other file)
+//! beside the figures as SVG and PNG files.
+//!
+//! Order: the findings first (the statements of the summary, from the assessment), the
+//! safety caution, the figures, the settings used, the tables (PF and energy, switching,
+//! overcorrection, resonance, wear) and the provenance. Every piece of text is escaped.
+//! A print style sheet lays it out for A4 paper (print to PDF from any browser).
+
+use crate::analysis::Severity;
+use crate::controller::Measurement;
+use crate::metrics::OvercorrectionCause;
+use crate::pf::Quadrant;
+use crate::report::figures::{self, escape, Figure, FigureError};
+use crate::report::{
+    approx, count, duration, harmonic_name, num, pct, steps_label, years_text, Provenance,
+    ReportContext, ReportError, HARDWARE_CAUTION,
+};
+use crate::text::{pct_vs_limit, pf_vs};
+use crate::trace::Trace;
+use std::fmt::Write as _;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// Name of the HTML file in the report folder.
+pub const HTML_FILE: &str = "report.html";
+
+/// Most bank states listed in the resonance table.
+const MAX_STATES: usize = 20;
+
+/// The figures of one `simulate` run, in the order the report shows them.
+pub fn simulate_figures(
+    ctx: &ReportContext<'_>,
+    trace: &Trace,
+) -> Result<Vec<Figure>, FigureError> {
+    Ok(vec![
+        figures::pf_figure(ctx, trace)?,
+        figures::kvar_figure(ctx, trace)?,
+        figures::raster_figure(ctx, trace)?,
+        figures::wear_figure(ctx)?,
+        figures::heatmap_figure(ctx, trace)?,
+        figures::impedance_figure(ctx)?,
+    ])
+}
+
+/// Writes the report folder: every figure as `NAME.svg` and `NAME.png`, and
+/// [`HTML_FILE`]. Creates the folder if needed. Returns the files written.
+pub fn write_report_dir(
+    ctx: &ReportContext<'_>,
+    trace: &Trace,
+    dir: &Path,
+) -> Result<Vec<PathBuf>, ReportError> {
+    let figs = simulate_figures(ctx, trace)?;
+    std::fs::create_dir_all(dir)?;
+    let mut written = Vec::new();
+    for f in &figs {
+        let svg = dir.join(format!("{}.svg", f.name));
+        std::fs::write(&svg, f.svg.as_bytes())?;
+        let png = dir.join(format!("{}.png", f.name));
+        std::fs::write(&png, &f.png)?;
+        written.push(svg);
+        written.push(png);
+    }
+    let path = dir.join(HTML_FILE);
+    let mut out = std::io::BufWriter::new(std::fs::File::create(&path)?);
+    write_html(ctx, trace, &figs, &mut out)?;
+    out.flush()?;
+    written.push(path);
+    Ok(written)
+}
+
+/// The SVG of a figure made ready to sit inside HTML: no XML namespace declaration (the
+/// HTML parser knows SVG), no metadata, sized by the page.
+pub fn inline_svg(f: &Figure) -> String {
+    let mut s = f.svg.clone();
+    if let (Some(a), Some(b)) = (s.find("<metadata>"), s.find("</metadata>")) {
+        if b > a {
+            s.replace_range(a..b + "</metadata>".len(), "");
+        }
+    }
+    let s = s.replace(" xmlns=\"http://www.w3.org/2000/svg\"", "");
+    // The fixed pixel size gives way to the page's width (the viewBox keeps the shape).
+    let s = match (s.find("<svg"), s.find(" viewBox")) {
+        (Some(a), Some(v)) if v > a => {
+            let label = format!(" role=\"img\" aria-label=\"{}\"", escape(&f.title));
+            format!("{}<svg{}{}", &s[..a], label, &s[v..])
+        }
+        _ => s,
+    };
+    s
+}
+
+const STYLE: &str = "
+:root { --ink: #242c33; --muted: #5f6a73; --rule: #c9d1d7; --pale: #f3f5f6; --teal: #175a73;
+  --crimson: #8c1c2e; }
+* { box-sizing: border-box; }
+body { font-family: 'DejaVu Sans', 'Helvetica Neue', Arial, sans-serif; color: var(--ink);
+  margin: 0 auto; max-width: 1160px; padding: 24px 28px 48px; line-height: 1.45;
+  font-size: 15px; background: #fff; }
+header { border-bottom: 3px solid var(--teal); margin-bottom: 18px; padding-bottom: 10px; }
+h1 { font-size: 26px; margin: 0 0 4px; }
+h2 { font-size: 20px; margin: 30px 0 10px; border-bottom: 1px solid var(--rule);
+  padding-bottom: 4px; }
+h3 { font-size: 16px; margin: 18px 0 6px; }
+.sub { color: var(--muted); margin: 2px 0; }
+ol.findings { padding-left: 0; list-style: none; counter-reset: f; }
+ol.findings li { counter-increment: f; margin: 0 0 10px; padding: 8px 12px 8px 14px;
+  border-left: 5px solid var(--rule); background: var(--pale); }
+ol.findings li::before { content: counter(f) '. '; font-weight: bold; }
+ol.findings li.critical { border-left: 5px solid var(--crimson); }
+ol.findings li.warning { border-left: 5px dashed var(--crimson); }
+ol.findings li.note { border-left: 5px solid var(--teal); }
+.sev { font-weight: bold; text-transform: uppercase; font-size: 12px; letter-spacing: 0.05em;
+  margin-right: 6px; }
+.advice { display: block; margin-top: 4px; }
+.caution { border: 2px solid var(--ink); padding: 10px 14px; margin: 16px 0;
+  font-weight: 500; }
+figure { margin: 18px 0 26px; break-inside: avoid; page-break-inside: avoid; }
+figure svg { width: 100%; height: auto; display: block; border: 1px solid var(--rule); }
+figcaption { color: var(--muted); font-size: 13.5px; margin-top: 6px; }
+.files { color: var(--muted); font-size: 12.5px; }
+table { border-collapse: collapse; margin: 8px 0 16px; font-size: 13.5px; }
+th, td { border-bottom: 1px solid var(--rule); padding: 4px 10px 4px 0; text-align: right;
+  vertical-align: top; }
+th { border-bottom: 2px solid var(--ink); font-weight: 600; }
+th.l, td.l { text-align: left; }
+dl.kv { display: grid; grid-template-columns: 230px 1fr; gap: 3px 14px; margin: 8px 0 14px; }
+dl.kv dt { color: var(--muted); }
+dl.kv dd { margin: 0; }
+code { font-family: 'DejaVu Sans Mono', monospace; font-size: 13px; }
+@page { size: A4; margin: 15mm 13mm; }
+@media print {
+  body { max-width: none; padding: 0; font-size: 10pt; }
+  h2 { break-after: avoid; page-break-after: avoid; }
+  h3 { break-after: avoid; }
+  table, dl.kv, ol.findings li { break-inside: avoid; page-break-inside: avoid; }
+  ol.findings li { background: none; }
+  figure svg { border: none; }
+  .figures { break-before: page; }
+}
+";
+
+/// Writes the HTML report of `ctx` with `figs` inline.
+pub fn write_html(
+    ctx: &ReportContext<'_>,
+    trace: &Trace,
+    figs: &[Figure],
+    out: &mut dyn Write,
+) -> Result<(), ReportError> {
+    let mut h = String::with_capacity(256 * 1024);
+    let sc = ctx.scenario();
+    let run = &ctx.result.metrics.run;
+    let cal = ctx.study.plan.calendar;
+    let title = format!("Capacitor bank study: {}", sc.name);
+    let _ = write!(
+        h,
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
+         <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
+         <title>{}</title>\n<style>{STYLE}</style>\n</head>\n<body>\n<header>\n<h1>{}</h1>\n",
+        escape(&title),
+        escape(&title)
+    );
+    if let Some(d) = &sc.description {
+        let _ = writeln!(h, "<p class=\"sub\">{}</p>", escape(d));
+    }
+    let load = match &sc.load {
+        crate::scenario::LoadSpec::Synthetic(_) => format!("synthetic load (seed {})", sc.seed),
+        crate::scenario::LoadSpec::Csv { .. } => format!("load profile {}", ctx.load_source()),
+    };
+    let _ = writeln!(
+        h,
+        "<p class=\"sub\">{}</p>\n</header>",
+        escape(&format!(
+            "Scenario {}: {} simulated ({} intervals of {} s) from {}, {load}.",
+            ctx.scenario_file(),
+            duration(run.duration_s),
+            count(run.samples),
+            short(run.time_step_s),
+            cal.datetime(run.t_first_s).format("%Y-%m-%d %H:%M"),
+        ))
+    );
+
+    findings(ctx, &mut h);
+    figures_section(figs, &mut h);
+    settings(ctx, &mut h);
+    pf_energy(ctx, &mut h);
+    switching(ctx, &mut h);
+    overcorrection(ctx, &mut h);
+    resonance(ctx, &mut h);
+    wear(ctx, &mut h);
+    provenance(ctx, trace, &mut h);
+    h.push_str("</body>\n</html>\n");
+    out.write_all(h.as_bytes())?;
+    out.flush()?;
+    Ok(())
+}
+
+/// A number with as few decimals as it needs (at most 3).
+fn short(x: f64) -> String {
+    let s = format!("{x:.3}");
+    s.trim_end_matches('0').trim_end_matches('.').to_string()
+}
+
+/// Appends a table: header cells and rows; `align` one letter per column (`l` left).
+fn table(h: &mut String, headers: &[&str], align: &str, rows: &[Vec<String>]) {
+    let cls = |i: usize| {
+        if align.as_bytes().get(i) == Some(&b'l') {
+            " class=\"l\""
+        } else {
+            ""
+        }
+    };
+    h.push_str("<table>\n<thead><tr>");
+    for (i, c) in headers.iter().enumerate() {
+        let _ = write!(h, "<th{}>{}</th>", cls(i), escape(c));
+    }
+    h.push_str("</tr></thead>\n<tbody>\n");
+    for r in rows {
+        h.push_str("<tr>");
+        for (i, c) in r.iter().enumerate() {
+            let _ = write!(h, "<td{}>{}</td>", cls(i), escape(c));
+        }
+        h.push_str("</tr>\n");
+    }
+    h.push_str("</tbody>\n</table>\n");
+}
+
+/// Appends a list of label and value pairs.
+fn pairs(h: &mut String, items: &[(&str, String)]) {
+    h.push_str("<dl class=\"kv\">\n");
+    for (k, v) in items {
+        let _ = writeln!(h, "<dt>{}</dt><dd>{}</dd>", escape(k), escape(v));
+    }
+    h.push_str("</dl>\n");
+}
+
+fn findings(ctx: &ReportContext<'_>, h: &mut String) {
+    h.push_str("<section id=\"findings\">\n<h2>Findings</h2>\n<ol class=\"findings\">\n");
+    for f in &ctx.assessment.findings {
+        let class = match f.severity {
+            Severity::Critical => "critical",
+            Severity::Warning => "warning",
+            Severity::Note => "note",
+            Severity::Info => "info",
+        };
+        let _ = write!(
+            h,
+            "<li class=\"{class}\"><span class=\"sev\">{}</span>{}",
+            escape(f.severity.word()),
+            escape(&f.text)
+        );
+        if let Some(a) = &f.advice {
+            let _ = write!(
+                h,
+                "<span class=\"advice\"><b>Suggestion:</b> {}</span>",
+                escape(a)
+            );
+        }
+        h.push_str("</li>\n");
+    }
+    h.push_str("</ol>\n");
+    let _ = writeln!(h, "<p class=\"caution\">{}</p>", escape(HARDWARE_CAUTION));
+    let list = &ctx.assessment.settings_to_check;
+    if !list.is_empty() {
+        h.push_str("<h3>Settings to check</h3>\n<ul>\n");
+        for a in list {
+            let _ = writeln!(
+                h,
+                "<li><code>{}</code>: {}.</li>",
+                escape(&a.key),
+                escape(&a.message)
+            );
+        }
+        h.push_str("</ul>\n");
+    }
+    h.push_str("</section>\n");
+}
+
+fn figures_section(figs: &[Figure], h: &mut String) {
+    h.push_str("<section id=\"figures\" class=\"figures\">\n<h2>Figures</h2>\n");
+    for f in figs {
+        let _ = write!(
+            h,
+            "<figure id=\"fig-{}\">\n<h3>{}</h3>\n{}\n<figcaption>{} <span class=\"files\">\
+             (also {}.svg and {}.png in this folder)</span></figcaption>\n</figure>\n",
+            escape(&f.name),
+            escape(&f.title),
+            inline_svg(f),
+            escape(&f.caption),
+            escape(&f.name),
+            escape(&f.name)
+        );
+    }
+    h.push_str("</section>\n");
+}
+
+fn settings(ctx: &ReportContext<'_>, h: &mut String) {
+    let sc = ctx.scenario();
+    let s = &sc.supply;
+    h.push_str("<section id=\"settings\">\n<h2>Settings used</h2>\n");
+    let mut supply = format!(
+        "{} V, {} Hz",
+        num(s.nominal_voltage_v, 0),
+        num(s.frequency_hz, 0)
+    );
+    match s.transformer {
+        Some(tr) => {
+            let _ = write!(
+                supply,
+                "; transformer {} kVA, u_k {} %, X/R {}",
+                num(tr.rated_kva, 0),
+                num(tr.impedance_pct, 1),
+                num(tr.x_over_r, 1)
+            );
+        }
+        None => supply.push_str("; no transformer"),
+    }
+    match s.grid_short_circuit_kva {
+        Some(g) => {
+            let _ = write!(supply, "; grid {} MVA short-circuit", num(g / 1e3, 0));
+        }
+        None => supply.push_str("; grid infinite"),
+    }
+    let s_sc = s.short_circuit_kva();
+    let c = &sc.controller;
+    let measurement = match c.measurement {
+        Measurement::ThreePhase => "three-phase".to_string(),
+        Measurement::SinglePhase(p) => {
+            format!("single-phase on phase {}", crate::profile::PHASES[p.min(2)])
+        }
+    };
+    let p = &c.protection;
+    let mut prot = Vec::new();
+    if let Some(v) = p.overvoltage_v {
+        prot.push(format!(
+            "overvoltage above {} V after {}",
+            num(v, 0),
+            duration(p.overvoltage_delay_s)
+        ));
+    }
+    if let Some(a) = p.min_current_a {
+        prot.push(format!(
+            "loss of current below {} A after {}",
+            num(a, 1),
+            duration(p.min_current_delay_s)
+        ));
+    }
+    if p.trip_on_export {
+        prot.push(format!("export after {}", duration(p.export_delay_s)));
+    }
+    if let Some(x) = p.thd_limit_pct {
+        prot.push(format!(
+            "voltage THD above {} % after {}",
+            num(x, 1),
+            duration(p.thd_delay_s)
+        ));
+    }
+    if let Some(n) = p.max_operations_per_hour {
+        prot.push(format!("at most {n} operations per hour"));
+    }
+    pairs(
+        h,
+        &[
+            ("Supply", supply),
+            (
+                "Short-circuit power",
+                if s_sc.is_finite() {
+                    format!("{} kVA at the bus", num(s_sc, 0))
+                } else {
+                    "infinite (stiff bus)".to_string()
+                },
+            ),
+            ("Target", c.target.to_string()),
+            ("Dead band", format!("±{} kvar", num(c.dead_band_kvar, 1))),
+            (
+                "Switching delay",
+                format!(
+                    "{} (disconnect {})",
+                    duration(c.connect_delay_s),
+                    duration(c.disconnect_delay_s)
+                ),
+            ),
+            ("Discharge time", duration(c.discharge_time_s)),
+            ("Step ordering", c.ordering.name().to_string()),
+            ("Measurement", measurement),
+            (
+                "Averaging",
+                if c.averaging_s > 0.0 {
+                    duration(c.averaging_s)
+                } else {
+                    "none".to_string()
+                },
+            ),
+            (
+                "Protections",
+                if prot.is_empty() {
+                    "none".to_string()
+                } else {
+                    prot.join("; ")
+                },
+            ),
+        ],
+    );
+    h.push_str("<h3>Bank</h3>\n");
+    let rows: Vec<Vec<String>> = sc
+        .steps
+        .iter()
+        .enumerate()
+        .map(|(i, st)| {
+            vec![
+                (i + 1).to_string(),
+                format!("{} kvar", num(st.kvar, 1)),
+                st.phase.label().to_string(),
+                if st.fixed { "fixed" } else { "switched" }.to_string(),
+                st.detuning
+                    .map(|p| format!("{} %", num(p * 100.0, 2)))
+                    .unwrap_or_else(|| "none".to_string()),
+                format!("{} ops", count(st.rated_operations.round() as u64)),
+            ]
+        })
+        .collect();
+    table(
+        h,
+        &[
+            "step",
+            "output",
+            "phase",
+            "kind",
+            "detuning",
+            "contactor life",
+        ],
+        "rrllrr",
+        &rows,
+    );
+    h.push_str("</section>\n");
+}
+
+fn pf_energy(ctx: &ReportContext<'_>, h: &mut String) {
+    let p = &ctx.result.metrics.pf;
+    let verdict = ctx.assessment.billed_pf;
+    h.push_str("<section id=\"pf\">\n<h2>PF and energy</h2>\n");
+    let mut items = vec![(
+        "Billed PF",
+        format!(
+            "{}, {} the {} target (from the inductive register)",
+            pf_vs(p.energy_pf, Quadrant::Lag, verdict.goal),
+            if verdict.below_target {
+                "below"
+            } else {
+                "meets"
+            },
+            p.target
+        ),
+    )];
+    if let (Some(ind), Some(cap)) = (p.tan_phi, p.tan_phi_capacitive) {
+        items.push((
+            "tan φ",
+            format!(
+                "{} inductive, {} capacitive (kvarh per kWh imported)",
+                num(ind, 3),
+                num(cap, 3)
+            ),
+        ));
+    }
+    items.extend([
+        ("Active import", format!("{} kWh", num(p.kwh_import, 1))),
+        ("Active export", format!("{} kWh", num(p.kwh_export, 1))),
+        (
+            "Reactive inductive",
+            format!("{} kvarh", num(p.kvarh_inductive, 1)),
+        ),
+        (
+            "Reactive capacitive",
+            format!("{} kvarh", num(p.kvarh_capacitive, 1)),
+        ),
+        ("Time under target", pct(p.share_under_target)),
+        ("Time leading", pct(p.share_leading)),
+    ]);
+    pairs(h, &items);
+    let cal = ctx.study.plan.calendar;
+    let rows: Vec<Vec<String>> = p
+        .billing
+        .iter()
+        .map(|w| {
+            vec![
+                cal.datetime(w.start_s).format("%Y-%m-%d %H:%M").to_string(),
+                cal.datetime(w.end_s).format("%Y-%m-%d %H:%M").to_string(),
+                pf_vs(w.energy_pf, Quadrant::Lag, verdict.goal),
+                format!("{} kWh", num(w.kwh_import, 1)),
+                format!("{} kvarh", num(w.kvarh_inductive, 1)),
+                format!("{} kvarh", num(w.kvarh_capacitive, 1)),
+            ]
+        })
+        .collect();
+    h.push_str("<h3>Billing windows</h3>\n");
+    table(
+        h,
+        &[
+            "from",
+            "to",
+            "energy PF",
+            "active import",
+            "inductive",
+            "capacitive",
+        ],
+        "llrrrr",
+        &rows,
+    );
+    h.push_str("</section>\n");
+}
+
+fn switching(ctx: &ReportContext<'_>, h: &mut String) {
+    let m = &ctx.result.metrics;
+    let s = &m.switching;
+    h.push_str("<section id=\"switching\">\n<h2>Switching</h2>\n");
+    let tr = &s.trips;
+    pairs(
+        h,
+        &[
+            (
+                "Operations",
+                format!(
+                    "{} in the run ({} per day, {} per year extrapolated)",
+                    count(s.total_operations),
+                    approx(s.per_day),
+                    approx(s.per_year)
+                ),
+            ),
+            (
+                "Hunting",
+                format!(
+                    "{} cycle{} (operations of one step no more than {} apart)",
+                    count(s.hunting_cycles),
+                    if s.hunting_cycles == 1 { "" } else { "s" },
+                    duration(s.hunting_window_s)
+                ),
+            ),
+            (
+                "Protection trips",
+                format!(
+                    "overvoltage {}, loss of current {}, export {}, distortion {}",
+                    tr.overvoltage, tr.loss_of_current, tr.export, tr.distortion
+                ),
+            ),
+        ],
+    );
+    let rows: Vec<Vec<String>> = s
+        .per_step
+        .iter()
+        .map(|p| {
+            let per_year = m
+                .wear
+                .iter()
+                .find(|w| w.step == p.step)
+                .map_or(0.0, |w| w.operations_per_year);
+            vec![
+                p.step.to_string(),
+                count(p.operations),
+                count(p.closings),
+                count(p.openings),
+                approx(per_year),
+                count(p.hunting_cycles),
+            ]
+        })
+        .collect();
+    if rows.is_empty() {
+        h.push_str("<p>No switched steps.</p>\n");
+    } else {
+        table(
+            h,
+            &[
+                "step",
+                "operations",
+                "closings",
+                "openings",
+                "per year",
+                "hunting cycles",
+            ],
+            "rrrrrr",
+            &rows,
+        );
+    }
+    h.push_str("</section>\n");
+}
+
+fn cause_label(c: OvercorrectionCause) -> &'static str {
+    match c {
+        OvercorrectionCause::Export => "export",
+        OvercorrectionCause::FixedSteps => "fixed steps",
+        OvercorrectionCause::StepNotOpened => "step not yet opened",
+        OvercorrectionCause::NotSeenByController => "not seen by the controller",
+    }
+}
+
+fn overcorrection(ctx: &ReportContext<'_>, h: &mut String) {
+    let o = &ctx.result.metrics.overcorrection;
+    h.push_str("<section id=\"overcorrection\">\n<h2>Overcorrection</h2>\n");
+    let target = ctx.scenario().controller.target;
+    let what = if target.quadrant == Quadrant::Lead && target.pf < 1.0 {
+        format!(
+            "An episode: the supply more leading than the {target} target allows, by more \
+             than {} kvar, for at least {}.",
+            num(o.threshold_kvar, 1),
+            duration(o.min_duration_s)
+        )
+    } else {
+        format!(
+            "An episode: the supply leading by more than {} kvar for at least {}.",
+            num(o.threshold_kvar, 1),
+            duration(o.min_duration_s)
+        )
+    };
+    let _ = writeln!(h, "<p>{}</p>", escape(&what));
+    let mut items = vec![("Episodes", count(o.episodes))];
+    if o.episodes > 0 {
+        items.extend([
+            ("Total time", duration(o.total_s)),
+            ("Longest", duration(o.longest_s)),
+            (
+                "Worst",
+                format!("{} kvar leading", num(o.worst_leading_kvar, 1)),
+            ),
+        ]);
+        if let Some(c) = o.dominant_cause {
+            items.push((
+                "Main cause",
+                crate::analysis::findings::cause_words(c).to_string(),
+            ));
+        }
+    }
+    pairs(h, &items);
+    if o.episodes > 0 {
+        let all = [
+            OvercorrectionCause::Export,
+            OvercorrectionCause::FixedSteps,
+            OvercorrectionCause::StepNotOpened,
+            OvercorrectionCause::NotSeenByController,
+        ];
+        let rows: Vec<Vec<String>> = all
+            .iter()
+            .filter_map(|c| {
+                let s = o.cause_s.get(c.name()).copied().unwrap_or(0.0);
+                (s > 0.0).then(|| vec![cause_label(*c).to_string(), duration(s)])
+            })
+            .collect();
+        if !rows.is_empty() {
+            h.push_str("<h3>Time by cause</h3>\n");
+            table(h, &["cause", "time"], "lr", &rows);
+        }
+        let rows: Vec<Vec<String>> = o
+            .by_weekday_s
+            .iter()
+            .enumerate()
+            .filter(|(_, s)| **s > 0.0)
+            .map(|(i, s)| vec![crate::timebase::WEEKDAYS[i].to_string(), duration(*s)])
+            .collect();
+        if !rows.is_empty() {
+            h.push_str("<h3>Time by weekday</h3>\n");
+            table(h, &["weekday", "time"], "lr", &rows);
+        }
+    }
+    h.push_str("</section>\n");
+}
+
+fn resonance(ctx: &ReportContext<'_>, h: &mut String) {
+    let r = &ctx.assessment.resonance;
+    h.push_str("<section id=\"resonance\">\n<h2>Resonance</h2>\n");
+    pairs(
+        h,
+        &[
+            (
+                "Short-circuit power",
+                match r.short_circuit_kva {
+                    Some(s) => format!("{} kVA at the bus", num(s, 0)),
+                    None => "infinite: no parallel resonance with the supply".to_string(),
+                },
+            ),
+            (
+                "Warning tolerance",
+                format!(
+                    "±{} orders around a harmonic present",
+                    num(r.tolerance_orders, 2)
+                ),
+            ),
+            (
+                "Limits",
+                format!(
+                    "bus voltage {}; capacitors {}",
+                    r.voltage_limits, r.capacitor_limits
+                ),
+            ),
+            (
+                "Model",
+                "the harmonic load at its full rating in every state (the estimates err high \
+                 at light load)"
+                    .to_string(),
+            ),
+        ],
+    );
+    let rows: Vec<Vec<String>> = r
+        .states
+        .iter()
+        .take(MAX_STATES)
+        .map(|s| {
+            vec![
+                steps_label(&s.steps),
+                format!("{} kvar", num(s.kvar, 0)),
+                s.order.map_or("none".to_string(), |o| num(o, 2)),
+                s.nearest_harmonic.map_or("-".to_string(), harmonic_name),
+                duration(s.time_s),
+                format!("{} h", approx(s.hours_per_year)),
+                pct_vs_limit(s.thd_pct, s.thd_limit_pct, 1),
+                s.status(),
+            ]
+        })
+        .collect();
+    table(
+        h,
+        &[
+            "steps on",
+            "connected",
+            "order",
+            "nearest harmonic",
+            "time",
+            "per year",
+            "THD_V",
+            "status",
+        ],
+        "lrrlrrrl",
+        &rows,
+    );
+    if r.states.len() > MAX_STATES {
+        let _ = writeln!(
+            h,
+            "<p>{}</p>",
+            escape(&format!(
+                "... and {} more states (all in the JSON report).",
+                r.states.len() - MAX_STATES
+            ))
+        );
+    }
+    if r.warnings.is_empty() {
+        h.push_str("<p>No state reached resonates near a harmonic present in the load.</p>\n");
+    } else {
+        h.push_str("<h3>Warnings</h3>\n<ul>\n");
+        for w in &r.warnings {
+            let name = harmonic_name(w.near_harmonic);
+            let v_h = match w.v_h_limit_pct {
+                Some(l) => pct_vs_limit(w.v_h_pct, l, 1),
+                None => format!("{} %", num(w.v_h_pct, 1)),
+            };
+            let _ = writeln!(
+                h,
+                "<li>{}</li>",
+                escape(&format!(
+                    "State {} resonates at order {}, near the {name}, for {} (about {} h a \
+                     year); it amplifies the {name} {} times: estimated {v_h} at the bus, \
+                     THD_V {}.",
+                    steps_label(&w.steps),
+                    num(w.order, 2),
+                    duration(w.time_s),
+                    approx(w.hours_per_year),
+                    num(w.amplification, 1),
+                    pct_vs_limit(w.thd_pct, w.thd_limit_pct, 1)
+                ))
+            );
+        }
+        h.push_str("</ul>\n");
+    }
+    h.push_str("</section>\n");
+}
+
+fn wear(ctx: &ReportContext<'_>, h: &mut String) {
+    let m = &ctx.result.metrics;
+    h.push_str("<section id=\"wear\">\n<h2>Wear</h2>\n");
+    let rows: Vec<Vec<String>> = m
+        .wear
+        .iter()
+        .map(|w| {
+            let years = match w.years_to_rated_life {
+                Some(y) => format!("{} years", years_text(y)),
+                None if w.fixed => "not switched".to_string(),
+                None => "never operated".to_string(),
+            };
+            vec![
+                w.step.to_string(),
+                if w.fixed { "fixed" } else { "switched" }.to_string(),
+                count(w.operations),
+                approx(w.operations_per_year),
+                format!("{} ops", count(w.rated_operations.round() as u64)),
+                years,
+                format!("{} h", num(w.energized_h, 1)),
+            ]
+        })
+        .collect();
+    table(
+        h,
+        &[
+            "step",
+            "kind",
+            "operations",
+            "per year",
+            "rated life",
+            "years to rated life",
+            "energized",
+        ],
+        "rlrrrrr",
+        &rows,
+    );
+    h.push_str("</section>\n");
+}
+
+fn provenance(ctx: &ReportContext<'_>, trace: &Trace, h: &mut String) {
+    let sc = ctx.scenario();
+    let prov = Provenance::new(sc, ctx.study.profile.sha256());
+    let v = serde_json::to_value(&prov).unwrap_or_default();
+    let get = |k: &str| -> String {
+        match v.get(k) {
+            Some(serde_json::Value::String(s)) => s.clone(),
+            Some(serde_json::Value::Null) | None => "none (synthetic load)".to_string(),
+            Some(x) => x.to_string(),
+        }
+    };
+    h.push_str("<section id=\"provenance\">\n<h2>Provenance</h2>\n");
+    let bucket_s = trace.bucket_intervals() as f64 * trace.dt_s();
+    pairs(
+        h,
+        &[
+            ("Tool", format!("bankstep {}", get("tool_version"))),
+            ("Scenario file", ctx.scenario_file()),
+            ("Scenario SHA-256", get("scenario_sha256")),
+            ("Profile SHA-256", get("profile_sha256")),
+            ("Seed", get("seed")),
+            (
+                "Figures over time",
+                format!(
+                    "each pixel column spans {} of run time, drawn from its lowest to its \
+                     highest value ({} columns)",
+                    duration(bucket_s),
+                    trace.buckets().len()
+                ),
+            ),
+        ],
+    );
+    h.push_str("</section>\n");
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn inline_svg_drops_namespace_size_and_metadata() {
+        let f = Figure {
+            name: "x".into(),
+            title: "A <b> & c".into(),
+            caption: String::new(),
+            svg: "<svg width=\"10\" height=\"5\" viewBox=\"0 0 10 5\" \
+                  xmlns=\"http://www.w3.org/2000/svg\">\n<metadata>m</metadata><rect/></svg>"
+                .into(),
+            png: Vec::new(),
+            meta: Default::default(),
+        };
+        let s = inline_svg(&f);
+        assert_eq!(
+            s,
+            "<svg role=\"img\" aria-label=\"A &lt;b&gt; &amp; c\" viewBox=\"0 0 10 5\">\n<rect/></svg>"
+        );
+    }
+}
