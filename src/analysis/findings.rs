@@ -555,25 +555,10 @@ fn resonance(ctx: &Context<'_>, out: &mut Vec<Finding>) {
         }
         return;
     }
-    let worst = worst_state(ctx);
+    let worst = ctx.resonance.worst_state();
     thd(ctx, worst, out);
     let Some(w) = worst else { return };
     out.push(worst_state_finding(ctx, w));
-}
-
-/// The worst bank state with at least one step connected, by hours a year × severity.
-fn worst_state<'a>(ctx: &Context<'a>) -> Option<&'a StateResonance> {
-    // On a tie the state with more hours wins, then the one with fewer steps.
-    ctx.resonance
-        .states
-        .iter()
-        .filter(|s| !s.steps.is_empty())
-        .max_by(|a, b| {
-            (a.hours_per_year * a.severity)
-                .total_cmp(&(b.hours_per_year * b.severity))
-                .then(a.hours_per_year.total_cmp(&b.hours_per_year))
-                .then(b.steps.len().cmp(&a.steps.len()))
-        })
 }
 
 /// "5th-harmonic voltage 24.3 % (limit 5 %)".

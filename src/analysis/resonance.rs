@@ -112,6 +112,23 @@ pub struct ResonanceReport {
     pub warnings: Vec<ResonanceWarning>,
 }
 
+impl ResonanceReport {
+    /// The worst state with at least one step connected: the most hours a year ×
+    /// severity; on a tie the state with more hours, then the one with fewer steps. The
+    /// summary leads with it, and sweeps and designs compare runs by it.
+    pub fn worst_state(&self) -> Option<&StateResonance> {
+        self.states
+            .iter()
+            .filter(|s| !s.steps.is_empty())
+            .max_by(|a, b| {
+                (a.hours_per_year * a.severity)
+                    .total_cmp(&(b.hours_per_year * b.severity))
+                    .then(a.hours_per_year.total_cmp(&b.hours_per_year))
+                    .then(b.steps.len().cmp(&a.steps.len()))
+            })
+    }
+}
+
 /// The state's status in a few words: `clear`, `near h7`, `over THD_V, I_C` or both.
 impl StateResonance {
     /// `clear` when nothing is exceeded and no resonance lies near a harmonic present;

@@ -127,20 +127,6 @@ pub fn label(l: &Layout) -> String {
     }
 }
 
-/// The worst state with a step connected: most hours a year × severity, then more hours,
-/// then fewer steps (the rule the summary leads with).
-fn worst_state(states: &[StateResonance]) -> Option<&StateResonance> {
-    states
-        .iter()
-        .filter(|s| !s.steps.is_empty())
-        .max_by(|a, b| {
-            (a.hours_per_year * a.severity)
-                .total_cmp(&(b.hours_per_year * b.severity))
-                .then(a.hours_per_year.total_cmp(&b.hours_per_year))
-                .then(b.steps.len().cmp(&a.steps.len()))
-        })
-}
-
 /// The figures of one candidate from its run and the run's assessment, with its best
 /// settings in words; rank and reason are filled in by [`rank`].
 pub fn evaluate(
@@ -154,7 +140,7 @@ pub fn evaluate(
     let m = &result.metrics;
     let run_s = m.run.duration_s.max(1e-9);
     let states = &assessment.resonance.states;
-    let worst = worst_state(states);
+    let worst = assessment.resonance.worst_state();
     let hours_near: f64 = states
         .iter()
         .filter(|s| s.near_harmonic.is_some())

@@ -14,7 +14,7 @@ use super::shard::{Fingerprint, Shard, ShardFile};
 use super::spec::SweepSpec;
 use super::SweepError;
 use crate::analysis::findings::billed_goal;
-use crate::analysis::resonance::{assess_with, StateResonance};
+use crate::analysis::resonance::assess_with;
 use crate::bank::BankState;
 use crate::engine::Quiet;
 use crate::harmonics::{HarmonicModel, StateHarmonics};
@@ -453,7 +453,7 @@ impl Sweep {
         let hm = study.harmonic_model();
         let id = self.cache.model_id(sc);
         let res = assess_with(study, &hm, m, &|mask| self.cache.state(id, &hm, mask));
-        let worst = worst_state(&res.states).map(|w| WorstState {
+        let worst = res.worst_state().map(|w| WorstState {
             steps: w.steps.clone(),
             hours_per_year: w.hours_per_year,
             thd_pct: w.thd_pct,
@@ -561,16 +561,3 @@ pub fn describe(keys: &[String], values: &[String], setting: usize) -> String {
     parts.join(", ")
 }
 
-/// The worst state with a step connected, by hours a year × severity; ties to more hours,
-/// then fewer steps (the rule of a single run's summary).
-fn worst_state(states: &[StateResonance]) -> Option<&StateResonance> {
-    states
-        .iter()
-        .filter(|s| !s.steps.is_empty())
-        .max_by(|a, b| {
-            (a.hours_per_year * a.severity)
-                .total_cmp(&(b.hours_per_year * b.severity))
-                .then(a.hours_per_year.total_cmp(&b.hours_per_year))
-                .then(b.steps.len().cmp(&a.steps.len()))
-        })
-}
