@@ -705,14 +705,20 @@ fn progress_bar(intervals: u64, quiet: bool) -> Option<ProgressBar> {
     if quiet || intervals <= PROGRESS_MIN_INTERVALS || !std::io::stderr().is_terminal() {
         return None;
     }
-    let bar = ProgressBar::new(intervals);
-    let style = ProgressStyle::with_template(
+    Some(styled_bar(
+        intervals,
         "simulating [{bar:40}] {percent:>3} % ({human_pos}/{human_len} intervals, {eta} left)",
-    )
-    .map(|s| s.progress_chars("=> "))
-    .unwrap_or_else(|_| ProgressStyle::default_bar());
+    ))
+}
+
+/// A progress bar of `len` steps drawn with the indicatif `template`.
+fn styled_bar(len: u64, template: &str) -> ProgressBar {
+    let bar = ProgressBar::new(len);
+    let style = ProgressStyle::with_template(template)
+        .map(|s| s.progress_chars("=> "))
+        .unwrap_or_else(|_| ProgressStyle::default_bar());
     bar.set_style(style);
-    Some(bar)
+    bar
 }
 
 /// Where the JSON report goes.
@@ -958,14 +964,10 @@ fn sweep_bar(runs: usize, quiet: bool) -> Option<ProgressBar> {
     if quiet || !std::io::stderr().is_terminal() {
         return None;
     }
-    let bar = ProgressBar::new(runs as u64);
-    let style = ProgressStyle::with_template(
+    Some(styled_bar(
+        runs as u64,
         "sweeping [{bar:40}] {pos}/{len} runs ({per_sec}, {eta} left)",
-    )
-    .map(|s| s.progress_chars("=> "))
-    .unwrap_or_else(|_| ProgressStyle::default_bar());
-    bar.set_style(style);
-    Some(bar)
+    ))
 }
 
 fn sweep(args: &SweepArgs) -> Result<(), Failure> {
@@ -1103,12 +1105,10 @@ fn design_bar(quiet: bool) -> Option<ProgressBar> {
     if quiet || !std::io::stderr().is_terminal() {
         return None;
     }
-    let bar = ProgressBar::new(1);
-    let style = ProgressStyle::with_template("{msg:>22} [{bar:40}] {percent:>3} % ({eta} left)")
-        .map(|s| s.progress_chars("=> "))
-        .unwrap_or_else(|_| ProgressStyle::default_bar());
-    bar.set_style(style);
-    Some(bar)
+    Some(styled_bar(
+        1,
+        "{msg:>22} [{bar:40}] {percent:>3} % ({eta} left)",
+    ))
 }
 
 fn design(args: &DesignArgs) -> Result<(), Failure> {

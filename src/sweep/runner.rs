@@ -560,4 +560,3 @@ pub fn describe(keys: &[String], values: &[String], setting: usize) -> String {
         .collect();
     parts.join(", ")
 }
-
