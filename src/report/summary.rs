@@ -250,6 +250,7 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
                 let what = match f.kind {
                     FaultKind::Open => "open".to_string(),
                     FaultKind::CapacitanceLoss(x) => format!("loses {}", pct(x)),
+                    FaultKind::StuckClosed => "stuck closed".to_string(),
                 };
                 format!("{what} from {}", duration(f.from_s))
             }

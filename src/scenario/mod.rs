@@ -12,6 +12,7 @@ mod check;
 mod controller;
 mod harmonics;
 mod load;
+pub mod maintenance;
 pub mod overrides;
 mod report;
 mod run;
@@ -27,6 +28,7 @@ pub use schema::{
     ReportSection, RunSection, ScenarioFile, StepSection, StudySection, SupplySection,
     TargetPfValue, TransformerSection,
 };
+pub use maintenance::Maintenance;
 pub use tariff::{Tariff, TariffSection};
 
 use crate::bank::StepSpec;
@@ -115,6 +117,9 @@ pub struct Scenario {
     /// Prices of reactive energy, a low PF and worn parts (`[tariff]`); `None` when the
     /// scenario has no tariff.
     pub tariff: Option<Tariff>,
+    /// The bank's history (counters, installation dates), capacitor ageing, holidays and
+    /// inrush settings of the wear plan (`[maintenance]` and the per-step keys).
+    pub maintenance: Maintenance,
     /// SHA-256 of the scenario text, lowercase hex, for provenance.
     pub content_sha256: String,
 }
@@ -169,7 +174,10 @@ impl Scenario {
         let supply = supply::supply(&f.supply)?;
         let steps = steps::steps(&f.steps, supply.nominal_voltage_v)?;
         let smallest = crate::bank::smallest_switched_kvar(&steps);
-        let ctl = controller::controller(&f.controller, supply.nominal_voltage_v, smallest)?;
+        let mut ctl = controller::controller(&f.controller, supply.nominal_voltage_v, smallest)?;
+        ctl.params.detection = maintenance::detection(&f.controller.detection)?;
+        let maintenance =
+            maintenance::maintenance(&f.maintenance, &f.steps, &steps::table_label)?;
         let load = load::load(&f.load, path)?;
         let harm = harmonics::harmonics(&f.harmonics)?;
         let run = run::run(&f.run)?;
@@ -203,6 +211,7 @@ impl Scenario {
             capacitor_discharge_s: ctl.capacitor_discharge_s,
             dead_band_key: ctl.dead_band_key,
             tariff,
+            maintenance,
             content_sha256: String::new(),
         })
     }
