@@ -47,6 +47,7 @@ impl ReportWriter for Summary {
         resonance(ctx, &mut t);
         wear(ctx, &mut t);
         voltage(ctx, &mut t);
+        super::wear::section(&mut t, ctx.scenario(), ctx.wear_plan);
         out.write_all(t.as_bytes())?;
         out.flush()?;
         Ok(())

@@ -337,6 +337,10 @@ pub struct WearPlan {
     pub steps: Vec<StepPlan>,
     /// Every ordering on the same profile (empty without alternatives).
     pub orderings: Vec<OrderingPlan>,
+    /// Another ordering that puts the first contactor replacement later without a lower
+    /// billed PF (below the goal, or below the scenario's own where that misses it); the
+    /// latest such, ties to the fewer operations of the most worn step. `None`: none does.
+    pub better_ordering: Option<&'static str>,
     /// Closing inrush.
     pub inrush: InrushPlan,
     /// Ageing projection (null without alternatives).
@@ -554,6 +558,7 @@ pub fn plan_from(
         }
     }
 
+    let better_ordering = better_ordering(&orderings, super::findings::billed_goal(sc.controller.target));
     let inrush = inrush_plan(sc, log);
 
     let ageing = opts.alternatives.then(|| {
@@ -626,6 +631,7 @@ pub fn plan_from(
         seeds,
         steps,
         orderings,
+        better_ordering,
         inrush,
         ageing,
         faults,
@@ -725,6 +731,22 @@ fn ordering_plan(
         first_rated_life_step: first.map(|(_, i)| i + 1),
         first_rated_life_date: first.map(|(d, _)| d.to_string()),
     }
+}
+
+fn better_ordering(list: &[OrderingPlan], goal: f64) -> Option<&'static str> {
+    let cur = list.iter().find(|o| o.current)?;
+    // A later date is better; no date at all (not within 100 years) is best.
+    let key = |o: &OrderingPlan| (o.first_rated_life_date.is_none(), o.first_rated_life_date.clone());
+    let floor = goal.min(cur.billed_pf) - 1e-3;
+    list.iter()
+        .filter(|o| !o.current && o.billed_pf >= floor && key(o) > key(cur))
+        .max_by(|a, b| {
+            key(a).cmp(&key(b)).then(
+                b.most_worn_operations_per_year
+                    .total_cmp(&a.most_worn_operations_per_year),
+            )
+        })
+        .map(|o| o.ordering)
 }
 
 fn inrush_plan(sc: &Scenario, log: &WearLog) -> InrushPlan {
