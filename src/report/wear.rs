@@ -373,6 +373,13 @@ fn ageing(t: &mut String, p: &WearPlan) {
         &rows,
     );
     match a.first_year_below_target {
+        Some(0) => para(
+            t,
+            &format!(
+                "The billed PF is below the goal of {} lag already on the study date, before                  any further ageing: ageing is not the cause (see the findings).",
+                num(a.goal, 2)
+            ),
+        ),
         Some(n) => {
             let y = &a.years.iter().find(|y| y.year == n).map(|y| y.date.clone());
             para(
@@ -458,6 +465,21 @@ fn faults(t: &mut String, p: &WearPlan) {
                 f.detection_operations,
                 if f.detection_operations == 1 { "" } else { "s" },
                 if f.detection_configured { ")" } else { "," },
+            ),
+        );
+    }
+    if !f.false_alarms.is_empty() {
+        let list: Vec<String> = f
+            .false_alarms
+            .iter()
+            .map(|(n, at)| format!("step {n} at {at}"))
+            .collect();
+        para(
+            t,
+            &format!(
+                "The detection also alarmed on {} without a fault (the load changed in the                  interval of an operation) and took {} out of service: on this load,                  more mismatched operations in a row or a wider tolerance would be needed.",
+                list.join(", "),
+                if f.false_alarms.len() == 1 { "that step" } else { "those steps" }
             ),
         );
     }

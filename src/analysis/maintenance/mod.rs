@@ -305,6 +305,10 @@ pub struct FaultPlan {
     pub other_operations_without: u64,
     /// The faults.
     pub faults: Vec<FaultInfo>,
+    /// Alarms of the detection on a step with no fault at that time (a load change in
+    /// the interval of an operation): step number and date and time. Each took a healthy
+    /// step out of service for the rest of that run.
+    pub false_alarms: Vec<(usize, String)>,
 }
 
 /// One line of the replacement plan.
@@ -845,7 +849,11 @@ fn fault_plan(
         .enumerate()
         .filter_map(|(i, s)| s.fault.map(|f| (i, f)))
         .map(|(i, f)| {
-            let alarm = detect.alarms.iter().find(|a| a.0 == i + 1).map(|a| a.1);
+            let alarm = detect
+                .alarms
+                .iter()
+                .find(|a| a.0 == i + 1 && a.1 >= f.from_s)
+                .map(|a| a.1);
             let what_if = opts.what_if.is_some_and(|w| w.step == i + 1);
             FaultInfo {
                 step: i + 1,
@@ -860,7 +868,7 @@ fn fault_plan(
                     .format("%Y-%m-%d %H:%M")
                     .to_string(),
                 what_if,
-                detected_after_s: alarm.map(|a| (a - f.from_s).max(0.0)),
+                detected_after_s: alarm.map(|a| a - f.from_s),
                 detected_at: alarm.map(|a| {
                     cal.datetime(t0 + a).format("%Y-%m-%d %H:%M:%S").to_string()
                 }),
@@ -879,6 +887,23 @@ fn fault_plan(
         other_operations_with: other(with.0),
         other_operations_without: other(without),
         faults,
+        false_alarms: detect
+            .alarms
+            .iter()
+            .filter(|(n, t)| {
+                faulted
+                    .steps
+                    .get(n - 1)
+                    .and_then(|s| s.fault)
+                    .is_none_or(|f| *t < f.from_s)
+            })
+            .map(|&(n, t)| {
+                (
+                    n,
+                    cal.datetime(t0 + t).format("%Y-%m-%d %H:%M:%S").to_string(),
+                )
+            })
+            .collect(),
     }
 }
 
@@ -1001,7 +1026,10 @@ fn replacements(
         }
     }
     if let Some(a) = ageing {
-        if let Some(y) = a.years.iter().find(|y| y.below_target) {
+        // Only a fall below the goal that ageing brings: a bank already short of it in
+        // year 0 needs another remedy, which the findings name.
+        let first_ok = a.years.first().is_some_and(|y| !y.below_target);
+        if let Some(y) = a.years.iter().find(|y| y.below_target && first_ok) {
             out.push(Replacement {
                 step: None,
                 part: "capacitors (the bank)",
