@@ -250,6 +250,10 @@ pub struct AgeingPlan {
     pub tolerance_pct: f64,
     /// The billed PF the target asks for.
     pub goal: f64,
+    /// Billed PF of the scenario's own run, every step at its nominal capacitance.
+    pub nominal_billed_pf: f64,
+    /// That run misses the goal (so ageing is not what makes the bank miss it).
+    pub nominal_below_target: bool,
     /// Year by year.
     pub years: Vec<AgeYear>,
     /// First year below the goal.
@@ -588,6 +592,8 @@ pub fn plan_from(
             loss_pct_per_year: m.loss_per_year * 100.0,
             tolerance_pct: m.tolerance * 100.0,
             goal,
+            nominal_billed_pf: result.metrics.pf.energy_pf,
+            nominal_below_target: result.metrics.pf.energy_pf < goal,
             first_year_below_target: years.iter().find(|y| y.below_target).map(|y| y.year),
             years,
         }
@@ -1026,10 +1032,13 @@ fn replacements(
         }
     }
     if let Some(a) = ageing {
-        // Only a fall below the goal that ageing brings: a bank already short of it in
-        // year 0 needs another remedy, which the findings name.
-        let first_ok = a.years.first().is_some_and(|y| !y.below_target);
-        if let Some(y) = a.years.iter().find(|y| y.below_target && first_ok) {
+        // Only a fall below the goal that ageing brings: a bank short of it even at nominal
+        // capacitance needs another remedy, which the findings name.
+        if let Some(y) = a
+            .years
+            .iter()
+            .find(|y| y.below_target && !a.nominal_below_target)
+        {
             out.push(Replacement {
                 step: None,
                 part: "capacitors (the bank)",
