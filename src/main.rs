@@ -303,7 +303,12 @@ struct WearArgs {
 
     /// The what-if fault: open (delivers nothing), capacitance-loss (with --fraction) or
     /// stuck-closed (the contactor no longer opens).
-    #[arg(long, value_name = "KIND", default_value = "open", requires = "fail_step")]
+    #[arg(
+        long,
+        value_name = "KIND",
+        default_value = "open",
+        requires = "fail_step"
+    )]
     fail_kind: String,
 
     /// Capacitance lost, for --fail-kind capacitance-loss (more than 0, less than 1).
@@ -1063,9 +1068,7 @@ fn what_if(args: &WearArgs, steps: usize) -> Result<Option<WhatIf>, anyhow::Erro
             Some(x) => anyhow::bail!("--fraction {x}: allowed more than 0 and less than 1"),
             None => anyhow::bail!("--fail-kind capacitance-loss needs --fraction (0 to 1)"),
         },
-        other => anyhow::bail!(
-            "--fail-kind {other}: write open, capacitance-loss or stuck-closed"
-        ),
+        other => anyhow::bail!("--fail-kind {other}: write open, capacitance-loss or stuck-closed"),
     };
     if args.fraction.is_some() && !matches!(kind, FaultKind::CapacitanceLoss(_)) {
         anyhow::bail!("--fraction is only for --fail-kind capacitance-loss");

@@ -99,7 +99,13 @@ fn detuned_step_inrush_is_limited_by_its_reactor() {
     let mut detuned = StepSpec::plain(50.0);
     detuned.detuning = Some(0.07);
     let steps = vec![StepSpec::plain(50.0), detuned];
-    let case = inrush::closing(&steps, 1, [0usize].into_iter(), &circuit(5.0, f64::INFINITY), None);
+    let case = inrush::closing(
+        &steps,
+        1,
+        [0usize].into_iter(),
+        &circuit(5.0, f64::INFINITY),
+        None,
+    );
     assert!(rel(case.peak_a, 272.0) < 5e-3, "{case:?}");
 }
 
@@ -136,20 +142,36 @@ fn rotating_spreads_wear_and_sequential_loads_the_first_step() {
     let plan: WearPlan = maintenance::plan(&st, &PlanOptions::default()).unwrap();
     let ops: Vec<u64> = plan.steps.iter().map(|s| s.operations_in_run).collect();
     assert_eq!(ops, vec![16, 8, 0, 0]);
-    let seq = plan.orderings.iter().find(|o| o.ordering == "sequential").unwrap();
+    let seq = plan
+        .orderings
+        .iter()
+        .find(|o| o.ordering == "sequential")
+        .unwrap();
     assert!(seq.current);
     assert_eq!(seq.most_worn_step, Some(1));
     assert_eq!(seq.max_over_min, None, "steps 3 and 4 never operate");
     // Step 1 carries 16 of the 24 operations.
-    assert!(rel(seq.most_worn_operations_per_year / seq.operations_per_year, 16.0 / 24.0) < 1e-12);
-    let rot = plan.orderings.iter().find(|o| o.ordering == "rotating").unwrap();
+    assert!(
+        rel(
+            seq.most_worn_operations_per_year / seq.operations_per_year,
+            16.0 / 24.0
+        ) < 1e-12
+    );
+    let rot = plan
+        .orderings
+        .iter()
+        .find(|o| o.ordering == "rotating")
+        .unwrap();
     assert!((rot.max_over_min.unwrap() - 1.0).abs() < 1e-12, "{rot:?}");
     assert!(rel(rot.operations_per_year, seq.operations_per_year) < 1e-12);
     // The same billed PF: the steps are equal, only which one switches changes.
     assert!((rot.billed_pf - seq.billed_pf).abs() < 1e-12);
     // Rotating puts the first contactor replacement later (step 1 wears at 16 against 6
     // operations in the run), at no cost in PF, so the plan names a better ordering.
-    assert!(rot.first_rated_life_date > seq.first_rated_life_date, "{rot:?} {seq:?}");
+    assert!(
+        rot.first_rated_life_date > seq.first_rated_life_date,
+        "{rot:?} {seq:?}"
+    );
     assert!(plan.better_ordering.is_some_and(|o| o != "sequential"));
 }
 
@@ -207,14 +229,17 @@ fn a_failed_step_is_detected_and_costs_what_removing_it_costs() {
     assert!(f.false_alarms.is_empty(), "{:?}", f.false_alarms);
 
     // The same bank without step 1.
-    let removed_text = FAILED_BANK
-        .replace("count = 4\n[steps.fault]\nkind = \"open\"\n", "count = 3\n");
+    let removed_text =
+        FAILED_BANK.replace("count = 4\n[steps.fault]\nkind = \"open\"\n", "count = 3\n");
     let removed = csv_study(dir.path(), &removed_text, &rows);
     let r = removed.run(&mut Quiet).unwrap();
     let pf_removed = r.metrics.pf.energy_pf;
     let loss_fault = f.billed_pf_without - f.billed_pf_with;
     let loss_removed = f.billed_pf_without - pf_removed;
-    assert!(loss_removed > 0.005, "removing a step must cost PF here: {loss_removed}");
+    assert!(
+        loss_removed > 0.005,
+        "removing a step must cost PF here: {loss_removed}"
+    );
     assert!(
         (loss_fault - loss_removed).abs() < 0.05 * loss_removed,
         "fault {loss_fault}, removed {loss_removed}"
@@ -244,7 +269,11 @@ as_of = "2026-01-05"
 capacitance_loss_pct_per_year = 2
 projection_years = 5
 "#;
-    let st = csv_study(dir.path(), toml, &[(0.0, 100.0, 150.0), (3600.0, 100.0, 150.0)]);
+    let st = csv_study(
+        dir.path(),
+        toml,
+        &[(0.0, 100.0, 150.0), (3600.0, 100.0, 150.0)],
+    );
     let plan = maintenance::plan(&st, &PlanOptions::default()).unwrap();
     let a = plan.ageing.as_ref().unwrap();
     assert_eq!(a.years.len(), 6);
@@ -321,7 +350,5 @@ seeds = 1
     assert_eq!(busy.operations_per_day.holiday, 0.0);
     assert!(rel(busy.operations_per_year, n / 5.0 * 256.0) < 1e-12);
     assert!(rel(busy.operations_per_year_flat, n / 7.0 * 365.0) < 1e-12);
-    assert!(
-        (busy.operations_per_year / busy.operations_per_year_flat - 0.98192).abs() < 1e-5
-    );
+    assert!((busy.operations_per_year / busy.operations_per_year_flat - 0.98192).abs() < 1e-5);
 }

@@ -51,13 +51,24 @@ fn wear_prints_a_dated_plan_and_a_what_if_fault() {
     let (_d, path) = site();
     Command::cargo_bin("bankstep")
         .unwrap()
-        .args(["wear", path.to_str().unwrap(), "--fail-step", "2", "--from-h", "1"])
+        .args([
+            "wear",
+            path.to_str().unwrap(),
+            "--fail-step",
+            "2",
+            "--from-h",
+            "1",
+        ])
         .assert()
         .success()
         .stdout(predicate::str::contains("Wear plan (as of 2026-03-02)"))
         .stdout(predicate::str::contains("Replacement plan"))
-        .stdout(predicate::str::contains("Step 2 fails open from 2026-03-02 01:00"))
-        .stdout(predicate::str::contains("Step ordering on the same profile"))
+        .stdout(predicate::str::contains(
+            "Step 2 fails open from 2026-03-02 01:00",
+        ))
+        .stdout(predicate::str::contains(
+            "Step ordering on the same profile",
+        ))
         .stdout(predicate::str::contains("Caution"));
     let out = Command::cargo_bin("bankstep")
         .unwrap()
@@ -84,7 +95,9 @@ fn wear_refuses_a_step_outside_the_bank() {
         .args(["wear", path.to_str().unwrap(), "--fail-step", "9"])
         .assert()
         .code(2)
-        .stderr(predicate::str::contains("--fail-step 9: the bank has steps 1 to 4"));
+        .stderr(predicate::str::contains(
+            "--fail-step 9: the bank has steps 1 to 4",
+        ));
     Command::cargo_bin("bankstep")
         .unwrap()
         .args([
@@ -131,7 +144,10 @@ fn maintenance_keys_are_checked() {
     let path = dir.path().join("bad.toml");
     std::fs::write(
         &path,
-        SITE.replace("projection_years = 2", "projection_years = 2\ncapacitance_loss_pct_per_year = 40"),
+        SITE.replace(
+            "projection_years = 2",
+            "projection_years = 2\ncapacitance_loss_pct_per_year = 40",
+        ),
     )
     .unwrap();
     Command::cargo_bin("bankstep")
@@ -144,7 +160,10 @@ fn maintenance_keys_are_checked() {
         ));
     std::fs::write(
         &path,
-        SITE.replace("operations_so_far = [15000, 9000, 3000, 0]", "operations_so_far = [1, 2]"),
+        SITE.replace(
+            "operations_so_far = [15000, 9000, 3000, 0]",
+            "operations_so_far = [1, 2]",
+        ),
     )
     .unwrap();
     Command::cargo_bin("bankstep")

@@ -3,7 +3,7 @@
 //!
 //! It renders a [`WearPlan`] as the analysis made it; nothing is judged here.
 
-use crate::analysis::maintenance::{WearPlan, PlanOptions};
+use crate::analysis::maintenance::{PlanOptions, WearPlan};
 use crate::report::{
     approx, count, duration, num, pct, table, wrap_plain, Provenance, ReportError, Tool,
     HARDWARE_CAUTION, TOOL,
@@ -189,11 +189,7 @@ fn orderings(t: &mut String, p: &WearPlan) {
         .iter()
         .map(|o| {
             vec![
-                format!(
-                    "{}{}",
-                    o.ordering,
-                    if o.current { " (set)" } else { "" }
-                ),
+                format!("{}{}", o.ordering, if o.current { " (set)" } else { "" }),
                 format!("{} {}", num(o.billed_pf, 3), o.billed_pf_quadrant.word()),
                 approx(o.operations_per_year),
                 match o.most_worn_step {
@@ -263,7 +259,8 @@ fn inrush(t: &mut String, p: &WearPlan) {
         &format!(
             "Worst closing of each step in the run: back-to-back onto the steps already on \
              through {} µH between steps (IEEE Std C37.012 form), or from the supply's \
-             short-circuit power when none is on; a detuned step's own reactor is in the \
+             short-circuit power when none is on (that inductance again with an infinite \
+             supply); a detuned step's own reactor is in the \
              loop. Limits: 100 x rated current for the capacitors (IEC 60831-1), the \
              contactor's stated peak where given.",
             num(i.inductance_uh, 1)
@@ -361,7 +358,12 @@ fn ageing(t: &mut String, p: &WearPlan) {
                 y.date.clone(),
                 format!("{} kvar", num(y.bank_kvar, 1)),
                 format!("{} {}", num(y.billed_pf, 3), y.billed_pf_quadrant.word()),
-                if y.below_target { "below goal" } else { "meets goal" }.to_string(),
+                if y.below_target {
+                    "below goal"
+                } else {
+                    "meets goal"
+                }
+                .to_string(),
             ]
         })
         .collect();
@@ -373,11 +375,22 @@ fn ageing(t: &mut String, p: &WearPlan) {
         &rows,
     );
     match a.first_year_below_target {
+        Some(_) if a.nominal_below_target => para(
+            t,
+            &format!(
+                "The bank misses the goal of {} lag even at nominal capacitance (billed PF \
+                 {} lag): ageing is not the cause (see the findings).",
+                num(a.goal, 2),
+                num(a.nominal_billed_pf, 3)
+            ),
+        ),
         Some(0) => para(
             t,
             &format!(
-                "The billed PF is below the goal of {} lag already on the study date, before                  any further ageing: ageing is not the cause (see the findings).",
-                num(a.goal, 2)
+                "Already on the study date the capacitance lost since installation brings \
+                 the billed PF below the goal of {} lag (at nominal capacitance it is {} lag).",
+                num(a.goal, 2),
+                num(a.nominal_billed_pf, 3)
             ),
         ),
         Some(n) => {
@@ -438,21 +451,29 @@ fn faults(t: &mut String, p: &WearPlan) {
         let what = match x.kind {
             "open" => "fails open".to_string(),
             "stuck-closed" => "sticks closed".to_string(),
-            _ => format!("loses {} of its capacitance", pct(x.fraction.unwrap_or(0.0))),
+            _ => format!(
+                "loses {} of its capacitance",
+                pct(x.fraction.unwrap_or(0.0))
+            ),
         };
-        let detected = match (&x.detected_after_s, &x.detected_at) {
-            (Some(s), Some(at)) => format!(
+        let detected =
+            match (&x.detected_after_s, &x.detected_at) {
+                (Some(s), Some(at)) => format!(
                 "would alarm {} after the fault starts ({at}), after {} operation{} of the step",
                 duration(*s),
                 count(x.operations_until_detection),
                 if x.operations_until_detection == 1 { "" } else { "s" }
             ),
-            _ => format!(
-                "does not alarm in the run ({} operation{} of the step after the fault)",
-                count(x.operations_until_detection),
-                if x.operations_until_detection == 1 { "" } else { "s" }
-            ),
-        };
+                _ => format!(
+                    "does not alarm in the run ({} operation{} of the step after the fault)",
+                    count(x.operations_until_detection),
+                    if x.operations_until_detection == 1 {
+                        ""
+                    } else {
+                        "s"
+                    }
+                ),
+            };
         para(
             t,
             &format!(
@@ -477,9 +498,15 @@ fn faults(t: &mut String, p: &WearPlan) {
         para(
             t,
             &format!(
-                "The detection also alarmed on {} without a fault (the load changed in the                  interval of an operation) and took {} out of service: on this load,                  more mismatched operations in a row or a wider tolerance would be needed.",
+                "The detection also alarmed on {} without a fault (the load changed in the \
+                 interval of an operation) and took {} out of service: on this load, \
+                 more mismatched operations in a row or a wider tolerance would be needed.",
                 list.join(", "),
-                if f.false_alarms.len() == 1 { "that step" } else { "those steps" }
+                if f.false_alarms.len() == 1 {
+                    "that step"
+                } else {
+                    "those steps"
+                }
             ),
         );
     }

@@ -166,14 +166,12 @@ fn holiday(key: &str, text: &str) -> Result<Holiday, FieldError> {
             day: d.day(),
         });
     }
-    parse_date(key, t)
-        .map(Holiday::Date)
-        .map_err(|_| {
-            FieldError::new(
-                key,
-                format!("\"{text}\" is not a holiday; write YYYY-MM-DD or MM-DD (every year)"),
-            )
-        })
+    parse_date(key, t).map(Holiday::Date).map_err(|_| {
+        FieldError::new(
+            key,
+            format!("\"{text}\" is not a holiday; write YYYY-MM-DD or MM-DD (every year)"),
+        )
+    })
 }
 
 /// Validates `[maintenance]` and the per-step keys of `tables`, which make `n_steps`

@@ -22,13 +22,13 @@ mod supply;
 pub mod tariff;
 
 pub use controller::{DEAD_BAND_FRACTION_KEY, DEAD_BAND_KVAR_KEY};
+pub use maintenance::Maintenance;
 pub use overrides::Override;
 pub use schema::{
     ControllerSection, FaultSection, HarmonicsSection, LoadSection, ProtectionSection,
     ReportSection, RunSection, ScenarioFile, StepSection, StudySection, SupplySection,
     TargetPfValue, TransformerSection,
 };
-pub use maintenance::Maintenance;
 pub use tariff::{Tariff, TariffSection};
 
 use crate::bank::StepSpec;
@@ -176,8 +176,7 @@ impl Scenario {
         let smallest = crate::bank::smallest_switched_kvar(&steps);
         let mut ctl = controller::controller(&f.controller, supply.nominal_voltage_v, smallest)?;
         ctl.params.detection = maintenance::detection(&f.controller.detection)?;
-        let maintenance =
-            maintenance::maintenance(&f.maintenance, &f.steps, &steps::table_label)?;
+        let maintenance = maintenance::maintenance(&f.maintenance, &f.steps, &steps::table_label)?;
         let load = load::load(&f.load, path)?;
         let harm = harmonics::harmonics(&f.harmonics)?;
         let run = run::run(&f.run)?;

@@ -224,7 +224,10 @@ mod tests {
     #[test]
     fn a_year_of_day_types_counted_by_hand() {
         let from = NaiveDate::from_ymd_opt(2026, 1, 5).unwrap();
-        assert_eq!(days_of_each_type(from, 365, &maint(vec![])), [261, 52, 52, 0]);
+        assert_eq!(
+            days_of_each_type(from, 365, &maint(vec![])),
+            [261, 52, 52, 0]
+        );
         let m = maint(vec![
             Holiday::Yearly { month: 12, day: 25 },
             Holiday::Yearly { month: 1, day: 1 },
@@ -238,10 +241,18 @@ mod tests {
     #[test]
     fn missing_types_borrow_by_the_shift_pattern() {
         let work = [true, true, true, true, true, false, false];
-        let (r, from) = rates([30.0, 0.0, 0.0, 0.0], [3.0, 0.0, 0.0, 0.0], Borrowing::Shifts(work));
+        let (r, from) = rates(
+            [30.0, 0.0, 0.0, 0.0],
+            [3.0, 0.0, 0.0, 0.0],
+            Borrowing::Shifts(work),
+        );
         assert_eq!(r, [10.0, 10.0, 10.0, 10.0]);
         assert_eq!(from, [None; 4]);
-        let (r, from) = rates([50.0, 0.0, 2.0, 0.0], [5.0, 0.0, 1.0, 0.0], Borrowing::Shifts(work));
+        let (r, from) = rates(
+            [50.0, 0.0, 2.0, 0.0],
+            [5.0, 0.0, 1.0, 0.0],
+            Borrowing::Shifts(work),
+        );
         assert_eq!(r, [10.0, 2.0, 2.0, 2.0]);
         assert_eq!(from[1], Some(DayType::Sunday));
         assert_eq!(from[3], Some(DayType::Sunday));
@@ -254,7 +265,10 @@ mod tests {
         let from = NaiveDate::from_ymd_opt(2026, 1, 9).unwrap();
         let d = date_reached(from, 25.0, [10.0, 0.0, 0.0, 0.0], &maint(vec![]), 1000);
         assert_eq!(d, NaiveDate::from_ymd_opt(2026, 1, 13));
-        assert_eq!(date_reached(from, 0.0, [0.0; 4], &maint(vec![]), 10), Some(from));
+        assert_eq!(
+            date_reached(from, 0.0, [0.0; 4], &maint(vec![]), 10),
+            Some(from)
+        );
         assert_eq!(date_reached(from, 1.0, [0.0; 4], &maint(vec![]), 10), None);
     }
 }

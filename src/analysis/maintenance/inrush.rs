@@ -127,10 +127,7 @@ fn per_phase(s: &StepSpec, ph: usize, c: &Circuit) -> (f64, Option<f64>) {
         StepPhase::Single(_) => 0.0,
     };
     let w = 2.0 * PI * c.f_hz;
-    let reactor = s
-        .detuning
-        .filter(|_| cap > 0.0)
-        .map(|p| p / (w * w * cap));
+    let reactor = s.detuning.filter(|_| cap > 0.0).map(|p| p / (w * w * cap));
     (cap, reactor)
 }
 

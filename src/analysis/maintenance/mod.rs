@@ -379,9 +379,7 @@ pub fn plan_from(
         .as_of
         .unwrap_or_else(|| study.plan.calendar.datetime(study.plan.t_first_s).date());
     let how = match &sc.load {
-        LoadSpec::Synthetic(cfg) => {
-            Borrowing::Shifts(cfg.shifts.days.parse().unwrap_or([true; 7]))
-        }
+        LoadSpec::Synthetic(cfg) => Borrowing::Shifts(cfg.shifts.days.parse().unwrap_or([true; 7])),
         LoadSpec::Csv { .. } => Borrowing::Profile,
     };
     let holidays_in_run = study.csv().is_some();
@@ -437,7 +435,11 @@ pub fn plan_from(
             Ok((job, r, obs.into_log()))
         })
         .collect::<Result<_, RunError>>()?;
-    let find = |j: Job| runs.iter().find(|(k, _, _)| *k == j).map(|(_, r, l)| (r, l));
+    let find = |j: Job| {
+        runs.iter()
+            .find(|(k, _, _)| *k == j)
+            .map(|(_, r, l)| (r, l))
+    };
 
     let day_rates = |log: &WearLog| -> Vec<[f64; 4]> {
         log.ops
@@ -523,8 +525,7 @@ pub fn plan_from(
                     0.0
                 },
                 rated_life_date: base_dates[i].map(|d| d.to_string()),
-                years_to_rated_life: base_dates[i]
-                    .map(|d| (d - as_of).num_days() as f64 / 365.0),
+                years_to_rated_life: base_dates[i].map(|d| (d - as_of).num_days() as f64 / 365.0),
                 rated_life_range: if s.fixed {
                     None
                 } else {
@@ -566,7 +567,10 @@ pub fn plan_from(
         }
     }
 
-    let better_ordering = better_ordering(&orderings, super::findings::billed_goal(sc.controller.target));
+    let better_ordering = better_ordering(
+        &orderings,
+        super::findings::billed_goal(sc.controller.target),
+    );
     let inrush = inrush_plan(sc, log);
 
     let ageing = opts.alternatives.then(|| {
@@ -612,9 +616,7 @@ pub fn plan_from(
             find(Job::Detect).map(|d| d.1)
         };
         match (with, without, detect) {
-            (Some(w), Some(wo), Some(dl)) => Some(fault_plan(
-                study, &faulted, opts, w, wo.0, dl,
-            )),
+            (Some(w), Some(wo), Some(dl)) => Some(fault_plan(study, &faulted, opts, w, wo.0, dl)),
             _ => None,
         }
     } else {
@@ -719,12 +721,17 @@ fn ordering_plan(
     per_year: impl Fn(&[f64; 4]) -> f64,
 ) -> OrderingPlan {
     let yearly: Vec<f64> = rates.iter().map(&per_year).collect();
-    let switched: Vec<usize> = (0..sc.steps.len()).filter(|&i| !sc.steps[i].fixed).collect();
+    let switched: Vec<usize> = (0..sc.steps.len())
+        .filter(|&i| !sc.steps[i].fixed)
+        .collect();
     let most = switched
         .iter()
         .copied()
         .reduce(|a, b| if yearly[b] > yearly[a] { b } else { a });
-    let min = switched.iter().map(|&i| yearly[i]).fold(f64::INFINITY, f64::min);
+    let min = switched
+        .iter()
+        .map(|&i| yearly[i])
+        .fold(f64::INFINITY, f64::min);
     let max = switched.iter().map(|&i| yearly[i]).fold(0.0, f64::max);
     let first = (0..dates.len())
         .filter_map(|i| dates[i].map(|d| (d, i)))
@@ -746,7 +753,12 @@ fn ordering_plan(
 fn better_ordering(list: &[OrderingPlan], goal: f64) -> Option<&'static str> {
     let cur = list.iter().find(|o| o.current)?;
     // A later date is better; no date at all (not within 100 years) is best.
-    let key = |o: &OrderingPlan| (o.first_rated_life_date.is_none(), o.first_rated_life_date.clone());
+    let key = |o: &OrderingPlan| {
+        (
+            o.first_rated_life_date.is_none(),
+            o.first_rated_life_date.clone(),
+        )
+    };
     let floor = goal.min(cur.billed_pf) - 1e-3;
     list.iter()
         .filter(|o| !o.current && o.billed_pf >= floor && key(o) > key(cur))
@@ -771,17 +783,10 @@ fn inrush_plan(sc: &Scenario, log: &WearLog) -> InrushPlan {
     for (&(i, bits), &n) in &log.closings {
         let on = crate::bank::BankState::from_bits(bits);
         let rec = m.steps[i];
-        let case = inrush::closing(
-            &sc.steps,
-            i,
-            on.iter().map(|s| s - 1),
-            &c,
-            rec.damping_ohm,
-        );
+        let case = inrush::closing(&sc.steps, i, on.iter().map(|s| s - 1), &c, rec.damping_ohm);
         let rated = inrush::rated_current_a(&sc.steps[i], c.u_n_v);
         let cap_limit = inrush::CAPACITOR_PEAK_MULTIPLE * rated;
-        let over = case.peak_a > cap_limit
-            || rec.contactor_peak_a.is_some_and(|p| case.peak_a > p);
+        let over = case.peak_a > cap_limit || rec.contactor_peak_a.is_some_and(|p| case.peak_a > p);
         let entry = match out.iter_mut().find(|e| e.step == i + 1) {
             Some(e) => e,
             None => {
@@ -875,9 +880,8 @@ fn fault_plan(
                     .to_string(),
                 what_if,
                 detected_after_s: alarm.map(|a| a - f.from_s),
-                detected_at: alarm.map(|a| {
-                    cal.datetime(t0 + a).format("%Y-%m-%d %H:%M:%S").to_string()
-                }),
+                detected_at: alarm
+                    .map(|a| cal.datetime(t0 + a).format("%Y-%m-%d %H:%M:%S").to_string()),
                 operations_until_detection: detect.ops_after_fault[i],
             }
         })

@@ -110,8 +110,7 @@ impl Observer for WearObserver {
         }
         for n in ops {
             self.log.ops[n - 1][ty.index()] += 1;
-            if self.fault_from_s[n - 1].is_some_and(|f| run_s > f) && !self.alarmed.contains(n)
-            {
+            if self.fault_from_s[n - 1].is_some_and(|f| run_s > f) && !self.alarmed.contains(n) {
                 self.log.ops_after_fault[n - 1] += 1;
             }
         }
