@@ -1012,43 +1012,6 @@ fn merge(args: &MergeArgs) -> Result<(), Failure> {
     )
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-    use clap::CommandFactory;
-
-    #[test]
-    fn command_line_is_consistent() {
-        Cli::command().debug_assert();
-    }
-
-    // The ranges the help of --max-order and --resolution states are the ones checked, and
-    // the message names them.
-    #[test]
-    fn scan_grid_ranges_match_the_help() {
-        assert!(scan_grid(50.0, 0.0001).is_ok());
-        assert!(scan_grid(50.0, 1.0).is_ok());
-        assert!(scan_grid(200.0, 0.01).is_ok());
-        for (max_order, resolution) in [(50.0, 1.5), (50.0, 0.00005), (50.0, 0.0), (2.0, 0.6)] {
-            let e = scan_grid(max_order, resolution).unwrap_err().to_string();
-            assert!(
-                e.contains("allowed 0.0001 to 1 orders, and at most half of (--max-order − 1)"),
-                "{e}"
-            );
-        }
-        assert!(scan_grid(2.0, 0.5).is_ok());
-        let e = scan_grid(1.0, 0.01).unwrap_err().to_string();
-        assert!(e.contains("more than 1 and at most 200"), "{e}");
-        assert!(scan_grid(201.0, 0.01).is_err());
-    }
-
-    #[test]
-    fn stdout_marker() {
-        assert!(is_stdout(Path::new("-")));
-        assert!(!is_stdout(Path::new("out.json")));
-    }
-}
-
 /// The fault `--fail-kind`, `--fraction` and `--from-h` describe.
 fn what_if(args: &WearArgs, steps: usize) -> Result<Option<WhatIf>, anyhow::Error> {
     let Some(step) = args.fail_step else {
@@ -1097,11 +1060,10 @@ fn wear(args: &WearArgs) -> Result<(), Failure> {
     };
     let plan = maintenance::plan(&study, &opts).map_err(|e| Failure::simulation(e, &file))?;
     let sc = &study.scenario;
-    match &args.json {
-        Some(path) => write_output(path, "wear plan", args.quiet, |out| {
+    if let Some(path) = &args.json {
+        write_output(path, "wear plan", args.quiet, |out| {
             wear_report::write_json(out, sc, study.profile.sha256(), &plan)
-        })?,
-        None => {}
+        })?;
     }
     if !args.json.as_deref().is_some_and(is_stdout) {
         let stdout = std::io::stdout();
@@ -1110,4 +1072,41 @@ fn wear(args: &WearArgs) -> Result<(), Failure> {
             .map_err(|e| Failure::report(e, || "cannot write the wear plan".to_string()))?;
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::CommandFactory;
+
+    #[test]
+    fn command_line_is_consistent() {
+        Cli::command().debug_assert();
+    }
+
+    // The ranges the help of --max-order and --resolution states are the ones checked, and
+    // the message names them.
+    #[test]
+    fn scan_grid_ranges_match_the_help() {
+        assert!(scan_grid(50.0, 0.0001).is_ok());
+        assert!(scan_grid(50.0, 1.0).is_ok());
+        assert!(scan_grid(200.0, 0.01).is_ok());
+        for (max_order, resolution) in [(50.0, 1.5), (50.0, 0.00005), (50.0, 0.0), (2.0, 0.6)] {
+            let e = scan_grid(max_order, resolution).unwrap_err().to_string();
+            assert!(
+                e.contains("allowed 0.0001 to 1 orders, and at most half of (--max-order − 1)"),
+                "{e}"
+            );
+        }
+        assert!(scan_grid(2.0, 0.5).is_ok());
+        let e = scan_grid(1.0, 0.01).unwrap_err().to_string();
+        assert!(e.contains("more than 1 and at most 200"), "{e}");
+        assert!(scan_grid(201.0, 0.01).is_err());
+    }
+
+    #[test]
+    fn stdout_marker() {
+        assert!(is_stdout(Path::new("-")));
+        assert!(!is_stdout(Path::new("out.json")));
+    }
 }
