@@ -66,7 +66,8 @@ const TOP_AFTER_HELP: &str = concat!(
 
 Run `bankstep simulate --help` for the options and the time-series columns,
 `bankstep resonance --help` for the impedance scan and the detuning comparison, and
-`bankstep sweep --help` for trying many settings on one load profile.
+`bankstep sweep --help` for trying many settings on one load profile, and
+`bankstep wear --help` for the wear plan (dates, orderings, inrush, ageing, faults).
 
 ",
     caution!(),
