@@ -218,6 +218,10 @@ pub enum FaultKind {
     /// The step has lost this fraction of its capacitance (0 < f < 1): ageing, a failed
     /// element.
     CapacitanceLoss(f64),
+    /// The contactor's contacts have welded: from the fault time the step stays connected
+    /// whatever the controller commands (a step that was open then is taken as closed
+    /// from that time).
+    StuckClosed,
 }
 
 /// A fault that starts at a given time.
@@ -310,6 +314,7 @@ impl StepSpec {
             Some(f) if elapsed_s >= f.from_s => match f.kind {
                 FaultKind::Open => 0.0,
                 FaultKind::CapacitanceLoss(x) => 1.0 - x,
+                FaultKind::StuckClosed => 1.0,
             },
             _ => 1.0,
         }
@@ -330,6 +335,8 @@ pub struct Bank {
     /// Times (elapsed seconds) at which some step's health changes, ascending.
     fault_times: Vec<f64>,
     next_fault: usize,
+    /// Steps whose contactor has stuck closed: connected whatever the controller commands.
+    stuck: BankState,
 }
 
 impl Bank {
@@ -352,6 +359,7 @@ impl Bank {
             switched_mask,
             fault_times,
             next_fault: 0,
+            stuck: BankState::EMPTY,
         };
         bank.refresh_health(0.0);
         bank
@@ -391,6 +399,10 @@ impl Bank {
         for (h, s) in self.health.iter_mut().zip(&self.steps) {
             *h = s.health(elapsed_s);
         }
+        self.stuck = BankState::select(&self.steps, |s| {
+            s.fault
+                .is_some_and(|f| f.kind == FaultKind::StuckClosed && elapsed_s >= f.from_s)
+        });
         while self.next_fault < self.fault_times.len()
             && self.fault_times[self.next_fault] <= elapsed_s
         {
@@ -399,10 +411,10 @@ impl Bank {
     }
 
     /// Actual per-phase susceptance of the connected steps in `state`, siemens, with
-    /// faults.
+    /// faults (a step stuck closed is connected whatever `state` says).
     pub fn susceptance(&self, state: BankState) -> [f64; 3] {
         let mut b = [0.0; 3];
-        for n in state {
+        for n in state.or(self.stuck) {
             let i = n - 1;
             for (bp, nb) in b.iter_mut().zip(self.nominal_b[i]) {
                 *bp += nb * self.health[i];

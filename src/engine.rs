@@ -112,6 +112,45 @@ impl Observer for Quiet {
     }
 }
 
+/// A borrowed observer observes as its owner does.
+impl<O: Observer + ?Sized> Observer for &mut O {
+    fn wants_every_interval(&self) -> bool {
+        (**self).wants_every_interval()
+    }
+    fn interval(&mut self, r: &IntervalRecord<'_>) -> Result<(), RunError> {
+        (**self).interval(r)
+    }
+    fn block(&mut self, r: &IntervalRecord<'_>, n: u64) -> Result<(), RunError> {
+        (**self).block(r, n)
+    }
+    fn progress(&mut self, done: u64, total: u64) {
+        (**self).progress(done, total)
+    }
+}
+
+/// Two observers as one: each sees everything, in order; the engine adds blocks only
+/// when neither needs every interval.
+#[derive(Debug)]
+pub struct Both<A, B>(pub A, pub B);
+
+impl<A: Observer, B: Observer> Observer for Both<A, B> {
+    fn wants_every_interval(&self) -> bool {
+        self.0.wants_every_interval() || self.1.wants_every_interval()
+    }
+    fn interval(&mut self, r: &IntervalRecord<'_>) -> Result<(), RunError> {
+        self.0.interval(r)?;
+        self.1.interval(r)
+    }
+    fn block(&mut self, r: &IntervalRecord<'_>, n: u64) -> Result<(), RunError> {
+        self.0.block(r, n)?;
+        self.1.block(r, n)
+    }
+    fn progress(&mut self, done: u64, total: u64) {
+        self.0.progress(done, total);
+        self.1.progress(done, total);
+    }
+}
+
 /// The result of one run.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct RunResult {

@@ -12,8 +12,9 @@
 //!   own usage errors also exit with 2.
 
 use anyhow::Context;
-use bankstep::bank::BankState;
-use bankstep::engine::{IntervalRecord, Observer};
+use bankstep::analysis::maintenance::{self, PlanOptions, WearObserver, WhatIf};
+use bankstep::bank::{BankState, Fault, FaultKind};
+use bankstep::engine::{Both, IntervalRecord, Observer};
 use bankstep::error::RunError;
 use bankstep::harmonics::scan::ScanGrid;
 use bankstep::harmonics::survey::{self, Selection, Survey};
@@ -21,6 +22,7 @@ use bankstep::report::design as design_report;
 use bankstep::report::html;
 use bankstep::report::resonance::{self as resonance_report, ResonanceContext};
 use bankstep::report::sweep as sweep_report;
+use bankstep::report::wear as wear_report;
 use bankstep::report::{
     JsonReport, ReportContext, ReportError, ReportWriter, Summary, TimeseriesWriter,
 };
@@ -67,8 +69,9 @@ const TOP_AFTER_HELP: &str = concat!(
 
 Run `bankstep simulate --help` for the options and the time-series columns,
 `bankstep resonance --help` for the impedance scan and the detuning comparison,
-`bankstep sweep --help` for trying many settings on one load profile, and
-`bankstep design --help` for the total kvar a site needs and the best layout of steps.
+`bankstep sweep --help` for trying many settings on one load profile,
+`bankstep design --help` for the total kvar a site needs and the best layout of steps, and
+`bankstep wear --help` for the wear plan (dates, orderings, inrush, ageing, faults).
 
 ",
     caution!(),
@@ -325,6 +328,73 @@ enum Command {
     /// resonance and overcorrection, and ranks them with a reason for each.
     #[command(after_help = DESIGN_AFTER_HELP)]
     Design(DesignArgs),
+    /// The wear plan: operations a year by the calendar, dates of rated contactor life,
+    /// other orderings, closing inrush, capacitor ageing, faults and replacements.
+    ///
+    /// Runs the scenario, then the other step orderings, a few more seeds (synthetic
+    /// load), one run per year of capacitor ageing, and, where a step has a fault (in the
+    /// scenario or given here with --fail-step), a run without it and one with the
+    /// controller's fault detection, all on the same load profile and in parallel.
+    #[command(after_help = WEAR_AFTER_HELP)]
+    Wear(WearArgs),
+}
+
+const WEAR_AFTER_HELP: &str = concat!(
+    "The scenario's [maintenance] section and the per-step keys operations_so_far,
+installed, contactor_peak_a and damping_ohm give the study date, holidays, the bank's
+history and the ageing and inrush settings (see the README's key reference).
+
+Examples:
+  bankstep wear site.toml
+  bankstep wear site.toml --fail-step 4 --from-h 100
+  bankstep wear site.toml --fail-step 2 --fail-kind capacitance-loss --fraction 0.3 --json plan.json
+
+",
+    caution!(),
+    exit_codes!()
+);
+
+/// Options of `bankstep wear`.
+#[derive(Debug, Args)]
+struct WearArgs {
+    /// Scenario file (TOML).
+    #[arg(value_name = "SCENARIO")]
+    scenario: PathBuf,
+
+    /// What if step N (from 1) failed: adds a fault to it on top of the scenario's own.
+    #[arg(long, value_name = "N")]
+    fail_step: Option<usize>,
+
+    /// The what-if fault: open (delivers nothing), capacitance-loss (with --fraction) or
+    /// stuck-closed (the contactor no longer opens).
+    #[arg(
+        long,
+        value_name = "KIND",
+        default_value = "open",
+        requires = "fail_step"
+    )]
+    fail_kind: String,
+
+    /// Capacitance lost, for --fail-kind capacitance-loss (more than 0, less than 1).
+    #[arg(long, value_name = "F", requires = "fail_step")]
+    fraction: Option<f64>,
+
+    /// When the what-if fault starts, hours after the start of the run.
+    #[arg(long, value_name = "H", requires = "fail_step", default_value_t = 0.0)]
+    from_h: f64,
+
+    /// Make the plan from the scenario's own run alone (no other orderings, seeds, ageing
+    /// years or fault comparison).
+    #[arg(long)]
+    quick: bool,
+
+    /// Write the plan as JSON to FILE (`-`: standard output, instead of the text).
+    #[arg(long, value_name = "FILE")]
+    json: Option<PathBuf>,
+
+    /// No notes on standard error.
+    #[arg(long, short)]
+    quiet: bool,
 }
 
 /// Options of `bankstep sweep`.
@@ -562,6 +632,11 @@ struct SimulateArgs {
     /// and PNG.
     #[arg(long, value_name = "DIR")]
     report: Option<PathBuf>,
+    /// Make the summary's wear plan in full: also run the other orderings, more seeds,
+    /// the ageing years and the fault comparisons on the same profile (as `bankstep
+    /// wear` does). Without it the plan comes from this run alone.
+    #[arg(long)]
+    full_wear_plan: bool,
 
     /// No progress bar and no notes on standard error (the summary and errors still
     /// appear).
@@ -633,6 +708,7 @@ fn main() -> ExitCode {
         Command::Sweep(args) => sweep(&args),
         Command::Merge(args) => merge(&args),
         Command::Design(args) => design(&args),
+        Command::Wear(args) => wear(&args),
     };
     match outcome {
         Ok(()) => ExitCode::SUCCESS,
@@ -748,12 +824,16 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
             })?,
         ),
     };
-    let mut observer = CliObserver {
-        series,
-        trace: args.report.as_ref().map(|_| Trace::new(&study)),
-        bar: progress_bar(sim.intervals, args.quiet),
-    };
-    let result = study.run(&mut observer);
+    let mut both = Both(
+        CliObserver {
+            series,
+            trace: args.report.as_ref().map(|_| Trace::new(&study)),
+            bar: progress_bar(sim.intervals, args.quiet),
+        },
+        WearObserver::new(&study),
+    );
+    let result = study.run(&mut both);
+    let Both(mut observer, wear_log) = both;
     if let Some(bar) = &observer.bar {
         bar.finish_and_clear();
     }
@@ -771,7 +851,13 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
     }
 
     let assessment = bankstep::analysis::assess(&study, &result);
-    let ctx = ReportContext::new(&study, &result, &assessment);
+    let opts = PlanOptions {
+        alternatives: args.full_wear_plan,
+        ..PlanOptions::default()
+    };
+    let plan = maintenance::plan_from(&study, &result, wear_log.log(), &opts)
+        .map_err(|e| Failure::simulation(e, &file))?;
+    let ctx = ReportContext::new(&study, &result, &assessment).with_wear_plan(&plan);
     if let (Some(mut trace), Some(dir)) = (observer.trace.take(), &args.report) {
         trace.finish();
         let files = html::write_report_dir(&ctx, &trace, dir).map_err(|e| {
@@ -1174,6 +1260,68 @@ fn design(args: &DesignArgs) -> Result<(), Failure> {
         write_output(Path::new("-"), "design report", true, |out| {
             design_report::write_text(&d, out)
         })?;
+    }
+    Ok(())
+}
+
+/// The fault `--fail-kind`, `--fraction` and `--from-h` describe.
+fn what_if(args: &WearArgs, steps: usize) -> Result<Option<WhatIf>, anyhow::Error> {
+    let Some(step) = args.fail_step else {
+        return Ok(None);
+    };
+    if step == 0 || step > steps {
+        anyhow::bail!("--fail-step {step}: the bank has steps 1 to {steps}");
+    }
+    if !(args.from_h.is_finite() && (0.0..=1e7).contains(&args.from_h)) {
+        anyhow::bail!("--from-h {}: allowed 0 to 10000000 h", args.from_h);
+    }
+    let kind = match args.fail_kind.as_str() {
+        "open" => FaultKind::Open,
+        "stuck-closed" => FaultKind::StuckClosed,
+        "capacitance-loss" => match args.fraction {
+            Some(x) if x > 0.0 && x < 1.0 => FaultKind::CapacitanceLoss(x),
+            Some(x) => anyhow::bail!("--fraction {x}: allowed more than 0 and less than 1"),
+            None => anyhow::bail!("--fail-kind capacitance-loss needs --fraction (0 to 1)"),
+        },
+        other => anyhow::bail!("--fail-kind {other}: write open, capacitance-loss or stuck-closed"),
+    };
+    if args.fraction.is_some() && !matches!(kind, FaultKind::CapacitanceLoss(_)) {
+        anyhow::bail!("--fraction is only for --fail-kind capacitance-loss");
+    }
+    Ok(Some(WhatIf {
+        step,
+        fault: Fault {
+            kind,
+            from_s: args.from_h * 3600.0,
+        },
+    }))
+}
+
+fn wear(args: &WearArgs) -> Result<(), Failure> {
+    let file = args.scenario.display().to_string();
+    let scenario = Scenario::from_file(&args.scenario)
+        .context("cannot load the scenario")
+        .map_err(Failure::input)?;
+    let what_if = what_if(args, scenario.steps.len()).map_err(Failure::input)?;
+    let study = Study::prepare(scenario)
+        .with_context(|| format!("cannot prepare the study of {file}"))
+        .map_err(Failure::input)?;
+    let opts = PlanOptions {
+        what_if,
+        alternatives: !args.quick,
+    };
+    let plan = maintenance::plan(&study, &opts).map_err(|e| Failure::simulation(e, &file))?;
+    let sc = &study.scenario;
+    if let Some(path) = &args.json {
+        write_output(path, "wear plan", args.quiet, |out| {
+            wear_report::write_json(out, sc, study.profile.sha256(), &plan)
+        })?;
+    }
+    if !args.json.as_deref().is_some_and(is_stdout) {
+        let stdout = std::io::stdout();
+        let mut out = stdout.lock();
+        wear_report::write_text(&mut out, sc, &plan, &opts)
+            .map_err(|e| Failure::report(e, || "cannot write the wear plan".to_string()))?;
     }
     Ok(())
 }

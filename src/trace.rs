@@ -547,32 +547,10 @@ impl Observer for Trace {
     }
 }
 
-/// Runs two observers side by side: both see every interval or block the engine reports.
-/// Intervals are stepped alone when either asks for it.
-pub struct Both<'a, A: Observer + ?Sized, B: Observer + ?Sized>(pub &'a mut A, pub &'a mut B);
-
-impl<A: Observer + ?Sized, B: Observer + ?Sized> Observer for Both<'_, A, B> {
-    fn wants_every_interval(&self) -> bool {
-        self.0.wants_every_interval() || self.1.wants_every_interval()
-    }
-    fn interval(&mut self, r: &IntervalRecord<'_>) -> Result<(), RunError> {
-        self.0.interval(r)?;
-        self.1.interval(r)
-    }
-    fn block(&mut self, r: &IntervalRecord<'_>, n: u64) -> Result<(), RunError> {
-        self.0.block(r, n)?;
-        self.1.block(r, n)
-    }
-    fn progress(&mut self, done: u64, total: u64) {
-        self.0.progress(done, total);
-        self.1.progress(done, total);
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::engine::Quiet;
+    use crate::engine::{Both, Quiet};
     use crate::scenario::Scenario;
     use crate::study::Stepping;
     use std::path::Path;

@@ -1006,6 +1006,7 @@ fn faults(ctx: &Context<'_>, out: &mut Vec<Finding>) {
         let what = match f.kind {
             FaultKind::Open => "fails open (delivers nothing)".to_string(),
             FaultKind::CapacitanceLoss(x) => format!("loses {} of its capacitance", pct(x)),
+            FaultKind::StuckClosed => "has a contactor stuck closed (always connected)".to_string(),
         };
         let when = if f.from_s > 0.0 {
             format!(" from {} into the run", duration(f.from_s))
@@ -1017,9 +1018,14 @@ fn faults(ctx: &Context<'_>, out: &mut Vec<Finding>) {
             "fault",
             0.0,
             format!(
-                "Step {} {what}{when} (fault injected in the scenario); the controller does not \
-                 know and keeps operating it, so the results above include its effect.",
-                i + 1
+                "Step {} {what}{when} (fault injected in the scenario); {}, so the results \
+                 above include its effect.",
+                i + 1,
+                if ctx.scenario().controller.detection.is_some() {
+                    "the controller's fault detection is on (the wear plan says when it alarms)"
+                } else {
+                    "the controller does not know and keeps operating it"
+                }
             ),
         ));
     }

@@ -8,6 +8,7 @@
 
 pub mod advice;
 pub mod findings;
+pub mod maintenance;
 pub mod resonance;
 
 pub use advice::Advice;

@@ -12,10 +12,12 @@
 //! file, a variant of [`OrderingKind`] and a line in [`OrderingKind::build`].
 
 mod best_fit;
+pub mod detect;
 mod rotating;
 mod sequential;
 
 pub use best_fit::BestFit;
+pub use detect::DetectionParams;
 pub use rotating::Rotating;
 pub use sequential::Sequential;
 
@@ -193,6 +195,8 @@ pub struct ControllerParams {
     pub export_mode: ExportMode,
     /// Protections. Default none enabled.
     pub protection: ProtectionParams,
+    /// The controller's own detection of a faulty step ([`detect`]). Default off.
+    pub detection: Option<DetectionParams>,
 }
 
 /// What the controller reads in one interval.
@@ -265,6 +269,9 @@ pub struct Decision {
     pub opened: BankState,
     /// A protection that opened steps, if any.
     pub trip: Option<Trip>,
+    /// A step the fault detection ([`detect`]) alarmed on and took out of service in
+    /// this interval (if its contactor was closed, it is in `opened` too).
+    pub alarm: BankState,
 }
 
 /// Moving average over a fixed number of intervals; allocates once.
@@ -473,6 +480,8 @@ pub struct Controller {
     disconnect_n: u64,
     /// A protection condition blocked closings in the latest interval.
     blocked_close: bool,
+    /// The fault detection, when enabled.
+    detect: Option<detect::Detector>,
 }
 
 impl Controller {
@@ -521,6 +530,9 @@ impl Controller {
             connect_n: intervals_for(params.connect_delay_s, dt_s),
             disconnect_n: intervals_for(params.disconnect_delay_s, dt_s),
             blocked_close: false,
+            detect: params
+                .detection
+                .map(|p| detect::Detector::new(p, bank.steps.len())),
         }
     }
 
@@ -578,6 +590,21 @@ impl Controller {
             wish,
             ..Decision::default()
         };
+        if let Some(det) = &mut self.detect {
+            if let detect::Verdict::Alarm { step, closed } = det.check(q_raw, &self.kvar) {
+                // Out of service: never operated again; opened now if believed closed.
+                let one = BankState::EMPTY.with(step);
+                self.switched = self.switched.without(step);
+                d.alarm = one;
+                if closed && self.mask.contains(step) {
+                    self.open_mask(one, t_next);
+                    self.count = 0;
+                    self.record_op(t_next);
+                    d.opened = one;
+                    return d;
+                }
+            }
+        }
 
         // Protections first: they may open several steps and block closings.
         let dt = self.dt;
@@ -684,6 +711,9 @@ impl Controller {
         }
         self.count = 0;
         self.record_op(t_next);
+        if let Some(det) = &mut self.detect {
+            det.expect(n, wish > 0, q_raw, &self.kvar);
+        }
         d
     }
 

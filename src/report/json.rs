@@ -119,6 +119,8 @@ struct Document<'a> {
     wear: WearJson<'a>,
     voltage: &'a VoltageMetrics,
     nonconverged_intervals: u64,
+    /// The wear plan, when one was made (null otherwise).
+    wear_plan: Option<&'a crate::analysis::maintenance::WearPlan>,
 }
 
 fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
@@ -193,6 +195,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
         wear: WearJson { per_step: &m.wear },
         voltage: &m.voltage,
         nonconverged_intervals: ctx.result.nonconverged_intervals,
+        wear_plan: ctx.wear_plan,
     }
 }
 

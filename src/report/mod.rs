@@ -29,6 +29,7 @@ pub mod resonance;
 pub mod summary;
 pub mod sweep;
 pub mod timeseries;
+pub mod wear;
 
 pub use crate::analysis::{Finding, Severity};
 pub(crate) use crate::text::{
@@ -54,6 +55,8 @@ pub struct ReportContext<'a> {
     pub result: &'a RunResult,
     /// What the analysis concluded.
     pub assessment: &'a Assessment,
+    /// The wear plan, when the caller made one (`analysis::maintenance::plan`).
+    pub wear_plan: Option<&'a crate::analysis::maintenance::WearPlan>,
 }
 
 impl<'a> ReportContext<'a> {
@@ -63,6 +66,15 @@ impl<'a> ReportContext<'a> {
             study,
             result,
             assessment,
+            wear_plan: None,
+        }
+    }
+
+    /// The same context with a wear plan, rendered by the summary and the JSON report.
+    pub fn with_wear_plan(self, plan: &'a crate::analysis::maintenance::WearPlan) -> Self {
+        ReportContext {
+            wear_plan: Some(plan),
+            ..self
         }
     }
 

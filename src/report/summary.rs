@@ -47,6 +47,7 @@ impl ReportWriter for Summary {
         resonance(ctx, &mut t);
         wear(ctx, &mut t);
         voltage(ctx, &mut t);
+        super::wear::section(&mut t, ctx.scenario(), ctx.wear_plan);
         out.write_all(t.as_bytes())?;
         out.flush()?;
         Ok(())
@@ -250,6 +251,7 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
                 let what = match f.kind {
                     FaultKind::Open => "open".to_string(),
                     FaultKind::CapacitanceLoss(x) => format!("loses {}", pct(x)),
+                    FaultKind::StuckClosed => "stuck closed".to_string(),
                 };
                 format!("{what} from {}", duration(f.from_s))
             }

@@ -119,6 +119,7 @@ pub(super) fn controller(
             averaging_s,
             export_mode: c.export_mode.unwrap_or_default(),
             protection,
+            detection: None,
         },
         dead_band_key,
         capacitor_discharge_s: c

@@ -12,6 +12,7 @@ mod check;
 mod controller;
 mod harmonics;
 mod load;
+pub mod maintenance;
 pub mod overrides;
 mod report;
 mod run;
@@ -21,6 +22,7 @@ mod supply;
 pub mod tariff;
 
 pub use controller::{DEAD_BAND_FRACTION_KEY, DEAD_BAND_KVAR_KEY};
+pub use maintenance::Maintenance;
 pub use overrides::Override;
 pub use schema::{
     ControllerSection, FaultSection, HarmonicsSection, LoadSection, ProtectionSection,
@@ -116,6 +118,9 @@ pub struct Scenario {
     /// Prices of reactive energy, a low PF and worn parts (`[tariff]`); `None` when the
     /// scenario has no tariff.
     pub tariff: Option<Tariff>,
+    /// The bank's history (counters, installation dates), capacitor ageing, holidays and
+    /// inrush settings of the wear plan (`[maintenance]` and the per-step keys).
+    pub maintenance: Maintenance,
     /// SHA-256 of the scenario text, lowercase hex, for provenance.
     pub content_sha256: String,
 }
@@ -170,7 +175,9 @@ impl Scenario {
         let supply = supply::supply(&f.supply)?;
         let steps = steps::steps(&f.steps, supply.nominal_voltage_v)?;
         let smallest = crate::bank::smallest_switched_kvar(&steps);
-        let ctl = controller::controller(&f.controller, supply.nominal_voltage_v, smallest)?;
+        let mut ctl = controller::controller(&f.controller, supply.nominal_voltage_v, smallest)?;
+        ctl.params.detection = maintenance::detection(&f.controller.detection)?;
+        let maintenance = maintenance::maintenance(&f.maintenance, &f.steps, &steps::table_label)?;
         let load = load::load(&f.load, path)?;
         let harm = harmonics::harmonics(&f.harmonics)?;
         let run = run::run(&f.run)?;
@@ -204,6 +211,7 @@ impl Scenario {
             capacitor_discharge_s: ctl.capacitor_discharge_s,
             dead_band_key: ctl.dead_band_key,
             tariff,
+            maintenance,
             content_sha256: String::new(),
         })
     }

@@ -42,6 +42,10 @@ pub struct ScenarioFile {
     /// Prices of reactive energy, a low PF and worn parts (optional).
     #[serde(default)]
     pub tariff: Option<super::tariff::TariffSection>,
+    /// Study date, holidays, capacitor ageing and inrush settings of the wear plan
+    /// (optional).
+    #[serde(default)]
+    pub maintenance: Option<super::maintenance::MaintenanceSection>,
 }
 
 /// `[study]`.
@@ -115,13 +119,23 @@ pub struct StepSection {
     pub count: Option<u32>,
     /// Fault injection.
     pub fault: Option<FaultSection>,
+    /// The contactor's operation counter on the study date (`maintenance.as_of`), one
+    /// value or one per step. Default 0.
+    pub operations_so_far: Option<super::maintenance::PerStep<f64>>,
+    /// Date the capacitors were installed, `YYYY-MM-DD`, one value or one per step.
+    /// Default: the study date.
+    pub installed: Option<super::maintenance::PerStep<String>>,
+    /// The contactor's stated peak making current, A. Default: not stated.
+    pub contactor_peak_a: Option<f64>,
+    /// Damping resistors of a capacitor-duty contactor, Ω per phase. Default none.
+    pub damping_ohm: Option<f64>,
 }
 
 /// `[steps.fault]`.
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct FaultSection {
-    /// `open` (delivers nothing) or `capacitance-loss`.
+    /// `open` (delivers nothing), `capacitance-loss` or `stuck-closed`.
     pub kind: String,
     /// Fraction of capacitance lost, for `capacitance-loss` (0 < f < 1).
     pub fraction: Option<f64>,
@@ -168,6 +182,8 @@ pub struct ControllerSection {
     /// Protections.
     #[serde(default)]
     pub protection: ProtectionSection,
+    /// The controller's own fault detection; present: on.
+    pub detection: Option<super::maintenance::DetectionSection>,
 }
 
 /// `[controller.protection]`.

@@ -21,7 +21,7 @@ use crate::bank::{Fault, FaultKind, StepPhase, StepSpec, MAX_STEPS};
 use crate::error::FieldError;
 
 /// How errors name table `table` (from 1) making steps `first` to `first + count − 1`.
-fn table_label(table: usize, first: usize, count: u32) -> String {
+pub(super) fn table_label(table: usize, first: usize, count: u32) -> String {
     if count == 1 {
         format!("[[steps]] table {table} (step {first})")
     } else {
@@ -218,10 +218,14 @@ fn fault(fs: &FaultSection, key: &dyn Fn(&str) -> String) -> Result<Fault, Field
             }
             FaultKind::CapacitanceLoss(x)
         }
+        "stuck-closed" => FaultKind::StuckClosed,
         other => {
             return Err(FieldError::new(
                 key("fault.kind"),
-                format!("`{other}` is not a fault kind; write `open` or `capacitance-loss`"),
+                format!(
+                    "`{other}` is not a fault kind; write `open`, `capacitance-loss` or \
+                     `stuck-closed`"
+                ),
             ))
         }
     };
