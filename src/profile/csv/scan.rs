@@ -218,6 +218,8 @@ struct Timeline {
     t_last: f64,
     last_line: u64,
     spacings: Spacings,
+    /// The latest spacing (its bits) and its key, so that a steady spacing is keyed once.
+    last_dt: (u64, i64),
 }
 
 impl Timeline {
@@ -228,7 +230,11 @@ impl Timeline {
             self.t_first = t;
             self.first_line = line;
         } else {
-            self.spacings.add(spacing_key(t - self.t_last));
+            let dt = t - self.t_last;
+            if dt.to_bits() != self.last_dt.0 || self.used == 1 {
+                self.last_dt = (dt.to_bits(), spacing_key(dt));
+            }
+            self.spacings.add(self.last_dt.1);
         }
         self.used += 1;
         self.t_last = t;
@@ -339,6 +345,7 @@ pub fn scan_source_with(
         t_last,
         last_line,
         mut spacings,
+        ..
     } = line_of_time;
     n.used = used;
     spacings.flush();
@@ -723,24 +730,35 @@ fn fast_pass(
         CsvSource::Bytes { data, .. } => Some(data.len() as u64),
         CsvSource::Reader { .. } => None,
     };
-    let mut buf: Vec<u8> = Vec::new();
+    // The block is read into `store[..filled]`; the store grows to a block as the bytes
+    // come (so a small file costs a small buffer) and is then reused without being
+    // cleared again.
+    let mut store: Vec<u8> = Vec::new();
+    let mut filled = 0usize;
     let mut parsed = Parsed::default();
     let mut eof = false;
     loop {
-        if !eof && buf.len() < BLOCK_BYTES {
-            // Reads to the end of the block or of the input; the buffer grows as the
-            // bytes come, so a small file costs a small buffer.
-            let want = (BLOCK_BYTES - buf.len()) as u64;
-            let got = (&mut input).take(want).read_to_end(&mut buf).map_err(io)?;
-            eof = (got as u64) < want;
+        while !eof && filled < BLOCK_BYTES {
+            // Reads to the end of the block or of the input.
+            if store.len() == filled {
+                let grow = (filled.max(64 * 1024) * 2).min(BLOCK_BYTES);
+                store.resize(grow, 0);
+            }
+            match input.read(&mut store[filled..]) {
+                Ok(0) => eof = true,
+                Ok(got) => filled += got,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(e) => return Err(io(e)),
+            }
         }
+        let buf = &store[..filled];
         if buf.is_empty() {
             return Ok(true);
         }
         let end = if eof {
             buf.len()
         } else {
-            match buf.iter().rposition(|&b| b == b'\n') {
+            match memchr::memrchr(b'\n', buf) {
                 Some(p) => p + 1,
                 // A line longer than a block.
                 None => return Ok(false),
@@ -806,8 +824,9 @@ fn fast_pass(
         }
         *line += lf_done;
         *offset += end as u64;
-        buf.drain(..end);
-        if eof && buf.is_empty() {
+        store.copy_within(end..filled, 0);
+        filled -= end;
+        if eof && filled == 0 {
             return Ok(true);
         }
     }
