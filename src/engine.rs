@@ -414,3 +414,72 @@ fn block_end(
     }
     end.max(k)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::error::ProfileError;
+    use crate::study::Study;
+    use std::path::{Path, PathBuf};
+
+    /// A steady load that fails at interval `fail_at`, counting the samples asked for.
+    struct FailsAt {
+        fail_at: u64,
+        asked: u64,
+    }
+
+    impl LoadSource for FailsAt {
+        fn sample(&mut self, k: u64, _t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
+            self.asked += 1;
+            if k == self.fail_at {
+                return Err(ProfileError::Row {
+                    file: PathBuf::from("steady.csv"),
+                    line: k + 2,
+                    message: "made to fail".into(),
+                });
+            }
+            out.p_kw = [30.0; 3];
+            out.q_kvar = [20.0; 3];
+            Ok(())
+        }
+    }
+
+    /// Counts the intervals it hears of, one by one.
+    #[derive(Default)]
+    struct Count(u64);
+
+    impl Observer for Count {
+        fn interval(&mut self, _r: &IntervalRecord<'_>) -> Result<(), RunError> {
+            self.0 += 1;
+            Ok(())
+        }
+    }
+
+    // Samples are taken from the source in chunks, but an error still comes after every
+    // interval before it, as stepping one sample at a time has it: a failure at interval
+    // j leaves the observer with exactly j intervals, and no sample past j is asked for.
+    // Cases inside the first chunk, on a chunk boundary and past it.
+    #[test]
+    fn a_source_error_comes_after_the_intervals_before_it() {
+        let sc = Scenario::from_str(
+            "[[steps]]\nkvar = 25\ncount = 2\n[run]\nduration_days = 1\ntime_step_s = 1\n\
+             [load.synthetic]\n",
+            Path::new("t.toml"),
+        )
+        .expect("scenario");
+        let study = Study::prepare(sc).expect("study");
+        for fail_at in [0, 1, 100, CHUNK as u64 - 1, CHUNK as u64, 300, 1000] {
+            let mut src = FailsAt { fail_at, asked: 0 };
+            let mut seen = Count::default();
+            let r = study.run_on(&mut src, &mut seen);
+            match r {
+                Err(RunError::Profile(ProfileError::Row { line, .. })) => {
+                    assert_eq!(line, fail_at + 2)
+                }
+                other => panic!("fail at {fail_at}: {other:?}"),
+            }
+            assert_eq!(seen.0, fail_at, "intervals seen before the error");
+            assert_eq!(src.asked, fail_at + 1, "samples asked for");
+        }
+    }
+}

@@ -1113,6 +1113,29 @@ impl LoadSource for SyntheticProfile {
         Ok(())
     }
 
+    /// With measurement noise every sample varies, so nothing is promised and the samples
+    /// are written without asking; otherwise as the default, one `sample` at a time.
+    fn fill(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        let check = stop_at_hold && !self.noise_on;
+        for (i, s) in out.iter_mut().enumerate() {
+            let j = k + i as u64;
+            if let Err(e) = self.sample(j, t_first_s + j as f64 * dt_s, s) {
+                return (i, Some(e));
+            }
+            if check && self.unchanged_until(j) > j + 1 {
+                return (i + 1, None);
+            }
+        }
+        (out.len(), None)
+    }
+
     /// After a sample that took the running sum alone (no event inside, no group summed
     /// every sample running, every PV array dark, no noise), every later interval that
     /// again takes the running sum alone repeats it bit for bit; the first that may not

@@ -388,10 +388,25 @@ fn parse_line_quick(
     Some((pos, lf))
 }
 
-/// Cuts `piece` (whole lines, the last one possibly without its line end) into rows,
-/// appended to `rows`. Returns the line feeds in the piece, or `None` for a doubt (a line
-/// too long or too wide for the fast path).
-fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> Option<u32> {
+/// Where [`walk`] met a doubt (a line too long or too wide for the fast path): the start
+/// of that line in the piece and the line feeds before it.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct Doubt {
+    pub(super) at: usize,
+    pub(super) lf: u32,
+}
+
+/// Cuts `piece` (whole lines, the last one possibly without its line end; `base` its
+/// start in the block) into rows and hands each to `each`, in order. Returns the line
+/// feeds in the piece, or the [`Doubt`] that stopped it (nothing of that line or after it
+/// has been handed on); an error of `each` stops it at once.
+#[inline(always)]
+pub(super) fn walk<E>(
+    piece: &[u8],
+    base: usize,
+    lay: &Layout,
+    mut each: impl FnMut(&Row) -> Result<(), E>,
+) -> Result<Result<u32, Doubt>, E> {
     let mut lf = 0u32;
     let mut start = 0usize;
     while start < piece.len() {
@@ -406,7 +421,7 @@ fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> 
                 .or_else(|| parse_line_quick(piece, start, lay, &mut row))
             {
                 row.len = (stop - start) as u32;
-                rows.push(row);
+                each(&row)?;
                 if end < piece.len() {
                     lf += 1;
                 }
@@ -414,16 +429,13 @@ fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> 
                 continue;
             }
         }
-        let end = piece[start..]
-            .iter()
-            .position(|&b| b == b'\n')
-            .map_or(piece.len(), |e| start + e);
+        let end = memchr::memchr(b'\n', &piece[start..]).map_or(piece.len(), |e| start + e);
         let mut stop = end;
         if stop > start && piece[stop - 1] == b'\r' {
             stop -= 1;
         }
         if stop - start > MAX_PLAIN_LINE {
-            return None;
+            return Ok(Err(Doubt { at: start, lf }));
         }
         if stop > start {
             let line = &piece[start..stop];
@@ -437,16 +449,29 @@ fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> 
             if !row.clean
                 && line.iter().filter(|&&b| b == lay.delimiter).count() >= MAX_PLAIN_FIELDS
             {
-                return None;
+                return Ok(Err(Doubt { at: start, lf }));
             }
-            rows.push(row);
+            each(&row)?;
         }
         if end < piece.len() {
             lf += 1;
         }
         start = end + 1;
     }
-    Some(lf)
+    Ok(Ok(lf))
+}
+
+/// Cuts `piece` into rows appended to `rows` ([`walk`]). Returns the line feeds in the
+/// piece, or `None` for a doubt.
+fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> Option<u32> {
+    let pushed = walk(piece, base, lay, |r| {
+        rows.push(*r);
+        Ok::<(), std::convert::Infallible>(())
+    });
+    match pushed {
+        Ok(Ok(lf)) => Some(lf),
+        _ => None,
+    }
 }
 
 /// The rows of one block, parsed in pieces.
