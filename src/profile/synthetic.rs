@@ -1124,9 +1124,13 @@ impl LoadSource for SyntheticProfile {
         stop_at_hold: bool,
     ) -> (usize, Option<ProfileError>) {
         let check = stop_at_hold && !self.noise_on;
+        // j as a float, counted along: exact, so the times are `t_first_s + j as f64 * dt_s`.
+        let mut jf = k as f64;
         for (i, s) in out.iter_mut().enumerate() {
             let j = k + i as u64;
-            if let Err(e) = self.sample(j, t_first_s + j as f64 * dt_s, s) {
+            let t_s = t_first_s + jf * dt_s;
+            jf += 1.0;
+            if let Err(e) = self.sample(j, t_s, s) {
                 return (i, Some(e));
             }
             if check && self.unchanged_until(j) > j + 1 {
