@@ -11,6 +11,20 @@
 //! are the only way out of the loop. The engine judges nothing: what the metrics mean is
 //! the business of [`crate::analysis`].
 //!
+//! # Chunks and lanes
+//!
+//! The samples come from the source in chunks of up to 256 intervals
+//! ([`LoadSource::fill`], the same samples as interval-by-interval calls), and the bus is
+//! solved ahead of the controller for up to [`LANE`] of them at a time with the bank as
+//! it stands ([`BusSolver::solve_lanes`], bit for bit the per-interval solution, in
+//! arrays the compiler vectorises). Operations are rare against the interval, so the
+//! solutions ahead almost always hold; an operation or a fault cuts the lane back to the
+//! interval in hand, and the next interval is solved again with the new bank. Nothing
+//! else moves: each interval still takes its sample, its solution, its record and the
+//! controller's decision in the order above. The buffers are allocated once, before the
+//! first interval. A source error is reported after the intervals before it, as it
+//! would be one sample at a time.
+//!
 //! # Blocks of identical intervals
 //!
 //! While the load sample, the bank state and the controller's inputs stay the same, the
