@@ -286,9 +286,9 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         // The fixed steps' output matters only to the cause of an overcorrected interval.
         let fixed_q = if has_fixed && met.overcorrected(p3, q3) {
             let mut f = 0.0;
-            for ph in 0..3 {
-                let v = lanes.w[ph][j].sqrt();
-                f += b_fixed[ph] * v * v * 1e-3;
+            for (b, w) in b_fixed.iter().zip(&lanes.w) {
+                let v = w[j].sqrt();
+                f += b * v * v * 1e-3;
             }
             f
         } else {
@@ -369,7 +369,7 @@ fn fault_interval(bank: &Bank, dt: f64) -> u64 {
     };
     let reached = |k: u64| f <= k as f64 * dt;
     let guess = (f / dt).ceil();
-    if !(guess < 1e18) {
+    if guess.is_nan() || guess >= 1e18 {
         return u64::MAX;
     }
     let mut k = if guess > 0.0 { guess as u64 } else { 0 };
