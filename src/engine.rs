@@ -11,6 +11,20 @@
 //! are the only way out of the loop. The engine judges nothing: what the metrics mean is
 //! the business of [`crate::analysis`].
 //!
+//! # Chunks and lanes
+//!
+//! The samples come from the source in chunks of up to 256 intervals
+//! ([`LoadSource::fill`], the same samples as interval-by-interval calls), and the bus is
+//! solved ahead of the controller for up to [`LANE`] of them at a time with the bank as
+//! it stands ([`BusSolver::solve_lanes`], bit for bit the per-interval solution, in
+//! arrays the compiler vectorises). Operations are rare against the interval, so the
+//! solutions ahead almost always hold; an operation or a fault cuts the lane back to the
+//! interval in hand, and the next interval is solved again with the new bank. Nothing
+//! else moves: each interval still takes its sample, its solution, its record and the
+//! controller's decision in the order above. The buffers are allocated once, before the
+//! first interval. A source error is reported after the intervals before it, as it
+//! would be one sample at a time.
+//!
 //! # Blocks of identical intervals
 //!
 //! While the load sample, the bank state and the controller's inputs stay the same, the
@@ -50,14 +64,15 @@
 //! on its own; [`Stepping::EveryInterval`] forces it for any observer.
 
 use crate::bank::{Bank, BankState};
-use crate::controller::{Controller, Decision, Reading};
+use crate::controller::Measurement;
+use crate::controller::{Controller, Decision};
 use crate::error::RunError;
 use crate::metrics::Metrics;
 use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::Scenario;
 use crate::study::{RunPlan, Stepping};
-use crate::supply::{BusSolver, PhaseSolution};
+use crate::supply::{BusSolver, Lanes, PhaseSolution, LANE};
 use serde::Serialize;
 use std::collections::HashMap;
 
@@ -199,99 +214,150 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         *thd_cache.entry(mask).or_insert_with(|| hm.thd_pct(mask))
     };
 
-    let mut sample = LoadSample::default();
     solver.set_bank(&bank.susceptance(ctl.mask()));
     let mut b_fixed = bank.susceptance(bank.fixed_mask);
     let mut thd = thd_of(ctl.mask());
     let want_current = sc.controller.protection.min_current_a.is_some();
     let has_fixed = !bank.fixed_mask.is_empty();
+    let measurement = sc.controller.measurement;
     let n = plan.intervals;
     let blocks = plan.stepping == Stepping::Events && !observer.wants_every_interval();
+    // Samples taken ahead from the source: `samples[i]` is interval `buf_k + i`, for
+    // i < `buf_len`; `pending` is an error that ended the filling, reported when the
+    // intervals before it are done.
+    let mut samples = vec![LoadSample::default(); CHUNK];
+    let (mut buf_k, mut buf_len) = (0u64, 0usize);
+    let mut pending: Option<crate::error::ProfileError> = None;
+    // Bus solutions of samples `sol_base ..< sol_base + sol_len`, with the bank as it
+    // stands (cut back to the interval in hand when the bank changes).
+    let mut lanes = Box::<Lanes>::default();
+    let (mut sol_base, mut sol_len) = (0usize, 0usize);
     // With blocks: the interval before which the latest sample holds, by the source's
     // promise (0 once the bank has changed, so that the bus is solved again).
     let mut same_until = 0;
-    let mut sol = [PhaseSolution::default(); 3];
-    // 1 when the latest solution had no solution (the nose of the curve was used).
-    let mut unsolved = 0;
-    let sqrt3 = 3f64.sqrt();
+    // The first interval at which a fault starts.
+    let mut k_fault = fault_interval(&bank, dt);
+    let mut unsolved_n = 0u64;
     observer.progress(0, n);
     let mut k = 0;
+    // k as a float, counted along (exact below 2^53, as every interval index is), so that
+    // the times are those of `t0 + k as f64 * dt` without converting k each interval.
+    let mut kf = 0.0f64;
     while k < n {
-        let t = t0 + k as f64 * dt;
-        let t_next = t0 + (k + 1) as f64 * dt;
-        if bank.advance_faults(k as f64 * dt) {
-            solver.set_bank(&bank.susceptance(ctl.mask()));
-            b_fixed = bank.susceptance(bank.fixed_mask);
-            same_until = 0;
+        let t = t0 + kf * dt;
+        let t_next = t0 + (kf + 1.0) * dt;
+        if k >= k_fault {
+            if bank.advance_faults(k as f64 * dt) {
+                solver.set_bank(&bank.susceptance(ctl.mask()));
+                b_fixed = bank.susceptance(bank.fixed_mask);
+                same_until = 0;
+                // Solutions from this interval on are stale.
+                let i = k.wrapping_sub(buf_k) as usize;
+                if k >= buf_k && i < buf_len {
+                    sol_len = sol_len.min(i.saturating_sub(sol_base));
+                }
+            }
+            k_fault = fault_interval(&bank, dt);
         }
-        if k < same_until {
-            // The same sample on the same bank: the same solution.
-            solver.nonconverged += unsolved;
+        // The buffer entry of this interval's sample and solution.
+        let i = if k < same_until {
+            // The same sample on the same bank: the same solution, still in the lanes.
+            buf_len - 1
         } else {
-            source.sample(k, t, &mut sample)?;
-            if blocks {
+            if k >= buf_k + buf_len as u64 {
+                if let Some(e) = pending.take() {
+                    return Err(e.into());
+                }
+                let want = (CHUNK as u64).min(n - k) as usize;
+                let (got, err) = source.fill(k, t0, dt, &mut samples[..want], blocks);
+                pending = err;
+                if got == 0 {
+                    return Err(pending.take().map_or_else(
+                        || RunError::Config("the load source gave no sample".into()),
+                        RunError::from,
+                    ));
+                }
+                (buf_k, buf_len) = (k, got);
+                (sol_base, sol_len) = (0, 0);
+            }
+            let i = (k - buf_k) as usize;
+            if i >= sol_base + sol_len || i < sol_base {
+                let end = buf_len.min(i + LANE);
+                solver.solve_lanes(&samples[i..end], &mut lanes);
+                (sol_base, sol_len) = (i, end - i);
+            }
+            if blocks && i + 1 == buf_len {
                 same_until = source.unchanged_until(k);
             }
-            let before = solver.nonconverged;
-            sol = solver.solve(&sample.p_kw, &sample.q_kvar);
-            unsolved = solver.nonconverged - before;
-        }
-        let mut v_min = sol[0].v_ln;
-        let mut v_max = sol[0].v_ln;
-        let mut i2_max: f64 = 0.0;
-        let mut fixed_q = 0.0;
-        let mut reading = Reading {
-            thd_pct: thd,
-            ..Reading::default()
+            i
         };
-        for ph in 0..3 {
-            let s = &sol[ph];
-            if s.v_ln < v_min {
-                v_min = s.v_ln;
-            }
-            if s.v_ln > v_max {
-                v_max = s.v_ln;
-            }
-            if want_current {
-                let i2 = (s.p_kw * s.p_kw + s.q_kvar * s.q_kvar) / (s.v_ln * s.v_ln).max(1e-18);
+        let j = i - sol_base;
+        let sample = &samples[i];
+        let unsolved = lanes.unsolved[j];
+        unsolved_n += unsolved;
+        let p3 = sample.p_kw[0] + sample.p_kw[1] + sample.p_kw[2];
+        let q3 = lanes.q3[j];
+        let v_ll_min = lanes.v_ll_min[j];
+        let v_ll_max = lanes.v_ll_max[j];
+        let current_a = if want_current {
+            let mut i2_max: f64 = 0.0;
+            for ph in 0..3 {
+                let v = lanes.w[ph][j].sqrt();
+                let qs = sample.q_kvar[ph] - lanes.q_bank[ph][j];
+                let i2 = (sample.p_kw[ph] * sample.p_kw[ph] + qs * qs) / (v * v).max(1e-18);
                 if i2 > i2_max {
                     i2_max = i2;
                 }
             }
-            if has_fixed {
-                fixed_q += b_fixed[ph] * s.v_ln * s.v_ln * 1e-3;
-            }
-            reading.p_kw[ph] = s.p_kw;
-            reading.q_kvar[ph] = s.q_kvar;
-        }
-        reading.v_ll_max = v_max * sqrt3;
-        reading.current_a = i2_max.sqrt() * 1e3;
+            i2_max.sqrt() * 1e3
+        } else {
+            0.0
+        };
+        let (p_raw, q_raw) = match measurement {
+            Measurement::ThreePhase => (p3, q3),
+            Measurement::SinglePhase(ph) => (
+                3.0 * sample.p_kw[ph],
+                3.0 * (sample.q_kvar[ph] - lanes.q_bank[ph][j]),
+            ),
+        };
         let mask = ctl.mask();
-        let d = ctl.decide(&reading, t_next);
+        let d = ctl.decide_measured(p_raw, q_raw, v_ll_max, current_a, thd, t_next);
+        // The fixed steps' output matters only to the cause of an overcorrected interval.
+        let fixed_q = if has_fixed && met.overcorrected(p3, q3) {
+            let mut f = 0.0;
+            for (b, w) in b_fixed.iter().zip(&lanes.w) {
+                let v = w[j].sqrt();
+                f += b * v * v * 1e-3;
+            }
+            f
+        } else {
+            0.0
+        };
         // What the metrics and the observer see of the interval (built again for a block,
         // so that nothing is kept alive across the common path).
         let obs = || IntervalObs {
             t_s: t,
-            p_kw: reading.p_kw[0] + reading.p_kw[1] + reading.p_kw[2],
-            q_kvar: reading.q_kvar[0] + reading.q_kvar[1] + reading.q_kvar[2],
+            p_kw: p3,
+            q_kvar: q3,
             load_q_kvar: sample.q_total(),
-            load_p_kw: sample.p_total(),
+            load_p_kw: p3,
             fixed_q_kvar: fixed_q,
-            v_ll_min: v_min * sqrt3,
-            v_ll_max: v_max * sqrt3,
+            v_ll_min,
+            v_ll_max,
             decision: &d,
         };
         let k_now = k;
-        let record = |sample, sol| IntervalRecord {
+        let record = |phases| IntervalRecord {
             k: k_now,
             t_s: t,
             load: sample,
-            phases: sol,
+            phases,
             mask,
             decision: &d,
         };
         met.record(&obs());
-        observer.interval(&record(&sample, &sol))?;
+        let phases = lanes.phases(j, sample);
+        observer.interval(&record(&phases))?;
         if (k + 1) % PROGRESS_EVERY == 0 {
             observer.progress(k + 1, n);
         }
@@ -301,29 +367,58 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             solver.set_bank(&bank.susceptance(ctl.mask()));
             thd = thd_of(ctl.mask());
             same_until = 0;
+            // Solutions past this interval were made with the old bank.
+            sol_len = j + 1;
         }
         k += 1;
+        kf += 1.0;
         if blocks && !operated && same_until > k {
             let end = block_end(k, n, same_until, t0, dt, &bank, &met, &ctl, t);
             if end > k {
                 let m = end - k;
                 met.record_block(&obs(), m);
                 ctl.skip(m);
-                solver.nonconverged += unsolved * m;
-                observer.block(&record(&sample, &sol), m)?;
+                unsolved_n += unsolved * m;
+                observer.block(&record(&phases), m)?;
                 k = end;
+                kf = k as f64;
                 if k % PROGRESS_EVERY == 0 {
                     observer.progress(k, n);
                 }
             }
         }
     }
+    solver.nonconverged += unsolved_n;
     observer.progress(n, n);
     let metrics = met.finish(&bank, ctl.steps());
     Ok(RunResult {
         metrics,
         nonconverged_intervals: solver.nonconverged,
     })
+}
+
+/// Samples taken from the source at a time.
+const CHUNK: usize = 256;
+
+/// The first interval k whose run time k·Δt reaches the next fault of `bank` (by the
+/// comparison [`Bank::advance_faults`] makes), or `u64::MAX` when none is left.
+fn fault_interval(bank: &Bank, dt: f64) -> u64 {
+    let Some(f) = bank.next_fault_s() else {
+        return u64::MAX;
+    };
+    let reached = |k: u64| f <= k as f64 * dt;
+    let guess = (f / dt).ceil();
+    if guess.is_nan() || guess >= 1e18 {
+        return u64::MAX;
+    }
+    let mut k = if guess > 0.0 { guess as u64 } else { 0 };
+    while k > 0 && reached(k - 1) {
+        k -= 1;
+    }
+    while !reached(k) {
+        k += 1;
+    }
+    k
 }
 
 /// The end (exclusive) of the block of intervals identical to interval `k − 1`, which was
@@ -371,4 +466,73 @@ fn block_end(
         end = end.min(before(t0 + f));
     }
     end.max(k)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::error::ProfileError;
+    use crate::study::Study;
+    use std::path::{Path, PathBuf};
+
+    /// A steady load that fails at interval `fail_at`, counting the samples asked for.
+    struct FailsAt {
+        fail_at: u64,
+        asked: u64,
+    }
+
+    impl LoadSource for FailsAt {
+        fn sample(&mut self, k: u64, _t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
+            self.asked += 1;
+            if k == self.fail_at {
+                return Err(ProfileError::Row {
+                    file: PathBuf::from("steady.csv"),
+                    line: k + 2,
+                    message: "made to fail".into(),
+                });
+            }
+            out.p_kw = [30.0; 3];
+            out.q_kvar = [20.0; 3];
+            Ok(())
+        }
+    }
+
+    /// Counts the intervals it hears of, one by one.
+    #[derive(Default)]
+    struct Count(u64);
+
+    impl Observer for Count {
+        fn interval(&mut self, _r: &IntervalRecord<'_>) -> Result<(), RunError> {
+            self.0 += 1;
+            Ok(())
+        }
+    }
+
+    // Samples are taken from the source in chunks, but an error still comes after every
+    // interval before it, as stepping one sample at a time has it: a failure at interval
+    // j leaves the observer with exactly j intervals, and no sample past j is asked for.
+    // Cases inside the first chunk, on a chunk boundary and past it.
+    #[test]
+    fn a_source_error_comes_after_the_intervals_before_it() {
+        let sc = Scenario::from_str(
+            "[[steps]]\nkvar = 25\ncount = 2\n[run]\nduration_days = 1\ntime_step_s = 1\n\
+             [load.synthetic]\n",
+            Path::new("t.toml"),
+        )
+        .expect("scenario");
+        let study = Study::prepare(sc).expect("study");
+        for fail_at in [0, 1, 100, CHUNK as u64 - 1, CHUNK as u64, 300, 1000] {
+            let mut src = FailsAt { fail_at, asked: 0 };
+            let mut seen = Count::default();
+            let r = study.run_on(&mut src, &mut seen);
+            match r {
+                Err(RunError::Profile(ProfileError::Row { line, .. })) => {
+                    assert_eq!(line, fail_at + 2)
+                }
+                other => panic!("fail at {fail_at}: {other:?}"),
+            }
+            assert_eq!(seen.0, fail_at, "intervals seen before the error");
+            assert_eq!(src.asked, fail_at + 1, "samples asked for");
+        }
+    }
 }

@@ -323,18 +323,16 @@ struct Registers {
 }
 
 impl Registers {
-    #[inline]
+    #[inline(always)]
     fn add(&mut self, p: f64, q: f64, h: f64) {
-        if p > 0.0 {
-            self.kwh_import += p * h;
-        } else if p < 0.0 {
-            self.kwh_export -= p * h;
-        }
-        if q > 0.0 {
-            self.kvarh_ind += q * h;
-        } else if q < 0.0 {
-            self.kvarh_cap -= q * h;
-        }
+        // Without branches: the register a sign does not belong to adds zero, which
+        // leaves it as it is (registers are never −0). A product that underflows to
+        // zero adds zero either way.
+        let (ph, qh) = (p * h, q * h);
+        self.kwh_import += if p > 0.0 { ph } else { 0.0 };
+        self.kwh_export -= if p < 0.0 { ph } else { 0.0 };
+        self.kvarh_ind += if q > 0.0 { qh } else { 0.0 };
+        self.kvarh_cap -= if q < 0.0 { qh } else { 0.0 };
     }
 
     fn billed(&self) -> BilledPf {
@@ -405,10 +403,14 @@ pub struct Metrics {
     t_first: f64,
     calendar: Calendar,
     n: u64,
+    /// The registers of the billing windows closed so far, added up.
     reg: Registers,
+    /// The registers of the billing window in progress.
     win: Registers,
     win_start: f64,
     next_bill: usize,
+    /// [`Metrics::bill_t`] of `next_bill`.
+    next_bill_t: f64,
     billing: Vec<BillingWindow>,
     under_n: u64,
     lead_n: u64,
@@ -451,6 +453,10 @@ impl Metrics {
         let states_cap = if n_steps >= 12 { 4096 } else { 1 << n_steps };
         let min_ep_n = (p.overcorrection_min_s / dt_s - 1e-9).ceil().max(1.0) as u64;
         let billing = Vec::with_capacity(p.billing_starts.len() + 1);
+        let next_bill_t = p
+            .billing_starts
+            .first()
+            .map_or(f64::INFINITY, |&b| b - 1e-9);
         Metrics {
             tan_t: p.target.tan_phi(),
             p,
@@ -463,6 +469,7 @@ impl Metrics {
             win: Registers::default(),
             win_start: t_first_s,
             next_bill: 0,
+            next_bill_t,
             billing,
             under_n: 0,
             lead_n: 0,
@@ -497,13 +504,11 @@ impl Metrics {
     pub fn record(&mut self, o: &IntervalObs<'_>) {
         self.n += 1;
         let (p, q) = (o.p_kw, o.q_kvar);
-        if self.next_bill < self.p.billing_starts.len()
-            && o.t_s >= self.p.billing_starts[self.next_bill] - 1e-9
-        {
+        if o.t_s >= self.next_bill_t {
             self.close_window(o.t_s);
             self.next_bill += 1;
+            self.next_bill_t = self.bill_t(self.next_bill);
         }
-        self.reg.add(p, q, self.h);
         self.win.add(p, q, self.h);
         if p > 0.0 && q > p * self.tan_t {
             self.under_n += 1;
@@ -547,18 +552,40 @@ impl Metrics {
         }
     }
 
+    /// The time from which [`Metrics::record`] closes billing window `i` (the start of
+    /// the next one less 1e-9 s), or +∞ after the last.
+    fn bill_t(&self, i: usize) -> f64 {
+        self.p
+            .billing_starts
+            .get(i)
+            .map_or(f64::INFINITY, |&b| b - 1e-9)
+    }
+
+    /// Whether an interval with supply power `p_kw`, `q_kvar` is overcorrected, so that
+    /// [`Metrics::record`] looks at its cause (and the fixed steps' output, which the
+    /// caller may leave at 0 otherwise).
+    #[inline(always)]
+    pub fn overcorrected(&self, p_kw: f64, q_kvar: f64) -> bool {
+        q_kvar < self.overcorrection_limit(p_kw)
+    }
+
+    /// Reactive power below which an interval is overcorrected: past zero for a lagging or
+    /// unity target, past the target for a leading one (tan φ_t < 0).
+    #[inline(always)]
+    fn overcorrection_limit(&self, p: f64) -> f64 {
+        let thr = self.p.overcorrection_threshold_kvar;
+        if self.tan_t < 0.0 {
+            p.abs() * self.tan_t - thr
+        } else {
+            -thr
+        }
+    }
+
     /// The cause (index into `CAUSES`) when the interval is overcorrected.
     #[inline]
     fn overcorrection_cause(&self, o: &IntervalObs<'_>) -> Option<usize> {
         let (p, q) = (o.p_kw, o.q_kvar);
-        let thr = self.p.overcorrection_threshold_kvar;
-        // Reactive power below which the interval is overcorrected: past zero for a lagging
-        // or unity target, past the target for a leading one (tan φ_t < 0).
-        let limit = if self.tan_t < 0.0 {
-            p.abs() * self.tan_t - thr
-        } else {
-            -thr
-        };
+        let limit = self.overcorrection_limit(p);
         if q < limit {
             Some(if p < 0.0 {
                 0
@@ -596,7 +623,6 @@ impl Metrics {
         let (p, q) = (o.p_kw, o.q_kvar);
         self.n += m;
         let h = self.h * m as f64;
-        self.reg.add(p, q, h);
         self.win.add(p, q, h);
         if p > 0.0 && q > p * self.tan_t {
             self.under_n += m;
@@ -634,6 +660,11 @@ impl Metrics {
     }
 
     fn close_window(&mut self, t_end: f64) {
+        // The run's registers are the sum of its windows' (one window: the same figures).
+        self.reg.kwh_import += self.win.kwh_import;
+        self.reg.kwh_export += self.win.kwh_export;
+        self.reg.kvarh_ind += self.win.kvarh_ind;
+        self.reg.kvarh_cap += self.win.kvarh_cap;
         let b = self.win.billed();
         self.billing.push(BillingWindow {
             start_s: self.win_start,

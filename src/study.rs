@@ -150,6 +150,22 @@ impl LoadSource for Source {
             Source::Synthetic(s) => s.unchanged_until(k),
         }
     }
+
+    #[inline]
+    fn fill(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        match self {
+            Source::Csv(s) => s.fill(k, t_first_s, dt_s, out, stop_at_hold),
+            Source::Memory(s) => s.fill(k, t_first_s, dt_s, out, stop_at_hold),
+            Source::Synthetic(s) => s.fill(k, t_first_s, dt_s, out, stop_at_hold),
+        }
+    }
 }
 
 /// Validated settings joined to a prepared profile: everything one run needs.

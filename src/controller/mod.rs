@@ -214,6 +214,14 @@ pub struct Reading {
     pub thd_pct: f64,
 }
 
+/// What the protections read of an interval.
+#[derive(Debug, Clone, Copy)]
+struct Protected {
+    v_ll_max: f64,
+    current_a: f64,
+    thd_pct: f64,
+}
+
 /// Switching state of one step.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct StepState {
@@ -563,6 +571,28 @@ impl Controller {
                 r.q_kvar[0] + r.q_kvar[1] + r.q_kvar[2],
             ),
             Measurement::SinglePhase(ph) => (3.0 * r.p_kw[ph], 3.0 * r.q_kvar[ph]),
+        };
+        self.decide_measured(p_raw, q_raw, r.v_ll_max, r.current_a, r.thd_pct, t_next)
+    }
+
+    /// [`Controller::decide`] for a reading already reduced to what the current
+    /// transformer measures: `p_raw` and `q_raw` are the three-phase sums (phases added
+    /// in the order a, b, c), or three times the measured phase; the other arguments are
+    /// the fields of [`Reading`] of the same names.
+    #[inline]
+    pub fn decide_measured(
+        &mut self,
+        p_raw: f64,
+        q_raw: f64,
+        v_ll_max: f64,
+        current_a: f64,
+        thd_pct: f64,
+        t_next: f64,
+    ) -> Decision {
+        let r = Protected {
+            v_ll_max,
+            current_a,
+            thd_pct,
         };
         let (p_m, q_m) = self.avg.push(p_raw, q_raw);
         let exporting = p_m < 0.0;

@@ -52,6 +52,34 @@ pub trait LoadSource {
     fn unchanged_until(&self, k: u64) -> u64 {
         k + 1
     }
+
+    /// Writes the samples of intervals k, k + 1, … (interval j starting at t_first + j·Δt)
+    /// into `out[0]`, `out[1]`, …, as the same calls of [`LoadSource::sample`] would, and
+    /// returns how many it wrote. With `stop_at_hold` it stops after the first interval j
+    /// whose sample the source promises to hold ([`LoadSource::unchanged_until`] above
+    /// j + 1), so that the caller can ask for that promise; otherwise it fills `out`.
+    /// An error ends the filling: the samples written before it are returned with it, so
+    /// that the caller can use them before it reports the error. The default calls
+    /// `sample` once per interval; a source may fill faster, with the same results.
+    fn fill(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        for (i, s) in out.iter_mut().enumerate() {
+            let j = k + i as u64;
+            if let Err(e) = self.sample(j, t_first_s + j as f64 * dt_s, s) {
+                return (i, Some(e));
+            }
+            if stop_at_hold && self.unchanged_until(j) > j + 1 {
+                return (i + 1, None);
+            }
+        }
+        (out.len(), None)
+    }
 }
 
 /// What to do with a defect in a CSV profile. Which policies apply depends on the kind

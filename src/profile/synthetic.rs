@@ -1113,6 +1113,33 @@ impl LoadSource for SyntheticProfile {
         Ok(())
     }
 
+    /// With measurement noise every sample varies, so nothing is promised and the samples
+    /// are written without asking; otherwise as the default, one `sample` at a time.
+    fn fill(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        let check = stop_at_hold && !self.noise_on;
+        // j as a float, counted along: exact, so the times are `t_first_s + j as f64 * dt_s`.
+        let mut jf = k as f64;
+        for (i, s) in out.iter_mut().enumerate() {
+            let j = k + i as u64;
+            let t_s = t_first_s + jf * dt_s;
+            jf += 1.0;
+            if let Err(e) = self.sample(j, t_s, s) {
+                return (i, Some(e));
+            }
+            if check && self.unchanged_until(j) > j + 1 {
+                return (i + 1, None);
+            }
+        }
+        (out.len(), None)
+    }
+
     /// After a sample that took the running sum alone (no event inside, no group summed
     /// every sample running, every PV array dark, no noise), every later interval that
     /// again takes the running sum alone repeats it bit for bit; the first that may not

@@ -12,7 +12,7 @@
 const MAX_NUMBER_BYTES: usize = 64;
 
 /// Powers of ten exactly representable as f64 (10^0 to 10^22).
-const POW10: [f64; 23] = [
+pub(super) const POW10: [f64; 23] = [
     1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
     1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
 ];
@@ -55,6 +55,90 @@ pub(super) fn parse_plain_prefix(bytes: &[u8]) -> Option<(f64, usize)> {
     }
     // 15 digits keep w below 10^15 < 2^53, and f ≤ 15 ≤ 22.
     let v = w as f64 / POW10[frac];
+    Some((if neg { -v } else { v }, i))
+}
+
+/// Powers of ten as integers, 10^0 to 10^8.
+pub(super) const POW10_INT: [u64; 9] = [
+    1,
+    10,
+    100,
+    1_000,
+    10_000,
+    100_000,
+    1_000_000,
+    10_000_000,
+    100_000_000,
+];
+
+/// The 8 bytes of `b` from `i` as a little-endian word (the first byte lowest), or `None`
+/// when fewer than 8 bytes are left.
+#[inline(always)]
+fn word_at(b: &[u8], i: usize) -> Option<u64> {
+    let w: [u8; 8] = b.get(i..i.checked_add(8)?)?.try_into().ok()?;
+    Some(u64::from_le_bytes(w))
+}
+
+/// The leading decimal digits of the word `x` (text bytes, the first lowest): how many
+/// (0 to 8), and the bytes with every digit turned into its value 0 to 9.
+///
+/// A byte is a digit when, less `'0'`, it is at most 9; adding 0x76 sets its top bit
+/// exactly when it is above 9. A byte above 0x89 carries into the next one, but carries
+/// only go to later bytes, past the first non-digit, so the count is exact.
+#[inline(always)]
+pub(super) fn leading_digits(x: u64) -> (usize, u64) {
+    let a = x ^ 0x3030_3030_3030_3030;
+    let over = (a | a.wrapping_add(0x7676_7676_7676_7676)) & 0x8080_8080_8080_8080;
+    ((over.trailing_zeros() / 8) as usize, a)
+}
+
+/// The value of the first `n` (1 to 8) digits of `a` (values 0 to 9, the first digit in
+/// the lowest byte), eight digits at a time: the digits are moved to the top of the word
+/// (zero bytes before them are leading zeros), then pairs, fours and eights are combined
+/// by multiplications (the usual SWAR reading of eight digits, as in simdjson).
+#[inline(always)]
+pub(super) fn digits_value(a: u64, n: usize) -> u64 {
+    let v = a << (8 * (8 - n));
+    let v = v.wrapping_mul(10).wrapping_add(v >> 8);
+    let lo = (v & 0x0000_00FF_0000_00FF).wrapping_mul(100 + (1_000_000 << 32));
+    let hi = ((v >> 16) & 0x0000_00FF_0000_00FF).wrapping_mul(1 + (10_000 << 32));
+    lo.wrapping_add(hi) >> 32
+}
+
+/// [`parse_plain_prefix`] for the number starting at `i` of `b`, read eight bytes at a
+/// time: the value and the index after it, or `None` to leave the number to
+/// [`parse_plain_prefix`] (fewer than eight bytes left after a run, or a run of eight
+/// digits or more). Where it answers, it gives exactly what `parse_plain_prefix` gives:
+/// the same digits make the same integer w, divided by the same power of ten.
+#[inline(always)]
+pub(super) fn parse_plain_at(b: &[u8], i: usize) -> Option<(f64, usize)> {
+    let first = *b.get(i)?;
+    let neg = first == b'-';
+    let mut i = i + usize::from(neg || first == b'+');
+    let (n_int, a) = leading_digits(word_at(b, i)?);
+    if n_int == 8 {
+        return None;
+    }
+    let mut w = if n_int > 0 { digits_value(a, n_int) } else { 0 };
+    i += n_int;
+    let mut frac = 0;
+    if b.get(i) == Some(&b'.') {
+        let (n_frac, a) = leading_digits(word_at(b, i + 1)?);
+        if n_frac == 8 {
+            return None;
+        }
+        if n_frac > 0 {
+            w = w * POW10_INT[n_frac] + digits_value(a, n_frac);
+        }
+        frac = n_frac;
+        i += 1 + n_frac;
+    }
+    if n_int + frac == 0 || matches!(b.get(i), Some(b'e' | b'E')) {
+        return None;
+    }
+    // At most 7 + 7 digits: w < 10^14 < 2^53, exact, as in `parse_plain_prefix` (and
+    // converted from a signed integer, which is one instruction).
+    let v = w as i64 as f64 / POW10[frac];
     Some((if neg { -v } else { v }, i))
 }
 

@@ -6,7 +6,7 @@
 //! The later passes over a scan are [`CsvScan::stream`] (in `stream.rs`) and
 //! [`CsvScan::load`] (in `memory.rs`).
 
-use super::block::{has_doubt, Layout, Parsed, PlainLine, BLOCK_BYTES};
+use super::block::{has_doubt, walk, Layout, Parsed, PlainLine, BLOCK_BYTES};
 use super::defect::{
     merge_by_line, Defect, DefectAction, DefectCounts, DefectKind, MAX_DEFECTS_KEPT,
 };
@@ -218,6 +218,8 @@ struct Timeline {
     t_last: f64,
     last_line: u64,
     spacings: Spacings,
+    /// The latest spacing (its bits) and its key, so that a steady spacing is keyed once.
+    last_dt: (u64, i64),
 }
 
 impl Timeline {
@@ -228,7 +230,11 @@ impl Timeline {
             self.t_first = t;
             self.first_line = line;
         } else {
-            self.spacings.add(spacing_key(t - self.t_last));
+            let dt = t - self.t_last;
+            if dt.to_bits() != self.last_dt.0 || self.used == 1 {
+                self.last_dt = (dt.to_bits(), spacing_key(dt));
+            }
+            self.spacings.add(self.last_dt.1);
         }
         self.used += 1;
         self.t_last = t;
@@ -339,6 +345,7 @@ pub fn scan_source_with(
         t_last,
         last_line,
         mut spacings,
+        ..
     } = line_of_time;
     n.used = used;
     spacings.flush();
@@ -700,6 +707,26 @@ impl Pass1 {
     }
 }
 
+/// After the first block of `end` bytes and `rows` rows of a source of `total_len`
+/// bytes (taken, so that this is done once): gives up keeping the rows at once when the
+/// whole source would clearly not fit the budget, so that a long profile never fills it,
+/// and otherwise reserves room for the estimate and a little more, so that the columns
+/// are not copied as they grow.
+fn reserve_kept(st: &mut Pass1, total_len: &mut Option<u64>, rows: usize, end: usize) {
+    if let (Some(budget), Some(total)) = (st.kept.as_ref().map(|k| k.budget), total_len.take()) {
+        let estimate = rows as f64 * total as f64 / end.max(1) as f64;
+        if estimate * BYTES_PER_ROW as f64 > 1.25 * budget as f64 {
+            st.kept = None;
+        } else if let Some(k) = st.kept.as_mut() {
+            let want =
+                ((estimate * 1.02) as usize + 16).min((k.budget / BYTES_PER_ROW) as usize + 1);
+            let more = want.saturating_sub(k.times.len());
+            k.times.reserve_exact(more);
+            k.samples.reserve_exact(more);
+        }
+    }
+}
+
 /// The fast path of the first pass (see `block.rs`): reads `source` from byte `at.0`
 /// (line `at.1`) in blocks of plain lines, parses each block on `threads` threads and
 /// applies the rules in file order, hashing every byte it takes. Returns true when it
@@ -723,24 +750,35 @@ fn fast_pass(
         CsvSource::Bytes { data, .. } => Some(data.len() as u64),
         CsvSource::Reader { .. } => None,
     };
-    let mut buf: Vec<u8> = Vec::new();
+    // The block is read into `store[..filled]`; the store grows to a block as the bytes
+    // come (so a small file costs a small buffer) and is then reused without being
+    // cleared again.
+    let mut store: Vec<u8> = Vec::new();
+    let mut filled = 0usize;
     let mut parsed = Parsed::default();
     let mut eof = false;
     loop {
-        if !eof && buf.len() < BLOCK_BYTES {
-            // Reads to the end of the block or of the input; the buffer grows as the
-            // bytes come, so a small file costs a small buffer.
-            let want = (BLOCK_BYTES - buf.len()) as u64;
-            let got = (&mut input).take(want).read_to_end(&mut buf).map_err(io)?;
-            eof = (got as u64) < want;
+        while !eof && filled < BLOCK_BYTES {
+            // Reads to the end of the block or of the input.
+            if store.len() == filled {
+                let grow = (filled.max(64 * 1024) * 2).min(BLOCK_BYTES);
+                store.resize(grow, 0);
+            }
+            match input.read(&mut store[filled..]) {
+                Ok(0) => eof = true,
+                Ok(got) => filled += got,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(e) => return Err(io(e)),
+            }
         }
+        let buf = &store[..filled];
         if buf.is_empty() {
             return Ok(true);
         }
         let end = if eof {
             buf.len()
         } else {
-            match buf.iter().rposition(|&b| b == b'\n') {
+            match memchr::memrchr(b'\n', buf) {
                 Some(p) => p + 1,
                 // A line longer than a block.
                 None => return Ok(false),
@@ -749,6 +787,46 @@ fn fast_pass(
         let block = &buf[..end];
         if has_doubt(block) {
             return Ok(false);
+        }
+        if threads == 1 {
+            // On one thread the rules take each row as it is parsed, with nothing kept
+            // in between; a doubt hands the rest of the block, from its line, to the
+            // record reader.
+            let mut rows = 0usize;
+            let walked = walk(block, 0, lay, |r| {
+                rows += 1;
+                let l = *line + u64::from(r.lf_before);
+                if r.clean && st.rules.accepts_clean(r.t) {
+                    st.good_values(r.t, l, &r.v);
+                    Ok(())
+                } else {
+                    let (a, b) = (r.start as usize, (r.start + r.len) as usize);
+                    let unterminated = eof && b == block.len();
+                    st.record(
+                        &PlainLine::new(&block[a..b], lay.delimiter(), l, unterminated),
+                        name,
+                    )
+                }
+            })?;
+            let (taken, lf_done) = match walked {
+                Ok(lf) => (end, u64::from(lf)),
+                Err(d) => (d.at, u64::from(d.lf)),
+            };
+            if let Some(h) = hasher.as_mut() {
+                h.update(&block[..taken]);
+            }
+            *line += lf_done;
+            *offset += taken as u64;
+            if walked.is_err() {
+                return Ok(false);
+            }
+            reserve_kept(st, &mut total_len, rows, end);
+            store.copy_within(end..filled, 0);
+            filled -= end;
+            if eof && filled == 0 {
+                return Ok(true);
+            }
+            continue;
         }
         if !parsed.parse(block, lay, threads) {
             return Ok(false);
@@ -786,28 +864,13 @@ fn fast_pass(
             hash(hasher);
             apply(st)?
         };
-        if let (Some(budget), Some(total)) = (st.kept.as_ref().map(|k| k.budget), total_len.take())
-        {
-            // After the first block: give up keeping at once when the whole source
-            // would clearly not fit, so that a long profile never fills the budget.
-            let rows: usize = parsed.pieces.iter().map(|p| p.0.len()).sum();
-            let estimate = rows as f64 * total as f64 / end.max(1) as f64;
-            if estimate * BYTES_PER_ROW as f64 > 1.25 * budget as f64 {
-                st.kept = None;
-            } else if let Some(k) = st.kept.as_mut() {
-                // Room for the estimate and a little more, so that the columns are not
-                // copied as they grow.
-                let want =
-                    ((estimate * 1.02) as usize + 16).min((k.budget / BYTES_PER_ROW) as usize + 1);
-                let more = want.saturating_sub(k.times.len());
-                k.times.reserve_exact(more);
-                k.samples.reserve_exact(more);
-            }
-        }
+        let rows: usize = parsed.pieces.iter().map(|p| p.0.len()).sum();
+        reserve_kept(st, &mut total_len, rows, end);
         *line += lf_done;
         *offset += end as u64;
-        buf.drain(..end);
-        if eof && buf.is_empty() {
+        store.copy_within(end..filled, 0);
+        filled -= end;
+        if eof && filled == 0 {
             return Ok(true);
         }
     }
