@@ -413,6 +413,37 @@ fn position_in(text: &str, key: &str) -> usize {
 mod tests {
     use super::*;
 
+    fn scenario(controller: &str) -> crate::scenario::Scenario {
+        let text = format!(
+            "[[steps]]\nkvar = 25\ncount = 4\n[controller]\n{controller}\n[load.synthetic]\n\
+             [run]\nduration_h = 1\n"
+        );
+        crate::scenario::Scenario::from_str(&text, std::path::Path::new("t.toml")).unwrap()
+    }
+
+    // The usual grid around a 40 s delay: ½, 1, 2 and 4 × 40 s, four dead bands, three
+    // orderings, 48 settings; a 1 s delay cannot be halved below the 1 s time step, so the
+    // duplicate is dropped (hand-derived).
+    #[test]
+    fn usual_settings_surround_the_scenario_own() {
+        let spec = SweepSpec::usual_controller_settings(&scenario("switching_delay_s = 40"));
+        assert_eq!(spec.product_len(), 48);
+        let delays: Vec<i64> = spec.variations[1]
+            .values
+            .iter()
+            .map(|v| v.as_integer().unwrap())
+            .collect();
+        assert_eq!(delays, vec![20, 40, 80, 160]);
+        let spec = SweepSpec::usual_controller_settings(&scenario("switching_delay_s = 1"));
+        let delays: Vec<i64> = spec.variations[1]
+            .values
+            .iter()
+            .map(|v| v.as_integer().unwrap())
+            .collect();
+        assert_eq!(delays, vec![1, 2, 4]);
+        assert!(spec.check().is_ok());
+    }
+
     #[test]
     fn ranges_do_not_drift_and_include_stop() {
         // Hand-derived: 0.1 to 0.5 by 0.1 is five values, each the decimal written.
