@@ -7,7 +7,7 @@
 //! the states and their order of importance from the run's assessment.
 
 use super::{
-    de, render, text, Draw, Figure, FigureError, FigureMeta, BAND, BANK, GRID, INK, LIMIT, MAIN,
+    de, Plot, text, Draw, FigureError, FigureMeta, BAND, BANK, GRID, INK, LIMIT, MAIN,
     MEDIUM, MUTED,
 };
 use crate::bank::BankState;
@@ -282,7 +282,7 @@ impl Draw for ZDraw {
 
 /// (f) |Z(h)| for the bank states the run reached that count most (hours × severity),
 /// with the load's harmonics and the voltage limits marked.
-pub fn impedance_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> {
+pub fn impedance_figure<'a>(ctx: &'a ReportContext<'a>) -> Result<Plot<'a>, FigureError> {
     let model = ctx.study.harmonic_model();
     let r = &ctx.assessment.resonance;
     let sc = ctx.scenario();
@@ -374,8 +374,8 @@ pub fn impedance_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> 
         to,
         stiff: model.is_stiff(),
     };
-    render(
-        &d,
+    Ok(Plot::new(
+        d,
         "impedance-by-state",
         "Which bank states resonate".to_string(),
         format!(
@@ -391,5 +391,5 @@ pub fn impedance_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> 
             r.voltage_limits
         ),
         MEDIUM,
-    )
+    ))
 }

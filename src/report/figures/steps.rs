@@ -2,7 +2,7 @@
 //! step, from the run's metrics.
 
 use super::{
-    de, legend, render, text, Draw, Figure, FigureError, FigureMeta, Key, BANK, GRID, INK, MAIN,
+    de, legend, Plot, text, Draw, FigureError, FigureMeta, Key, BANK, GRID, INK, MAIN,
     MEDIUM, MUTED,
 };
 use crate::report::ReportContext;
@@ -152,9 +152,9 @@ impl Draw for WearDraw<'_> {
 }
 
 /// (d) Operations in the run and projected years to rated life, one bar per step.
-pub fn wear_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> {
-    render(
-        &WearDraw { ctx },
+pub fn wear_figure<'a>(ctx: &'a ReportContext<'a>) -> Result<Plot<'a>, FigureError> {
+    Ok(Plot::new(
+        WearDraw { ctx },
         "step-wear",
         "Which steps did the work".to_string(),
         format!(
@@ -164,5 +164,5 @@ pub fn wear_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> {
              most operations wear first; a rotating order spreads the wear."
         ),
         MEDIUM,
-    )
+    ))
 }

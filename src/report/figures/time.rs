@@ -6,7 +6,7 @@
 //! pixel still shows at its full height.
 
 use super::{
-    dashed, de, legend, render, scale_colour, text, tint, Draw, Figure, FigureError, FigureMeta,
+    dashed, de, legend, Plot, scale_colour, text, tint, Draw, FigureError, FigureMeta,
     Key, BAND, BANK, BANK_LIGHT, GRID, INK, LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED, OVER, WIDE,
 };
 use crate::pf::Quadrant;
@@ -369,10 +369,13 @@ impl Draw for PfDraw<'_> {
 
 /// (a) The supply PF over time against the target, and the controller's demand against
 /// the dead band, with overcorrection episodes shaded.
-pub fn pf_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, FigureError> {
+pub fn pf_figure<'a>(
+    ctx: &'a ReportContext<'a>,
+    trace: &'a Trace,
+) -> Result<Plot<'a>, FigureError> {
     let c = &ctx.scenario().controller;
-    render(
-        &PfDraw { ctx, trace },
+    Ok(Plot::new(
+        PfDraw { ctx, trace },
         "pf-over-time",
         "Supply power factor against the target".to_string(),
         format!(
@@ -387,7 +390,7 @@ pub fn pf_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, Figur
             trace.episodes()
         ),
         WIDE,
-    )
+    ))
 }
 
 struct KvarDraw<'a> {
@@ -503,9 +506,12 @@ impl Draw for KvarDraw<'_> {
 
 /// (b) The kvar the site needs to reach the target against the kvar the bank delivers:
 /// the bank's staircase.
-pub fn kvar_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, FigureError> {
-    render(
-        &KvarDraw { ctx, trace },
+pub fn kvar_figure<'a>(
+    ctx: &'a ReportContext<'a>,
+    trace: &'a Trace,
+) -> Result<Plot<'a>, FigureError> {
+    Ok(Plot::new(
+        KvarDraw { ctx, trace },
         "kvar-needed-delivered",
         "Reactive power needed against reactive power delivered".to_string(),
         format!(
@@ -517,7 +523,7 @@ pub fn kvar_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, Fig
             ctx.scenario().controller.target
         ),
         MEDIUM,
-    )
+    ))
 }
 
 struct RasterDraw<'a> {
@@ -617,11 +623,14 @@ impl Draw for RasterDraw<'_> {
 
 /// (c) The step states over time: one row per step, darker where the step was
 /// connected for more of the pixel column.
-pub fn raster_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, FigureError> {
+pub fn raster_figure<'a>(
+    ctx: &'a ReportContext<'a>,
+    trace: &'a Trace,
+) -> Result<Plot<'a>, FigureError> {
     let n = ctx.scenario().steps.len();
     let h = (110 + 26 * n as u32).clamp(220, 1800);
-    render(
-        &RasterDraw { ctx, trace },
+    Ok(Plot::new(
+        RasterDraw { ctx, trace },
         "step-states",
         "Which steps were connected, and when".to_string(),
         "One row per step (step 1 at the top). Dark: connected for the whole pixel column; \
@@ -629,7 +638,7 @@ pub fn raster_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, F
          belong to steps doing much of the switching."
             .to_string(),
         (WIDE.0, h),
-    )
+    ))
 }
 
 struct HeatDraw<'a> {
@@ -771,9 +780,12 @@ impl Draw for HeatDraw<'_> {
 
 /// (e) The supply PF of each hour of each day: the PF of the hour's mean power, dark
 /// where it lags most, pale where it leads most.
-pub fn heatmap_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, FigureError> {
-    render(
-        &HeatDraw { ctx, trace },
+pub fn heatmap_figure<'a>(
+    ctx: &'a ReportContext<'a>,
+    trace: &'a Trace,
+) -> Result<Plot<'a>, FigureError> {
+    Ok(Plot::new(
+        HeatDraw { ctx, trace },
         "pf-by-hour",
         "Power factor by hour of the day".to_string(),
         "Each box is one hour of one day: the PF of the supply's mean power over that hour. \
@@ -781,5 +793,5 @@ pub fn heatmap_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, 
          Patterns that repeat at the same hour point at the shift or process behind them."
             .to_string(),
         MEDIUM,
-    )
+    ))
 }
