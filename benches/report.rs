@@ -7,7 +7,9 @@
 //! the time to write the report (target: at most 2 s) and the peak resident memory
 //! before and after writing it (target: the report adds at most 10 % to the assessed
 //! run's peak). Run with `cargo bench --bench report`; set `BANKSTEP_BENCH_DAYS` to
-//! shorten it.
+//! shorten it. `BANKSTEP_BENCH_PROBE=1` first draws each figure alone and prints the
+//! memory after it (peak, anonymous and file-backed), and `BANKSTEP_BENCH_ONLY=N` with
+//! it draws figure N alone and stops: where the report's memory goes.
 
 use bankstep::report::html;
 use bankstep::report::ReportContext;
@@ -41,6 +43,24 @@ fn peak_rss_kb() -> Option<u64> {
         .and_then(|v| v.parse().ok())
 }
 
+/// Peak, anonymous and file-backed resident memory of this process, kB (Linux).
+fn mem() -> String {
+    let s = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
+    let get = |k: &str| {
+        s.lines()
+            .find(|l| l.starts_with(k))
+            .and_then(|l| l.split_whitespace().nth(1))
+            .unwrap_or("?")
+            .to_string()
+    };
+    format!(
+        "peak {} kB (now: heap and other anonymous {} kB, file-backed {} kB)",
+        get("VmHWM:"),
+        get("RssAnon:"),
+        get("RssFile:")
+    )
+}
+
 fn main() {
     let days: f64 = std::env::var("BANKSTEP_BENCH_DAYS")
         .ok()
@@ -62,8 +82,36 @@ fn main() {
     let assessment = bankstep::analysis::assess(&study, &result);
     let rss_assessed = peak_rss_kb();
     let ctx = ReportContext::new(&study, &result, &assessment);
+    if std::env::var("BANKSTEP_BENCH_PROBE").is_ok() {
+        println!("  before the report      {}", mem());
+    }
 
     let dir = std::env::temp_dir().join(format!("bankstep-report-bench-{}", std::process::id()));
+    if std::env::var("BANKSTEP_BENCH_PROBE").is_ok() {
+        // Each figure alone, with the memory after it: where the report's peak comes from.
+        std::fs::create_dir_all(&dir).expect("probe folder");
+        let mut i = 0;
+        let only: Option<usize> = std::env::var("BANKSTEP_BENCH_ONLY")
+            .ok()
+            .and_then(|v| v.parse().ok());
+        while i < html::SIMULATE_FIGURES.len() {
+            if only.is_some_and(|o| o != i) {
+                i += 1;
+                continue;
+            }
+            let plot = html::simulate_figure(&ctx, &trace, i)
+                .expect("a figure of each index")
+                .expect("figure");
+            let mut sink = std::io::sink();
+            plot.write_files(&dir, Some(&mut sink))
+                .expect("figure files");
+            println!("  after {:<24} {}", plot.name, mem());
+            i += 1;
+        }
+    }
+    if std::env::var("BANKSTEP_BENCH_ONLY").is_ok() {
+        return;
+    }
     let t = Instant::now();
     let files = html::write_report_dir(&ctx, &trace, &dir).expect("report folder");
     let report_s = t.elapsed().as_secs_f64();

@@ -103,7 +103,7 @@ impl<'w> Page<'w> {
         title: &str,
         subtitles: &[String],
     ) -> Page<'w> {
-        let mut h = String::with_capacity(64 * 1024);
+        let mut h = String::with_capacity(16 * 1024);
         let _ = write!(
             h,
             "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
@@ -139,7 +139,10 @@ impl<'w> Page<'w> {
 
     /// Draws one figure: `NAME.svg` and `NAME.png` in the folder and the figure inline,
     /// with its title and caption. Returns what it plotted.
-    pub fn figure(&mut self, plot: Result<Plot<'_>, FigureError>) -> Result<FigureMeta, ReportError> {
+    pub fn figure(
+        &mut self,
+        plot: Result<Plot<'_>, FigureError>,
+    ) -> Result<FigureMeta, ReportError> {
         let plot = plot?;
         let _ = write!(
             self.h,
@@ -287,12 +290,7 @@ mod tests {
     #[test]
     fn blocks_escape_every_text() {
         let mut h = String::new();
-        table(
-            &mut h,
-            &["a<b"],
-            "l",
-            &[vec!["x & \"y\"".to_string()]],
-        );
+        table(&mut h, &["a<b"], "l", &[vec!["x & \"y\"".to_string()]]);
         pairs(&mut h, &[("k>", "v'".to_string())]);
         caution(&mut h, &["<careful>"]);
         para(&mut h, Some("note"), "1 < 2");

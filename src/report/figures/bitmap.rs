@@ -21,7 +21,10 @@ use std::io::Write;
 
 /// Bytes of RGB a band may hold (rows of the figure's width are fitted into it; a band
 /// is at least one row).
-pub const BAND_BYTES: usize = 192 * 1024;
+pub const BAND_BYTES: usize = 32 * 1024;
+
+/// Points of a wide path filled at a time.
+const PATH_PIECE: usize = 64;
 
 /// The backend's error: it has none of its own.
 #[derive(Debug)]
@@ -165,6 +168,47 @@ impl DrawingBackend for Band<'_> {
         plotters_backend::rasterizer::draw_line(self, from, to, style)
     }
 
+    fn draw_path<S: BackendStyle, I: IntoIterator<Item = BackendCoord>>(
+        &mut self,
+        path: I,
+        style: &S,
+    ) -> Result<(), DrawingErrorKind<BandError>> {
+        if style.color().alpha == 0.0 {
+            return Ok(());
+        }
+        if style.stroke_width() <= 1 {
+            let mut begin: Option<BackendCoord> = None;
+            for end in path {
+                if let Some(b) = begin {
+                    self.draw_line(b, end, style)?;
+                }
+                begin = Some(end);
+            }
+            return Ok(());
+        }
+        // A wide path is filled as the outline of pieces of PATH_PIECE points, each
+        // starting where the last ended, so that a long curve never needs its whole
+        // outline in memory. A path of up to PATH_PIECE points is one piece, drawn as
+        // plotters draws it.
+        let mut piece: Vec<BackendCoord> = Vec::with_capacity(PATH_PIECE);
+        for p in path {
+            piece.push(p);
+            if piece.len() == PATH_PIECE {
+                let outline =
+                    plotters_backend::rasterizer::polygonize(&piece, style.stroke_width());
+                self.fill_polygon(outline, &style.color())?;
+                let last = piece[PATH_PIECE - 1];
+                piece.clear();
+                piece.push(last);
+            }
+        }
+        if piece.len() > 1 {
+            let outline = plotters_backend::rasterizer::polygonize(&piece, style.stroke_width());
+            self.fill_polygon(outline, &style.color())?;
+        }
+        Ok(())
+    }
+
     fn draw_rect<S: BackendStyle>(
         &mut self,
         upper_left: BackendCoord,
@@ -188,11 +232,7 @@ pub fn band_rows(width: u32) -> u32 {
 
 /// Draws `d` at `size` pixels as a PNG written to `out`, band by band. Returns what the
 /// first band's drawing recorded (every band records the same).
-pub fn write_png<D: Draw, W: Write>(
-    d: &D,
-    size: (u32, u32),
-    out: W,
-) -> Result<FigureMeta, String> {
+pub fn write_png<D: Draw, W: Write>(d: &D, size: (u32, u32), out: W) -> Result<FigureMeta, String> {
     let (w, h) = size;
     let rows = band_rows(w).min(h.max(1));
     let mut buf = vec![255u8; rows as usize * w as usize * 3];
@@ -202,7 +242,7 @@ pub fn write_png<D: Draw, W: Write>(
     enc.set_compression(png::Compression::Fast);
     let mut writer = enc.write_header().map_err(|e| e.to_string())?;
     let mut stream = writer
-        .stream_writer_with_size(64 * 1024)
+        .stream_writer_with_size(16 * 1024)
         .map_err(|e| e.to_string())?;
     let mut meta = FigureMeta::default();
     let mut y0 = 0;
@@ -267,15 +307,20 @@ mod tests {
                 root.draw(&PathElement::new(vec![a, b], c.stroke_width(w)))
                     .map_err(de)?;
             }
-            root.draw(&Circle::new((40, 70), 9, c.filled())).map_err(de)?;
+            root.draw(&Circle::new((40, 70), 9, c.filled()))
+                .map_err(de)?;
             root.draw(&Polygon::new(
                 vec![(110, 70), (139, 75), (120, 99), (105, 90)],
                 RGBColor(0xb8, 0x57, 0x1f).filled(),
             ))
             .map_err(de)?;
             super::super::register_font();
-            root.draw(&Text::new("kvar 0.95 lag", (8, 44), super::super::text(13.0)))
-                .map_err(de)?;
+            root.draw(&Text::new(
+                "kvar 0.95 lag",
+                (8, 44),
+                super::super::text(13.0),
+            ))
+            .map_err(de)?;
             Ok(())
         }
     }

@@ -2,8 +2,8 @@
 //! step, from the run's metrics.
 
 use super::{
-    de, legend, Plot, text, Draw, FigureError, FigureMeta, Key, BANK, GRID, INK, MAIN,
-    MEDIUM, MUTED,
+    de, legend, text, Draw, FigureError, FigureMeta, Key, Plot, BANK, GRID, INK, MAIN, MEDIUM,
+    MUTED,
 };
 use crate::report::ReportContext;
 use plotters::coord::Shift;
@@ -57,11 +57,12 @@ impl Draw for WearDraw<'_> {
             .map_err(de)?;
         for w in wear {
             let x = w.step as f64;
-            ch.draw_series(std::iter::once(Rectangle::new(
-                [(x - 0.32, 0.0), (x + 0.32, w.operations as f64)],
-                MAIN.filled(),
-            )))
-            .map_err(de)?;
+            ch.plotting_area()
+                .draw(&Rectangle::new(
+                    [(x - 0.32, 0.0), (x + 0.32, w.operations as f64)],
+                    MAIN.filled(),
+                ))
+                .map_err(de)?;
         }
         meta.add(
             "operations",
@@ -116,11 +117,12 @@ impl Draw for WearDraw<'_> {
             match y {
                 Some(y) => {
                     let h = y.min(YEARS_CAP);
-                    ch.draw_series(std::iter::once(Rectangle::new(
-                        [(x - 0.32, 0.0), (x + 0.32, h)],
-                        BANK.filled(),
-                    )))
-                    .map_err(de)?;
+                    ch.plotting_area()
+                        .draw(&Rectangle::new(
+                            [(x - 0.32, 0.0), (x + 0.32, h)],
+                            BANK.filled(),
+                        ))
+                        .map_err(de)?;
                     if *y > YEARS_CAP {
                         let (px, py) = ch.backend_coord(&(x, h));
                         root.draw(&Text::new(

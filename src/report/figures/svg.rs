@@ -10,8 +10,8 @@
 
 use plotters_backend::text_anchor::{HPos, VPos};
 use plotters_backend::{
-    BackendColor, BackendCoord, BackendStyle, BackendTextStyle, DrawingBackend,
-    DrawingErrorKind, FontStyle, FontTransform,
+    BackendColor, BackendCoord, BackendStyle, BackendTextStyle, DrawingBackend, DrawingErrorKind,
+    FontStyle, FontTransform,
 };
 use std::fmt;
 use std::io::{self, Write};
@@ -342,7 +342,9 @@ mod tests {
         let body = String::from_utf8(out).unwrap();
         let doc = format!("<svg xmlns=\"http://www.w3.org/2000/svg\">{body}</svg>");
         roxmltree::Document::parse(&doc).unwrap_or_else(|e| panic!("{e}: {doc}"));
-        assert!(body.contains("<rect x=\"1\" y=\"2\" width=\"29\" height=\"38\" fill=\"#FF0000\"/>"));
+        assert!(
+            body.contains("<rect x=\"1\" y=\"2\" width=\"29\" height=\"38\" fill=\"#FF0000\"/>")
+        );
         assert!(body.contains("points=\"0,0 5,5 9,1\""));
         assert!(body.contains("opacity=\"0.5\""));
         assert!(body.contains(">a &lt; b &amp; &quot;c&quot;</text>"));

@@ -183,36 +183,38 @@ impl Draw for TradeoffData {
         // Whiskers first, so that the points sit on top.
         for p in &pts {
             if let Some((a, b)) = p.x_spread {
-                ch.draw_series(std::iter::once(PathElement::new(
-                    vec![(a, p.y), (b, p.y)],
-                    MUTED.stroke_width(1),
-                )))
-                .map_err(de)?;
+                ch.plotting_area()
+                    .draw(&PathElement::new(
+                        vec![(a, p.y), (b, p.y)],
+                        MUTED.stroke_width(1),
+                    ))
+                    .map_err(de)?;
             }
             if let Some((a, b)) = p.y_spread {
-                ch.draw_series(std::iter::once(PathElement::new(
-                    vec![(p.x, a), (p.x, b)],
-                    MUTED.stroke_width(1),
-                )))
-                .map_err(de)?;
+                ch.plotting_area()
+                    .draw(&PathElement::new(
+                        vec![(p.x, a), (p.x, b)],
+                        MUTED.stroke_width(1),
+                    ))
+                    .map_err(de)?;
             }
         }
         let mut front: Vec<(f64, f64)> =
             pts.iter().filter(|p| p.front).map(|p| (p.x, p.y)).collect();
         front.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
-        ch.draw_series(std::iter::once(PathElement::new(
-            front.clone(),
-            MAIN.stroke_width(2),
-        )))
-        .map_err(de)?;
+        ch.plotting_area()
+            .draw(&PathElement::new(front.clone(), MAIN.stroke_width(2)))
+            .map_err(de)?;
         // Candidates off the front, then the front over them.
         for on in [false, true] {
             for p in pts.iter().filter(|p| p.front == on) {
                 let fill = if on { MAIN } else { MAIN_LIGHT };
-                ch.draw_series(std::iter::once(Circle::new((p.x, p.y), 5, fill.filled())))
+                ch.plotting_area()
+                    .draw(&Circle::new((p.x, p.y), 5, fill.filled()))
                     .map_err(de)?;
                 if !on {
-                    ch.draw_series(std::iter::once(Circle::new((p.x, p.y), 5, MUTED)))
+                    ch.plotting_area()
+                        .draw(&Circle::new((p.x, p.y), 5, MUTED))
                         .map_err(de)?;
                 }
             }
@@ -224,7 +226,11 @@ impl Draw for TradeoffData {
                     .map_err(de)?;
             }
         }
-        let finite = |i: usize| self.points.get(i).filter(|p| p.x.is_finite() && p.y.is_finite());
+        let finite = |i: usize| {
+            self.points
+                .get(i)
+                .filter(|p| p.x.is_finite() && p.y.is_finite())
+        };
         if let Some(p) = self.reference.and_then(finite) {
             let (px, py) = ch.backend_coord(&(p.x, p.y));
             root.draw(&Rectangle::new(
@@ -240,12 +246,9 @@ impl Draw for TradeoffData {
             .map_err(de)?;
         }
         if let Some(p) = self.recommended.and_then(finite) {
-            ch.draw_series(std::iter::once(Circle::new(
-                (p.x, p.y),
-                12,
-                LIMIT.stroke_width(3),
-            )))
-            .map_err(de)?;
+            ch.plotting_area()
+                .draw(&Circle::new((p.x, p.y), 12, LIMIT.stroke_width(3)))
+                .map_err(de)?;
             let (px, py) = ch.backend_coord(&(p.x, p.y));
             root.draw(&Text::new(
                 "recommended".to_string(),
@@ -418,23 +421,22 @@ impl Draw for DurationData {
             .draw()
             .map_err(de)?;
         let base = 0f64.clamp(y0, y1);
-        ch.draw_series(std::iter::once(Polygon::new(
-            self.curve
-                .iter()
-                .copied()
-                .chain([
-                    (self.curve.last().map_or(100.0, |p| p.0), base),
-                    (self.curve.first().map_or(0.0, |p| p.0), base),
-                ])
-                .collect::<Vec<_>>(),
-            MAIN_LIGHT.filled(),
-        )))
-        .map_err(de)?;
-        ch.draw_series(std::iter::once(PathElement::new(
-            self.curve.clone(),
-            MAIN.stroke_width(2),
-        )))
-        .map_err(de)?;
+        ch.plotting_area()
+            .draw(&Polygon::new(
+                self.curve
+                    .iter()
+                    .copied()
+                    .chain([
+                        (self.curve.last().map_or(100.0, |p| p.0), base),
+                        (self.curve.first().map_or(0.0, |p| p.0), base),
+                    ])
+                    .collect::<Vec<_>>(),
+                MAIN_LIGHT.filled(),
+            ))
+            .map_err(de)?;
+        ch.plotting_area()
+            .draw(&PathElement::new(self.curve.clone(), MAIN.stroke_width(2)))
+            .map_err(de)?;
 
         // The columns of levels, on the same vertical scale: the same top margin and the
         // same height of the axis area below.
@@ -464,17 +466,19 @@ impl Draw for DurationData {
             for (i, l) in self.ladders.iter().enumerate() {
                 let x = i as f64;
                 let top = l.levels.iter().copied().fold(0.0, f64::max);
-                c.draw_series(std::iter::once(PathElement::new(
-                    vec![(x + 0.5, 0.0_f64.clamp(y0, y1)), (x + 0.5, top)],
-                    MUTED.stroke_width(1),
-                )))
-                .map_err(de)?;
-                for &v in &l.levels {
-                    c.draw_series(std::iter::once(PathElement::new(
-                        vec![(x + 0.16, v), (x + 0.84, v)],
-                        BANK.stroke_width(2),
-                    )))
+                c.plotting_area()
+                    .draw(&PathElement::new(
+                        vec![(x + 0.5, 0.0_f64.clamp(y0, y1)), (x + 0.5, top)],
+                        MUTED.stroke_width(1),
+                    ))
                     .map_err(de)?;
+                for &v in &l.levels {
+                    c.plotting_area()
+                        .draw(&PathElement::new(
+                            vec![(x + 0.16, v), (x + 0.84, v)],
+                            BANK.stroke_width(2),
+                        ))
+                        .map_err(de)?;
                     meta.mark(&l.label, x, v, "level");
                 }
                 let (px, py) = c.backend_coord(&(x + 0.5, y0));
