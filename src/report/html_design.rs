@@ -143,11 +143,7 @@ fn recommended(d: &Design, h: &mut String) {
     match d.recommended() {
         Some(c) => {
             h.push_str("<div class=\"lead\">\n");
-            para(
-                h,
-                None,
-                &format!("Recommended: {}, {}.", c.label, c.description),
-            );
+            para(h, None, &format!("{}: {}.", c.label, c.description));
             para(h, None, &c.reason);
             para(h, None, &c.light_load_sentence());
             h.push_str("</div>\n");
@@ -224,7 +220,7 @@ fn need(d: &Design, page: &mut Page<'_>) -> Result<(), ReportError> {
     let rows = need_rows(&d.need);
     let items: Vec<(&str, String)> = rows.iter().map(|r| (r[0].as_str(), r[1].clone())).collect();
     pairs(h, &items);
-    para(h, Some("note"), NEED_NOTE);
+    para(h, Some("aside"), NEED_NOTE);
     end_section(h);
     Ok(())
 }

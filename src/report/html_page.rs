@@ -59,13 +59,13 @@ figure { margin: 18px 0 26px; break-inside: avoid; page-break-inside: avoid; }
 figure svg { width: 100%; height: auto; display: block; border: 1px solid var(--rule); }
 figcaption { color: var(--muted); font-size: 13.5px; margin-top: 6px; }
 .files { color: var(--muted); font-size: 12.5px; }
-.note { color: var(--muted); font-size: 13.5px; }
+.aside { color: var(--muted); font-size: 13.5px; }
 .scroll { overflow-x: auto; }
 table { border-collapse: collapse; margin: 8px 0 16px; font-size: 13.5px; }
 th, td { border-bottom: 1px solid var(--rule); padding: 4px 10px 4px 0; text-align: right;
   vertical-align: top; }
 th { border-bottom: 2px solid var(--ink); font-weight: 600; }
-th.l, td.l { text-align: left; }
+th.l, td.l { text-align: left; padding-left: 6px; }
 tr.mark td { font-weight: 600; }
 dl.kv { display: grid; grid-template-columns: 230px 1fr; gap: 3px 14px; margin: 8px 0 14px; }
 dl.kv dt { color: var(--muted); }
@@ -241,7 +241,16 @@ pub fn table_marked(
     };
     h.push_str("<div class=\"scroll\"><table>\n<thead><tr>");
     for (i, c) in headers.iter().enumerate() {
-        let _ = write!(h, "<th{}>{}</th>", cls(i), escape(c));
+        // A dotted key may break after each dot, underscore or slash.
+        let _ = write!(
+            h,
+            "<th{}>{}</th>",
+            cls(i),
+            escape(c)
+                .replace('.', ".\u{200b}")
+                .replace('_', "_\u{200b}")
+                .replace('/', "/\u{200b}")
+        );
     }
     h.push_str("</tr></thead>\n<tbody>\n");
     for (n, r) in rows.iter().enumerate() {
@@ -251,11 +260,28 @@ pub fn table_marked(
             h.push_str("<tr>");
         }
         for (i, c) in r.iter().enumerate() {
-            let _ = write!(h, "<td{}>{}</td>", cls(i), escape(c));
+            let _ = write!(h, "<td{}>{}</td>", cls(i), escape(&bind_units(c)));
         }
         h.push_str("</tr>\n");
     }
     h.push_str("</tbody>\n</table></div>\n");
+}
+
+/// The text with each space between a digit and a word or `%` made a no-break space, so
+/// that a number stays on one line with its unit or quadrant (`0.95 lag`, `12 %`).
+pub fn bind_units(text: &str) -> String {
+    let chars: Vec<char> = text.chars().collect();
+    let mut out = String::with_capacity(text.len() + 8);
+    for (i, &c) in chars.iter().enumerate() {
+        let joins = c == ' '
+            && i > 0
+            && chars[i - 1].is_ascii_digit()
+            && chars
+                .get(i + 1)
+                .is_some_and(|n| n.is_alphabetic() || *n == '%');
+        out.push(if joins { '\u{a0}' } else { c });
+    }
+    out
 }
 
 /// Appends a list of label and value pairs.
@@ -288,16 +314,24 @@ mod tests {
     use super::*;
 
     #[test]
+    fn numbers_keep_their_units() {
+        assert_eq!(
+            bind_units("0.95 lag at 12 % and 3 steps, 40 5"),
+            "0.95\u{a0}lag at 12\u{a0}% and 3\u{a0}steps, 40 5"
+        );
+    }
+
+    #[test]
     fn blocks_escape_every_text() {
         let mut h = String::new();
         table(&mut h, &["a<b"], "l", &[vec!["x & \"y\"".to_string()]]);
         pairs(&mut h, &[("k>", "v'".to_string())]);
         caution(&mut h, &["<careful>"]);
-        para(&mut h, Some("note"), "1 < 2");
+        para(&mut h, Some("aside"), "1 < 2");
         assert!(h.contains("<th class=\"l\">a&lt;b</th>"));
         assert!(h.contains("<td class=\"l\">x &amp; &quot;y&quot;</td>"));
         assert!(h.contains("<dt>k&gt;</dt><dd>v&#39;</dd>"));
         assert!(h.contains("<p>&lt;careful&gt;</p>"));
-        assert!(h.contains("<p class=\"note\">1 &lt; 2</p>"));
+        assert!(h.contains("<p class=\"aside\">1 &lt; 2</p>"));
     }
 }

@@ -265,7 +265,7 @@ fn front(o: &Outcome, h: &mut String) {
         .front
         .iter()
         .enumerate()
-        .map(|(rank, &s)| front_row(o, &o.settings[s], rank + 1, p.seeds))
+        .map(|(rank, &s)| front_row(o, &o.settings[s], rank + 1, 1))
         .collect();
     let marked: Vec<usize> = o
         .front
@@ -274,17 +274,18 @@ fn front(o: &Outcome, h: &mut String) {
         .into_iter()
         .collect();
     table_marked(h, &hdr, &align, &rows, &marked);
-    para(h, Some("note"), COLUMNS_NOTE);
+    para(h, Some("aside"), COLUMNS_NOTE);
     if p.seeds > 1 {
         para(
             h,
-            Some("note"),
-            "Figures are medians over the seeds, with the lowest and highest in brackets.",
+            Some("aside"),
+            "Figures are medians over the seeds; their lowest and highest are under \
+             Spread over seeds below.",
         );
     }
     if !o.settings[0].on_front {
         h.push_str("<h3>The scenario's own settings (setting 0), not on the front</h3>\n");
-        let mut r = front_row(o, &o.settings[0], 0, p.seeds);
+        let mut r = front_row(o, &o.settings[0], 0, 1);
         r[0] = "-".into();
         table(h, &hdr, &align, &[r]);
     }
@@ -308,7 +309,6 @@ fn ranked(o: &Outcome) -> Vec<usize> {
 }
 
 fn all_settings(o: &Outcome, h: &mut String) {
-    let p = &o.provenance;
     section(h, "settings", "All settings");
     let n = o.settings.len();
     let shown: Vec<usize> = if n <= MAX_SETTINGS_ROWS {
@@ -348,7 +348,7 @@ fn all_settings(o: &Outcome, h: &mut String) {
                 marked.push(i);
             }
             let rank = o.front.iter().position(|&f| f == s);
-            let mut r = front_row(o, &o.settings[s], rank.map_or(0, |k| k + 1), p.seeds);
+            let mut r = front_row(o, &o.settings[s], rank.map_or(0, |k| k + 1), 1);
             if rank.is_none() {
                 r[0] = String::new();
             }
@@ -395,7 +395,7 @@ fn varied(o: &Outcome, h: &mut String) {
         pairs(h, &items);
         para(
             h,
-            Some("note"),
+            Some("aside"),
             "The settings are every combination of these values, the first key changing \
              slowest; setting 0 is the scenario as written.",
         );
@@ -514,7 +514,14 @@ fn seeds(o: &Outcome, h: &mut String) {
             let st = &o.settings[s];
             vec![
                 s.to_string(),
-                trio(st.billed_pf, &|x| num(x, 3)),
+                trio(st.billed_pf, &|x| {
+                    let t = num(x, 3);
+                    if t == "1.000" {
+                        t
+                    } else {
+                        format!("{t} {}", st.billed_pf_quadrant.word())
+                    }
+                }),
                 trio(st.share_under_target, &pct),
                 trio(st.operations_per_year, &approx),
                 trio(st.years_to_first_life, &life),

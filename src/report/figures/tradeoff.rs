@@ -104,7 +104,9 @@ pub struct DurationData {
 /// Most points a duration curve is best drawn with (see [`duration_points`]).
 pub const DURATION_POINTS: usize = 1000;
 
-/// A padded range of the finite values (0 to 1 when there are none).
+/// A padded range of the finite values (0 to 1 when there are none). When all values
+/// are (nearly) equal, the range opens to 5 % of their size (at least 1) on each side, so
+/// that the ticks stay readable.
 fn range(values: impl Iterator<Item = f64>) -> (f64, f64) {
     let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
     for v in values.filter(|v| v.is_finite()) {
@@ -114,14 +116,19 @@ fn range(values: impl Iterator<Item = f64>) -> (f64, f64) {
     if !lo.is_finite() {
         return (0.0, 1.0);
     }
-    let span = (hi - lo).abs().max(1e-6 * hi.abs().max(1.0));
+    let size = lo.abs().max(hi.abs());
+    if hi - lo <= 1e-9 * size.max(1.0) {
+        let pad = if size > 0.0 { 0.05 * size } else { 1.0 };
+        return (lo - pad, hi + pad);
+    }
+    let span = hi - lo;
     (lo - 0.08 * span, hi + 0.08 * span)
 }
 
-/// A tick label with as many decimals as a range of `span` needs.
+/// A tick label with the decimals that ticks about an eighth of `span` apart need.
 fn tick(v: f64, span: f64) -> String {
     let decimals = if span > 0.0 && span.is_finite() {
-        (2.0 - span.log10().floor()).clamp(0.0, 4.0) as usize
+        (-(span / 8.0).log10().floor()).clamp(0.0, 4.0) as usize
     } else {
         2
     };
@@ -334,6 +341,9 @@ const LADDER_W: u32 = 92;
 /// Pixel height of one row of the key under the figure.
 const KEY_ROW: u32 = 22;
 
+/// Pixels between the axis words and the key under the figure.
+const KEY_GAP: u32 = 16;
+
 /// The key rows under a duration curve: `#1 label` entries wrapped to `width` pixels.
 fn key_rows(labels: &[String], width: i32) -> Vec<Vec<String>> {
     // About 7 pixels a character at 13 px (DejaVu Sans averages a little over half an em).
@@ -366,7 +376,7 @@ impl Draw for DurationData {
         let key_h = if self.ladders.is_empty() {
             0
         } else {
-            KEY_ROW * rows.len() as u32 + 8
+            KEY_ROW * rows.len() as u32 + KEY_GAP
         };
         let (y0, y1) = range(
             self.curve
@@ -520,7 +530,7 @@ impl Draw for DurationData {
         if !self.ladders.is_empty() {
             let st = text(13.0);
             for (r, row) in rows.iter().enumerate() {
-                let y = (h - key_h + 4 + KEY_ROW * r as u32) as i32;
+                let y = (h - key_h + KEY_GAP - 6 + KEY_ROW * r as u32) as i32;
                 let mut x = 100;
                 for entry in row {
                     root.draw(&Text::new(entry.clone(), (x, y), st.clone()))
@@ -558,7 +568,7 @@ pub fn duration_curve(data: &DurationData) -> Result<Plot<'_>, FigureError> {
     let extra = if data.ladders.is_empty() {
         0
     } else {
-        KEY_ROW * rows.len() as u32 + 8
+        KEY_ROW * rows.len() as u32 + KEY_GAP
     };
     Ok(Plot::new(
         data,
