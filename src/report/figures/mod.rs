@@ -12,11 +12,16 @@
 //!   trade-off scatter with its front and a recommendation, and a duration curve with
 //!   reachable levels.
 //!
+//! A figure is a [`Plot`]: its words and a [`Drawing`], drawn only when written. The SVG
+//! is written element by element as it is drawn ([`svg`]), to the figure's file and the
+//! page at once; the PNG band by band ([`bitmap`]); so no whole image is ever held.
+//!
 //! Text is measured and, in the PNG, drawn with DejaVu Sans embedded in the binary
 //! (`assets/fonts/`), so no system font is needed; the SVG names the generic
-//! `sans-serif` family. Every SVG carries a `<metadata>` element listing what each figure
-//! plotted (series name, unit, lowest and highest value drawn, number of points), so a
-//! test or a reader can check a figure against the JSON report.
+//! `sans-serif` family. Every SVG file ends with a `<metadata>` element listing what the
+//! figure plotted (series name, unit, lowest and highest value drawn, number of points,
+//! and named points such as a sweep's settings), so a test or a reader can check a
+//! figure against the JSON report.
 //!
 //! The palette is chosen to stay apart when printed in grey: the series differ in
 //! lightness and in line pattern, not in hue alone.
@@ -336,14 +341,17 @@ impl<'a> Plot<'a> {
         let mut inline = out.inline;
         if let Some(page) = &mut inline {
             // The HTML parser knows SVG: no namespace; the page sets the width.
-            write!(
+            writeln!(
                 page,
-                "<svg role=\"img\" aria-label=\"{}\" viewBox=\"0 0 {w} {h}\">\n",
+                "<svg role=\"img\" aria-label=\"{}\" viewBox=\"0 0 {w} {h}\">",
                 escape(&self.title)
             )
             .map_err(err)?;
         }
         let meta = {
+            // `as_deref_mut` would keep the page's longer trait-object lifetime, which the
+            // borrow of `out.svg` beside it cannot share; the reborrow shortens it.
+            #[allow(clippy::option_as_ref_deref)]
             let mut tee = svg::Tee {
                 a: &mut *out.svg,
                 b: inline.as_mut().map(|p| &mut **p),

@@ -167,6 +167,7 @@ impl Draw for TradeoffData {
         legend(root, 100, 14, &keys)?;
         let mut ch = ChartBuilder::on(root)
             .margin_top(30)
+            .margin_left(12)
             .margin_right(30)
             .x_label_area_size(46)
             .y_label_area_size(92)
@@ -410,6 +411,7 @@ impl Draw for DurationData {
         legend(root, 100, 14, &keys)?;
         let mut ch = ChartBuilder::on(&left)
             .margin_top(34)
+            .margin_left(12)
             .margin_right(16)
             .x_label_area_size(46)
             .y_label_area_size(92)
