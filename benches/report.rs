@@ -1,11 +1,15 @@
 //! Report benchmark: a one-year run at a 1 s step (31,536,000 intervals) on the engine
-//! bench's 12-step site and generator, observed by the bounded trace; then the figures of
-//! `simulate --report` drawn (SVG and PNG) and the HTML written to memory.
+//! bench's 12-step site and generator, observed by the bounded trace; then the report
+//! folder of `simulate --report` written to a temporary folder (six figures as SVG and
+//! PNG, drawn one at a time, and `report.html`).
 //!
 //! Prints the run's time, the trace's heap bytes against the run's peak resident memory,
-//! the time to draw the figures (target: at most 2 s) and the peak resident memory after
-//! drawing them (target: the report adds at most 10 % to the run's). Run with
-//! `cargo bench --bench report`; set `BANKSTEP_BENCH_DAYS` to shorten it.
+//! the time to write the report (target: at most 2 s) and the peak resident memory
+//! before and after writing it (target: the report adds at most 10 % to the assessed
+//! run's peak). Run with `cargo bench --bench report`; set `BANKSTEP_BENCH_DAYS` to
+//! shorten it. `BANKSTEP_BENCH_PROBE=1` first draws each figure alone and prints the
+//! memory after it (peak, anonymous and file-backed), and `BANKSTEP_BENCH_ONLY=N` with
+//! it draws figure N alone and stops: where the report's memory goes.
 
 use bankstep::report::html;
 use bankstep::report::ReportContext;
@@ -39,6 +43,24 @@ fn peak_rss_kb() -> Option<u64> {
         .and_then(|v| v.parse().ok())
 }
 
+/// Peak, anonymous and file-backed resident memory of this process, kB (Linux).
+fn mem() -> String {
+    let s = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
+    let get = |k: &str| {
+        s.lines()
+            .find(|l| l.starts_with(k))
+            .and_then(|l| l.split_whitespace().nth(1))
+            .unwrap_or("?")
+            .to_string()
+    };
+    format!(
+        "peak {} kB (now: heap and other anonymous {} kB, file-backed {} kB)",
+        get("VmHWM:"),
+        get("RssAnon:"),
+        get("RssFile:")
+    )
+}
+
 fn main() {
     let days: f64 = std::env::var("BANKSTEP_BENCH_DAYS")
         .ok()
@@ -60,15 +82,47 @@ fn main() {
     let assessment = bankstep::analysis::assess(&study, &result);
     let rss_assessed = peak_rss_kb();
     let ctx = ReportContext::new(&study, &result, &assessment);
+    if std::env::var("BANKSTEP_BENCH_PROBE").is_ok() {
+        println!("  before the report      {}", mem());
+    }
 
+    let dir = std::env::temp_dir().join(format!("bankstep-report-bench-{}", std::process::id()));
+    if std::env::var("BANKSTEP_BENCH_PROBE").is_ok() {
+        // Each figure alone, with the memory after it: where the report's peak comes from.
+        std::fs::create_dir_all(&dir).expect("probe folder");
+        let mut i = 0;
+        let only: Option<usize> = std::env::var("BANKSTEP_BENCH_ONLY")
+            .ok()
+            .and_then(|v| v.parse().ok());
+        while i < html::SIMULATE_FIGURES.len() {
+            if only.is_some_and(|o| o != i) {
+                i += 1;
+                continue;
+            }
+            let plot = html::simulate_figure(&ctx, &trace, i)
+                .expect("a figure of each index")
+                .expect("figure");
+            let mut sink = std::io::sink();
+            plot.write_files(&dir, Some(&mut sink))
+                .expect("figure files");
+            println!("  after {:<24} {}", plot.name, mem());
+            i += 1;
+        }
+    }
+    if std::env::var("BANKSTEP_BENCH_ONLY").is_ok() {
+        return;
+    }
     let t = Instant::now();
-    let figs = html::simulate_figures(&ctx, &trace).expect("figures");
-    let figures_s = t.elapsed().as_secs_f64();
-    let t = Instant::now();
-    let mut out = Vec::new();
-    html::write_html(&ctx, &trace, &figs, &mut out).expect("html");
-    let html_s = t.elapsed().as_secs_f64();
+    let files = html::write_report_dir(&ctx, &trace, &dir).expect("report folder");
+    let report_s = t.elapsed().as_secs_f64();
     let rss_report = peak_rss_kb();
+    let bytes_written: u64 = files
+        .iter()
+        .filter_map(|f| std::fs::metadata(f).ok())
+        .map(|m| m.len())
+        .sum();
+    let html_bytes = std::fs::metadata(dir.join(html::HTML_FILE)).map_or(0, |m| m.len());
+    let _ = std::fs::remove_dir_all(&dir);
 
     let bytes = trace.heap_bytes();
     let cap = Trace::capacity_bytes(TraceSettings::default(), study.scenario.steps.len());
@@ -92,9 +146,9 @@ fn main() {
         );
     }
     println!(
-        "  figures (6, SVG + PNG): {figures_s:.3} s (target at most 2 s); HTML {html_s:.3} s, {} \
-         bytes",
-        out.len()
+        "  report folder:        {report_s:.3} s for 6 figures (SVG + PNG) and report.html \
+         (target at most 2 s); {} files, {bytes_written} bytes, report.html {html_bytes} bytes",
+        files.len()
     );
     if let (Some(a), Some(b)) = (rss_assessed, rss_report) {
         println!(

@@ -19,10 +19,10 @@ use bankstep::error::RunError;
 use bankstep::harmonics::scan::ScanGrid;
 use bankstep::harmonics::survey::{self, Selection, Survey};
 use bankstep::report::design as design_report;
-use bankstep::report::html;
 use bankstep::report::resonance::{self as resonance_report, ResonanceContext};
 use bankstep::report::sweep as sweep_report;
 use bankstep::report::wear as wear_report;
+use bankstep::report::{html, html_design, html_sweep};
 use bankstep::report::{
     JsonReport, ReportContext, ReportError, ReportWriter, Summary, TimeseriesWriter,
 };
@@ -195,9 +195,15 @@ exactly the outputs of a single run:
   done; wait
   bankstep merge shard*.json --csv sweep.csv --json sweep.json
 
+Report (--report DIR): report.html, one self-contained page (no script, no network;
+print it to PDF from a browser) with the recommendation first, the trade-off figure (the
+front joined, the recommendation ringed, the scenario's own settings boxed), the front
+and settings tables, the keys varied, cost and seeds where they apply and the
+provenance; and the figure as sweep-tradeoff.svg and .png.
+
 Examples:
   bankstep sweep site.toml --vary controller.dead_band_kvar=10:60:10 \\
-      --vary controller.ordering=sequential,rotating,best-fit
+      --vary controller.ordering=sequential,rotating,best-fit --report sweep-report
   bankstep sweep site.toml --vary steps=6x50,3x100,25+5x50 --front pf-life --csv s.csv
   bankstep sweep site.toml --grid grid.toml --seeds 5 --json sweep.json --threads 2
 
@@ -210,7 +216,8 @@ const MERGE_AFTER_HELP: &str = concat!(
     "Each shard file is the --json output of `bankstep sweep ... --shard K/N`. The files
 must come from the same sweep (same tool version, scenario, load profile, variations,
 seeds and front: their fingerprints agree) and hold every run exactly once; the merged
-summary, CSV and JSON are then byte for byte those of the sweep run in one go.
+summary, CSV, JSON and report folder (--report DIR) are then byte for byte those of the
+sweep run in one go.
 
 Example:
   bankstep merge shard1.json shard2.json shard3.json shard4.json --csv sweep.csv
@@ -250,13 +257,17 @@ const DESIGN_AFTER_HELP: &str = concat!(
 
 Outputs: the report on standard output; --json FILE the whole design (with the duration
 curve `need.curve` and each candidate's reachable kvar levels `candidates[i].reachable_kvar`
-for figures); --csv FILE one row per candidate. `-` writes either to standard output
-instead of the report.
+for figures); --csv FILE one row per candidate; --report DIR a folder with report.html
+(the recommended layout and its reasons, the kvar duration curve with the levels the
+best layouts reach, the ranked candidates, cautions, provenance) and the figure as
+kvar-duration.svg and .png. `-` writes the JSON or CSV to standard output instead of
+the report.
 
 Examples:
   bankstep design site.toml
   bankstep design site.toml --coverage 0.9 --sizes 25,50 --max-steps 6 --detuning 0,7,14
   bankstep design site.toml --json design.json --csv design.csv --threads 2
+  bankstep design site.toml --report design-report
 
 ",
     caution!(),
@@ -426,8 +437,20 @@ struct SweepArgs {
 
     /// Run only shard K of N and write its rows with a fingerprint to --json (then join
     /// the shards with `bankstep merge`).
-    #[arg(long, value_name = "K/N", requires = "json", conflicts_with = "csv")]
+    #[arg(
+        long,
+        value_name = "K/N",
+        requires = "json",
+        conflicts_with_all = ["csv", "report"]
+    )]
     shard: Option<String>,
+
+    /// Also write a report folder DIR (created if missing): `report.html`, one
+    /// self-contained page with the recommendation, the trade-off figure, the front, every
+    /// setting, the keys varied, cost and seeds where they apply and the provenance, and
+    /// the figure as SVG and PNG.
+    #[arg(long, value_name = "DIR")]
+    report: Option<PathBuf>,
 
     /// Write one row per run (CSV) to FILE (`-`: standard output, instead of the summary).
     #[arg(long, value_name = "FILE")]
@@ -457,6 +480,11 @@ struct MergeArgs {
     /// Write the merged JSON to FILE (`-`: standard output, instead of the summary).
     #[arg(long, value_name = "FILE")]
     json: Option<PathBuf>,
+
+    /// Also write the report folder DIR, the same as `sweep --report` writes for the sweep
+    /// run in one go.
+    #[arg(long, value_name = "DIR")]
+    report: Option<PathBuf>,
 
     /// No notes on standard error.
     #[arg(long, short)]
@@ -527,6 +555,13 @@ struct DesignArgs {
     /// report).
     #[arg(long, value_name = "FILE")]
     csv: Option<PathBuf>,
+
+    /// Also write a report folder DIR (created if missing): `report.html`, one
+    /// self-contained page with the recommended layout and its reasons, the kvar duration
+    /// curve with the levels of the best layouts, the ranked candidates, the cautions and
+    /// the provenance, and the figure as SVG and PNG.
+    #[arg(long, value_name = "DIR")]
+    report: Option<PathBuf>,
 
     /// No progress bar and no notes on standard error.
     #[arg(long, short)]
@@ -797,6 +832,18 @@ fn styled_bar(len: u64, template: &str) -> ProgressBar {
     bar
 }
 
+/// Says on standard error where a report folder was written (unless quiet).
+fn report_note(files: &[PathBuf], dir: &Path, quiet: bool) {
+    if !quiet {
+        eprintln!(
+            "report: {} and {} figure files written to {}",
+            html::HTML_FILE,
+            files.len().saturating_sub(1),
+            dir.display()
+        );
+    }
+}
+
 /// Where the JSON report goes.
 fn is_stdout(path: &Path) -> bool {
     path.as_os_str() == "-"
@@ -865,14 +912,7 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
                 format!("cannot write the report in {}", dir.display())
             })
         })?;
-        if !args.quiet {
-            eprintln!(
-                "report: {} and {} figure files written to {}",
-                html::HTML_FILE,
-                files.len().saturating_sub(1),
-                dir.display()
-            );
-        }
+        report_note(&files, dir, args.quiet);
     }
     let mut json_to_stdout = false;
     if let Some(path) = &args.json {
@@ -1131,17 +1171,28 @@ fn sweep(args: &SweepArgs) -> Result<(), Failure> {
         &outcome,
         args.csv.as_deref(),
         args.json.as_deref(),
+        args.report.as_deref(),
         args.quiet,
     )
 }
 
-/// Writes the summary (unless an output goes to standard output), the CSV and the JSON.
+/// Writes the summary (unless an output goes to standard output), the CSV, the JSON and
+/// the report folder.
 fn write_sweep_outputs(
     o: &Outcome,
     csv: Option<&Path>,
     json: Option<&Path>,
+    report: Option<&Path>,
     quiet: bool,
 ) -> Result<(), Failure> {
+    if let Some(dir) = report {
+        let files = html_sweep::write_report_dir(o, dir).map_err(|e| {
+            Failure::report(e, || {
+                format!("cannot write the report in {}", dir.display())
+            })
+        })?;
+        report_note(&files, dir, quiet);
+    }
     let mut to_stdout = false;
     if let Some(path) = csv {
         to_stdout |= is_stdout(path);
@@ -1182,6 +1233,7 @@ fn merge(args: &MergeArgs) -> Result<(), Failure> {
         &outcome,
         args.csv.as_deref(),
         args.json.as_deref(),
+        args.report.as_deref(),
         args.quiet,
     )
 }
@@ -1243,6 +1295,14 @@ fn design(args: &DesignArgs) -> Result<(), Failure> {
             error: anyhow::Error::new(e).context(format!("cannot design a bank for {file}")),
         }
     })?;
+    if let Some(dir) = &args.report {
+        let files = html_design::write_report_dir(&d, dir).map_err(|e| {
+            Failure::report(e, || {
+                format!("cannot write the report in {}", dir.display())
+            })
+        })?;
+        report_note(&files, dir, args.quiet);
+    }
     let mut to_stdout = false;
     if let Some(path) = &args.json {
         to_stdout |= is_stdout(path);

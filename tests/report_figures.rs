@@ -310,7 +310,9 @@ fn report_folder_that_cannot_be_made_is_an_error_naming_it() {
 /// the page is not blank and shows every figure. Each figure sits in a 1-pixel frame of
 /// the rule colour (#c9d1d7); its left edge is a vertical run of that colour at least
 /// 200 pixels tall, which nothing else on the page draws. Run with
-/// `BANKSTEP_SCREENSHOT=shot.png cargo test --test report_figures -- --ignored`.
+/// `BANKSTEP_SCREENSHOT=shot.png cargo test --test report_figures -- --ignored`; for a
+/// page with another number of figures (the sweep and design pages hold one each) set
+/// `BANKSTEP_SCREENSHOT_FIGURES`.
 #[test]
 #[ignore]
 fn screenshot_shows_every_figure() {

@@ -32,9 +32,62 @@ pub fn write_text(d: &Design, out: &mut dyn Write) -> Result<(), ReportError> {
     t.push_str(&"=".repeat(title.chars().count()));
     t.push_str("\n\n");
 
-    let n = &d.need;
     t.push_str("What the load needs\n");
-    let rows = vec![
+    let rows = need_rows(&d.need);
+    let width = rows.iter().map(|r| r[0].chars().count()).max().unwrap_or(0);
+    for r in &rows {
+        let pad = " ".repeat(width - r[0].chars().count() + 2);
+        wrap_hanging(
+            &mut t,
+            &format!("  {}{pad}", r[0]),
+            &" ".repeat(width + 4),
+            &r[1],
+        );
+    }
+    t.push('\n');
+    wrap_plain(&mut t, "  ", NEED_NOTE);
+    t.push('\n');
+
+    t.push_str("Candidates\n");
+    wrap_plain(&mut t, "  ", &candidates_sentence(d));
+    t.push('\n');
+    if d.candidates.is_empty() {
+        t.push_str("  No candidate to rank.\n\n");
+    } else {
+        let rows: Vec<Vec<String>> = d.candidates.iter().map(row).collect();
+        table(&mut t, "  ", &CANDIDATE_HEADERS, CANDIDATE_ALIGN, &rows);
+        t.push('\n');
+        t.push_str("Why each stands where it does\n");
+        for c in &d.candidates {
+            t.push_str(&format!("  {:>2}. {}\n", c.rank, c.label));
+            wrap_plain(&mut t, "      ", &format!("{}.", c.description));
+            wrap_plain(&mut t, "      ", &c.reason);
+            wrap_plain(&mut t, "      ", &c.light_load_sentence());
+            wrap_plain(
+                &mut t,
+                "      ",
+                &format!("Best settings: {}.", c.settings.join(", ")),
+            );
+        }
+        t.push('\n');
+    }
+    if !d.notes.is_empty() {
+        t.push_str("Notes\n");
+        for note in &d.notes {
+            wrap_plain(&mut t, "  ", note);
+        }
+        t.push('\n');
+    }
+    wrap_plain(&mut t, "  ", HARDWARE_CAUTION);
+    wrap_plain(&mut t, "  ", DESIGN_CAUTION);
+    out.write_all(t.as_bytes())?;
+    out.flush()?;
+    Ok(())
+}
+
+/// What the load needs as label and value pairs (the text report and the HTML report).
+pub(crate) fn need_rows(n: &crate::design::KvarNeed) -> Vec<Vec<String>> {
+    vec![
         vec!["Target".into(), n.target.clone()],
         vec![
             "Recommended total".into(),
@@ -87,28 +140,16 @@ pub fn write_text(d: &Design, out: &mut dyn Write) -> Result<(), ReportError> {
                 }
             ),
         ],
-    ];
-    let width = rows.iter().map(|r| r[0].chars().count()).max().unwrap_or(0);
-    for r in &rows {
-        let pad = " ".repeat(width - r[0].chars().count() + 2);
-        wrap_hanging(
-            &mut t,
-            &format!("  {}{pad}", r[0]),
-            &" ".repeat(width + 4),
-            &r[1],
-        );
-    }
-    t.push('\n');
-    wrap_plain(
-        &mut t,
-        "  ",
-        "The need at an instant is Q − P·tan φ_target of the three-phase load (the kvar that \
-         brings it to the target), zero while the site exports or is idle, while the load \
-         already leads, or while it is at or past the target.",
-    );
-    t.push('\n');
+    ]
+}
 
-    t.push_str("Candidates\n");
+/// The sentence that says how the need is worked out.
+pub(crate) const NEED_NOTE: &str = "The need at an instant is Q − P·tan φ_target of the \
+three-phase load (the kvar that brings it to the target), zero while the site exports or is \
+idle, while the load already leads, or while it is at or past the target.";
+
+/// The sentence on the candidates tried.
+pub(crate) fn candidates_sentence(d: &Design) -> String {
     let detuning: Vec<String> = d
         .options
         .detuning
@@ -121,74 +162,37 @@ pub fn write_text(d: &Design, out: &mut dyn Write) -> Result<(), ReportError> {
             }
         })
         .collect();
-    wrap_plain(
-        &mut t,
-        "  ",
-        &format!(
-            "Layouts of {} kvar steps, 2 to {} steps, with an effective total from {} to {} \
-             kvar (100 to 130 % of the recommended total), {}; each run with {} controller \
-             settings (ordering, dead band, switching delay) and judged at its best. {} \
-             simulation runs. Overcorrected means leading by more than {} kvar.",
-            sizes_text(&d.options.sizes_kvar),
-            d.options.max_steps,
-            num(d.band_kvar.0, 1),
-            num(d.band_kvar.1, 1),
-            crate::text::join_and(&detuning),
-            d.settings_tried.len(),
-            crate::text::count(d.runs as u64),
-            num(d.overcorrection_threshold_kvar, 1)
-        ),
-    );
-    t.push('\n');
-    if d.candidates.is_empty() {
-        t.push_str("  No candidate to rank.\n\n");
-    } else {
-        let rows: Vec<Vec<String>> = d.candidates.iter().map(row).collect();
-        table(
-            &mut t,
-            "  ",
-            &[
-                "#",
-                "layout",
-                "kvar",
-                "steps",
-                "target",
-                "billed PF",
-                "ops/year",
-                "overcorrected",
-                "resonance",
-            ],
-            "rllrllrrl",
-            &rows,
-        );
-        t.push('\n');
-        t.push_str("Why each stands where it does\n");
-        for c in &d.candidates {
-            t.push_str(&format!("  {:>2}. {}\n", c.rank, c.label));
-            wrap_plain(&mut t, "      ", &format!("{}.", c.description));
-            wrap_plain(&mut t, "      ", &c.reason);
-            wrap_plain(&mut t, "      ", &c.light_load_sentence());
-            wrap_plain(
-                &mut t,
-                "      ",
-                &format!("Best settings: {}.", c.settings.join(", ")),
-            );
-        }
-        t.push('\n');
-    }
-    if !d.notes.is_empty() {
-        t.push_str("Notes\n");
-        for note in &d.notes {
-            wrap_plain(&mut t, "  ", note);
-        }
-        t.push('\n');
-    }
-    wrap_plain(&mut t, "  ", HARDWARE_CAUTION);
-    wrap_plain(&mut t, "  ", DESIGN_CAUTION);
-    out.write_all(t.as_bytes())?;
-    out.flush()?;
-    Ok(())
+    format!(
+        "Layouts of {} kvar steps, 2 to {} steps, with an effective total from {} to {} \
+         kvar (100 to 130 % of the recommended total), {}; each run with {} controller \
+         settings (ordering, dead band, switching delay) and judged at its best. {} \
+         simulation runs. Overcorrected means leading by more than {} kvar.",
+        sizes_text(&d.options.sizes_kvar),
+        d.options.max_steps,
+        num(d.band_kvar.0, 1),
+        num(d.band_kvar.1, 1),
+        crate::text::join_and(&detuning),
+        d.settings_tried.len(),
+        crate::text::count(d.runs as u64),
+        num(d.overcorrection_threshold_kvar, 1)
+    )
 }
+
+/// The headers of the candidate table and their alignment.
+pub(crate) const CANDIDATE_HEADERS: [&str; 9] = [
+    "#",
+    "layout",
+    "kvar",
+    "steps",
+    "target",
+    "billed PF",
+    "ops/year",
+    "overcorrected",
+    "resonance",
+];
+
+/// The alignment of [`CANDIDATE_HEADERS`].
+pub(crate) const CANDIDATE_ALIGN: &str = "rllrllrrl";
 
 /// Wraps `text` to 90 columns after `first` on the first line and `rest` on the others.
 fn wrap_hanging(t: &mut String, first: &str, rest: &str, text: &str) {
@@ -221,7 +225,7 @@ fn sizes_text(sizes: &[f64]) -> String {
 }
 
 /// One row of the candidate table.
-fn row(c: &Candidate) -> Vec<String> {
+pub(crate) fn row(c: &Candidate) -> Vec<String> {
     let resonance = if c.resonance.over_limit {
         format!(
             "over a limit {} h/year",

@@ -1,17 +1,17 @@
-//! The HTML report of `simulate --report DIR`: one self-contained `report.html` (figures
-//! inline as SVG, styles inline, no script, no network, no reference to any other file)
-//! beside the figures as SVG and PNG files.
+//! The HTML report of `simulate --report DIR`: one self-contained `report.html` beside
+//! the figures as SVG and PNG files, on the shared page of [`super::html_page`].
 //!
 //! Order: the findings first (the statements of the summary, from the assessment), the
 //! safety caution, the figures, the settings used, the tables (PF and energy, switching,
-//! overcorrection, resonance, wear) and the provenance. Every piece of text is escaped.
-//! A print style sheet lays it out for A4 paper (print to PDF from any browser).
+//! overcorrection, resonance, wear) and the provenance. The figures are drawn one at a
+//! time, each written to its files and into the page before the next is drawn.
 
 use crate::analysis::Severity;
 use crate::controller::Measurement;
 use crate::metrics::OvercorrectionCause;
 use crate::pf::Quadrant;
-use crate::report::figures::{self, escape, Figure, FigureError};
+use crate::report::figures::{self, escape, FigureError, Plot};
+use crate::report::html_page::{self, caution, pairs, table, Page};
 use crate::report::{
     approx, count, duration, harmonic_name, num, pct, steps_label, years_text, Provenance,
     ReportContext, ReportError, HARDWARE_CAUTION,
@@ -19,219 +19,88 @@ use crate::report::{
 use crate::text::{pct_vs_limit, pf_vs};
 use crate::trace::Trace;
 use std::fmt::Write as _;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 
-/// Name of the HTML file in the report folder.
-pub const HTML_FILE: &str = "report.html";
+pub use crate::report::html_page::HTML_FILE;
 
 /// Most bank states listed in the resonance table.
 const MAX_STATES: usize = 20;
 
-/// The figures of one `simulate` run, in the order the report shows them.
-pub fn simulate_figures(
-    ctx: &ReportContext<'_>,
-    trace: &Trace,
-) -> Result<Vec<Figure>, FigureError> {
-    Ok(vec![
-        figures::pf_figure(ctx, trace)?,
-        figures::kvar_figure(ctx, trace)?,
-        figures::raster_figure(ctx, trace)?,
-        figures::wear_figure(ctx)?,
-        figures::heatmap_figure(ctx, trace)?,
-        figures::impedance_figure(ctx)?,
-    ])
+/// Names of the figures of a `simulate` report, in the order the page shows them.
+pub const SIMULATE_FIGURES: [&str; 6] = [
+    "pf-over-time",
+    "kvar-needed-delivered",
+    "step-states",
+    "step-wear",
+    "pf-by-hour",
+    "impedance-by-state",
+];
+
+/// The figure of a `simulate` report at `index` (0 to 5, in [`SIMULATE_FIGURES`] order),
+/// ready to draw; `None` past the last.
+pub fn simulate_figure<'a>(
+    ctx: &'a ReportContext<'a>,
+    trace: &'a Trace,
+    index: usize,
+) -> Option<Result<Plot<'a>, FigureError>> {
+    Some(match index {
+        0 => figures::pf_figure(ctx, trace),
+        1 => figures::kvar_figure(ctx, trace),
+        2 => figures::raster_figure(ctx, trace),
+        3 => figures::wear_figure(ctx),
+        4 => figures::heatmap_figure(ctx, trace),
+        5 => figures::impedance_figure(ctx),
+        _ => return None,
+    })
 }
 
-/// Writes the report folder: every figure as `NAME.svg` and `NAME.png`, and
-/// [`HTML_FILE`]. Creates the folder if needed. Returns the files written.
+/// Writes the report folder of a `simulate` run: every figure as `NAME.svg` and
+/// `NAME.png`, and [`HTML_FILE`]. Creates the folder if needed. Returns the files
+/// written.
 pub fn write_report_dir(
     ctx: &ReportContext<'_>,
     trace: &Trace,
     dir: &Path,
 ) -> Result<Vec<PathBuf>, ReportError> {
-    let figs = simulate_figures(ctx, trace)?;
-    std::fs::create_dir_all(dir)?;
-    let mut written = Vec::new();
-    for f in &figs {
-        let svg = dir.join(format!("{}.svg", f.name));
-        std::fs::write(&svg, f.svg.as_bytes())?;
-        let png = dir.join(format!("{}.png", f.name));
-        std::fs::write(&png, &f.png)?;
-        written.push(svg);
-        written.push(png);
-    }
-    let path = dir.join(HTML_FILE);
-    let mut out = std::io::BufWriter::new(std::fs::File::create(&path)?);
-    write_html(ctx, trace, &figs, &mut out)?;
-    out.flush()?;
-    written.push(path);
-    Ok(written)
-}
-
-/// The SVG of a figure made ready to sit inside HTML: no XML namespace declaration (the
-/// HTML parser knows SVG), no metadata, sized by the page.
-pub fn inline_svg(f: &Figure) -> String {
-    let mut s = f.svg.clone();
-    if let (Some(a), Some(b)) = (s.find("<metadata>"), s.find("</metadata>")) {
-        if b > a {
-            s.replace_range(a..b + "</metadata>".len(), "");
-        }
-    }
-    let s = s.replace(" xmlns=\"http://www.w3.org/2000/svg\"", "");
-    // The fixed pixel size gives way to the page's width (the viewBox keeps the shape).
-    let s = match (s.find("<svg"), s.find(" viewBox")) {
-        (Some(a), Some(v)) if v > a => {
-            let label = format!(" role=\"img\" aria-label=\"{}\"", escape(&f.title));
-            format!("{}<svg{}{}", &s[..a], label, &s[v..])
-        }
-        _ => s,
-    };
-    s
-}
-
-const STYLE: &str = "
-:root { --ink: #242c33; --muted: #5f6a73; --rule: #c9d1d7; --pale: #f3f5f6; --teal: #175a73;
-  --crimson: #8c1c2e; }
-* { box-sizing: border-box; }
-body { font-family: 'DejaVu Sans', 'Helvetica Neue', Arial, sans-serif; color: var(--ink);
-  margin: 0 auto; max-width: 1160px; padding: 24px 28px 48px; line-height: 1.45;
-  font-size: 15px; background: #fff; }
-header { border-bottom: 3px solid var(--teal); margin-bottom: 18px; padding-bottom: 10px; }
-h1 { font-size: 26px; margin: 0 0 4px; }
-h2 { font-size: 20px; margin: 30px 0 10px; border-bottom: 1px solid var(--rule);
-  padding-bottom: 4px; }
-h3 { font-size: 16px; margin: 18px 0 6px; }
-.sub { color: var(--muted); margin: 2px 0; }
-ol.findings { padding-left: 0; list-style: none; counter-reset: f; }
-ol.findings li { counter-increment: f; margin: 0 0 10px; padding: 8px 12px 8px 14px;
-  border-left: 5px solid var(--rule); background: var(--pale); }
-ol.findings li::before { content: counter(f) '. '; font-weight: bold; }
-ol.findings li.critical { border-left: 5px solid var(--crimson); }
-ol.findings li.warning { border-left: 5px dashed var(--crimson); }
-ol.findings li.note { border-left: 5px solid var(--teal); }
-.sev { font-weight: bold; text-transform: uppercase; font-size: 12px; letter-spacing: 0.05em;
-  margin-right: 6px; }
-.advice { display: block; margin-top: 4px; }
-.caution { border: 2px solid var(--ink); padding: 10px 14px; margin: 16px 0;
-  font-weight: 500; }
-figure { margin: 18px 0 26px; break-inside: avoid; page-break-inside: avoid; }
-figure svg { width: 100%; height: auto; display: block; border: 1px solid var(--rule); }
-figcaption { color: var(--muted); font-size: 13.5px; margin-top: 6px; }
-.files { color: var(--muted); font-size: 12.5px; }
-table { border-collapse: collapse; margin: 8px 0 16px; font-size: 13.5px; }
-th, td { border-bottom: 1px solid var(--rule); padding: 4px 10px 4px 0; text-align: right;
-  vertical-align: top; }
-th { border-bottom: 2px solid var(--ink); font-weight: 600; }
-th.l, td.l { text-align: left; }
-dl.kv { display: grid; grid-template-columns: 230px 1fr; gap: 3px 14px; margin: 8px 0 14px; }
-dl.kv dt { color: var(--muted); }
-dl.kv dd { margin: 0; }
-code { font-family: 'DejaVu Sans Mono', monospace; font-size: 13px; }
-@page { size: A4; margin: 15mm 13mm; }
-@media print {
-  body { max-width: none; padding: 0; font-size: 10pt; }
-  h2 { break-after: avoid; page-break-after: avoid; }
-  h3 { break-after: avoid; }
-  table, dl.kv, ol.findings li { break-inside: avoid; page-break-inside: avoid; }
-  ol.findings li { background: none; }
-  figure svg { border: none; }
-  .figures { break-before: page; }
-}
-";
-
-/// Writes the HTML report of `ctx` with `figs` inline.
-pub fn write_html(
-    ctx: &ReportContext<'_>,
-    trace: &Trace,
-    figs: &[Figure],
-    out: &mut dyn Write,
-) -> Result<(), ReportError> {
-    let mut h = String::with_capacity(256 * 1024);
     let sc = ctx.scenario();
     let run = &ctx.result.metrics.run;
     let cal = ctx.study.plan.calendar;
     let title = format!("Capacitor bank study: {}", sc.name);
-    let _ = write!(
-        h,
-        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
-         <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
-         <title>{}</title>\n<style>{STYLE}</style>\n</head>\n<body>\n<header>\n<h1>{}</h1>\n",
-        escape(&title),
-        escape(&title)
-    );
+    let mut subs = Vec::new();
     if let Some(d) = &sc.description {
-        let _ = writeln!(h, "<p class=\"sub\">{}</p>", escape(d));
+        subs.push(d.clone());
     }
     let load = match &sc.load {
         crate::scenario::LoadSpec::Synthetic(_) => format!("synthetic load (seed {})", sc.seed),
         crate::scenario::LoadSpec::Csv { .. } => format!("load profile {}", ctx.load_source()),
     };
-    let _ = writeln!(
-        h,
-        "<p class=\"sub\">{}</p>\n</header>",
-        escape(&format!(
-            "Scenario {}: {} simulated ({} intervals of {} s) from {}, {load}.",
-            ctx.scenario_file(),
-            duration(run.duration_s),
-            count(run.samples),
-            short(run.time_step_s),
-            cal.datetime(run.t_first_s).format("%Y-%m-%d %H:%M"),
-        ))
-    );
-
-    findings(ctx, &mut h);
-    figures_section(figs, &mut h);
-    settings(ctx, &mut h);
-    pf_energy(ctx, &mut h);
-    switching(ctx, &mut h);
-    overcorrection(ctx, &mut h);
-    resonance(ctx, &mut h);
-    wear(ctx, &mut h);
-    provenance(ctx, trace, &mut h);
-    h.push_str("</body>\n</html>\n");
-    out.write_all(h.as_bytes())?;
-    out.flush()?;
-    Ok(())
+    subs.push(format!(
+        "Scenario {}: {} simulated ({} intervals of {} s) from {}, {load}.",
+        ctx.scenario_file(),
+        duration(run.duration_s),
+        count(run.samples),
+        short(run.time_step_s),
+        cal.datetime(run.t_first_s).format("%Y-%m-%d %H:%M"),
+    ));
+    html_page::write_report_dir(dir, &title, &subs, |page| {
+        findings(ctx, page.html());
+        figures_section(ctx, trace, page)?;
+        let h = page.html();
+        settings(ctx, h);
+        pf_energy(ctx, h);
+        switching(ctx, h);
+        overcorrection(ctx, h);
+        resonance(ctx, h);
+        wear(ctx, h);
+        provenance(ctx, trace, h);
+        Ok(())
+    })
 }
 
 /// A number with as few decimals as it needs (at most 3).
 fn short(x: f64) -> String {
     let s = format!("{x:.3}");
     s.trim_end_matches('0').trim_end_matches('.').to_string()
-}
-
-/// Appends a table: header cells and rows; `align` one letter per column (`l` left).
-fn table(h: &mut String, headers: &[&str], align: &str, rows: &[Vec<String>]) {
-    let cls = |i: usize| {
-        if align.as_bytes().get(i) == Some(&b'l') {
-            " class=\"l\""
-        } else {
-            ""
-        }
-    };
-    h.push_str("<table>\n<thead><tr>");
-    for (i, c) in headers.iter().enumerate() {
-        let _ = write!(h, "<th{}>{}</th>", cls(i), escape(c));
-    }
-    h.push_str("</tr></thead>\n<tbody>\n");
-    for r in rows {
-        h.push_str("<tr>");
-        for (i, c) in r.iter().enumerate() {
-            let _ = write!(h, "<td{}>{}</td>", cls(i), escape(c));
-        }
-        h.push_str("</tr>\n");
-    }
-    h.push_str("</tbody>\n</table>\n");
-}
-
-/// Appends a list of label and value pairs.
-fn pairs(h: &mut String, items: &[(&str, String)]) {
-    h.push_str("<dl class=\"kv\">\n");
-    for (k, v) in items {
-        let _ = writeln!(h, "<dt>{}</dt><dd>{}</dd>", escape(k), escape(v));
-    }
-    h.push_str("</dl>\n");
 }
 
 fn findings(ctx: &ReportContext<'_>, h: &mut String) {
@@ -259,7 +128,7 @@ fn findings(ctx: &ReportContext<'_>, h: &mut String) {
         h.push_str("</li>\n");
     }
     h.push_str("</ol>\n");
-    let _ = writeln!(h, "<p class=\"caution\">{}</p>", escape(HARDWARE_CAUTION));
+    caution(h, &[HARDWARE_CAUTION]);
     let list = &ctx.assessment.settings_to_check;
     if !list.is_empty() {
         h.push_str("<h3>Settings to check</h3>\n<ul>\n");
@@ -276,22 +145,20 @@ fn findings(ctx: &ReportContext<'_>, h: &mut String) {
     h.push_str("</section>\n");
 }
 
-fn figures_section(figs: &[Figure], h: &mut String) {
-    h.push_str("<section id=\"figures\" class=\"figures\">\n<h2>Figures</h2>\n");
-    for f in figs {
-        let _ = write!(
-            h,
-            "<figure id=\"fig-{}\">\n<h3>{}</h3>\n{}\n<figcaption>{} <span class=\"files\">\
-             (also {}.svg and {}.png in this folder)</span></figcaption>\n</figure>\n",
-            escape(&f.name),
-            escape(&f.title),
-            inline_svg(f),
-            escape(&f.caption),
-            escape(&f.name),
-            escape(&f.name)
-        );
+fn figures_section(
+    ctx: &ReportContext<'_>,
+    trace: &Trace,
+    page: &mut Page<'_>,
+) -> Result<(), ReportError> {
+    page.html()
+        .push_str("<section id=\"figures\" class=\"figures\">\n<h2>Figures</h2>\n");
+    let mut i = 0;
+    while let Some(plot) = simulate_figure(ctx, trace, i) {
+        page.figure(plot)?;
+        i += 1;
     }
-    h.push_str("</section>\n");
+    page.html().push_str("</section>\n");
+    Ok(())
 }
 
 fn settings(ctx: &ReportContext<'_>, h: &mut String) {
@@ -821,9 +688,8 @@ fn provenance(ctx: &ReportContext<'_>, trace: &Trace, h: &mut String) {
             Some(x) => x.to_string(),
         }
     };
-    h.push_str("<section id=\"provenance\">\n<h2>Provenance</h2>\n");
     let bucket_s = trace.bucket_intervals() as f64 * trace.dt_s();
-    pairs(
+    html_page::provenance(
         h,
         &[
             ("Tool", format!("bankstep {}", get("tool_version"))),
@@ -842,29 +708,4 @@ fn provenance(ctx: &ReportContext<'_>, trace: &Trace, h: &mut String) {
             ),
         ],
     );
-    h.push_str("</section>\n");
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn inline_svg_drops_namespace_size_and_metadata() {
-        let f = Figure {
-            name: "x".into(),
-            title: "A <b> & c".into(),
-            caption: String::new(),
-            svg: "<svg width=\"10\" height=\"5\" viewBox=\"0 0 10 5\" \
-                  xmlns=\"http://www.w3.org/2000/svg\">\n<metadata>m</metadata><rect/></svg>"
-                .into(),
-            png: Vec::new(),
-            meta: Default::default(),
-        };
-        let s = inline_svg(&f);
-        assert_eq!(
-            s,
-            "<svg role=\"img\" aria-label=\"A &lt;b&gt; &amp; c\" viewBox=\"0 0 10 5\">\n<rect/></svg>"
-        );
-    }
 }

@@ -14,8 +14,10 @@
 //! - [`design`]: the report, JSON and CSV of `bankstep design` (rendering a
 //!   [`crate::design::Design`]).
 //! - [`sweep`]: the summary, CSV, JSON and shard files of `bankstep sweep` and `merge`.
-//! - [`figures`]: the figures (SVG and PNG, drawn with `plotters`) and [`html`]: the
-//!   one-file HTML report of `simulate --report DIR` that holds them.
+//! - [`figures`]: the figures (SVG and PNG, drawn with `plotters`); [`html_page`]: the
+//!   one-file HTML page every report folder shares; [`html`], [`html_sweep`] and
+//!   [`html_design`]: the report folders of `simulate`, `sweep`/`merge` and `design`
+//!   with `--report DIR`.
 //!
 //! What a run means (findings, advice, the harmonic assessment) is decided once in
 //! [`crate::analysis`] and handed to the writers in the [`ReportContext`]; quantities are
@@ -24,6 +26,9 @@
 pub mod design;
 pub mod figures;
 pub mod html;
+pub mod html_design;
+pub mod html_page;
+pub mod html_sweep;
 pub mod json;
 pub mod resonance;
 pub mod summary;

@@ -47,6 +47,48 @@ fn life(y: f64) -> String {
     }
 }
 
+/// What the columns of the front table mean (the summary and the HTML report).
+pub(crate) const COLUMNS_NOTE: &str = "billed PF: energy PF of the run's import registers; \
+under target: share of time; operations a year: all steps, trips included; first rated \
+life: the first contactor to reach its rated operations (step, years from the run start); \
+hunting cycles and time overcorrected: in the run; worst state: the bank state with the most \
+hours a year × severity, its hours a year and estimated voltage THD at full harmonic load.";
+
+/// The sentence under every sweep's outputs: simulation is not measurement.
+pub(crate) const SIMULATED_NOTE: &str = "These are simulated figures on the load profile \
+given: check a change on site before relying on it.";
+
+/// The headers of the front table: rank, setting, the keys varied, the figures, and the
+/// cost a year when there is a tariff; with the alignment of each column.
+pub(crate) fn front_headers(o: &Outcome) -> (Vec<String>, String) {
+    let p = &o.provenance;
+    let mut headers: Vec<String> = vec!["rank".into(), "setting".into()];
+    headers.extend(p.keys.iter().cloned());
+    headers.extend(
+        [
+            "billed PF",
+            "under target",
+            "operations/year",
+            "first rated life",
+            "hunting cycles",
+            "overcorrected",
+            "worst state THD_V",
+        ]
+        .iter()
+        .map(|s| s.to_string()),
+    );
+    if let Some(c) = &p.currency {
+        headers.push(format!("cost {c}/year"));
+    }
+    let mut align = String::from("rr");
+    align.push_str(&"l".repeat(p.keys.len()));
+    align.push_str("rrrrrrr");
+    if p.currency.is_some() {
+        align.push('r');
+    }
+    (headers, align)
+}
+
 /// The summary as text.
 pub fn summary_text(o: &Outcome) -> String {
     let p = &o.provenance;
@@ -90,30 +132,7 @@ pub fn summary_text(o: &Outcome) -> String {
         o.front.len(),
         o.settings.len()
     ));
-    let mut headers: Vec<String> = vec!["rank".into(), "setting".into()];
-    headers.extend(p.keys.iter().cloned());
-    headers.extend(
-        [
-            "billed PF",
-            "under target",
-            "operations/year",
-            "first rated life",
-            "hunting cycles",
-            "overcorrected",
-            "worst state THD_V",
-        ]
-        .iter()
-        .map(|s| s.to_string()),
-    );
-    if let Some(c) = &p.currency {
-        headers.push(format!("cost {c}/year"));
-    }
-    let mut align = String::from("rr");
-    align.push_str(&"l".repeat(p.keys.len()));
-    align.push_str("rrrrrrr");
-    if p.currency.is_some() {
-        align.push('r');
-    }
+    let (headers, align) = front_headers(o);
     let rows: Vec<Vec<String>> = o
         .front
         .iter()
@@ -122,16 +141,7 @@ pub fn summary_text(o: &Outcome) -> String {
         .collect();
     let hdr: Vec<&str> = headers.iter().map(String::as_str).collect();
     table(&mut t, "  ", &hdr, &align, &rows);
-    wrap_plain(
-        &mut t,
-        "  ",
-        "billed PF: energy PF of the run's import registers; under target: share of time; \
-         operations a year: all steps, trips included; first rated life: the first \
-         contactor to reach its rated operations (step, years from the run start); hunting \
-         cycles and time overcorrected: in the run; worst state: the bank state with the \
-         most hours a year × severity, its hours a year and estimated voltage THD at full \
-         harmonic load.",
-    );
+    wrap_plain(&mut t, "  ", COLUMNS_NOTE);
     if seeds > 1 {
         wrap_plain(
             &mut t,
@@ -160,12 +170,7 @@ pub fn summary_text(o: &Outcome) -> String {
         }
     }
     t.push('\n');
-    wrap_plain(
-        &mut t,
-        "",
-        "These are simulated figures on the load profile given: check a change on site \
-         before relying on it.",
-    );
+    wrap_plain(&mut t, "", SIMULATED_NOTE);
     wrap_plain(&mut t, "", HARDWARE_CAUTION);
     t
 }
@@ -179,7 +184,7 @@ fn variation_lines(canonical: &str) -> Vec<String> {
 }
 
 /// One line of the front table.
-fn front_row(o: &Outcome, s: &SettingStats, rank: usize, seeds: u32) -> Vec<String> {
+pub(crate) fn front_row(o: &Outcome, s: &SettingStats, rank: usize, seeds: u32) -> Vec<String> {
     let mut r = vec![rank.to_string(), s.setting.to_string()];
     r.extend(s.values.iter().cloned());
     r.push(spread(&s.billed_pf, seeds, &|x| {

@@ -7,8 +7,8 @@
 //! the states and their order of importance from the run's assessment.
 
 use super::{
-    de, render, text, Draw, Figure, FigureError, FigureMeta, BAND, BANK, GRID, INK, LIMIT, MAIN,
-    MEDIUM, MUTED,
+    de, text, Draw, FigureError, FigureMeta, Plot, BAND, BANK, GRID, INK, LIMIT, MAIN, MEDIUM,
+    MUTED,
 };
 use crate::bank::BankState;
 use crate::harmonics::is_triplen;
@@ -21,7 +21,7 @@ use plotters::prelude::*;
 pub const MAX_CURVES: usize = 6;
 
 /// Spacing of the drawn curves, orders (the true peak of each state is added to it).
-const STEP: f64 = 0.02;
+const STEP: f64 = 0.04;
 
 /// One curve to draw: the states whose curves coincide share it (same kvar of the same
 /// kinds of step), listed one label each.
@@ -163,17 +163,19 @@ impl Draw for ZDraw {
                 continue;
             }
             if !triplen {
-                ch.draw_series(std::iter::once(Rectangle::new(
-                    [(h - self.tolerance, lo), (h + self.tolerance, hi)],
-                    BAND.filled(),
-                )))
-                .map_err(de)?;
+                ch.plotting_area()
+                    .draw(&Rectangle::new(
+                        [(h - self.tolerance, lo), (h + self.tolerance, hi)],
+                        BAND.filled(),
+                    ))
+                    .map_err(de)?;
             }
-            ch.draw_series(std::iter::once(PathElement::new(
-                vec![(h, lo), (h, hi)],
-                MUTED.stroke_width(1),
-            )))
-            .map_err(de)?;
+            ch.plotting_area()
+                .draw(&PathElement::new(
+                    vec![(h, lo), (h, hi)],
+                    MUTED.stroke_width(1),
+                ))
+                .map_err(de)?;
             let (px, py) = ch.backend_coord(&(h, hi));
             main.draw(&Text::new(
                 format!("h{}", num(h, 0)),
@@ -282,7 +284,7 @@ impl Draw for ZDraw {
 
 /// (f) |Z(h)| for the bank states the run reached that count most (hours × severity),
 /// with the load's harmonics and the voltage limits marked.
-pub fn impedance_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> {
+pub fn impedance_figure<'a>(ctx: &'a ReportContext<'a>) -> Result<Plot<'a>, FigureError> {
     let model = ctx.study.harmonic_model();
     let r = &ctx.assessment.resonance;
     let sc = ctx.scenario();
@@ -374,8 +376,8 @@ pub fn impedance_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> 
         to,
         stiff: model.is_stiff(),
     };
-    render(
-        &d,
+    Ok(Plot::new(
+        d,
         "impedance-by-state",
         "Which bank states resonate".to_string(),
         format!(
@@ -391,5 +393,5 @@ pub fn impedance_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> 
             r.voltage_limits
         ),
         MEDIUM,
-    )
+    ))
 }

@@ -12,33 +12,42 @@
 //!   trade-off scatter with its front and a recommendation, and a duration curve with
 //!   reachable levels.
 //!
+//! A figure is a [`Plot`]: its words and a [`Drawing`], drawn only when written. The SVG
+//! is written element by element as it is drawn ([`svg`]), to the figure's file and the
+//! page at once; the PNG band by band ([`bitmap`]); so no whole image is ever held.
+//!
 //! Text is measured and, in the PNG, drawn with DejaVu Sans embedded in the binary
 //! (`assets/fonts/`), so no system font is needed; the SVG names the generic
-//! `sans-serif` family. Every SVG carries a `<metadata>` element listing what each figure
-//! plotted (series name, unit, lowest and highest value drawn, number of points), so a
-//! test or a reader can check a figure against the JSON report.
+//! `sans-serif` family. Every SVG file ends with a `<metadata>` element listing what the
+//! figure plotted (series name, unit, lowest and highest value drawn, number of points,
+//! and named points such as a sweep's settings), so a test or a reader can check a
+//! figure against the JSON report.
 //!
 //! The palette is chosen to stay apart when printed in grey: the series differ in
 //! lightness and in line pattern, not in hue alone.
 
+pub mod bitmap;
 pub mod impedance;
 pub mod steps;
+pub mod svg;
 pub mod time;
 pub mod tradeoff;
 
 use plotters::coord::Shift;
 use plotters::prelude::*;
-use std::fmt::Write as _;
+use std::io::Write;
 use std::sync::Once;
 
 pub use impedance::impedance_figure;
 pub use steps::wear_figure;
 pub use time::{heatmap_figure, kvar_figure, pf_figure, raster_figure};
 pub use tradeoff::{
-    duration_curve, tradeoff_scatter, DurationData, Level, TradeoffData, TradeoffPoint,
+    duration_curve, tradeoff_scatter, DurationData, Ladder, Level, TradeoffData, TradeoffPoint,
 };
 
-/// A figure made ready for writing: its file name stem, words, SVG and PNG.
+/// A figure drawn in memory: its file name stem, words, SVG and PNG. The report folders
+/// do not hold figures in memory; they write each [`Plot`] straight to its files
+/// ([`Plot::write_files`]). This form is for callers that want the bytes.
 #[derive(Debug, Clone)]
 pub struct Figure {
     /// File name without extension, e.g. `pf-over-time`.
@@ -47,7 +56,7 @@ pub struct Figure {
     pub title: String,
     /// What the figure shows and how to read it, one or two sentences.
     pub caption: String,
-    /// The SVG document (standalone, with its XML namespace).
+    /// The SVG document (standalone, with its XML namespace, title and metadata).
     pub svg: String,
     /// The PNG image.
     pub png: Vec<u8>,
@@ -55,13 +64,15 @@ pub struct Figure {
     pub meta: FigureMeta,
 }
 
-/// What a figure plotted: its series and their extremes.
+/// What a figure plotted: its series and their extremes, and any points worth naming.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct FigureMeta {
     /// The series drawn.
     pub series: Vec<SeriesMeta>,
     /// Rows of a raster or heat map, if the figure has them.
     pub rows: Option<usize>,
+    /// Named points (a setting of a sweep, a level of a layout), in drawing order.
+    pub marks: Vec<MarkMeta>,
 }
 
 /// One series of a figure.
@@ -77,6 +88,19 @@ pub struct SeriesMeta {
     pub max: f64,
     /// Points (or bars, cells) drawn.
     pub points: usize,
+}
+
+/// One named point of a figure, in the units of its axes.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MarkMeta {
+    /// What the point is, e.g. `setting 3` or a layout's label.
+    pub name: String,
+    /// Its x value (axis units; for a column of levels, the column from 0).
+    pub x: f64,
+    /// Its y value (axis units).
+    pub y: f64,
+    /// Space-separated roles, e.g. `front recommended`.
+    pub tags: String,
 }
 
 impl FigureMeta {
@@ -96,6 +120,16 @@ impl FigureMeta {
             min: lo,
             max: hi,
             points: n,
+        });
+    }
+
+    /// Records a named point.
+    pub fn mark(&mut self, name: &str, x: f64, y: f64, tags: &str) {
+        self.marks.push(MarkMeta {
+            name: name.to_string(),
+            x,
+            y,
+            tags: tags.to_string(),
         });
     }
 
@@ -212,60 +246,178 @@ pub(crate) fn de<E: std::fmt::Debug>(e: E) -> String {
     format!("{e:?}")
 }
 
-/// Draws `d` as SVG and as PNG at `size` pixels.
-pub fn render<D: Draw>(
-    d: &D,
-    name: &str,
-    title: String,
-    caption: String,
-    size: (u32, u32),
-) -> Result<Figure, FigureError> {
-    register_font();
-    let err = |message: String| FigureError {
-        figure: name.to_string(),
-        message,
-    };
-    let mut svg = String::new();
-    let mut meta = FigureMeta::default();
-    {
-        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
-        root.fill(&WHITE).map_err(|e| err(de(e)))?;
-        d.draw(&root, &mut meta).map_err(err)?;
-        root.present().map_err(|e| err(de(e)))?;
-    }
-    let mut rgb = vec![255u8; (size.0 * size.1 * 3) as usize];
-    {
-        let root = BitMapBackend::with_buffer(&mut rgb, size).into_drawing_area();
-        root.fill(&WHITE).map_err(|e| err(de(e)))?;
-        let mut again = FigureMeta::default();
-        d.draw(&root, &mut again).map_err(err)?;
-        root.present().map_err(|e| err(de(e)))?;
-    }
-    let png = encode_png(&rgb, size).map_err(err)?;
-    let svg = with_metadata(&svg, name, &title, &meta);
-    Ok(Figure {
-        name: name.to_string(),
-        title,
-        caption,
-        svg,
-        png,
-        meta,
-    })
+/// Something drawable as SVG elements and as a PNG, whatever its data: the object-safe
+/// face of [`Draw`], so that figures of different kinds can wait in one list.
+pub trait Drawing {
+    /// Writes the SVG elements of the figure (no `<svg>` wrapper) to `out` and returns
+    /// what was plotted.
+    fn svg_elements(&self, size: (u32, u32), out: &mut dyn Write) -> Result<FigureMeta, String>;
+    /// Writes the figure as a PNG to `out`, drawn band by band.
+    fn png(&self, size: (u32, u32), out: &mut dyn Write) -> Result<(), String>;
 }
 
-/// Encodes an RGB buffer as PNG.
-fn encode_png(rgb: &[u8], size: (u32, u32)) -> Result<Vec<u8>, String> {
-    let mut out = Vec::new();
-    {
-        let mut enc = png::Encoder::new(&mut out, size.0, size.1);
-        enc.set_color(png::ColorType::Rgb);
-        enc.set_depth(png::BitDepth::Eight);
-        enc.set_compression(png::Compression::Fast);
-        let mut w = enc.write_header().map_err(|e| e.to_string())?;
-        w.write_image_data(rgb).map_err(|e| e.to_string())?;
-        w.finish().map_err(|e| e.to_string())?;
+impl<D: Draw> Drawing for D {
+    fn svg_elements(&self, size: (u32, u32), out: &mut dyn Write) -> Result<FigureMeta, String> {
+        register_font();
+        let mut meta = FigureMeta::default();
+        let root = svg::SvgStream::new(out, size).into_drawing_area();
+        root.fill(&WHITE).map_err(de)?;
+        self.draw(&root, &mut meta)?;
+        root.present().map_err(de)?;
+        Ok(meta)
     }
-    Ok(out)
+
+    fn png(&self, size: (u32, u32), out: &mut dyn Write) -> Result<(), String> {
+        register_font();
+        bitmap::write_png(self, size, out).map(|_| ())
+    }
+}
+
+/// A figure ready to be drawn: its words, pixel size and drawing. Nothing is drawn until
+/// [`Plot::write_files`] or [`Plot::render`] is called, so a report can draw its figures
+/// one at a time and keep only one in hand.
+pub struct Plot<'a> {
+    /// File name without extension, e.g. `pf-over-time`.
+    pub name: String,
+    /// The figure's title, a sentence.
+    pub title: String,
+    /// What the figure shows and how to read it.
+    pub caption: String,
+    /// Pixel size of the PNG, and the SVG's view box.
+    pub size: (u32, u32),
+    /// What draws it.
+    pub drawing: Box<dyn Drawing + 'a>,
+}
+
+/// Where [`Plot::write`] puts a figure: the figure's own files, and its inline copy.
+pub struct Outputs<'a> {
+    /// The standalone SVG document (the figure's `.svg` file).
+    pub svg: &'a mut dyn Write,
+    /// The PNG image (the figure's `.png` file).
+    pub png: &'a mut dyn Write,
+    /// The same SVG elements inline, for an HTML page (`None`: no page).
+    pub inline: Option<&'a mut dyn Write>,
+}
+
+/// A figure's output failed.
+fn io_err(name: &str, e: impl std::fmt::Display) -> FigureError {
+    FigureError {
+        figure: name.to_string(),
+        message: e.to_string(),
+    }
+}
+
+impl<'a> Plot<'a> {
+    /// A plot of `drawing` with its words and pixel size.
+    pub fn new<D: Draw + 'a>(
+        drawing: D,
+        name: &str,
+        title: String,
+        caption: String,
+        size: (u32, u32),
+    ) -> Self {
+        Plot {
+            name: name.to_string(),
+            title,
+            caption,
+            size,
+            drawing: Box::new(drawing),
+        }
+    }
+
+    /// Draws the figure once as SVG elements into the standalone document and, at the
+    /// same time, into the inline copy; then once as a PNG, band by band. Holds no more
+    /// than one band of pixels and the writers' buffers. Returns what was plotted.
+    pub fn write(&self, out: Outputs<'_>) -> Result<FigureMeta, FigureError> {
+        let (w, h) = self.size;
+        let err = |e: std::io::Error| io_err(&self.name, e);
+        write!(
+            out.svg,
+            "<svg width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\" \
+             xmlns=\"http://www.w3.org/2000/svg\">\n<title>{}</title>\n",
+            escape(&self.title)
+        )
+        .map_err(err)?;
+        let mut inline = out.inline;
+        if let Some(page) = &mut inline {
+            // The HTML parser knows SVG: no namespace; the page sets the width.
+            writeln!(
+                page,
+                "<svg role=\"img\" aria-label=\"{}\" viewBox=\"0 0 {w} {h}\">",
+                escape(&self.title)
+            )
+            .map_err(err)?;
+        }
+        let meta = {
+            // `as_deref_mut` would keep the page's longer trait-object lifetime, which the
+            // borrow of `out.svg` beside it cannot share; the reborrow shortens it.
+            #[allow(clippy::option_as_ref_deref)]
+            let mut tee = svg::Tee {
+                a: &mut *out.svg,
+                b: inline.as_mut().map(|p| &mut **p),
+            };
+            self.drawing
+                .svg_elements(self.size, &mut tee)
+                .map_err(|m| io_err(&self.name, m))?
+        };
+        if let Some(page) = &mut inline {
+            page.write_all(b"</svg>").map_err(err)?;
+        }
+        write_metadata(out.svg, &self.name, &meta).map_err(err)?;
+        out.svg.write_all(b"</svg>\n").map_err(err)?;
+        out.svg.flush().map_err(err)?;
+        self.drawing
+            .png(self.size, out.png)
+            .map_err(|m| io_err(&self.name, m))?;
+        out.png.flush().map_err(err)?;
+        Ok(meta)
+    }
+
+    /// Writes `NAME.svg` and `NAME.png` into `dir`, and the inline SVG into `page` if
+    /// given. Returns what was plotted and the two paths.
+    pub fn write_files(
+        &self,
+        dir: &std::path::Path,
+        page: Option<&mut dyn Write>,
+    ) -> Result<(FigureMeta, [std::path::PathBuf; 2]), FigureError> {
+        let svg_path = dir.join(format!("{}.svg", self.name));
+        let png_path = dir.join(format!("{}.png", self.name));
+        let open = |p: &std::path::Path| {
+            std::fs::File::create(p)
+                .map(std::io::BufWriter::new)
+                .map_err(|e| io_err(&self.name, format!("{}: {e}", p.display())))
+        };
+        let mut svg = open(&svg_path)?;
+        let mut png = open(&png_path)?;
+        let meta = self.write(Outputs {
+            svg: &mut svg,
+            png: &mut png,
+            inline: page.map(|p| {
+                let p: &mut dyn Write = p;
+                p
+            }),
+        })?;
+        Ok((meta, [svg_path, png_path]))
+    }
+
+    /// Draws the figure into memory.
+    pub fn render(&self) -> Result<Figure, FigureError> {
+        let mut svg = Vec::new();
+        let mut png = Vec::new();
+        let meta = self.write(Outputs {
+            svg: &mut svg,
+            png: &mut png,
+            inline: None,
+        })?;
+        Ok(Figure {
+            name: self.name.clone(),
+            title: self.title.clone(),
+            caption: self.caption.clone(),
+            svg: String::from_utf8(svg).map_err(|e| io_err(&self.name, e))?,
+            png,
+            meta,
+        })
+    }
 }
 
 /// Escapes text for XML and HTML (element content and attribute values).
@@ -293,41 +445,38 @@ fn meta_num(x: f64) -> String {
     }
 }
 
-/// Puts a `<title>` and a `<metadata>` element right after the opening `<svg>` tag.
-fn with_metadata(svg: &str, name: &str, title: &str, meta: &FigureMeta) -> String {
-    let Some(open_end) = svg
-        .find("<svg")
-        .and_then(|i| svg[i..].find('>').map(|j| i + j + 1))
-    else {
-        return svg.to_string();
-    };
-    let mut m = String::new();
-    let _ = write!(
-        m,
-        "\n<title>{}</title>\n<metadata>\n<figure xmlns=\"urn:bankstep:figure\" name=\"{}\"{}>\n",
-        escape(title),
+/// Writes the `<metadata>` element: what the figure plotted, for tests and readers.
+fn write_metadata(out: &mut dyn Write, name: &str, meta: &FigureMeta) -> std::io::Result<()> {
+    write!(
+        out,
+        "<metadata>\n<figure xmlns=\"urn:bankstep:figure\" name=\"{}\"{}>\n",
         escape(name),
         meta.rows
             .map(|r| format!(" rows=\"{r}\""))
             .unwrap_or_default()
-    );
+    )?;
     for s in &meta.series {
-        let _ = writeln!(
-            m,
+        writeln!(
+            out,
             "<series name=\"{}\" unit=\"{}\" min=\"{}\" max=\"{}\" points=\"{}\"/>",
             escape(&s.name),
             escape(&s.unit),
             meta_num(s.min),
             meta_num(s.max),
             s.points
-        );
+        )?;
     }
-    m.push_str("</figure>\n</metadata>");
-    let mut out = String::with_capacity(svg.len() + m.len());
-    out.push_str(&svg[..open_end]);
-    out.push_str(&m);
-    out.push_str(&svg[open_end..]);
-    out
+    for m in &meta.marks {
+        writeln!(
+            out,
+            "<mark name=\"{}\" x=\"{}\" y=\"{}\" tags=\"{}\"/>",
+            escape(&m.name),
+            meta_num(m.x),
+            meta_num(m.y),
+            escape(&m.tags)
+        )?;
+    }
+    out.write_all(b"</figure>\n</metadata>\n")
 }
 
 /// One key of a legend.
@@ -339,6 +488,12 @@ pub enum Key {
     Line(RGBColor, u32),
     /// A dashed line.
     Dash(RGBColor, u32),
+    /// A dot of a colour with a thin outline of another.
+    Dot(RGBColor, RGBColor),
+    /// A ring: an unfilled circle of a colour and stroke width.
+    Ring(RGBColor, u32),
+    /// An unfilled square of a colour and stroke width.
+    Square(RGBColor, u32),
 }
 
 /// Draws a legend as one row of keys starting at pixel (x, y) of `area`.
@@ -377,6 +532,22 @@ pub fn legend<DB: DrawingBackend>(
                     ))
                     .map_err(de)?;
                 }
+            }
+            Key::Dot(fill, edge) => {
+                area.draw(&Circle::new((x + 11, y), 5, fill.filled()))
+                    .map_err(de)?;
+                area.draw(&Circle::new((x + 11, y), 5, edge)).map_err(de)?;
+            }
+            Key::Ring(c, w) => {
+                area.draw(&Circle::new((x + 11, y), 7, c.stroke_width(w)))
+                    .map_err(de)?;
+            }
+            Key::Square(c, w) => {
+                area.draw(&Rectangle::new(
+                    [(x + 4, y - 7), (x + 18, y + 7)],
+                    c.stroke_width(w),
+                ))
+                .map_err(de)?;
             }
         }
         area.draw(&Text::new(

@@ -2,8 +2,8 @@
 //! step, from the run's metrics.
 
 use super::{
-    de, legend, render, text, Draw, Figure, FigureError, FigureMeta, Key, BANK, GRID, INK, MAIN,
-    MEDIUM, MUTED,
+    de, legend, text, Draw, FigureError, FigureMeta, Key, Plot, BANK, GRID, INK, MAIN, MEDIUM,
+    MUTED,
 };
 use crate::report::ReportContext;
 use plotters::coord::Shift;
@@ -57,11 +57,12 @@ impl Draw for WearDraw<'_> {
             .map_err(de)?;
         for w in wear {
             let x = w.step as f64;
-            ch.draw_series(std::iter::once(Rectangle::new(
-                [(x - 0.32, 0.0), (x + 0.32, w.operations as f64)],
-                MAIN.filled(),
-            )))
-            .map_err(de)?;
+            ch.plotting_area()
+                .draw(&Rectangle::new(
+                    [(x - 0.32, 0.0), (x + 0.32, w.operations as f64)],
+                    MAIN.filled(),
+                ))
+                .map_err(de)?;
         }
         meta.add(
             "operations",
@@ -116,11 +117,12 @@ impl Draw for WearDraw<'_> {
             match y {
                 Some(y) => {
                     let h = y.min(YEARS_CAP);
-                    ch.draw_series(std::iter::once(Rectangle::new(
-                        [(x - 0.32, 0.0), (x + 0.32, h)],
-                        BANK.filled(),
-                    )))
-                    .map_err(de)?;
+                    ch.plotting_area()
+                        .draw(&Rectangle::new(
+                            [(x - 0.32, 0.0), (x + 0.32, h)],
+                            BANK.filled(),
+                        ))
+                        .map_err(de)?;
                     if *y > YEARS_CAP {
                         let (px, py) = ch.backend_coord(&(x, h));
                         root.draw(&Text::new(
@@ -152,9 +154,9 @@ impl Draw for WearDraw<'_> {
 }
 
 /// (d) Operations in the run and projected years to rated life, one bar per step.
-pub fn wear_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> {
-    render(
-        &WearDraw { ctx },
+pub fn wear_figure<'a>(ctx: &'a ReportContext<'a>) -> Result<Plot<'a>, FigureError> {
+    Ok(Plot::new(
+        WearDraw { ctx },
         "step-wear",
         "Which steps did the work".to_string(),
         format!(
@@ -164,5 +166,5 @@ pub fn wear_figure(ctx: &ReportContext<'_>) -> Result<Figure, FigureError> {
              most operations wear first; a rotating order spreads the wear."
         ),
         MEDIUM,
-    )
+    ))
 }

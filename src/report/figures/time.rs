@@ -6,8 +6,8 @@
 //! pixel still shows at its full height.
 
 use super::{
-    dashed, de, legend, render, scale_colour, text, tint, Draw, Figure, FigureError, FigureMeta,
-    Key, BAND, BANK, BANK_LIGHT, GRID, INK, LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED, OVER, WIDE,
+    dashed, de, legend, scale_colour, text, tint, Draw, FigureError, FigureMeta, Key, Plot, BAND,
+    BANK, BANK_LIGHT, GRID, INK, LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED, OVER, WIDE,
 };
 use crate::pf::Quadrant;
 use crate::report::{num, ReportContext};
@@ -60,33 +60,36 @@ fn bucket_x(trace: &Trace, ax: &TimeAxis, i: usize) -> (f64, f64) {
     (a, b.max(a))
 }
 
-/// The band of a quantity over the buckets as one polygon (upper edge left to right,
-/// lower edge back), values clipped to `clip`.
-fn envelope(
-    trace: &Trace,
-    ax: &TimeAxis,
-    pick: impl Fn(&Bucket) -> Range,
+/// The band of a quantity over the buckets as one filled rectangle per bucket, from its
+/// lowest to its highest value, clipped to `clip`: together a staircase, drawn without
+/// holding the outline in memory.
+fn envelope<'t>(
+    trace: &'t Trace,
+    ax: &'t TimeAxis,
+    pick: impl Fn(&Bucket) -> Option<(f64, f64)> + 't,
     clip: (f64, f64),
-) -> Vec<(f64, f64)> {
-    let b = trace.buckets();
-    let mut upper = Vec::with_capacity(2 * b.len());
-    let mut lower = Vec::with_capacity(2 * b.len());
-    for (i, bk) in b.iter().enumerate() {
-        let r = pick(bk);
-        if r.is_empty() {
-            continue;
-        }
-        let (x0, x1) = bucket_x(trace, ax, i);
-        let hi = r.hi.clamp(clip.0, clip.1);
-        let lo = r.lo.clamp(clip.0, clip.1);
-        upper.push((x0, hi));
-        upper.push((x1, hi));
-        lower.push((x0, lo));
-        lower.push((x1, lo));
-    }
-    lower.reverse();
-    upper.extend(lower);
-    upper
+    style: ShapeStyle,
+) -> impl Iterator<Item = Rectangle<(f64, f64)>> + 't {
+    trace
+        .buckets()
+        .iter()
+        .enumerate()
+        .filter_map(move |(i, bk)| {
+            let (lo, hi) = pick(bk)?;
+            let (x0, x1) = bucket_x(trace, ax, i);
+            Some(Rectangle::new(
+                [
+                    (x0, hi.clamp(clip.0, clip.1)),
+                    (x1, lo.clamp(clip.0, clip.1)),
+                ],
+                style,
+            ))
+        })
+}
+
+/// The lowest and highest of a range, `None` when it holds nothing.
+fn span(r: Range) -> Option<(f64, f64)> {
+    (!r.is_empty()).then_some((r.lo, r.hi))
 }
 
 /// The spans of buckets with any interval in an overcorrection episode, merged.
@@ -209,20 +212,24 @@ impl Draw for PfDraw<'_> {
             .draw()
             .map_err(de)?;
         for &(x0, x1) in &over {
-            ch.draw_series(std::iter::once(Rectangle::new(
-                [(x0, lo), (x1, hi)],
-                OVER.filled(),
-            )))
-            .map_err(de)?;
+            ch.plotting_area()
+                .draw(&Rectangle::new([(x0, lo), (x1, hi)], OVER.filled()))
+                .map_err(de)?;
         }
-        let poly = envelope(tr, &ax, |b| b.pf, (lo, hi));
-        ch.draw_series(std::iter::once(Polygon::new(poly, MAIN_LIGHT.filled())))
-            .map_err(de)?;
-        ch.draw_series(std::iter::once(PathElement::new(
-            vec![(0.0, 1.0), (ax.end, 1.0)],
-            MUTED.stroke_width(1),
-        )))
+        ch.draw_series(envelope(
+            tr,
+            &ax,
+            |b| span(b.pf),
+            (lo, hi),
+            MAIN_LIGHT.filled(),
+        ))
         .map_err(de)?;
+        ch.plotting_area()
+            .draw(&PathElement::new(
+                vec![(0.0, 1.0), (ax.end, 1.0)],
+                MUTED.stroke_width(1),
+            ))
+            .map_err(de)?;
         let a = ch.backend_coord(&(0.0, target));
         let b = ch.backend_coord(&(ax.end, target));
         dashed(root, a, b, INK.stroke_width(2))?;
@@ -310,34 +317,43 @@ impl Draw for PfDraw<'_> {
             .draw()
             .map_err(de)?;
         for &(x0, x1) in &over {
-            ch.draw_series(std::iter::once(Rectangle::new(
-                [(x0, dlo), (x1, dhi)],
-                OVER.filled(),
-            )))
-            .map_err(de)?;
+            ch.plotting_area()
+                .draw(&Rectangle::new([(x0, dlo), (x1, dhi)], OVER.filled()))
+                .map_err(de)?;
         }
-        // The band, as one polygon over the buckets.
-        let mut upper = Vec::new();
-        let mut lower = Vec::new();
-        for (i, b) in tr.buckets().iter().enumerate() {
-            if let Some((l, h)) = band_of(b) {
-                let (x0, x1) = bucket_x(tr, &ax, i);
-                upper.extend([(x0, h.clamp(dlo, dhi)), (x1, h.clamp(dlo, dhi))]);
-                lower.extend([(x0, l.clamp(dlo, dhi)), (x1, l.clamp(dlo, dhi))]);
-            }
-        }
-        lower.reverse();
-        let poly = envelope(tr, &ax, |b| b.q_kvar, (dlo, dhi));
-        ch.draw_series(std::iter::once(Polygon::new(poly, MAIN.filled())))
-            .map_err(de)?;
+        ch.draw_series(envelope(
+            tr,
+            &ax,
+            |b| span(b.q_kvar),
+            (dlo, dhi),
+            MAIN.filled(),
+        ))
+        .map_err(de)?;
         // The band over the supply's envelope, see-through, with its edges drawn.
-        let edge_hi = upper.clone();
-        let edge_lo = lower.clone();
-        upper.extend(lower);
-        ch.draw_series(std::iter::once(Polygon::new(upper, BAND.mix(0.7).filled())))
-            .map_err(de)?;
-        for edge in [edge_hi, edge_lo] {
-            ch.draw_series(std::iter::once(PathElement::new(edge, INK.stroke_width(1))))
+        ch.draw_series(envelope(
+            tr,
+            &ax,
+            band_of,
+            (dlo, dhi),
+            BAND.mix(0.7).filled(),
+        ))
+        .map_err(de)?;
+        for upper_edge in [true, false] {
+            let edge = tr.buckets().iter().enumerate().flat_map(|(i, b)| {
+                let (x0, x1) = bucket_x(tr, &ax, i);
+                band_of(b)
+                    .map(|(l, h)| {
+                        let y = if upper_edge { h } else { l }.clamp(dlo, dhi);
+                        [(x0, y), (x1, y)]
+                    })
+                    .into_iter()
+                    .flatten()
+            });
+            ch.plotting_area()
+                .draw(&PathElement::new(
+                    edge.collect::<Vec<_>>(),
+                    INK.stroke_width(1),
+                ))
                 .map_err(de)?;
         }
         if lagging_target {
@@ -369,10 +385,13 @@ impl Draw for PfDraw<'_> {
 
 /// (a) The supply PF over time against the target, and the controller's demand against
 /// the dead band, with overcorrection episodes shaded.
-pub fn pf_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, FigureError> {
+pub fn pf_figure<'a>(
+    ctx: &'a ReportContext<'a>,
+    trace: &'a Trace,
+) -> Result<Plot<'a>, FigureError> {
     let c = &ctx.scenario().controller;
-    render(
-        &PfDraw { ctx, trace },
+    Ok(Plot::new(
+        PfDraw { ctx, trace },
         "pf-over-time",
         "Supply power factor against the target".to_string(),
         format!(
@@ -387,7 +406,7 @@ pub fn pf_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, Figur
             trace.episodes()
         ),
         WIDE,
-    )
+    ))
 }
 
 struct KvarDraw<'a> {
@@ -444,15 +463,21 @@ impl Draw for KvarDraw<'_> {
             .axis_style(MUTED)
             .draw()
             .map_err(de)?;
-        ch.draw_series(std::iter::once(Polygon::new(
-            envelope(tr, &ax, |b| b.needed_kvar, (lo, hi)),
+        ch.draw_series(envelope(
+            tr,
+            &ax,
+            |b| span(b.needed_kvar),
+            (lo, hi),
             MAIN_LIGHT.filled(),
-        )))
+        ))
         .map_err(de)?;
-        ch.draw_series(std::iter::once(Polygon::new(
-            envelope(tr, &ax, |b| b.bank_kvar, (lo, hi)),
+        ch.draw_series(envelope(
+            tr,
+            &ax,
+            |b| span(b.bank_kvar),
+            (lo, hi),
             BANK_LIGHT.mix(0.6).filled(),
-        )))
+        ))
         .map_err(de)?;
         let mean = |sum: fn(&Bucket) -> f64| -> Vec<(f64, f64)> {
             let mut v = Vec::with_capacity(2 * tr.buckets().len());
@@ -467,16 +492,18 @@ impl Draw for KvarDraw<'_> {
             }
             v
         };
-        ch.draw_series(std::iter::once(PathElement::new(
-            mean(|b| b.needed_sum),
-            MAIN.stroke_width(1),
-        )))
-        .map_err(de)?;
-        ch.draw_series(std::iter::once(PathElement::new(
-            mean(|b| b.bank_sum),
-            BANK.stroke_width(2),
-        )))
-        .map_err(de)?;
+        ch.plotting_area()
+            .draw(&PathElement::new(
+                mean(|b| b.needed_sum),
+                MAIN.stroke_width(1),
+            ))
+            .map_err(de)?;
+        ch.plotting_area()
+            .draw(&PathElement::new(
+                mean(|b| b.bank_sum),
+                BANK.stroke_width(2),
+            ))
+            .map_err(de)?;
         // The load's own highest reactive power per bucket, a thin grey line.
         let load_hi: Vec<(f64, f64)> = tr
             .buckets()
@@ -489,11 +516,9 @@ impl Draw for KvarDraw<'_> {
                 [(x0, y), (x1, y)]
             })
             .collect();
-        ch.draw_series(std::iter::once(PathElement::new(
-            load_hi,
-            MUTED.stroke_width(1),
-        )))
-        .map_err(de)?;
+        ch.plotting_area()
+            .draw(&PathElement::new(load_hi, MUTED.stroke_width(1)))
+            .map_err(de)?;
         meta.add("needed for the target", "kvar", [need.lo, need.hi]);
         meta.add("delivered by the bank", "kvar", [bank.lo, bank.hi]);
         meta.add("load reactive power", "kvar", [load.lo, load.hi]);
@@ -503,9 +528,12 @@ impl Draw for KvarDraw<'_> {
 
 /// (b) The kvar the site needs to reach the target against the kvar the bank delivers:
 /// the bank's staircase.
-pub fn kvar_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, FigureError> {
-    render(
-        &KvarDraw { ctx, trace },
+pub fn kvar_figure<'a>(
+    ctx: &'a ReportContext<'a>,
+    trace: &'a Trace,
+) -> Result<Plot<'a>, FigureError> {
+    Ok(Plot::new(
+        KvarDraw { ctx, trace },
         "kvar-needed-delivered",
         "Reactive power needed against reactive power delivered".to_string(),
         format!(
@@ -517,7 +545,7 @@ pub fn kvar_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, Fig
             ctx.scenario().controller.target
         ),
         MEDIUM,
-    )
+    ))
 }
 
 struct RasterDraw<'a> {
@@ -594,11 +622,12 @@ impl Draw for RasterDraw<'_> {
                     continue;
                 }
                 boxes += 1;
-                ch.draw_series(std::iter::once(Rectangle::new(
-                    [(x0, y0 + 0.08), (x1, y1 - 0.08)],
-                    tint(MAIN, 0.15 + 0.85 * v).filled(),
-                )))
-                .map_err(de)?;
+                ch.plotting_area()
+                    .draw(&Rectangle::new(
+                        [(x0, y0 + 0.08), (x1, y1 - 0.08)],
+                        tint(MAIN, 0.15 + 0.85 * v).filled(),
+                    ))
+                    .map_err(de)?;
             }
             let (px, py) = ch.backend_coord(&(0.0, y0 + 0.5));
             let label = if spec.fixed {
@@ -617,11 +646,14 @@ impl Draw for RasterDraw<'_> {
 
 /// (c) The step states over time: one row per step, darker where the step was
 /// connected for more of the pixel column.
-pub fn raster_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, FigureError> {
+pub fn raster_figure<'a>(
+    ctx: &'a ReportContext<'a>,
+    trace: &'a Trace,
+) -> Result<Plot<'a>, FigureError> {
     let n = ctx.scenario().steps.len();
     let h = (110 + 26 * n as u32).clamp(220, 1800);
-    render(
-        &RasterDraw { ctx, trace },
+    Ok(Plot::new(
+        RasterDraw { ctx, trace },
         "step-states",
         "Which steps were connected, and when".to_string(),
         "One row per step (step 1 at the top). Dark: connected for the whole pixel column; \
@@ -629,7 +661,7 @@ pub fn raster_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, F
          belong to steps doing much of the switching."
             .to_string(),
         (WIDE.0, h),
-    )
+    ))
 }
 
 struct HeatDraw<'a> {
@@ -716,11 +748,12 @@ impl Draw for HeatDraw<'_> {
                 }
                 if let Some(v) = v {
                     values.push(v);
-                    ch.draw_series(std::iter::once(Rectangle::new(
-                        [(x0, h as f64), (x1, e as f64)],
-                        scale_colour(q(v)).filled(),
-                    )))
-                    .map_err(de)?;
+                    ch.plotting_area()
+                        .draw(&Rectangle::new(
+                            [(x0, h as f64), (x1, e as f64)],
+                            scale_colour(q(v)).filled(),
+                        ))
+                        .map_err(de)?;
                 }
                 h = e;
             }
@@ -771,9 +804,12 @@ impl Draw for HeatDraw<'_> {
 
 /// (e) The supply PF of each hour of each day: the PF of the hour's mean power, dark
 /// where it lags most, pale where it leads most.
-pub fn heatmap_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, FigureError> {
-    render(
-        &HeatDraw { ctx, trace },
+pub fn heatmap_figure<'a>(
+    ctx: &'a ReportContext<'a>,
+    trace: &'a Trace,
+) -> Result<Plot<'a>, FigureError> {
+    Ok(Plot::new(
+        HeatDraw { ctx, trace },
         "pf-by-hour",
         "Power factor by hour of the day".to_string(),
         "Each box is one hour of one day: the PF of the supply's mean power over that hour. \
@@ -781,5 +817,5 @@ pub fn heatmap_figure(ctx: &ReportContext<'_>, trace: &Trace) -> Result<Figure, 
          Patterns that repeat at the same hour point at the shift or process behind them."
             .to_string(),
         MEDIUM,
-    )
+    ))
 }
