@@ -218,7 +218,14 @@ fn trade(axes: FrontAxes, s: &SettingStats, other: &SettingStats) -> String {
     let dops = s.operations_per_year.median - other.operations_per_year.median;
     let first = match axes {
         FrontAxes::PfOps | FrontAxes::PfLife => {
-            if dpf < 0.0 {
+            if dpf.abs() < 0.0005 {
+                // A difference that rounds to 0.000 is said as such, not as "0.000 lower".
+                format!(
+                    "the same billed PF to three decimals ({} against {})",
+                    num(s.billed_pf.median, 4),
+                    num(other.billed_pf.median, 4)
+                )
+            } else if dpf < 0.0 {
                 format!("{} lower billed PF", num(-dpf, 3))
             } else {
                 format!("{} higher billed PF", num(dpf, 3))
