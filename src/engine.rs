@@ -335,10 +335,17 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         };
         // What the metrics and the observer see of the interval (built again for a block,
         // so that nothing is kept alive across the common path).
+        let q_ph = [
+            sample.q_kvar[0] - lanes.q_bank[0][j],
+            sample.q_kvar[1] - lanes.q_bank[1][j],
+            sample.q_kvar[2] - lanes.q_bank[2][j],
+        ];
         let obs = || IntervalObs {
             t_s: t,
             p_kw: p3,
             q_kvar: q3,
+            p_ph_kw: sample.p_kw,
+            q_ph_kvar: q_ph,
             load_q_kvar: sample.q_total(),
             load_p_kw: p3,
             fixed_q_kvar: fixed_q,

@@ -91,6 +91,11 @@ const SIMULATE_AFTER_HELP: &str = concat!(
   steps_on     connected step numbers, e.g. 1+2+3 (empty if none)
   operation    what the controller did at the end of the interval, e.g. `close 3`,
                `open 2`, `trip export` (takes effect from the next interval)
+  p_a_kw, p_b_kw, p_c_kw         supply-side active power of each phase, kW
+  q_a_kvar, q_b_kvar, q_c_kvar   supply-side reactive power of each phase, kvar
+  pf_a, pf_b, pf_c               power factor of each phase, 0..1
+  pf_a_quadrant, ...             lag or lead, each phase
+  u_a_v, u_b_v, u_c_v            bus voltage of each phase, line to neutral, V
 
 Examples:
   bankstep simulate site.toml

@@ -46,6 +46,10 @@ pub struct IntervalObs<'a> {
     pub p_kw: f64,
     /// Three-phase supply reactive power, kvar.
     pub q_kvar: f64,
+    /// Supply active power of each phase a, b, c, kW.
+    pub p_ph_kw: [f64; 3],
+    /// Supply reactive power of each phase a, b, c, kvar.
+    pub q_ph_kvar: [f64; 3],
     /// Three-phase load reactive power, kvar.
     pub load_q_kvar: f64,
     /// Three-phase load active power, kW.
@@ -293,6 +297,56 @@ pub struct LoadMetrics {
     pub min_p_kw: f64,
 }
 
+/// Overcorrection of one phase: maximal runs of intervals in which the phase leads by
+/// more than its share of the threshold (one third of the three-phase threshold), judged
+/// as the three-phase episodes are (same minimum duration; past zero for a lagging or
+/// unity target, past the target for a leading one).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PhaseOvercorrection {
+    /// Number of episodes.
+    pub episodes: u64,
+    /// Total time in episodes, s.
+    pub total_s: f64,
+    /// Longest episode, s.
+    pub longest_s: f64,
+    /// Largest leading |Q| of the phase in an episode, kvar.
+    pub worst_leading_kvar: f64,
+    /// The phase's threshold, kvar: one third of the three-phase threshold.
+    pub threshold_kvar: f64,
+}
+
+/// What one phase of the supply did over the run: its own registers, billed PF, shares
+/// and overcorrection. The three-phase figures are not the sum of these: a phase can
+/// lead while the sum lags.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PhaseMetrics {
+    /// The phase: `a`, `b` or `c`.
+    pub phase: &'static str,
+    /// Energy PF of the phase, E_P / sqrt(E_P² + E_Q,ind²) over its own registers, 0..1.
+    pub energy_pf: f64,
+    /// `lag` whenever the phase's inductive register is non-zero, else `lead` if its
+    /// capacitive one is not.
+    pub energy_pf_quadrant: Quadrant,
+    /// tan φ = E_Q,ind / E_P of the phase; `None` (null) when E_P = 0.
+    pub tan_phi: Option<f64>,
+    /// E_Q,cap / E_P of the phase; `None` (null) when E_P = 0.
+    pub tan_phi_capacitive: Option<f64>,
+    /// Active energy imported on the phase, kWh.
+    pub kwh_import: f64,
+    /// Active energy exported on the phase, kWh.
+    pub kwh_export: f64,
+    /// Inductive reactive energy of the phase, kvarh.
+    pub kvarh_inductive: f64,
+    /// Capacitive reactive energy of the phase, kvarh.
+    pub kvarh_capacitive: f64,
+    /// Share of run time with the phase's P > 0 and Q > P·tan φ_t.
+    pub share_under_target: f64,
+    /// Share of run time with the phase's Q < 0.
+    pub share_leading: f64,
+    /// Overcorrection episodes of the phase.
+    pub overcorrection: PhaseOvercorrection,
+}
+
 /// Everything a run measured (the resonance section is added by the engine).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct RunMetrics {
@@ -312,6 +366,8 @@ pub struct RunMetrics {
     pub voltage: VoltageMetrics,
     /// Load extremes.
     pub load: LoadMetrics,
+    /// Per phase a, b, c: registers, billed PF, shares and overcorrection.
+    pub phases: Vec<PhaseMetrics>,
 }
 
 #[derive(Debug, Clone, Copy, Default)]
@@ -384,6 +440,35 @@ impl StateAcc {
     }
 }
 
+/// The per-phase accumulators of one phase.
+#[derive(Debug, Clone, Copy, Default)]
+struct PhaseAcc {
+    reg: Registers,
+    under_n: u64,
+    lead_n: u64,
+    /// Intervals of the open episode (0: none open).
+    ep_n: u64,
+    ep_worst: f64,
+    episodes: u64,
+    total_n: u64,
+    longest_n: u64,
+    worst: f64,
+}
+
+impl PhaseAcc {
+    /// Closes the open episode, counting it when it lasted `min_n` intervals.
+    fn close(&mut self, min_n: u64) {
+        if self.ep_n >= min_n {
+            self.episodes += 1;
+            self.total_n += self.ep_n;
+            self.longest_n = self.longest_n.max(self.ep_n);
+            self.worst = self.worst.max(self.ep_worst);
+        }
+        self.ep_n = 0;
+        self.ep_worst = 0.0;
+    }
+}
+
 #[derive(Debug, Clone, Copy, Default)]
 struct Episode {
     open: bool,
@@ -437,6 +522,7 @@ pub struct Metrics {
     load_q_max: f64,
     load_p_max: f64,
     load_p_min: f64,
+    phase: [PhaseAcc; 3],
 }
 
 impl Metrics {
@@ -496,6 +582,7 @@ impl Metrics {
             load_q_max: f64::NEG_INFINITY,
             load_p_max: f64::NEG_INFINITY,
             load_p_min: f64::INFINITY,
+            phase: [PhaseAcc::default(); 3],
         }
     }
 
@@ -534,6 +621,7 @@ impl Metrics {
         if o.v_ll_max > self.v_110 {
             self.over_110_n += 1;
         }
+        self.record_phases(o, 1);
         match self.overcorrection_cause(o) {
             Some(cause) => {
                 if !self.ep.open {
@@ -549,6 +637,40 @@ impl Metrics {
             }
             None if self.ep.open => self.close_episode(),
             None => {}
+        }
+    }
+
+    /// Adds `m` intervals of the phases of `o` (1 for [`Metrics::record`], the block's
+    /// length for [`Metrics::record_block`]). An open episode of a phase closes on an
+    /// interval in which that phase is not overcorrected, which is never inside a block.
+    #[inline(always)]
+    fn record_phases(&mut self, o: &IntervalObs<'_>, m: u64) {
+        let h = if m == 1 { self.h } else { self.h * m as f64 };
+        let thr = self.p.overcorrection_threshold_kvar / 3.0;
+        let tan_t = self.tan_t;
+        for ph in 0..3 {
+            let (p, q) = (o.p_ph_kw[ph], o.q_ph_kvar[ph]);
+            let a = &mut self.phase[ph];
+            a.reg.add(p, q, h);
+            if p > 0.0 && q > p * tan_t {
+                a.under_n += m;
+            }
+            if q < 0.0 {
+                a.lead_n += m;
+            }
+            let limit = if tan_t < 0.0 {
+                p.abs() * tan_t - thr
+            } else {
+                -thr
+            };
+            if q < limit {
+                a.ep_n += m;
+                if -q > a.ep_worst {
+                    a.ep_worst = -q;
+                }
+            } else if a.ep_n > 0 {
+                a.close(self.min_ep_n);
+            }
         }
     }
 
@@ -633,6 +755,7 @@ impl Metrics {
         if o.v_ll_max > self.v_110 {
             self.over_110_n += m;
         }
+        self.record_phases(o, m);
         // The extremes were taken by the interval just recorded.
         if let Some(cause) = self.overcorrection_cause(o) {
             // The interval just recorded opened or continued the episode.
@@ -738,6 +861,42 @@ impl Metrics {
         if self.ep.open {
             self.close_episode();
         }
+        let thr_ph = self.p.overcorrection_threshold_kvar / 3.0;
+        let phases: Vec<PhaseMetrics> = (0..3)
+            .map(|ph| {
+                let a = &mut self.phase[ph];
+                a.close(self.min_ep_n);
+                let b = a.reg.billed();
+                PhaseMetrics {
+                    phase: crate::profile::PHASES[ph],
+                    energy_pf: b.energy_pf,
+                    energy_pf_quadrant: b.quadrant,
+                    tan_phi: b.tan_phi,
+                    tan_phi_capacitive: b.tan_phi_capacitive,
+                    kwh_import: a.reg.kwh_import,
+                    kwh_export: a.reg.kwh_export,
+                    kvarh_inductive: a.reg.kvarh_ind,
+                    kvarh_capacitive: a.reg.kvarh_cap,
+                    share_under_target: if n > 0 {
+                        a.under_n as f64 / n as f64
+                    } else {
+                        0.0
+                    },
+                    share_leading: if n > 0 {
+                        a.lead_n as f64 / n as f64
+                    } else {
+                        0.0
+                    },
+                    overcorrection: PhaseOvercorrection {
+                        episodes: a.episodes,
+                        total_s: a.total_n as f64 * dt,
+                        longest_s: a.longest_n as f64 * dt,
+                        worst_leading_kvar: a.worst,
+                        threshold_kvar: thr_ph,
+                    },
+                }
+            })
+            .collect();
         self.close_window(t_end);
         self.close_state(n);
         for s in self.mask {
@@ -864,6 +1023,7 @@ impl Metrics {
                 max_p_kw: if n > 0 { self.load_p_max } else { 0.0 },
                 min_p_kw: if n > 0 { self.load_p_min } else { 0.0 },
             },
+            phases,
         }
     }
 }
@@ -915,6 +1075,8 @@ mod tests {
             t_s,
             p_kw,
             q_kvar,
+            p_ph_kw: [p_kw / 3.0; 3],
+            q_ph_kvar: [q_kvar / 3.0; 3],
             load_q_kvar: q_kvar,
             load_p_kw: p_kw,
             fixed_q_kvar: 0.0,

@@ -118,6 +118,8 @@ struct Document<'a> {
     resonance: &'a ResonanceReport,
     wear: WearJson<'a>,
     voltage: &'a VoltageMetrics,
+    /// Per phase a, b, c.
+    phases: &'a [crate::metrics::PhaseMetrics],
     nonconverged_intervals: u64,
     /// The wear plan, when one was made (null otherwise).
     wear_plan: Option<&'a crate::analysis::maintenance::WearPlan>,
@@ -194,6 +196,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
         resonance: &ctx.assessment.resonance,
         wear: WearJson { per_step: &m.wear },
         voltage: &m.voltage,
+        phases: &m.phases,
         nonconverged_intervals: ctx.result.nonconverged_intervals,
         wear_plan: ctx.wear_plan,
     }

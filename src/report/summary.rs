@@ -42,6 +42,7 @@ impl ReportWriter for Summary {
         profile_defects(ctx, &mut t);
         study(ctx, &mut t);
         pf_energy(ctx, &mut t);
+        per_phase(ctx, &mut t);
         switching(ctx, &mut t);
         overcorrection(ctx, &mut t);
         resonance(ctx, &mut t);
@@ -398,6 +399,55 @@ fn pf_energy(ctx: &ReportContext<'_>, t: &mut String) {
             num(w.kwh_import, 1),
             num(w.kvarh_inductive, 1),
             num(w.kvarh_capacitive, 1)
+        ));
+    }
+}
+
+/// The supply phase by phase: the billed PF of each phase's own registers, its shares of
+/// time under target and leading, and its overcorrection episodes.
+fn per_phase(ctx: &ReportContext<'_>, t: &mut String) {
+    let m = &ctx.result.metrics;
+    if m.phases.is_empty() {
+        return;
+    }
+    let goal = ctx.assessment.billed_pf.goal;
+    heading(t, "Per phase");
+    wrap(
+        t,
+        "  ",
+        "  ",
+        &format!(
+            "Each phase's own registers at the metering point; a phase counts as \
+             overcorrected when it leads by more than {} kvar (a third of the three-phase \
+             threshold) for at least {}.",
+            num(m.overcorrection.threshold_kvar / 3.0, 1),
+            duration(m.overcorrection.min_duration_s)
+        ),
+    );
+    t.push_str(&format!(
+        "    {:<5}  {:>9}  {:>12}  {:>15}  {:>16}  {:>12}  {:>8}  {:>8}  {:>14}\n",
+        "phase",
+        "energy PF",
+        "import kWh",
+        "inductive kvarh",
+        "capacitive kvarh",
+        "under target",
+        "leading",
+        "episodes",
+        "overcorrected"
+    ));
+    for p in &m.phases {
+        t.push_str(&format!(
+            "    {:<5}  {:>9}  {:>12}  {:>15}  {:>16}  {:>12}  {:>8}  {:>8}  {:>14}\n",
+            p.phase,
+            pf_vs(p.energy_pf, p.energy_pf_quadrant, goal),
+            num(p.kwh_import, 1),
+            num(p.kvarh_inductive, 1),
+            num(p.kvarh_capacitive, 1),
+            pct(p.share_under_target),
+            pct(p.share_leading),
+            count(p.overcorrection.episodes),
+            duration(p.overcorrection.total_s)
         ));
     }
 }
