@@ -65,7 +65,7 @@
 
 use crate::bank::{Bank, BankState};
 use crate::controller::Measurement;
-use crate::controller::{Controller, Decision};
+use crate::controller::{Control, Decision};
 use crate::error::RunError;
 use crate::metrics::Metrics;
 use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
@@ -73,6 +73,7 @@ use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::Scenario;
 use crate::study::{RunPlan, Stepping};
 use crate::supply::{BusSolver, Lanes, PhaseSolution, LANE};
+use num_complex::Complex64;
 use serde::Serialize;
 use std::collections::HashMap;
 
@@ -193,7 +194,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     let t0 = plan.t_first_s;
     let mut bank = Bank::new(sc.steps.clone(), u_n);
     let mut solver = BusSolver::new(&sc.supply);
-    let mut ctl = Controller::new(sc.controller, &bank, dt, t0);
+    let mut ctl = Control::new(sc.controller, &bank, dt, t0);
     let params = MetricParams {
         target: sc.controller.target,
         overcorrection_threshold_kvar: sc.overcorrection_threshold_kvar,
@@ -220,6 +221,12 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     let want_current = sc.controller.protection.min_current_a.is_some();
     let has_fixed = !bank.fixed_mask.is_empty();
     let measurement = sc.controller.measurement;
+    // The measuring inputs: read straight from each phase's P and Q when wired as assumed
+    // with line-to-neutral voltages (the usual case, and the only one before per-phase
+    // control), else through the bus phasors.
+    let wiring = sc.controller.wiring();
+    let direct = wiring.is_direct();
+    let per_phase = sc.controller.per_phase;
     let n = plan.intervals;
     let blocks = plan.stepping == Stepping::Events && !observer.wants_every_interval();
     // Samples taken ahead from the source: `samples[i]` is interval `buf_k + i`, for
@@ -313,15 +320,49 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         } else {
             0.0
         };
-        let (p_raw, q_raw) = match measurement {
-            Measurement::ThreePhase => (p3, q3),
-            Measurement::SinglePhase(ph) => (
-                3.0 * sample.p_kw[ph],
-                3.0 * (sample.q_kvar[ph] - lanes.q_bank[ph][j]),
-            ),
-        };
+        let q_ph = [
+            sample.q_kvar[0] - lanes.q_bank[0][j],
+            sample.q_kvar[1] - lanes.q_bank[1][j],
+            sample.q_kvar[2] - lanes.q_bank[2][j],
+        ];
         let mask = ctl.mask();
-        let d = ctl.decide_measured(p_raw, q_raw, v_ll_max, current_a, thd, t_next);
+        let d = if direct && !per_phase {
+            let (p_raw, q_raw) = match measurement {
+                Measurement::ThreePhase => (p3, q3),
+                Measurement::SinglePhase(ph) => (
+                    3.0 * sample.p_kw[ph],
+                    3.0 * (sample.q_kvar[ph] - lanes.q_bank[ph][j]),
+                ),
+            };
+            ctl.decide_measured(p_raw, q_raw, v_ll_max, current_a, thd, t_next)
+        } else {
+            let (p_ch, q_ch) = if direct {
+                (sample.p_kw, q_ph)
+            } else {
+                let v: [Complex64; 3] = std::array::from_fn(|ph| {
+                    solver.phasor_w(ph, lanes.w[ph][j], sample.p_kw[ph], sample.q_kvar[ph])
+                });
+                let s_ph: [Complex64; 3] =
+                    std::array::from_fn(|ph| Complex64::new(sample.p_kw[ph], q_ph[ph]));
+                let m = wiring.measure(&v, &s_ph);
+                (m.map(|c| c.re), m.map(|c| c.im))
+            };
+            if per_phase {
+                ctl.decide_phases(&p_ch, &q_ch, v_ll_max, current_a, thd, t_next)
+            } else if wiring.n == 1 {
+                ctl.decide_measured(
+                    3.0 * p_ch[0],
+                    3.0 * q_ch[0],
+                    v_ll_max,
+                    current_a,
+                    thd,
+                    t_next,
+                )
+            } else {
+                let (p_raw, q_raw) = (p_ch[0] + p_ch[1] + p_ch[2], q_ch[0] + q_ch[1] + q_ch[2]);
+                ctl.decide_measured(p_raw, q_raw, v_ll_max, current_a, thd, t_next)
+            }
+        };
         // The fixed steps' output matters only to the cause of an overcorrected interval.
         let fixed_q = if has_fixed && met.overcorrected(p3, q3) {
             let mut f = 0.0;
@@ -335,11 +376,6 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         };
         // What the metrics and the observer see of the interval (built again for a block,
         // so that nothing is kept alive across the common path).
-        let q_ph = [
-            sample.q_kvar[0] - lanes.q_bank[0][j],
-            sample.q_kvar[1] - lanes.q_bank[1][j],
-            sample.q_kvar[2] - lanes.q_bank[2][j],
-        ];
         let obs = || IntervalObs {
             t_s: t,
             p_kw: p3,
@@ -441,7 +477,7 @@ fn block_end(
     dt: f64,
     bank: &Bank,
     met: &Metrics,
-    ctl: &Controller,
+    ctl: &Control,
     t_prev: f64,
 ) -> u64 {
     if same_until <= k {

@@ -226,6 +226,27 @@ impl BusSolver {
     }
 }
 
+impl BusSolver {
+    /// The bus voltage of phase `ph` as a phasor in the common reference (the source's
+    /// phase a at 0°, b at −120°, c at +120°), V line to neutral, from its squared
+    /// magnitude `w` (as solved) and the phase's load `p_kw`, `q_kvar`. Each phase is
+    /// solved in its own reference; its angle there is turned by the phase's nominal angle.
+    #[inline]
+    pub fn phasor_w(&self, ph: usize, w: f64, p_kw: f64, q_kvar: f64) -> Complex64 {
+        let eq = &self.eq[ph];
+        let a = eq.z * Complex64::new(p_kw * 1e3, -q_kvar * 1e3);
+        let own = ((Complex64::new(w, 0.0) + a) / eq.e).conj();
+        own * ROTATION[ph.min(2)]
+    }
+}
+
+/// e^(j·0°), e^(−j·120°), e^(+j·120°): the nominal angles of phases a, b and c.
+pub const ROTATION: [Complex64; 3] = [
+    Complex64::new(1.0, 0.0),
+    Complex64::new(-0.5, -0.866_025_403_784_438_6),
+    Complex64::new(-0.5, 0.866_025_403_784_438_6),
+];
+
 /// Intervals solved together by [`BusSolver::solve_lanes`].
 pub const LANE: usize = 32;
 

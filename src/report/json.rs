@@ -11,7 +11,6 @@
 //! absolute paths (file names only), and only structs, vectors and ordered maps.
 
 use crate::analysis::{Advice, Finding, ResonanceReport};
-use crate::controller::Measurement;
 use crate::metrics::{
     OvercorrectionMetrics, PfMetrics, RunInfo, StepWear, SwitchingMetrics, VoltageMetrics,
 };
@@ -77,6 +76,8 @@ struct ControllerJson {
     averaging_s: f64,
     measurement: String,
     export_mode: &'static str,
+    /// How the measuring inputs are wired: `as assumed`, or the what-if's wiring.
+    wiring: String,
 }
 
 /// What was studied.
@@ -178,12 +179,8 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
                 discharge_time_s: c.discharge_time_s,
                 averaging_s: c.averaging_s,
                 export_mode: c.export_mode.name(),
-                measurement: match c.measurement {
-                    Measurement::ThreePhase => "three-phase".to_string(),
-                    Measurement::SinglePhase(p) => {
-                        format!("single-phase {}", crate::profile::PHASES[p.min(2)])
-                    }
-                },
+                measurement: c.measurement_label(),
+                wiring: c.wiring().label(),
             },
         },
         run: &m.run,

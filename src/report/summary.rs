@@ -269,12 +269,16 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
         ));
     }
     let c = &sc.controller;
-    let measurement = match c.measurement {
-        Measurement::ThreePhase => "three-phase".to_string(),
-        Measurement::SinglePhase(p) => {
+    let mut measurement = match c.measurement {
+        Measurement::SinglePhase(p) if c.measurement_voltage.is_none() => {
             format!("single-phase on phase {}", crate::profile::PHASES[p.min(2)])
         }
+        _ => c.measurement_label(),
     };
+    let wiring = c.wiring();
+    if !wiring.as_assumed() {
+        measurement.push_str(&format!(" (wired: {})", wiring.label()));
+    }
     field(
         t,
         "Controller",

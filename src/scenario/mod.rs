@@ -177,6 +177,12 @@ impl Scenario {
         let smallest = crate::bank::smallest_switched_kvar(&steps);
         let mut ctl = controller::controller(&f.controller, supply.nominal_voltage_v, smallest)?;
         ctl.params.detection = maintenance::detection(&f.controller.detection)?;
+        if ctl.params.per_phase && ctl.params.detection.is_some() {
+            return Err(FieldError::new(
+                "controller.detection",
+                "fault detection is not available with measurement = \"per-phase\"",
+            ));
+        }
         let maintenance = maintenance::maintenance(&f.maintenance, &f.steps, &steps::table_label)?;
         let load = load::load(&f.load, path)?;
         let harm = harmonics::harmonics(&f.harmonics)?;
