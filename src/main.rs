@@ -637,6 +637,12 @@ struct SimulateArgs {
     /// and PNG.
     #[arg(long, value_name = "DIR")]
     report: Option<PathBuf>,
+    /// Also run every plausible miswiring of the configured measurement (current from
+    /// another line, reversed polarity, another voltage pair; for three channels one or
+    /// all reversed, rotated or swapped) on the same load, and print a table of what each
+    /// does: billed PF, operations, overcorrection and the symptom in words.
+    #[arg(long)]
+    wiring_check: bool,
     /// Make the summary's wear plan in full: also run the other orderings, more seeds,
     /// the ageing years and the fault comparisons on the same profile (as `bankstep
     /// wear` does). Without it the plan comes from this run alone.
@@ -908,6 +914,19 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
         Summary
             .write(&ctx, &mut out)
             .map_err(|e| Failure::report(e, || "cannot write the summary".to_string()))?;
+    }
+    if args.wiring_check {
+        let rows = bankstep::analysis::wiring::wiring_check(&study)
+            .map_err(|e| Failure::simulation(e, &file))?;
+        let what = || "cannot write the wiring check".to_string();
+        let written = if json_to_stdout {
+            bankstep::report::wiring::write_text(&study, &rows, &mut std::io::stderr().lock())
+        } else {
+            let mut out = std::io::stdout().lock();
+            std::io::Write::write_all(&mut out, b"\n")
+                .and_then(|_| bankstep::report::wiring::write_text(&study, &rows, &mut out))
+        };
+        written.with_context(what).map_err(Failure::run)?;
     }
     Ok(())
 }

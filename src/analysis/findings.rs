@@ -105,6 +105,7 @@ pub(crate) fn findings(ctx: &Context<'_>) -> Vec<Finding> {
     wear(ctx, &mut out);
     overcorrection(ctx, &mut out);
     phases(ctx, &mut out);
+    wiring(ctx, &mut out);
     hunting(ctx, &mut out);
     resonance(ctx, &mut out);
     voltage(ctx, &mut out);
@@ -536,6 +537,35 @@ fn phases(ctx: &Context<'_>, out: &mut Vec<Finding>) {
             ));
         }
     }
+}
+
+/// A what-if wiring of the measurement: what the controller then does, in plain words.
+fn wiring(ctx: &Context<'_>, out: &mut Vec<Finding>) {
+    let c = &ctx.scenario().controller;
+    let w = c.wiring();
+    if w.as_assumed() {
+        return;
+    }
+    let s = crate::analysis::wiring::symptoms(ctx.study, ctx.result);
+    let m = &ctx.result.metrics;
+    let text = format!(
+        "What-if wiring of the {} measurement: {}. With it the controller {} (billed PF {}, \
+         {} operations).",
+        c.measurement_label(),
+        w.label(),
+        crate::analysis::wiring::symptom_words(&s),
+        pf_vs(m.pf.energy_pf, m.pf.energy_pf_quadrant, ctx.billed_pf.goal),
+        count(m.switching.total_operations),
+    );
+    out.push(
+        Finding::new(Severity::Critical, "wiring", 1.0, text).advise(
+            "At commissioning, check that each current transformer sits on the line the \
+             controller expects, with its polarity (P1 towards the supply), and that the \
+             voltage input is the pair the controller is set for; most controllers show \
+             the measured PF and kW per channel, which a clamp meter confirms.",
+            true,
+        ),
+    );
 }
 
 fn hunting(ctx: &Context<'_>, out: &mut Vec<Finding>) {

@@ -242,21 +242,37 @@ impl Wiring {
         out
     }
 
-    /// The actual wiring in words, channel by channel, `as assumed` when it is.
+    /// The actual wiring in words: `as assumed`, the one channel as wired
+    /// (`I_b reversed with U_an`), or for three channels the currents they carry and the
+    /// reversed ones (`a, b, c carry I_b, I_c, I_a`; `reversed on a`).
     pub fn label(&self) -> String {
         if self.as_assumed() {
             return "as assumed".to_string();
         }
-        let parts: Vec<String> = (0..self.n)
-            .filter(|&i| self.actual[i] != self.assumed[i])
-            .map(|i| {
-                format!(
-                    "{} instead of {}",
-                    self.actual[i].label(),
-                    self.assumed[i].label()
-                )
-            })
+        if self.n == 1 {
+            return self.actual[0].label();
+        }
+        let names = crate::profile::PHASES;
+        let mut parts = Vec::new();
+        if (0..3).any(|i| self.actual[i].current != self.assumed[i].current) {
+            let carry: Vec<String> = (0..3)
+                .map(|i| format!("I_{}", names[self.actual[i].current.min(2)]))
+                .collect();
+            parts.push(format!("a, b, c carry {}", carry.join(", ")));
+        }
+        let rev: Vec<String> = (0..3)
+            .filter(|&i| self.actual[i].reversed != self.assumed[i].reversed)
+            .map(|i| names[i].to_string())
             .collect();
+        if !rev.is_empty() {
+            parts.push(format!("reversed on {}", crate::text::join_and(&rev)));
+        }
+        if (0..3).any(|i| self.actual[i].voltage != self.assumed[i].voltage) {
+            let v: Vec<String> = (0..3)
+                .map(|i| format!("U_{}", self.actual[i].voltage.label()))
+                .collect();
+            parts.push(format!("voltages {}", v.join(", ")));
+        }
         parts.join("; ")
     }
 
