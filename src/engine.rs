@@ -203,6 +203,10 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         billing_starts: plan.billing_starts.clone(),
     };
     let mut met = crate::metrics::Metrics::new(params, &bank, plan.calendar, u_n, dt, t0);
+    let want_unbalance = sc.unbalance;
+    if want_unbalance {
+        met = met.with_unbalance(plan.duration_s());
+    }
     // The distortion protection needs the THD of each state the run reaches.
     let hm = sc.harmonic_model();
     let thd_wanted = sc.controller.protection.thd_limit_pct.is_some();
@@ -325,6 +329,16 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             sample.q_kvar[1] - lanes.q_bank[1][j],
             sample.q_kvar[2] - lanes.q_bank[2][j],
         ];
+        // The bus phasors, when the measurement or the unbalance needs them.
+        let phasors = (want_unbalance || !direct).then(|| -> [Complex64; 3] {
+            std::array::from_fn(|ph| {
+                solver.phasor_w(ph, lanes.w[ph][j], sample.p_kw[ph], sample.q_kvar[ph])
+            })
+        });
+        let unbalance = match (&phasors, want_unbalance) {
+            (Some(v), true) => Some(unbalance_of(v, &sample.p_kw, &q_ph)),
+            _ => None,
+        };
         let mask = ctl.mask();
         let d = if direct && !per_phase {
             let (p_raw, q_raw) = match measurement {
@@ -339,9 +353,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             let (p_ch, q_ch) = if direct {
                 (sample.p_kw, q_ph)
             } else {
-                let v: [Complex64; 3] = std::array::from_fn(|ph| {
-                    solver.phasor_w(ph, lanes.w[ph][j], sample.p_kw[ph], sample.q_kvar[ph])
-                });
+                let v = phasors.unwrap_or_default();
                 let s_ph: [Complex64; 3] =
                     std::array::from_fn(|ph| Complex64::new(sample.p_kw[ph], q_ph[ph]));
                 let m = wiring.measure(&v, &s_ph);
@@ -382,6 +394,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             q_kvar: q3,
             p_ph_kw: sample.p_kw,
             q_ph_kvar: q_ph,
+            unbalance,
             load_q_kvar: sample.q_total(),
             load_p_kw: p3,
             fixed_q_kvar: fixed_q,
@@ -438,6 +451,23 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         metrics,
         nonconverged_intervals: solver.nonconverged,
     })
+}
+
+/// The unbalance of one interval: the bus voltage phasors `v` (V, line to neutral) and
+/// the supply's P and Q per phase (kW, kvar) give the supply currents
+/// I_x = conj(S_x/V_x) (kA), their sequence components and the IEEE Std 1459-2010
+/// apparent powers of a four-wire system.
+fn unbalance_of(v: &[Complex64; 3], p: &[f64; 3], q: &[f64; 3]) -> crate::metrics::UnbalanceObs {
+    let i: [Complex64; 3] = std::array::from_fn(|x| (Complex64::new(p[x], q[x]) / v[x]).conj());
+    let s = crate::unbalance::apparent_powers(*v, i, true);
+    crate::metrics::UnbalanceObs {
+        u2: crate::unbalance::unbalance(*v).unwrap_or(0.0),
+        i2: crate::unbalance::unbalance(i).unwrap_or(0.0),
+        p_kw: s.p,
+        s_vector_kva: s.vector,
+        s_arithmetic_kva: s.arithmetic,
+        s_effective_kva: s.effective,
+    }
 }
 
 /// Samples taken from the source at a time.

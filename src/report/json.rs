@@ -121,6 +121,8 @@ struct Document<'a> {
     voltage: &'a VoltageMetrics,
     /// Per phase a, b, c.
     phases: &'a [crate::metrics::PhaseMetrics],
+    /// Unbalance, when the scenario asks for it (null otherwise).
+    unbalance: Option<&'a crate::metrics::UnbalanceMetrics>,
     nonconverged_intervals: u64,
     /// The wear plan, when one was made (null otherwise).
     wear_plan: Option<&'a crate::analysis::maintenance::WearPlan>,
@@ -194,6 +196,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
         wear: WearJson { per_step: &m.wear },
         voltage: &m.voltage,
         phases: &m.phases,
+        unbalance: m.unbalance.as_ref(),
         nonconverged_intervals: ctx.result.nonconverged_intervals,
         wear_plan: ctx.wear_plan,
     }

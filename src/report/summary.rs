@@ -43,6 +43,7 @@ impl ReportWriter for Summary {
         study(ctx, &mut t);
         pf_energy(ctx, &mut t);
         per_phase(ctx, &mut t);
+        unbalance(ctx, &mut t);
         switching(ctx, &mut t);
         overcorrection(ctx, &mut t);
         resonance(ctx, &mut t);
@@ -454,6 +455,60 @@ fn per_phase(ctx: &ReportContext<'_>, t: &mut String) {
             duration(p.overcorrection.total_s)
         ));
     }
+}
+
+/// Voltage and current unbalance and the IEEE Std 1459-2010 apparent powers, when the
+/// scenario asks for them.
+fn unbalance(ctx: &ReportContext<'_>, t: &mut String) {
+    let Some(u) = &ctx.result.metrics.unbalance else {
+        return;
+    };
+    heading(t, "Unbalance");
+    field(
+        t,
+        "Voltage unbalance",
+        &format!(
+            "{} % mean, {} % highest (|V2|/|V1| of the bus)",
+            num(u.u2_mean_pct, 2),
+            num(u.u2_max_pct, 2)
+        ),
+    );
+    for w in &u.weeks {
+        let cal = ctx.study.plan.calendar;
+        field(
+            t,
+            &format!("  week from {}", cal.datetime(w.start_s).format("%Y-%m-%d")),
+            &format!(
+                "95th percentile of {} 10-minute values {} % (EN 50160 allows 2 %), highest {} %",
+                count(w.values),
+                num(w.u2_p95_pct, 2),
+                num(w.u2_max_pct, 2)
+            ),
+        );
+    }
+    field(
+        t,
+        "Current unbalance",
+        &format!(
+            "{} % mean, {} % highest (|I2|/|I1| of the supply)",
+            num(u.i2_mean_pct, 1),
+            num(u.i2_max_pct, 1)
+        ),
+    );
+    field(
+        t,
+        "Apparent energy",
+        &format!(
+            "vector {} kVAh (PF {}), arithmetic {} kVAh (PF {}), effective {} kVAh (PF {}), \
+             IEEE Std 1459-2010",
+            num(u.kvah_vector, 1),
+            num(u.pf_vector, 3),
+            num(u.kvah_arithmetic, 1),
+            num(u.pf_arithmetic, 3),
+            num(u.kvah_effective, 1),
+            num(u.pf_effective, 3)
+        ),
+    );
 }
 
 fn switching(ctx: &ReportContext<'_>, t: &mut String) {

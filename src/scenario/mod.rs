@@ -108,6 +108,10 @@ pub struct Scenario {
     pub overcorrection_min_s: f64,
     /// Hunting window, s.
     pub hunting_window_s: f64,
+    /// Measure unbalance over the run (`report.unbalance`): voltage and current
+    /// unbalance, their weekly 95th percentile, and the IEEE Std 1459-2010 apparent
+    /// powers. Default false.
+    pub unbalance: bool,
     /// Discharge-device time of the capacitors, s, if given.
     pub capacitor_discharge_s: Option<f64>,
     /// The key the user wrote to set the dead band: [`DEAD_BAND_KVAR_KEY`]
@@ -214,6 +218,7 @@ impl Scenario {
             overcorrection_threshold_kvar: rep.overcorrection_threshold_kvar,
             overcorrection_min_s: rep.overcorrection_min_s,
             hunting_window_s: rep.hunting_window_s,
+            unbalance: rep.unbalance,
             capacitor_discharge_s: ctl.capacitor_discharge_s,
             dead_band_key: ctl.dead_band_key,
             tariff,

@@ -296,6 +296,9 @@ pub struct ReportSection {
     pub overcorrection_min_s: Option<f64>,
     /// Hunting window, s. Default 10 × the switching delay.
     pub hunting_window_s: Option<f64>,
+    /// Measure unbalance: voltage and current unbalance over time and the IEEE Std
+    /// 1459-2010 apparent powers. Default false.
+    pub unbalance: Option<bool>,
 }
 
 /// `[controller.wiring]`: the measuring inputs as actually wired, while the controller
