@@ -72,7 +72,7 @@ use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::Scenario;
 use crate::study::{RunPlan, Stepping};
-use crate::supply::{BusSolver, Lanes, PhaseSolution, LANE};
+use crate::supply::{BusModel, BusSolver, CoupledSolver, Lanes, PhaseSolution, LANE};
 use num_complex::Complex64;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -194,6 +194,13 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     let t0 = plan.t_first_s;
     let mut bank = Bank::new(sc.steps.clone(), u_n);
     let mut solver = BusSolver::new(&sc.supply);
+    // The three phases solved together, when the scenario asks for it; its phasors land
+    // in `coupled_v` beside the lanes.
+    let mut coupled = match sc.bus {
+        BusModel::Coupled(w) => Some(CoupledSolver::new(&sc.supply, w)),
+        BusModel::PerPhase => None,
+    };
+    let mut coupled_v = Box::new([[Complex64::default(); LANE]; 3]);
     let mut ctl = Control::new(sc.controller, &bank, dt, t0);
     let params = MetricParams {
         target: sc.controller.target,
@@ -219,7 +226,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         *thd_cache.entry(mask).or_insert_with(|| hm.thd_pct(mask))
     };
 
-    solver.set_bank(&bank.susceptance(ctl.mask()));
+    set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
     let mut b_fixed = bank.susceptance(bank.fixed_mask);
     let mut thd = thd_of(ctl.mask());
     let want_current = sc.controller.protection.min_current_a.is_some();
@@ -259,7 +266,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         let t_next = t0 + (kf + 1.0) * dt;
         if k >= k_fault {
             if bank.advance_faults(k as f64 * dt) {
-                solver.set_bank(&bank.susceptance(ctl.mask()));
+                set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
                 b_fixed = bank.susceptance(bank.fixed_mask);
                 same_until = 0;
                 // Solutions from this interval on are stale.
@@ -294,7 +301,10 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             let i = (k - buf_k) as usize;
             if i >= sol_base + sol_len || i < sol_base {
                 let end = buf_len.min(i + LANE);
-                solver.solve_lanes(&samples[i..end], &mut lanes);
+                match &coupled {
+                    None => solver.solve_lanes(&samples[i..end], &mut lanes),
+                    Some(c) => c.solve_lanes(&samples[i..end], &mut lanes, &mut coupled_v),
+                }
                 (sol_base, sol_len) = (i, end - i);
             }
             if blocks && i + 1 == buf_len {
@@ -332,7 +342,11 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         // The bus phasors, when the measurement or the unbalance needs them.
         let phasors = (want_unbalance || !direct).then(|| -> [Complex64; 3] {
             std::array::from_fn(|ph| {
-                solver.phasor_w(ph, lanes.w[ph][j], sample.p_kw[ph], sample.q_kvar[ph])
+                if coupled.is_some() {
+                    coupled_v[ph][j]
+                } else {
+                    solver.phasor_w(ph, lanes.w[ph][j], sample.p_kw[ph], sample.q_kvar[ph])
+                }
             })
         });
         let unbalance = match (&phasors, want_unbalance) {
@@ -420,7 +434,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         let operated = !d.closed.or(d.opened).is_empty();
         if operated {
             met.record_ops(k, &d, t_next);
-            solver.set_bank(&bank.susceptance(ctl.mask()));
+            set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
             thd = thd_of(ctl.mask());
             same_until = 0;
             // Solutions past this interval were made with the old bank.
@@ -467,6 +481,14 @@ fn unbalance_of(v: &[Complex64; 3], p: &[f64; 3], q: &[f64; 3]) -> crate::metric
         s_vector_kva: s.vector,
         s_arithmetic_kva: s.arithmetic,
         s_effective_kva: s.effective,
+    }
+}
+
+/// Sets the connected steps' susceptance on the bus solver in use.
+fn set_bank(solver: &mut BusSolver, coupled: &mut Option<CoupledSolver>, b: &[f64; 3]) {
+    match coupled {
+        Some(c) => c.set_bank(b),
+        None => solver.set_bank(b),
     }
 }
 

@@ -62,6 +62,8 @@ struct SupplyJson {
     nominal_voltage_v: f64,
     frequency_hz: f64,
     short_circuit_kva: Option<f64>,
+    /// How the bus is solved: `per-phase`, or `coupled` with the winding (`coupled Dyn`).
+    bus: String,
 }
 
 /// Controller settings in force.
@@ -165,6 +167,10 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
                 nominal_voltage_v: sc.supply.nominal_voltage_v,
                 frequency_hz: sc.supply.frequency_hz,
                 short_circuit_kva: s_sc.is_finite().then_some(s_sc),
+                bus: match sc.bus {
+                    crate::supply::BusModel::PerPhase => "per-phase".to_string(),
+                    crate::supply::BusModel::Coupled(w) => format!("coupled {}", w.name()),
+                },
             },
             bank: BankJson {
                 total_kvar: total,

@@ -77,6 +77,9 @@ pub struct Scenario {
     pub description: Option<String>,
     /// Supply.
     pub supply: SupplyParams,
+    /// How the bus is solved (`supply.bus`, `supply.transformer.winding`). Default
+    /// per phase.
+    pub bus: crate::supply::BusModel,
     /// Steps in number order.
     pub steps: Vec<StepSpec>,
     /// Controller settings.
@@ -177,6 +180,7 @@ impl Scenario {
     /// Applies the defaults and checks every section, in file order.
     fn validate(f: ScenarioFile, path: &Path) -> Result<Scenario, FieldError> {
         let supply = supply::supply(&f.supply)?;
+        let bus = supply::bus(&f.supply)?;
         let steps = steps::steps(&f.steps, supply.nominal_voltage_v)?;
         let smallest = crate::bank::smallest_switched_kvar(&steps);
         let mut ctl = controller::controller(&f.controller, supply.nominal_voltage_v, smallest)?;
@@ -219,6 +223,7 @@ impl Scenario {
             overcorrection_min_s: rep.overcorrection_min_s,
             hunting_window_s: rep.hunting_window_s,
             unbalance: rep.unbalance,
+            bus,
             capacitor_discharge_s: ctl.capacitor_discharge_s,
             dead_band_key: ctl.dead_band_key,
             tariff,

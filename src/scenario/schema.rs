@@ -74,6 +74,9 @@ pub struct SupplySection {
     pub grid_x_over_r: Option<f64>,
     /// The transformer feeding the bus. Default: none.
     pub transformer: Option<TransformerSection>,
+    /// How the bus is solved: `per-phase` (default, each phase on its own) or `coupled`
+    /// (the three phases together through the 3×3 phase impedance).
+    pub bus: Option<String>,
 }
 
 /// `[supply.transformer]`.
@@ -86,6 +89,8 @@ pub struct TransformerSection {
     pub impedance_pct: Option<f64>,
     /// X/R. Default 8.
     pub x_over_r: Option<f64>,
+    /// Winding connection, for a coupled bus: `Dyn` (default) or `YNyn`.
+    pub winding: Option<String>,
 }
 
 /// One `[[steps]]` entry.
