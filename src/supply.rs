@@ -699,12 +699,13 @@ mod tests {
             [z[2][0], z[2][1], z[2][2]],
         ];
         let inv = inv3(&m).unwrap();
-        for r in 0..3 {
-            for k in 0..3 {
-                let x: Complex64 = (0..3).map(|j| m[r][j] * inv[j][k]).sum();
-                let want = if r == k { 1.0 } else { 0.0 };
-                assert!((x - want).norm() < 1e-9);
-            }
+        // M·M⁻¹ is the identity.
+        let product: Vec<Complex64> = (0..9)
+            .map(|rk| (0..3).map(|j| m[rk / 3][j] * inv[j][rk % 3]).sum())
+            .collect();
+        for (rk, x) in product.iter().enumerate() {
+            let want = if rk / 3 == rk % 3 { 1.0 } else { 0.0 };
+            assert!((x - want).norm() < 1e-9);
         }
     }
 

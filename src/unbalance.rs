@@ -60,10 +60,10 @@ pub struct ApparentPowers {
 }
 
 /// The IEEE Std 1459-2010 apparent powers of line-to-neutral voltages `v` and line
-/// currents `i`. `four_wire`: the neutral carries I_n = −(Ia + Ib + Ic) and
-/// I_e = sqrt((Ia² + Ib² + Ic² + In²)/3), V_e = sqrt((3·(Va² + Vb² + Vc²) + Vab² + Vbc²
-/// + Vca²)/18); three-wire: I_e = sqrt((Ia² + Ib² + Ic²)/3), V_e = sqrt((Vab² + Vbc² +
-/// Vca²)/9).
+/// currents `i`. With `four_wire` the neutral carries I_n = −(Ia + Ib + Ic),
+/// I_e = sqrt((Ia² + Ib² + Ic² + In²)/3) and
+/// V_e = sqrt((3·(Va² + Vb² + Vc²) + Vab² + Vbc² + Vca²)/18); three-wire,
+/// I_e = sqrt((Ia² + Ib² + Ic²)/3) and V_e = sqrt((Vab² + Vbc² + Vca²)/9).
 pub fn apparent_powers(v: [Complex64; 3], i: [Complex64; 3], four_wire: bool) -> ApparentPowers {
     let s: [Complex64; 3] = std::array::from_fn(|x| v[x] * i[x].conj());
     let total = s[0] + s[1] + s[2];
