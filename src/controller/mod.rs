@@ -658,6 +658,21 @@ impl Controller {
         thd_pct: f64,
         t_next: f64,
     ) -> Decision {
+        self.decide_inline(p_raw, q_raw, v_ll_max, current_a, thd_pct, t_next)
+    }
+
+    /// [`Controller::decide_measured`], always inlined: for the engine's one-controller
+    /// path, where it runs once per interval.
+    #[inline(always)]
+    pub(crate) fn decide_inline(
+        &mut self,
+        p_raw: f64,
+        q_raw: f64,
+        v_ll_max: f64,
+        current_a: f64,
+        thd_pct: f64,
+        t_next: f64,
+    ) -> Decision {
         let r = Protected {
             v_ll_max,
             current_a,

@@ -96,7 +96,7 @@ impl Control {
     }
 
     /// Connected steps, fixed ones included.
-    #[inline]
+    #[inline(always)]
     pub fn mask(&self) -> BankState {
         if self.parts.len() == 1 {
             return self.parts[0].mask();
@@ -115,7 +115,7 @@ impl Control {
     }
 
     /// One controller for the whole bank: see [`Controller::decide_measured`].
-    #[inline]
+    #[inline(always)]
     pub fn decide_measured(
         &mut self,
         p_raw: f64,
@@ -125,7 +125,7 @@ impl Control {
         thd_pct: f64,
         t_next: f64,
     ) -> Decision {
-        self.parts[0].decide_measured(p_raw, q_raw, v_ll_max, current_a, thd_pct, t_next)
+        self.parts[0].decide_inline(p_raw, q_raw, v_ll_max, current_a, thd_pct, t_next)
     }
 
     /// Per-phase control: `p_kw`, `q_kvar` are what the controller reads on each phase.
