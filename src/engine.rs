@@ -65,14 +65,15 @@
 
 use crate::bank::{Bank, BankState};
 use crate::controller::Measurement;
-use crate::controller::{Controller, Decision};
+use crate::controller::{Control, Decision};
 use crate::error::RunError;
 use crate::metrics::Metrics;
 use crate::metrics::{IntervalObs, MetricParams, RunMetrics};
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::Scenario;
 use crate::study::{RunPlan, Stepping};
-use crate::supply::{BusSolver, Lanes, PhaseSolution, LANE};
+use crate::supply::{BusModel, BusSolver, CoupledSolver, Lanes, PhaseSolution, LANE};
+use num_complex::Complex64;
 use serde::Serialize;
 use std::collections::HashMap;
 
@@ -193,7 +194,14 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     let t0 = plan.t_first_s;
     let mut bank = Bank::new(sc.steps.clone(), u_n);
     let mut solver = BusSolver::new(&sc.supply);
-    let mut ctl = Controller::new(sc.controller, &bank, dt, t0);
+    // The three phases solved together, when the scenario asks for it; its phasors land
+    // in `coupled_v` beside the lanes.
+    let mut coupled = match sc.bus {
+        BusModel::Coupled(w) => Some(CoupledSolver::new(&sc.supply, w)),
+        BusModel::PerPhase => None,
+    };
+    let mut coupled_v = Box::new([[Complex64::default(); LANE]; 3]);
+    let mut ctl = Control::new(sc.controller, &bank, dt, t0);
     let params = MetricParams {
         target: sc.controller.target,
         overcorrection_threshold_kvar: sc.overcorrection_threshold_kvar,
@@ -202,6 +210,10 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         billing_starts: plan.billing_starts.clone(),
     };
     let mut met = crate::metrics::Metrics::new(params, &bank, plan.calendar, u_n, dt, t0);
+    let want_unbalance = sc.unbalance;
+    if want_unbalance {
+        met = met.with_unbalance(plan.duration_s());
+    }
     // The distortion protection needs the THD of each state the run reaches.
     let hm = sc.harmonic_model();
     let thd_wanted = sc.controller.protection.thd_limit_pct.is_some();
@@ -214,12 +226,18 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         *thd_cache.entry(mask).or_insert_with(|| hm.thd_pct(mask))
     };
 
-    solver.set_bank(&bank.susceptance(ctl.mask()));
+    set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
     let mut b_fixed = bank.susceptance(bank.fixed_mask);
     let mut thd = thd_of(ctl.mask());
     let want_current = sc.controller.protection.min_current_a.is_some();
     let has_fixed = !bank.fixed_mask.is_empty();
     let measurement = sc.controller.measurement;
+    // The measuring inputs: read straight from each phase's P and Q when wired as assumed
+    // with line-to-neutral voltages (the usual case, and the only one before per-phase
+    // control), else through the bus phasors.
+    let wiring = sc.controller.wiring();
+    let direct = wiring.is_direct();
+    let per_phase = sc.controller.per_phase;
     let n = plan.intervals;
     let blocks = plan.stepping == Stepping::Events && !observer.wants_every_interval();
     // Samples taken ahead from the source: `samples[i]` is interval `buf_k + i`, for
@@ -248,7 +266,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         let t_next = t0 + (kf + 1.0) * dt;
         if k >= k_fault {
             if bank.advance_faults(k as f64 * dt) {
-                solver.set_bank(&bank.susceptance(ctl.mask()));
+                set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
                 b_fixed = bank.susceptance(bank.fixed_mask);
                 same_until = 0;
                 // Solutions from this interval on are stale.
@@ -283,7 +301,10 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             let i = (k - buf_k) as usize;
             if i >= sol_base + sol_len || i < sol_base {
                 let end = buf_len.min(i + LANE);
-                solver.solve_lanes(&samples[i..end], &mut lanes);
+                match &coupled {
+                    None => solver.solve_lanes(&samples[i..end], &mut lanes),
+                    Some(c) => c.solve_lanes(&samples[i..end], &mut lanes, &mut coupled_v),
+                }
                 (sol_base, sol_len) = (i, end - i);
             }
             if blocks && i + 1 == buf_len {
@@ -313,15 +334,61 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         } else {
             0.0
         };
-        let (p_raw, q_raw) = match measurement {
-            Measurement::ThreePhase => (p3, q3),
-            Measurement::SinglePhase(ph) => (
-                3.0 * sample.p_kw[ph],
-                3.0 * (sample.q_kvar[ph] - lanes.q_bank[ph][j]),
-            ),
+        let q_ph = [
+            sample.q_kvar[0] - lanes.q_bank[0][j],
+            sample.q_kvar[1] - lanes.q_bank[1][j],
+            sample.q_kvar[2] - lanes.q_bank[2][j],
+        ];
+        // The bus phasors, when the measurement or the unbalance needs them.
+        let phasors = (want_unbalance || !direct).then(|| -> [Complex64; 3] {
+            std::array::from_fn(|ph| {
+                if coupled.is_some() {
+                    coupled_v[ph][j]
+                } else {
+                    solver.phasor_w(ph, lanes.w[ph][j], sample.p_kw[ph], sample.q_kvar[ph])
+                }
+            })
+        });
+        let unbalance = match (&phasors, want_unbalance) {
+            (Some(v), true) => Some(unbalance_of(v, &sample.p_kw, &q_ph)),
+            _ => None,
         };
         let mask = ctl.mask();
-        let d = ctl.decide_measured(p_raw, q_raw, v_ll_max, current_a, thd, t_next);
+        let d = if direct && !per_phase {
+            let (p_raw, q_raw) = match measurement {
+                Measurement::ThreePhase => (p3, q3),
+                Measurement::SinglePhase(ph) => (
+                    3.0 * sample.p_kw[ph],
+                    3.0 * (sample.q_kvar[ph] - lanes.q_bank[ph][j]),
+                ),
+            };
+            ctl.decide_measured(p_raw, q_raw, v_ll_max, current_a, thd, t_next)
+        } else {
+            let (p_ch, q_ch) = if direct {
+                (sample.p_kw, q_ph)
+            } else {
+                let v = phasors.unwrap_or_default();
+                let s_ph: [Complex64; 3] =
+                    std::array::from_fn(|ph| Complex64::new(sample.p_kw[ph], q_ph[ph]));
+                let m = wiring.measure(&v, &s_ph);
+                (m.map(|c| c.re), m.map(|c| c.im))
+            };
+            if per_phase {
+                ctl.decide_phases(&p_ch, &q_ch, v_ll_max, current_a, thd, t_next)
+            } else if wiring.n == 1 {
+                ctl.decide_measured(
+                    3.0 * p_ch[0],
+                    3.0 * q_ch[0],
+                    v_ll_max,
+                    current_a,
+                    thd,
+                    t_next,
+                )
+            } else {
+                let (p_raw, q_raw) = (p_ch[0] + p_ch[1] + p_ch[2], q_ch[0] + q_ch[1] + q_ch[2]);
+                ctl.decide_measured(p_raw, q_raw, v_ll_max, current_a, thd, t_next)
+            }
+        };
         // The fixed steps' output matters only to the cause of an overcorrected interval.
         let fixed_q = if has_fixed && met.overcorrected(p3, q3) {
             let mut f = 0.0;
@@ -339,6 +406,9 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             t_s: t,
             p_kw: p3,
             q_kvar: q3,
+            p_ph_kw: sample.p_kw,
+            q_ph_kvar: q_ph,
+            unbalance,
             load_q_kvar: sample.q_total(),
             load_p_kw: p3,
             fixed_q_kvar: fixed_q,
@@ -364,7 +434,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         let operated = !d.closed.or(d.opened).is_empty();
         if operated {
             met.record_ops(k, &d, t_next);
-            solver.set_bank(&bank.susceptance(ctl.mask()));
+            set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
             thd = thd_of(ctl.mask());
             same_until = 0;
             // Solutions past this interval were made with the old bank.
@@ -395,6 +465,31 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         metrics,
         nonconverged_intervals: solver.nonconverged,
     })
+}
+
+/// The unbalance of one interval: the bus voltage phasors `v` (V, line to neutral) and
+/// the supply's P and Q per phase (kW, kvar) give the supply currents
+/// I_x = conj(S_x/V_x) (kA), their sequence components and the IEEE Std 1459-2010
+/// apparent powers of a four-wire system.
+fn unbalance_of(v: &[Complex64; 3], p: &[f64; 3], q: &[f64; 3]) -> crate::metrics::UnbalanceObs {
+    let i: [Complex64; 3] = std::array::from_fn(|x| (Complex64::new(p[x], q[x]) / v[x]).conj());
+    let s = crate::unbalance::apparent_powers(*v, i, true);
+    crate::metrics::UnbalanceObs {
+        u2: crate::unbalance::unbalance(*v).unwrap_or(0.0),
+        i2: crate::unbalance::unbalance(i).unwrap_or(0.0),
+        p_kw: s.p,
+        s_vector_kva: s.vector,
+        s_arithmetic_kva: s.arithmetic,
+        s_effective_kva: s.effective,
+    }
+}
+
+/// Sets the connected steps' susceptance on the bus solver in use.
+fn set_bank(solver: &mut BusSolver, coupled: &mut Option<CoupledSolver>, b: &[f64; 3]) {
+    match coupled {
+        Some(c) => c.set_bank(b),
+        None => solver.set_bank(b),
+    }
 }
 
 /// Samples taken from the source at a time.
@@ -434,7 +529,7 @@ fn block_end(
     dt: f64,
     bank: &Bank,
     met: &Metrics,
-    ctl: &Controller,
+    ctl: &Control,
     t_prev: f64,
 ) -> u64 {
     if same_until <= k {

@@ -27,3 +27,4 @@ pub mod sweep;
 pub mod text;
 pub mod timebase;
 pub mod trace;
+pub mod unbalance;

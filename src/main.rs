@@ -91,6 +91,11 @@ const SIMULATE_AFTER_HELP: &str = concat!(
   steps_on     connected step numbers, e.g. 1+2+3 (empty if none)
   operation    what the controller did at the end of the interval, e.g. `close 3`,
                `open 2`, `trip export` (takes effect from the next interval)
+  p_a_kw, p_b_kw, p_c_kw         supply-side active power of each phase, kW
+  q_a_kvar, q_b_kvar, q_c_kvar   supply-side reactive power of each phase, kvar
+  pf_a, pf_b, pf_c               power factor of each phase, 0..1
+  pf_a_quadrant, ...             lag or lead, each phase
+  u_a_v, u_b_v, u_c_v            bus voltage of each phase, line to neutral, V
 
 Examples:
   bankstep simulate site.toml
@@ -667,6 +672,12 @@ struct SimulateArgs {
     /// and PNG.
     #[arg(long, value_name = "DIR")]
     report: Option<PathBuf>,
+    /// Also run every plausible miswiring of the configured measurement (current from
+    /// another line, reversed polarity, another voltage pair; for three channels one or
+    /// all reversed, rotated or swapped) on the same load, and print a table of what each
+    /// does: billed PF, operations, overcorrection and the symptom in words.
+    #[arg(long)]
+    wiring_check: bool,
     /// Make the summary's wear plan in full: also run the other orderings, more seeds,
     /// the ageing years and the fault comparisons on the same profile (as `bankstep
     /// wear` does). Without it the plan comes from this run alone.
@@ -943,6 +954,19 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
         Summary
             .write(&ctx, &mut out)
             .map_err(|e| Failure::report(e, || "cannot write the summary".to_string()))?;
+    }
+    if args.wiring_check {
+        let rows = bankstep::analysis::wiring::wiring_check(&study)
+            .map_err(|e| Failure::simulation(e, &file))?;
+        let what = || "cannot write the wiring check".to_string();
+        let written = if json_to_stdout {
+            bankstep::report::wiring::write_text(&study, &rows, &mut std::io::stderr().lock())
+        } else {
+            let mut out = std::io::stdout().lock();
+            std::io::Write::write_all(&mut out, b"\n")
+                .and_then(|_| bankstep::report::wiring::write_text(&study, &rows, &mut out))
+        };
+        written.with_context(what).map_err(Failure::run)?;
     }
     Ok(())
 }

@@ -46,6 +46,12 @@ pub struct IntervalObs<'a> {
     pub p_kw: f64,
     /// Three-phase supply reactive power, kvar.
     pub q_kvar: f64,
+    /// Supply active power of each phase a, b, c, kW.
+    pub p_ph_kw: [f64; 3],
+    /// Supply reactive power of each phase a, b, c, kvar.
+    pub q_ph_kvar: [f64; 3],
+    /// Unbalance of the interval, when the run measures it (`report.unbalance`).
+    pub unbalance: Option<UnbalanceObs>,
     /// Three-phase load reactive power, kvar.
     pub load_q_kvar: f64,
     /// Three-phase load active power, kW.
@@ -58,6 +64,186 @@ pub struct IntervalObs<'a> {
     pub v_ll_max: f64,
     /// The controller's decision in this interval.
     pub decision: &'a Decision,
+}
+
+/// Unbalance of one interval at the metering point.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct UnbalanceObs {
+    /// Voltage unbalance |V2|/|V1| of the bus, as a fraction.
+    pub u2: f64,
+    /// Current unbalance |I2|/|I1| of the supply currents, as a fraction.
+    pub i2: f64,
+    /// Active power, kW.
+    pub p_kw: f64,
+    /// IEEE Std 1459-2010 vector apparent power, kVA.
+    pub s_vector_kva: f64,
+    /// IEEE Std 1459-2010 arithmetic apparent power, kVA.
+    pub s_arithmetic_kva: f64,
+    /// IEEE Std 1459-2010 effective apparent power (four-wire), kVA.
+    pub s_effective_kva: f64,
+}
+
+/// The voltage unbalance of one week of the run, as EN 50160 assesses it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct UnbalanceWeek {
+    /// Start of the week, run time, s (the run's start plus whole weeks).
+    pub start_s: f64,
+    /// 10-minute values in the week.
+    pub values: u64,
+    /// 95th percentile of the 10-minute values, % (EN 50160: at most 2 % for 95 % of the
+    /// 10-minute values of each week, from memory).
+    pub u2_p95_pct: f64,
+    /// Largest 10-minute value, %.
+    pub u2_max_pct: f64,
+}
+
+/// Unbalance over the run (`report.unbalance`).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct UnbalanceMetrics {
+    /// Largest voltage unbalance of one interval, %.
+    pub u2_max_pct: f64,
+    /// Mean voltage unbalance over the intervals, %.
+    pub u2_mean_pct: f64,
+    /// Per week: the 10-minute values (rms of the intervals' u2 in each clock-aligned
+    /// 10 minutes) and their 95th percentile.
+    pub weeks: Vec<UnbalanceWeek>,
+    /// Largest current unbalance |I2|/|I1| of one interval, %.
+    pub i2_max_pct: f64,
+    /// Mean current unbalance, %.
+    pub i2_mean_pct: f64,
+    /// Σ P·Δt, kWh (import minus export).
+    pub kwh: f64,
+    /// Σ S_vector·Δt, kVAh (IEEE Std 1459-2010 vector apparent power).
+    pub kvah_vector: f64,
+    /// Σ S_arithmetic·Δt, kVAh.
+    pub kvah_arithmetic: f64,
+    /// Σ S_effective·Δt, kVAh (four-wire definition).
+    pub kvah_effective: f64,
+    /// kWh / kVAh of each: vector, arithmetic and effective power factor over the run;
+    /// 0 with no apparent energy.
+    pub pf_vector: f64,
+    /// See `pf_vector`.
+    pub pf_arithmetic: f64,
+    /// See `pf_vector`.
+    pub pf_effective: f64,
+}
+
+/// Accumulates the unbalance of a run.
+#[derive(Debug, Clone)]
+struct UnbalanceAcc {
+    n: u64,
+    u2_max: f64,
+    u2_sum: f64,
+    i2_max: f64,
+    i2_sum: f64,
+    kwh: f64,
+    kvah: [f64; 3],
+    /// The clock-aligned 10-minute window in progress (epoch seconds / 600) and its sums.
+    win: i64,
+    win_sq: f64,
+    win_n: u64,
+    /// Closed 10-minute windows: (start, epoch s; rms u2).
+    ten_min: Vec<(f64, f64)>,
+}
+
+/// Length of the aggregation window of IEC 61000-4-30 for EN 50160 assessments, s.
+const TEN_MIN_S: f64 = 600.0;
+
+impl UnbalanceAcc {
+    fn new(intervals_hint: f64) -> Self {
+        UnbalanceAcc {
+            n: 0,
+            u2_max: 0.0,
+            u2_sum: 0.0,
+            i2_max: 0.0,
+            i2_sum: 0.0,
+            kwh: 0.0,
+            kvah: [0.0; 3],
+            win: i64::MIN,
+            win_sq: 0.0,
+            win_n: 0,
+            ten_min: Vec::with_capacity(intervals_hint.clamp(0.0, 1e7) as usize + 2),
+        }
+    }
+
+    fn close_window(&mut self) {
+        if self.win_n > 0 {
+            let rms = (self.win_sq / self.win_n as f64).sqrt();
+            self.ten_min.push((self.win as f64 * TEN_MIN_S, rms));
+        }
+        self.win_sq = 0.0;
+        self.win_n = 0;
+    }
+
+    /// Adds `m` intervals of `u` starting at epoch `e` (all in one 10-minute window).
+    fn add(&mut self, u: &UnbalanceObs, e: f64, m: u64, h: f64) {
+        let w = (e / TEN_MIN_S).floor() as i64;
+        if w != self.win {
+            self.close_window();
+            self.win = w;
+        }
+        let mf = m as f64;
+        self.n += m;
+        self.u2_max = self.u2_max.max(u.u2);
+        self.i2_max = self.i2_max.max(u.i2);
+        self.u2_sum += u.u2 * mf;
+        self.i2_sum += u.i2 * mf;
+        self.win_sq += u.u2 * u.u2 * mf;
+        self.win_n += m;
+        self.kwh += u.p_kw * h;
+        self.kvah[0] += u.s_vector_kva * h;
+        self.kvah[1] += u.s_arithmetic_kva * h;
+        self.kvah[2] += u.s_effective_kva * h;
+    }
+
+    fn finish(mut self, run_start_epoch: f64, t_first: f64) -> UnbalanceMetrics {
+        self.close_window();
+        let week = 7.0 * DAY_S;
+        let mut weeks: Vec<UnbalanceWeek> = Vec::new();
+        let mut values: Vec<f64> = Vec::new();
+        let mut current = i64::MIN;
+        let flush = |idx: i64, values: &mut Vec<f64>, weeks: &mut Vec<UnbalanceWeek>| {
+            if values.is_empty() {
+                return;
+            }
+            values.sort_by(f64::total_cmp);
+            let n = values.len();
+            // The smallest value with at least 95 % of the values at or below it.
+            let rank = ((0.95 * n as f64).ceil() as usize).clamp(1, n);
+            weeks.push(UnbalanceWeek {
+                start_s: t_first + idx as f64 * week,
+                values: n as u64,
+                u2_p95_pct: values[rank - 1] * 100.0,
+                u2_max_pct: values[n - 1] * 100.0,
+            });
+            values.clear();
+        };
+        for &(start, v) in &self.ten_min {
+            let idx = ((start - run_start_epoch) / week).floor().max(0.0) as i64;
+            if idx != current {
+                flush(current, &mut values, &mut weeks);
+                current = idx;
+            }
+            values.push(v);
+        }
+        flush(current, &mut values, &mut weeks);
+        let n = self.n.max(1) as f64;
+        let pf = |s: f64| if s > 0.0 { self.kwh / s } else { 0.0 };
+        UnbalanceMetrics {
+            u2_max_pct: self.u2_max * 100.0,
+            u2_mean_pct: self.u2_sum / n * 100.0,
+            weeks,
+            i2_max_pct: self.i2_max * 100.0,
+            i2_mean_pct: self.i2_sum / n * 100.0,
+            kwh: self.kwh,
+            kvah_vector: self.kvah[0],
+            kvah_arithmetic: self.kvah[1],
+            kvah_effective: self.kvah[2],
+            pf_vector: pf(self.kvah[0]),
+            pf_arithmetic: pf(self.kvah[1]),
+            pf_effective: pf(self.kvah[2]),
+        }
+    }
 }
 
 /// What dominated an overcorrection episode.
@@ -293,6 +479,56 @@ pub struct LoadMetrics {
     pub min_p_kw: f64,
 }
 
+/// Overcorrection of one phase: maximal runs of intervals in which the phase leads by
+/// more than its share of the threshold (one third of the three-phase threshold), judged
+/// as the three-phase episodes are (same minimum duration; past zero for a lagging or
+/// unity target, past the target for a leading one).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PhaseOvercorrection {
+    /// Number of episodes.
+    pub episodes: u64,
+    /// Total time in episodes, s.
+    pub total_s: f64,
+    /// Longest episode, s.
+    pub longest_s: f64,
+    /// Largest leading |Q| of the phase in an episode, kvar.
+    pub worst_leading_kvar: f64,
+    /// The phase's threshold, kvar: one third of the three-phase threshold.
+    pub threshold_kvar: f64,
+}
+
+/// What one phase of the supply did over the run: its own registers, billed PF, shares
+/// and overcorrection. The three-phase figures are not the sum of these: a phase can
+/// lead while the sum lags.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PhaseMetrics {
+    /// The phase: `a`, `b` or `c`.
+    pub phase: &'static str,
+    /// Energy PF of the phase, E_P / sqrt(E_P² + E_Q,ind²) over its own registers, 0..1.
+    pub energy_pf: f64,
+    /// `lag` whenever the phase's inductive register is non-zero, else `lead` if its
+    /// capacitive one is not.
+    pub energy_pf_quadrant: Quadrant,
+    /// tan φ = E_Q,ind / E_P of the phase; `None` (null) when E_P = 0.
+    pub tan_phi: Option<f64>,
+    /// E_Q,cap / E_P of the phase; `None` (null) when E_P = 0.
+    pub tan_phi_capacitive: Option<f64>,
+    /// Active energy imported on the phase, kWh.
+    pub kwh_import: f64,
+    /// Active energy exported on the phase, kWh.
+    pub kwh_export: f64,
+    /// Inductive reactive energy of the phase, kvarh.
+    pub kvarh_inductive: f64,
+    /// Capacitive reactive energy of the phase, kvarh.
+    pub kvarh_capacitive: f64,
+    /// Share of run time with the phase's P > 0 and Q > P·tan φ_t.
+    pub share_under_target: f64,
+    /// Share of run time with the phase's Q < 0.
+    pub share_leading: f64,
+    /// Overcorrection episodes of the phase.
+    pub overcorrection: PhaseOvercorrection,
+}
+
 /// Everything a run measured (the resonance section is added by the engine).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct RunMetrics {
@@ -312,6 +548,10 @@ pub struct RunMetrics {
     pub voltage: VoltageMetrics,
     /// Load extremes.
     pub load: LoadMetrics,
+    /// Per phase a, b, c: registers, billed PF, shares and overcorrection.
+    pub phases: Vec<PhaseMetrics>,
+    /// Unbalance, when the run measures it (`report.unbalance`).
+    pub unbalance: Option<UnbalanceMetrics>,
 }
 
 #[derive(Debug, Clone, Copy, Default)]
@@ -384,6 +624,35 @@ impl StateAcc {
     }
 }
 
+/// The per-phase accumulators of one phase.
+#[derive(Debug, Clone, Copy, Default)]
+struct PhaseAcc {
+    reg: Registers,
+    under_n: u64,
+    lead_n: u64,
+    /// Intervals of the open episode (0: none open).
+    ep_n: u64,
+    ep_worst: f64,
+    episodes: u64,
+    total_n: u64,
+    longest_n: u64,
+    worst: f64,
+}
+
+impl PhaseAcc {
+    /// Closes the open episode, counting it when it lasted `min_n` intervals.
+    fn close(&mut self, min_n: u64) {
+        if self.ep_n >= min_n {
+            self.episodes += 1;
+            self.total_n += self.ep_n;
+            self.longest_n = self.longest_n.max(self.ep_n);
+            self.worst = self.worst.max(self.ep_worst);
+        }
+        self.ep_n = 0;
+        self.ep_worst = 0.0;
+    }
+}
+
 #[derive(Debug, Clone, Copy, Default)]
 struct Episode {
     open: bool,
@@ -437,6 +706,8 @@ pub struct Metrics {
     load_q_max: f64,
     load_p_max: f64,
     load_p_min: f64,
+    phase: [PhaseAcc; 3],
+    unbalance: Option<UnbalanceAcc>,
 }
 
 impl Metrics {
@@ -496,7 +767,17 @@ impl Metrics {
             load_q_max: f64::NEG_INFINITY,
             load_p_max: f64::NEG_INFINITY,
             load_p_min: f64::INFINITY,
+            phase: [PhaseAcc::default(); 3],
+            unbalance: None,
         }
+    }
+
+    /// Measures unbalance too, for a run of about `duration_s` (to reserve its
+    /// 10-minute values up front). Blocks then also end at each 10-minute boundary of
+    /// the calendar.
+    pub fn with_unbalance(mut self, duration_s: f64) -> Self {
+        self.unbalance = Some(UnbalanceAcc::new(duration_s / TEN_MIN_S));
+        self
     }
 
     /// Records interval k with the bank state as it stood.
@@ -534,6 +815,10 @@ impl Metrics {
         if o.v_ll_max > self.v_110 {
             self.over_110_n += 1;
         }
+        self.record_phases(o, 1);
+        if let (Some(acc), Some(u)) = (&mut self.unbalance, &o.unbalance) {
+            acc.add(u, self.calendar.epoch(o.t_s), 1, self.h);
+        }
         match self.overcorrection_cause(o) {
             Some(cause) => {
                 if !self.ep.open {
@@ -549,6 +834,40 @@ impl Metrics {
             }
             None if self.ep.open => self.close_episode(),
             None => {}
+        }
+    }
+
+    /// Adds `m` intervals of the phases of `o` (1 for [`Metrics::record`], the block's
+    /// length for [`Metrics::record_block`]). An open episode of a phase closes on an
+    /// interval in which that phase is not overcorrected, which is never inside a block.
+    #[inline(always)]
+    fn record_phases(&mut self, o: &IntervalObs<'_>, m: u64) {
+        let h = if m == 1 { self.h } else { self.h * m as f64 };
+        let thr = self.p.overcorrection_threshold_kvar / 3.0;
+        let tan_t = self.tan_t;
+        for ph in 0..3 {
+            let (p, q) = (o.p_ph_kw[ph], o.q_ph_kvar[ph]);
+            let a = &mut self.phase[ph];
+            a.reg.add(p, q, h);
+            if p > 0.0 && q > p * tan_t {
+                a.under_n += m;
+            }
+            if q < 0.0 {
+                a.lead_n += m;
+            }
+            let limit = if tan_t < 0.0 {
+                p.abs() * tan_t - thr
+            } else {
+                -thr
+            };
+            if q < limit {
+                a.ep_n += m;
+                if -q > a.ep_worst {
+                    a.ep_worst = -q;
+                }
+            } else if a.ep_n > 0 {
+                a.close(self.min_ep_n);
+            }
         }
     }
 
@@ -606,10 +925,17 @@ impl Metrics {
     /// or the next midnight of the run's calendar (overcorrection by weekday).
     pub fn next_boundary_s(&self, t_s: f64) -> f64 {
         let midnight = t_s + (DAY_S - self.calendar.second_of_day(t_s));
-        match self.p.billing_starts.get(self.next_bill) {
+        let mut next = match self.p.billing_starts.get(self.next_bill) {
             Some(&b) => b.min(midnight),
             None => midnight,
+        };
+        if self.unbalance.is_some() {
+            // The next clock-aligned 10-minute boundary (unbalance aggregation).
+            let e = self.calendar.epoch(t_s);
+            let b = ((e / TEN_MIN_S).floor() + 1.0) * TEN_MIN_S;
+            next = next.min(t_s + (b - e));
         }
+        next
     }
 
     /// Records `m` more intervals equal to `o`, the interval just recorded, as `m` calls of
@@ -632,6 +958,11 @@ impl Metrics {
         }
         if o.v_ll_max > self.v_110 {
             self.over_110_n += m;
+        }
+        self.record_phases(o, m);
+        if let (Some(acc), Some(u)) = (&mut self.unbalance, &o.unbalance) {
+            // The block lies in the 10-minute window of the interval just recorded.
+            acc.add(u, self.calendar.epoch(o.t_s), m, h);
         }
         // The extremes were taken by the interval just recorded.
         if let Some(cause) = self.overcorrection_cause(o) {
@@ -738,6 +1069,46 @@ impl Metrics {
         if self.ep.open {
             self.close_episode();
         }
+        let thr_ph = self.p.overcorrection_threshold_kvar / 3.0;
+        let phases: Vec<PhaseMetrics> = (0..3)
+            .map(|ph| {
+                let a = &mut self.phase[ph];
+                a.close(self.min_ep_n);
+                let b = a.reg.billed();
+                PhaseMetrics {
+                    phase: crate::profile::PHASES[ph],
+                    energy_pf: b.energy_pf,
+                    energy_pf_quadrant: b.quadrant,
+                    tan_phi: b.tan_phi,
+                    tan_phi_capacitive: b.tan_phi_capacitive,
+                    kwh_import: a.reg.kwh_import,
+                    kwh_export: a.reg.kwh_export,
+                    kvarh_inductive: a.reg.kvarh_ind,
+                    kvarh_capacitive: a.reg.kvarh_cap,
+                    share_under_target: if n > 0 {
+                        a.under_n as f64 / n as f64
+                    } else {
+                        0.0
+                    },
+                    share_leading: if n > 0 {
+                        a.lead_n as f64 / n as f64
+                    } else {
+                        0.0
+                    },
+                    overcorrection: PhaseOvercorrection {
+                        episodes: a.episodes,
+                        total_s: a.total_n as f64 * dt,
+                        longest_s: a.longest_n as f64 * dt,
+                        worst_leading_kvar: a.worst,
+                        threshold_kvar: thr_ph,
+                    },
+                }
+            })
+            .collect();
+        let unbalance = self.unbalance.take().map(|u| {
+            let start = self.calendar.epoch(self.t_first);
+            u.finish(start, self.t_first)
+        });
         self.close_window(t_end);
         self.close_state(n);
         for s in self.mask {
@@ -864,6 +1235,8 @@ impl Metrics {
                 max_p_kw: if n > 0 { self.load_p_max } else { 0.0 },
                 min_p_kw: if n > 0 { self.load_p_min } else { 0.0 },
             },
+            phases,
+            unbalance,
         }
     }
 }
@@ -915,6 +1288,9 @@ mod tests {
             t_s,
             p_kw,
             q_kvar,
+            p_ph_kw: [p_kw / 3.0; 3],
+            q_ph_kvar: [q_kvar / 3.0; 3],
+            unbalance: None,
             load_q_kvar: q_kvar,
             load_p_kw: p_kw,
             fixed_q_kvar: 0.0,

@@ -226,6 +226,245 @@ impl BusSolver {
     }
 }
 
+impl BusSolver {
+    /// The bus voltage of phase `ph` as a phasor in the common reference (the source's
+    /// phase a at 0°, b at −120°, c at +120°), V line to neutral, from its squared
+    /// magnitude `w` (as solved) and the phase's load `p_kw`, `q_kvar`. Each phase is
+    /// solved in its own reference; its angle there is turned by the phase's nominal angle.
+    #[inline]
+    pub fn phasor_w(&self, ph: usize, w: f64, p_kw: f64, q_kvar: f64) -> Complex64 {
+        let eq = &self.eq[ph];
+        let a = eq.z * Complex64::new(p_kw * 1e3, -q_kvar * 1e3);
+        let own = ((Complex64::new(w, 0.0) + a) / eq.e).conj();
+        own * ROTATION[ph.min(2)]
+    }
+}
+
+/// e^(j·0°), e^(−j·120°), e^(+j·120°): the nominal angles of phases a, b and c.
+pub const ROTATION: [Complex64; 3] = [
+    Complex64::new(1.0, 0.0),
+    Complex64::new(-0.5, -0.866_025_403_784_438_6),
+    Complex64::new(-0.5, 0.866_025_403_784_438_6),
+];
+
+/// The transformer's winding connection, as it sets the zero-sequence impedance seen
+/// from the low-voltage bus.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Winding {
+    /// Delta primary, earthed star secondary (the usual distribution transformer): the
+    /// delta blocks the grid's zero-sequence path, so Z0 = Z_T (its short-circuit
+    /// impedance, the usual estimate for a core-type unit).
+    #[default]
+    Dyn,
+    /// Earthed star on both sides: the grid's zero-sequence path is in series,
+    /// Z0 = Z_T + Z_grid (the grid's Z0 taken equal to its Z1).
+    YNyn,
+}
+
+impl Winding {
+    /// The name used in scenarios: `Dyn` or `YNyn`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Winding::Dyn => "Dyn",
+            Winding::YNyn => "YNyn",
+        }
+    }
+}
+
+/// How the bus is solved.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum BusModel {
+    /// Each phase on its own in closed form ([`BusSolver`]): no coupling between the
+    /// phases (the same impedance for every sequence). The default.
+    #[default]
+    PerPhase,
+    /// The three phases together through the 3×3 phase impedance of grid and
+    /// transformer ([`CoupledSolver`]), with the winding's zero-sequence impedance.
+    Coupled(Winding),
+}
+
+impl SupplyParams {
+    /// Zero- and positive-sequence impedance of grid plus transformer seen from the bus,
+    /// ohm (the negative sequence equals the positive one). With no transformer both are
+    /// the grid's.
+    pub fn sequence_impedances(&self, winding: Winding) -> (Complex64, Complex64) {
+        let u2 = self.nominal_voltage_v * self.nominal_voltage_v;
+        let grid = self
+            .grid_short_circuit_kva
+            .map_or(Complex64::new(0.0, 0.0), |g| {
+                split(u2 / (g * 1e3), self.grid_x_over_r)
+            });
+        let z1 = self.impedance_ohm();
+        let z0 = match (self.transformer, winding) {
+            (Some(t), Winding::Dyn) => split(
+                t.impedance_pct / 100.0 * u2 / (t.rated_kva * 1e3),
+                t.x_over_r,
+            ),
+            (Some(_), Winding::YNyn) => z1,
+            (None, _) => grid,
+        };
+        (z0, z1)
+    }
+}
+
+/// The inverse of a 3×3 complex matrix (adjugate over determinant); `None` when singular.
+fn inv3(m: &[[Complex64; 3]; 3]) -> Option<[[Complex64; 3]; 3]> {
+    let c = |r: usize, k: usize| {
+        let (r1, r2) = ((r + 1) % 3, (r + 2) % 3);
+        let (k1, k2) = ((k + 1) % 3, (k + 2) % 3);
+        m[r1][k1] * m[r2][k2] - m[r1][k2] * m[r2][k1]
+    };
+    let det = m[0][0] * c(0, 0) + m[0][1] * c(0, 1) + m[0][2] * c(0, 2);
+    if det.norm() == 0.0 || !det.is_finite() {
+        return None;
+    }
+    let mut out = [[Complex64::new(0.0, 0.0); 3]; 3];
+    for (r, row) in out.iter_mut().enumerate() {
+        for (k, x) in row.iter_mut().enumerate() {
+            // The adjugate is the transpose of the cofactor matrix.
+            *x = c(k, r) / det;
+        }
+    }
+    Some(out)
+}
+
+fn mat_vec(m: &[[Complex64; 3]; 3], v: &[Complex64; 3]) -> [Complex64; 3] {
+    std::array::from_fn(|r| m[r][0] * v[0] + m[r][1] * v[1] + m[r][2] * v[2])
+}
+
+/// The three phases of the bus solved together: source EMFs E (a balanced positive
+/// sequence at the no-load voltage) behind the 3×3 phase impedance of grid and
+/// transformer, Z_abc = Z1·1 + (Z0 − Z1)/3·J (J all ones: the sequence impedances
+/// Z0, Z1 = Z2 turned into phase quantities), the connected steps as star shunts jB_x,
+/// and constant-power loads line to neutral.
+///
+/// The bus voltages satisfy V = E − Z_abc·(I_load(V) + jB·V), that is
+/// V = M·E − M·Z_abc·I_load(V) with M = (1 + Z_abc·jB)⁻¹ (worked out once per bank
+/// state), solved by fixed-point iteration from the no-load voltages until no phase moves
+/// by more than 1e-12 of E (at most [`CoupledSolver::MAX_ITERATIONS`]; past that, or
+/// when a voltage collapses, the interval counts as unsolved). With Z0 = Z1 the phases
+/// do not couple and the result is [`BusSolver`]'s.
+#[derive(Debug, Clone)]
+pub struct CoupledSolver {
+    e: [Complex64; 3],
+    z: [[Complex64; 3]; 3],
+    b: [f64; 3],
+    me: [Complex64; 3],
+    mz: [[Complex64; 3]; 3],
+    e_abs: f64,
+}
+
+impl CoupledSolver {
+    /// Iterations allowed before an interval counts as unsolved.
+    pub const MAX_ITERATIONS: usize = 200;
+
+    /// A solver for `supply` with the transformer's `winding`.
+    pub fn new(supply: &SupplyParams, winding: Winding) -> Self {
+        let e_abs = supply.nominal_ln_v() * supply.source_voltage_pu;
+        let e = ROTATION.map(|r| r * e_abs);
+        let (z0, z1) = supply.sequence_impedances(winding);
+        let zs = (z0 + z1 * 2.0) / 3.0;
+        let zm = (z0 - z1) / 3.0;
+        let z = std::array::from_fn(|r| std::array::from_fn(|k| if r == k { zs } else { zm }));
+        let mut s = CoupledSolver {
+            e,
+            z,
+            b: [f64::NAN; 3],
+            me: e,
+            mz: z,
+            e_abs,
+        };
+        s.set_bank(&[0.0; 3]);
+        s
+    }
+
+    /// The phase impedance matrix Z_abc, ohm.
+    pub fn impedance_matrix(&self) -> [[Complex64; 3]; 3] {
+        self.z
+    }
+
+    /// Sets the shunt susceptance per phase of the connected steps, siemens.
+    pub fn set_bank(&mut self, b_s: &[f64; 3]) {
+        if self.b == *b_s {
+            return;
+        }
+        self.b = *b_s;
+        let one = Complex64::new(1.0, 0.0);
+        let a: [[Complex64; 3]; 3] = std::array::from_fn(|r| {
+            std::array::from_fn(|k| {
+                let zy = self.z[r][k] * Complex64::new(0.0, b_s[k]);
+                if r == k {
+                    one + zy
+                } else {
+                    zy
+                }
+            })
+        });
+        let m = inv3(&a).unwrap_or([[one, Complex64::default(), Complex64::default()]; 3]);
+        self.me = mat_vec(&m, &self.e);
+        self.mz = std::array::from_fn(|r| {
+            std::array::from_fn(|k| {
+                m[r][0] * self.z[0][k] + m[r][1] * self.z[1][k] + m[r][2] * self.z[2][k]
+            })
+        });
+    }
+
+    /// The bus voltages (V, line to neutral, in the source's reference) for loads
+    /// `p_kw`/`q_kvar` per phase, and whether the iteration settled.
+    pub fn solve(&self, p_kw: &[f64; 3], q_kvar: &[f64; 3]) -> ([Complex64; 3], bool) {
+        let s: [Complex64; 3] =
+            std::array::from_fn(|x| Complex64::new(p_kw[x] * 1e3, q_kvar[x] * 1e3));
+        let mut v = self.me;
+        let tol = 1e-12 * self.e_abs;
+        for _ in 0..Self::MAX_ITERATIONS {
+            let i: [Complex64; 3] = std::array::from_fn(|x| (s[x] / v[x]).conj());
+            let zi = mat_vec(&self.mz, &i);
+            let next: [Complex64; 3] = std::array::from_fn(|x| self.me[x] - zi[x]);
+            let moved = (0..3).map(|x| (next[x] - v[x]).norm()).fold(0.0, f64::max);
+            v = next;
+            if !v
+                .iter()
+                .all(|x| x.is_finite() && x.norm() > 1e-3 * self.e_abs)
+            {
+                return (self.me, false);
+            }
+            if moved <= tol {
+                return (v, true);
+            }
+        }
+        (v, false)
+    }
+
+    /// Solves `samples` (at most [`LANE`]) into `out` from entry 0, as
+    /// [`BusSolver::solve_lanes`] fills it, and the phasors into `v_out`.
+    pub fn solve_lanes(
+        &self,
+        samples: &[crate::profile::LoadSample],
+        out: &mut Lanes,
+        v_out: &mut [[Complex64; LANE]; 3],
+    ) {
+        let sqrt3 = 3f64.sqrt();
+        for (i, smp) in samples.iter().take(LANE).enumerate() {
+            let (v, ok) = self.solve(&smp.p_kw, &smp.q_kvar);
+            let mut q3 = 0.0;
+            let (mut lo, mut hi) = (f64::INFINITY, 0.0f64);
+            for ph in 0..3 {
+                let w = v[ph].norm_sqr();
+                out.w[ph][i] = w;
+                out.q_bank[ph][i] = self.b[ph] * w * 1e-3;
+                q3 += smp.q_kvar[ph] - out.q_bank[ph][i];
+                lo = lo.min(w);
+                hi = hi.max(w);
+                v_out[ph][i] = v[ph];
+            }
+            out.q3[i] = q3;
+            out.v_ll_min[i] = lo.sqrt() * sqrt3;
+            out.v_ll_max[i] = hi.sqrt() * sqrt3;
+            out.unsolved[i] = u64::from(!ok);
+        }
+    }
+}
+
 /// Intervals solved together by [`BusSolver::solve_lanes`].
 pub const LANE: usize = 32;
 
@@ -418,6 +657,56 @@ mod tests {
         // A load the supply carries leaves the count alone.
         b.solve(&[10.0; 3], &[5.0; 3]);
         assert_eq!(b.nonconverged, 6);
+    }
+
+    // With Z0 = Z1 (no grid, a YNyn transformer: Z0 = Z_T + Z_grid = Z_T = Z1) the phases
+    // do not couple: the coupled iteration finds the closed form's voltage on every phase,
+    // balanced or not.
+    #[test]
+    fn coupled_solver_without_coupling_is_the_closed_form() {
+        let s = site();
+        let mut closed = BusSolver::new(&s);
+        let mut coupled = CoupledSolver::new(&s, Winding::YNyn);
+        let b = [2e-3, 1e-3, 0.0];
+        closed.set_bank(&b);
+        coupled.set_bank(&b);
+        let (p, q) = ([200.0, 50.0, 120.0], [150.0, 10.0, -20.0]);
+        let r = closed.solve(&p, &q);
+        let (v, ok) = coupled.solve(&p, &q);
+        assert!(ok);
+        for ph in 0..3 {
+            assert!((v[ph].norm() - r[ph].v_ln).abs() < 1e-9, "{ph}");
+            let own = closed.phasor_w(ph, r[ph].v_ln * r[ph].v_ln, p[ph], q[ph]);
+            assert!((own - v[ph]).norm() < 1e-9, "{ph}: {own} against {}", v[ph]);
+        }
+    }
+
+    // The phase impedance matrix of sequence impedances Z0, Z1 = Z2 has Z_s = (Z0 + 2Z1)/3
+    // on the diagonal and Z_m = (Z0 − Z1)/3 elsewhere (symmetrical components, common
+    // practice); a Dyn transformer behind a grid has Z0 = Z_T < Z1 = Z_T + Z_grid.
+    #[test]
+    fn phase_impedance_of_a_dyn_transformer() {
+        let mut s = site();
+        s.grid_short_circuit_kva = Some(50_000.0);
+        let (z0, z1) = s.sequence_impedances(Winding::Dyn);
+        assert!(z0.norm() < z1.norm());
+        let z = CoupledSolver::new(&s, Winding::Dyn).impedance_matrix();
+        assert!((z[0][0] - (z0 + z1 * 2.0) / 3.0).norm() < 1e-15);
+        assert!((z[1][2] - (z0 - z1) / 3.0).norm() < 1e-15);
+        let m = [
+            [z[0][0], z[0][1], z[0][2]],
+            [z[1][0], z[1][1], z[1][2]],
+            [z[2][0], z[2][1], z[2][2]],
+        ];
+        let inv = inv3(&m).unwrap();
+        // M·M⁻¹ is the identity.
+        let product: Vec<Complex64> = (0..9)
+            .map(|rk| (0..3).map(|j| m[rk / 3][j] * inv[j][rk % 3]).sum())
+            .collect();
+        for (rk, x) in product.iter().enumerate() {
+            let want = if rk / 3 == rk % 3 { 1.0 } else { 0.0 };
+            assert!((x - want).norm() < 1e-9);
+        }
     }
 
     #[test]

@@ -64,7 +64,8 @@ pub struct Finding {
     /// How much it matters.
     pub severity: Severity,
     /// What part of the result it is about: `pf`, `wear`, `overcorrection`, `hunting`,
-    /// `resonance`, `capacitor`, `voltage`, `supply`, `protection` or `fault`.
+    /// `resonance`, `capacitor`, `voltage`, `supply`, `protection`, `fault`, `phase` or
+    /// `wiring`.
     pub topic: &'static str,
     /// The finding, one or two sentences.
     pub text: String,
@@ -103,6 +104,8 @@ pub(crate) fn findings(ctx: &Context<'_>) -> Vec<Finding> {
     pf(ctx, &mut out);
     wear(ctx, &mut out);
     overcorrection(ctx, &mut out);
+    phases(ctx, &mut out);
+    wiring(ctx, &mut out);
     hunting(ctx, &mut out);
     resonance(ctx, &mut out);
     voltage(ctx, &mut out);
@@ -456,6 +459,113 @@ fn overcorrection(ctx: &Context<'_>, out: &mut Vec<Finding>) {
         None => f,
     };
     out.push(f);
+}
+
+/// What a phase hides behind the three-phase figures: a phase overcorrected for at least
+/// twice the three-phase episode time (and at least the minimum episode length), or a
+/// phase whose own registers bill below the goal while the three-phase figure meets it.
+/// The worst phase is named: the one with the most overcorrected time, or the lowest
+/// billed PF.
+fn phases(ctx: &Context<'_>, out: &mut Vec<Finding>) {
+    let m = &ctx.result.metrics;
+    if m.phases.len() != 3 || m.run.duration_s <= 0.0 {
+        return;
+    }
+    let o3 = &m.overcorrection;
+    let worst = m.phases.iter().max_by(|a, b| {
+        a.overcorrection
+            .total_s
+            .total_cmp(&b.overcorrection.total_s)
+    });
+    if let Some(w) = worst {
+        let po = &w.overcorrection;
+        if po.episodes > 0 && po.total_s >= 2.0 * o3.total_s && po.total_s >= o3.min_duration_s {
+            let share = po.total_s / m.run.duration_s;
+            let severity = if share >= 0.01 {
+                Severity::Warning
+            } else {
+                Severity::Note
+            };
+            let three = if o3.episodes == 0 {
+                "while the three-phase sum was never overcorrected".to_string()
+            } else {
+                format!(
+                    "while the three-phase sum was overcorrected only {}",
+                    duration(o3.total_s)
+                )
+            };
+            let text = format!(
+                "Phase {} was overcorrected {} in {} episode{} (worst {} kvar leading on that \
+                 phase, {} of the time leading) {three}: the phase's own PF is worse than the \
+                 three-phase figure shows.",
+                w.phase,
+                duration(po.total_s),
+                count(po.episodes),
+                if po.episodes == 1 { "" } else { "s" },
+                num(po.worst_leading_kvar, 1),
+                pct(w.share_leading),
+            );
+            out.push(Finding::new(severity, "phase", share, text).advise(
+                "Unbalanced load: correct the phases on their own (single-phase steps \
+                     under per-phase control, `controller.measurement = \"per-phase\"`), or \
+                     move single-phase loads to even out the phases.",
+                true,
+            ));
+        }
+    }
+    let goal = ctx.billed_pf.goal;
+    if !ctx.billed_pf.below_target {
+        let low = m
+            .phases
+            .iter()
+            .min_by(|a, b| a.energy_pf.total_cmp(&b.energy_pf));
+        if let Some(w) = low.filter(|w| w.energy_pf < goal) {
+            let text = format!(
+                "Phase {} on its own registers bills {} while the three-phase figure meets \
+                 the {} target ({}); it was under target {} of the time.",
+                w.phase,
+                pf_vs(w.energy_pf, w.energy_pf_quadrant, goal),
+                ctx.scenario().controller.target,
+                pf_vs(m.pf.energy_pf, m.pf.energy_pf_quadrant, goal),
+                pct(w.share_under_target),
+            );
+            out.push(Finding::new(
+                Severity::Note,
+                "phase",
+                goal - w.energy_pf,
+                text,
+            ));
+        }
+    }
+}
+
+/// A what-if wiring of the measurement: what the controller then does, in plain words.
+fn wiring(ctx: &Context<'_>, out: &mut Vec<Finding>) {
+    let c = &ctx.scenario().controller;
+    let w = c.wiring();
+    if w.as_assumed() {
+        return;
+    }
+    let s = crate::analysis::wiring::symptoms(ctx.study, ctx.result);
+    let m = &ctx.result.metrics;
+    let text = format!(
+        "What-if wiring of the {} measurement: {}. With it the controller {} (billed PF {}, \
+         {} operations).",
+        c.measurement_label(),
+        w.label(),
+        crate::analysis::wiring::symptom_words(&s),
+        pf_vs(m.pf.energy_pf, m.pf.energy_pf_quadrant, ctx.billed_pf.goal),
+        count(m.switching.total_operations),
+    );
+    out.push(
+        Finding::new(Severity::Critical, "wiring", 1.0, text).advise(
+            "At commissioning, check that each current transformer sits on the line the \
+             controller expects, with its polarity (P1 towards the supply), and that the \
+             voltage input is the pair the controller is set for; most controllers show \
+             the measured PF and kW per channel, which a clamp meter confirms.",
+            true,
+        ),
+    );
 }
 
 fn hunting(ctx: &Context<'_>, out: &mut Vec<Finding>) {

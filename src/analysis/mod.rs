@@ -10,6 +10,7 @@ pub mod advice;
 pub mod findings;
 pub mod maintenance;
 pub mod resonance;
+pub mod wiring;
 
 pub use advice::Advice;
 pub use findings::{Finding, Severity};

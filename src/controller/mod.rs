@@ -13,13 +13,17 @@
 
 mod best_fit;
 pub mod detect;
+pub mod per_phase;
 mod rotating;
 mod sequential;
+pub mod wiring;
 
 pub use best_fit::BestFit;
 pub use detect::DetectionParams;
+pub use per_phase::Control;
 pub use rotating::Rotating;
 pub use sequential::Sequential;
+pub use wiring::{Channel, VoltagePair, Wiring};
 
 use crate::bank::{Bank, BankState};
 use crate::pf::PfTarget;
@@ -197,6 +201,59 @@ pub struct ControllerParams {
     pub protection: ProtectionParams,
     /// The controller's own detection of a faulty step ([`detect`]). Default off.
     pub detection: Option<DetectionParams>,
+    /// The voltage input of a single-phase measurement as the controller is set up for
+    /// it; `None` (the default): the measured phase's own line to neutral.
+    pub measurement_voltage: Option<VoltagePair>,
+    /// Per-phase control ([`per_phase`]): the single-phase steps of each phase follow
+    /// that phase's own demand, the three-phase steps follow the phase that needs least.
+    /// Needs the three-phase measurement. Default false.
+    pub per_phase: bool,
+    /// Dead band half-width of each phase's own control under per-phase control, kvar of
+    /// that phase. `None` (the default): 0.65 × the smallest switched single-phase step
+    /// of the phase.
+    pub phase_dead_band_kvar: Option<f64>,
+    /// How the measuring inputs are actually wired, when not as the controller assumes
+    /// (a what-if of commissioning faults); one channel for a single-phase measurement,
+    /// three otherwise. Default `None`: as assumed.
+    pub wired: Option<[Channel; 3]>,
+}
+
+impl ControllerParams {
+    /// The measuring channels as assumed and as wired.
+    pub fn wiring(&self) -> Wiring {
+        let w = match self.measurement {
+            Measurement::SinglePhase(x) => Wiring::new(&[Channel {
+                current: x,
+                reversed: false,
+                voltage: self.measurement_voltage.unwrap_or(VoltagePair::Ln(x)),
+            }]),
+            Measurement::ThreePhase => {
+                Wiring::new(&[Channel::phase(0), Channel::phase(1), Channel::phase(2)])
+            }
+        };
+        match self.wired {
+            Some(a) => w.wired(&a),
+            None => w,
+        }
+    }
+
+    /// The measurement in words: `three-phase`, `per-phase`, `single-phase a`, or
+    /// `single-phase a with U_bc`.
+    pub fn measurement_label(&self) -> String {
+        match self.measurement {
+            Measurement::ThreePhase if self.per_phase => "per-phase".to_string(),
+            Measurement::ThreePhase => "three-phase".to_string(),
+            Measurement::SinglePhase(p) => {
+                let name = crate::profile::PHASES[p.min(2)];
+                match self.measurement_voltage {
+                    Some(v) if v != VoltagePair::Ln(p) => {
+                        format!("single-phase {name} with U_{}", v.label())
+                    }
+                    _ => format!("single-phase {name}"),
+                }
+            }
+        }
+    }
 }
 
 /// What the controller reads in one interval.
@@ -496,6 +553,18 @@ impl Controller {
     /// Builds a controller for a bank, with every switched step off and every fixed step
     /// on since `t_first_s`.
     pub fn new(params: ControllerParams, bank: &Bank, dt_s: f64, t_first_s: f64) -> Self {
+        Self::for_steps(params, bank, dt_s, t_first_s, bank.switched_mask)
+    }
+
+    /// A controller that switches only the steps of `own` (others it never operates), as
+    /// each part of per-phase control does.
+    pub fn for_steps(
+        params: ControllerParams,
+        bank: &Bank,
+        dt_s: f64,
+        t_first_s: f64,
+        own: BankState,
+    ) -> Self {
         let n_avg = ((params.averaging_s / dt_s).round() as usize).max(1);
         let cap = params.protection.max_operations_per_hour.unwrap_or(0) as usize;
         let steps = bank
@@ -513,7 +582,7 @@ impl Controller {
             params,
             ordering: params.ordering.build(),
             kvar: bank.steps.iter().map(|s| s.kvar).collect(),
-            switched: bank.switched_mask,
+            switched: bank.switched_mask.and(own),
             dt: dt_s,
             tan_t: params.target.tan_phi(),
             any_protection: {
@@ -581,6 +650,21 @@ impl Controller {
     /// the fields of [`Reading`] of the same names.
     #[inline]
     pub fn decide_measured(
+        &mut self,
+        p_raw: f64,
+        q_raw: f64,
+        v_ll_max: f64,
+        current_a: f64,
+        thd_pct: f64,
+        t_next: f64,
+    ) -> Decision {
+        self.decide_inline(p_raw, q_raw, v_ll_max, current_a, thd_pct, t_next)
+    }
+
+    /// [`Controller::decide_measured`], always inlined: for the engine's one-controller
+    /// path, where it runs once per interval.
+    #[inline(always)]
+    pub(crate) fn decide_inline(
         &mut self,
         p_raw: f64,
         q_raw: f64,

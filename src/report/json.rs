@@ -11,7 +11,6 @@
 //! absolute paths (file names only), and only structs, vectors and ordered maps.
 
 use crate::analysis::{Advice, Finding, ResonanceReport};
-use crate::controller::Measurement;
 use crate::metrics::{
     OvercorrectionMetrics, PfMetrics, RunInfo, StepWear, SwitchingMetrics, VoltageMetrics,
 };
@@ -63,6 +62,8 @@ struct SupplyJson {
     nominal_voltage_v: f64,
     frequency_hz: f64,
     short_circuit_kva: Option<f64>,
+    /// How the bus is solved: `per-phase`, or `coupled` with the winding (`coupled Dyn`).
+    bus: String,
 }
 
 /// Controller settings in force.
@@ -77,6 +78,8 @@ struct ControllerJson {
     averaging_s: f64,
     measurement: String,
     export_mode: &'static str,
+    /// How the measuring inputs are wired: `as assumed`, or the what-if's wiring.
+    wiring: String,
 }
 
 /// What was studied.
@@ -118,6 +121,10 @@ struct Document<'a> {
     resonance: &'a ResonanceReport,
     wear: WearJson<'a>,
     voltage: &'a VoltageMetrics,
+    /// Per phase a, b, c.
+    phases: &'a [crate::metrics::PhaseMetrics],
+    /// Unbalance, when the scenario asks for it (null otherwise).
+    unbalance: Option<&'a crate::metrics::UnbalanceMetrics>,
     nonconverged_intervals: u64,
     /// The wear plan, when one was made (null otherwise).
     wear_plan: Option<&'a crate::analysis::maintenance::WearPlan>,
@@ -160,6 +167,10 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
                 nominal_voltage_v: sc.supply.nominal_voltage_v,
                 frequency_hz: sc.supply.frequency_hz,
                 short_circuit_kva: s_sc.is_finite().then_some(s_sc),
+                bus: match sc.bus {
+                    crate::supply::BusModel::PerPhase => "per-phase".to_string(),
+                    crate::supply::BusModel::Coupled(w) => format!("coupled {}", w.name()),
+                },
             },
             bank: BankJson {
                 total_kvar: total,
@@ -176,12 +187,8 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
                 discharge_time_s: c.discharge_time_s,
                 averaging_s: c.averaging_s,
                 export_mode: c.export_mode.name(),
-                measurement: match c.measurement {
-                    Measurement::ThreePhase => "three-phase".to_string(),
-                    Measurement::SinglePhase(p) => {
-                        format!("single-phase {}", crate::profile::PHASES[p.min(2)])
-                    }
-                },
+                measurement: c.measurement_label(),
+                wiring: c.wiring().label(),
             },
         },
         run: &m.run,
@@ -194,6 +201,8 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
         resonance: &ctx.assessment.resonance,
         wear: WearJson { per_step: &m.wear },
         voltage: &m.voltage,
+        phases: &m.phases,
+        unbalance: m.unbalance.as_ref(),
         nonconverged_intervals: ctx.result.nonconverged_intervals,
         wear_plan: ctx.wear_plan,
     }

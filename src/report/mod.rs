@@ -35,6 +35,7 @@ pub mod summary;
 pub mod sweep;
 pub mod timeseries;
 pub mod wear;
+pub mod wiring;
 
 pub use crate::analysis::{Finding, Severity};
 pub(crate) use crate::text::{

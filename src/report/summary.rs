@@ -42,6 +42,8 @@ impl ReportWriter for Summary {
         profile_defects(ctx, &mut t);
         study(ctx, &mut t);
         pf_energy(ctx, &mut t);
+        per_phase(ctx, &mut t);
+        unbalance(ctx, &mut t);
         switching(ctx, &mut t);
         overcorrection(ctx, &mut t);
         resonance(ctx, &mut t);
@@ -268,12 +270,16 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
         ));
     }
     let c = &sc.controller;
-    let measurement = match c.measurement {
-        Measurement::ThreePhase => "three-phase".to_string(),
-        Measurement::SinglePhase(p) => {
+    let mut measurement = match c.measurement {
+        Measurement::SinglePhase(p) if c.measurement_voltage.is_none() => {
             format!("single-phase on phase {}", crate::profile::PHASES[p.min(2)])
         }
+        _ => c.measurement_label(),
     };
+    let wiring = c.wiring();
+    if !wiring.as_assumed() {
+        measurement.push_str(&format!(" (wired: {})", wiring.label()));
+    }
     field(
         t,
         "Controller",
@@ -400,6 +406,109 @@ fn pf_energy(ctx: &ReportContext<'_>, t: &mut String) {
             num(w.kvarh_capacitive, 1)
         ));
     }
+}
+
+/// The supply phase by phase: the billed PF of each phase's own registers, its shares of
+/// time under target and leading, and its overcorrection episodes.
+fn per_phase(ctx: &ReportContext<'_>, t: &mut String) {
+    let m = &ctx.result.metrics;
+    if m.phases.is_empty() {
+        return;
+    }
+    let goal = ctx.assessment.billed_pf.goal;
+    heading(t, "Per phase");
+    wrap(
+        t,
+        "  ",
+        "  ",
+        &format!(
+            "Each phase's own registers at the metering point; a phase counts as \
+             overcorrected when it leads by more than {} kvar (a third of the three-phase \
+             threshold) for at least {}.",
+            num(m.overcorrection.threshold_kvar / 3.0, 1),
+            duration(m.overcorrection.min_duration_s)
+        ),
+    );
+    t.push_str(&format!(
+        "    {:<5}  {:>9}  {:>12}  {:>15}  {:>16}  {:>12}  {:>8}  {:>8}  {:>14}\n",
+        "phase",
+        "energy PF",
+        "import kWh",
+        "inductive kvarh",
+        "capacitive kvarh",
+        "under target",
+        "leading",
+        "episodes",
+        "overcorrected"
+    ));
+    for p in &m.phases {
+        t.push_str(&format!(
+            "    {:<5}  {:>9}  {:>12}  {:>15}  {:>16}  {:>12}  {:>8}  {:>8}  {:>14}\n",
+            p.phase,
+            pf_vs(p.energy_pf, p.energy_pf_quadrant, goal),
+            num(p.kwh_import, 1),
+            num(p.kvarh_inductive, 1),
+            num(p.kvarh_capacitive, 1),
+            pct(p.share_under_target),
+            pct(p.share_leading),
+            count(p.overcorrection.episodes),
+            duration(p.overcorrection.total_s)
+        ));
+    }
+}
+
+/// Voltage and current unbalance and the IEEE Std 1459-2010 apparent powers, when the
+/// scenario asks for them.
+fn unbalance(ctx: &ReportContext<'_>, t: &mut String) {
+    let Some(u) = &ctx.result.metrics.unbalance else {
+        return;
+    };
+    heading(t, "Unbalance");
+    field(
+        t,
+        "Voltage unbalance",
+        &format!(
+            "{} % mean, {} % highest (|V2|/|V1| of the bus)",
+            num(u.u2_mean_pct, 2),
+            num(u.u2_max_pct, 2)
+        ),
+    );
+    for w in &u.weeks {
+        let cal = ctx.study.plan.calendar;
+        field(
+            t,
+            &format!("  week from {}", cal.datetime(w.start_s).format("%Y-%m-%d")),
+            &format!(
+                "95th percentile of {} 10-minute values {} % (EN 50160 allows 2 %), highest {} %",
+                count(w.values),
+                num(w.u2_p95_pct, 2),
+                num(w.u2_max_pct, 2)
+            ),
+        );
+    }
+    field(
+        t,
+        "Current unbalance",
+        &format!(
+            "{} % mean, {} % highest (|I2|/|I1| of the supply)",
+            num(u.i2_mean_pct, 1),
+            num(u.i2_max_pct, 1)
+        ),
+    );
+    field(
+        t,
+        "Apparent energy",
+        &format!(
+            "vector {} kVAh (PF {}), arithmetic {} kVAh (PF {}), effective {} kVAh (PF {}), \
+             IEEE Std 1459-2010",
+            num(u.kvah_vector, 1),
+            num(u.pf_vector, 3),
+            num(u.kvah_arithmetic, 1),
+            num(u.pf_arithmetic, 3),
+            num(u.kvah_effective, 1),
+            num(u.pf_effective, 3)
+        ),
+    );
 }
 
 fn switching(ctx: &ReportContext<'_>, t: &mut String) {

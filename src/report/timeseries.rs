@@ -15,6 +15,11 @@
 //! | `bank_kvar` | reactive power delivered by the connected steps, kvar |
 //! | `steps_on` | connected step numbers joined by `+` during the interval; empty if none |
 //! | `operation` | what the controller did at the end of the interval (`close 3`, `open 2`, `trip export`); empty if nothing. It takes effect from the next interval. |
+//! | `p_a_kw`, `p_b_kw`, `p_c_kw` | supply-side active power of each phase, kW |
+//! | `q_a_kvar`, `q_b_kvar`, `q_c_kvar` | supply-side reactive power of each phase, kvar (load convention) |
+//! | `pf_a`, `pf_b`, `pf_c` | power factor of each phase, 0..1 |
+//! | `pf_a_quadrant`, ... | `lag` (the phase's Q ≥ 0) or `lead` (Q < 0) |
+//! | `u_a_v`, `u_b_v`, `u_c_v` | bus voltage of each phase, line to neutral, V |
 //!
 //! Rows are written with `write!` straight into the buffer: nothing is allocated per row.
 
@@ -28,8 +33,9 @@ use std::io::{BufWriter, Write};
 use std::path::Path;
 
 /// The header row of the time-series CSV.
-pub const HEADER: &str =
-    "time_s,p_kw,q_kvar,pf,pf_quadrant,u_bus_v,demand_kvar,bank_kvar,steps_on,operation";
+pub const HEADER: &str = "time_s,p_kw,q_kvar,pf,pf_quadrant,u_bus_v,demand_kvar,bank_kvar,\
+steps_on,operation,p_a_kw,p_b_kw,p_c_kw,q_a_kvar,q_b_kvar,q_c_kvar,pf_a,pf_b,pf_c,\
+pf_a_quadrant,pf_b_quadrant,pf_c_quadrant,u_a_v,u_b_v,u_c_v";
 
 /// Writes the time-series CSV as an engine observer.
 pub struct TimeseriesWriter<W: Write> {
@@ -127,6 +133,26 @@ impl<W: Write> TimeseriesWriter<W> {
                 write_steps(o, d.opened)?;
             }
         }
+        let ph = r.phases;
+        write!(
+            o,
+            ",{:.3},{:.3},{:.3},{:.3},{:.3},{:.3},{:.4},{:.4},{:.4},{},{},{},{:.2},{:.2},{:.2}",
+            ph[0].p_kw,
+            ph[1].p_kw,
+            ph[2].p_kw,
+            ph[0].q_kvar,
+            ph[1].q_kvar,
+            ph[2].q_kvar,
+            pf_of(ph[0].p_kw, ph[0].q_kvar),
+            pf_of(ph[1].p_kw, ph[1].q_kvar),
+            pf_of(ph[2].p_kw, ph[2].q_kvar),
+            quadrant_of(ph[0].q_kvar).word(),
+            quadrant_of(ph[1].q_kvar).word(),
+            quadrant_of(ph[2].q_kvar).word(),
+            ph[0].v_ln,
+            ph[1].v_ln,
+            ph[2].v_ln,
+        )?;
         o.write_all(b"\n")
     }
 }
@@ -227,10 +253,12 @@ mod tests {
         assert_eq!(lines[0], HEADER);
         assert_eq!(
             lines[1],
-            "0,300.000,-30.000,0.9950,lead,398.37,40.000,150.000,1+2,close 3"
+            "0,300.000,-30.000,0.9950,lead,398.37,40.000,150.000,1+2,close 3,\
+             100.000,100.000,100.000,-10.000,-10.000,-10.000,0.9950,0.9950,0.9950,\
+             lead,lead,lead,230.00,230.00,230.00"
         );
         assert!(lines[2].starts_with("2,"), "{}", lines[2]);
-        assert!(lines[2].ends_with(",1+2,trip export"), "{}", lines[2]);
+        assert!(lines[2].contains(",1+2,trip export,"), "{}", lines[2]);
         assert_eq!(lines.len(), 3);
     }
 

@@ -2,8 +2,10 @@
 //! delays, discharge time, ordering, measurement, averaging, export mode and protections.
 
 use super::check::{phase_index, range, range_open};
-use super::schema::{ControllerSection, ProtectionSection, TargetPfValue};
-use crate::controller::{ControllerParams, Measurement, ProtectionParams};
+use super::schema::{
+    ControllerSection, ProtectionSection, ReversedValue, TargetPfValue, WiringSection,
+};
+use crate::controller::{Channel, ControllerParams, Measurement, ProtectionParams, VoltagePair};
 use crate::error::FieldError;
 use crate::pf::{PfTarget, Quadrant};
 
@@ -99,6 +101,46 @@ pub(super) fn controller(
         "s",
     )?;
     let measurement = measurement(c)?;
+    let per_phase = c.measurement.as_deref() == Some("per-phase");
+    let measurement_voltage = match (&c.measurement_voltage, measurement) {
+        (None, _) => None,
+        (Some(v), Measurement::SinglePhase(_)) => Some(VoltagePair::parse(v).ok_or_else(|| {
+            FieldError::new(
+                "controller.measurement_voltage",
+                format!(
+                    "`{v}` is not a voltage input; write `an`, `bn`, `cn` or a pair of lines \
+                     such as `bc`"
+                ),
+            )
+        })?),
+        (Some(_), _) => {
+            return Err(FieldError::new(
+                "controller.measurement_voltage",
+                "only meaningful with measurement = \"single-phase\"",
+            ))
+        }
+    };
+    let phase_dead_band_kvar = match c.phase_dead_band_kvar {
+        None => None,
+        Some(_) if !per_phase => {
+            return Err(FieldError::new(
+                "controller.phase_dead_band_kvar",
+                "only meaningful with measurement = \"per-phase\"",
+            ))
+        }
+        Some(b) => Some(range(
+            "controller.phase_dead_band_kvar",
+            b,
+            0.0,
+            100_000.0,
+            "kvar",
+        )?),
+    };
+    let wired = c
+        .wiring
+        .as_ref()
+        .map(|w| wiring(w, measurement, measurement_voltage))
+        .transpose()?;
     let averaging_s = range(
         "controller.averaging_s",
         c.averaging_s.unwrap_or(0.0),
@@ -120,6 +162,10 @@ pub(super) fn controller(
             export_mode: c.export_mode.unwrap_or_default(),
             protection,
             detection: None,
+            measurement_voltage,
+            per_phase,
+            phase_dead_band_kvar,
+            wired,
         },
         dead_band_key,
         capacitor_discharge_s: c
@@ -141,15 +187,129 @@ fn measurement(c: &ControllerSection) -> Result<Measurement, FieldError> {
             }
             Ok(Measurement::ThreePhase)
         }
+        "per-phase" => {
+            if c.measurement_phase.is_some() {
+                return Err(FieldError::new(
+                    "controller.measurement_phase",
+                    "only meaningful with measurement = \"single-phase\"",
+                ));
+            }
+            Ok(Measurement::ThreePhase)
+        }
         "single-phase" => Ok(Measurement::SinglePhase(phase_index(
             "controller.measurement_phase",
             c.measurement_phase.as_deref().unwrap_or("a"),
         )?)),
         other => Err(FieldError::new(
             "controller.measurement",
-            format!("`{other}` is not a measurement mode; write `three-phase` or `single-phase`"),
+            format!(
+                "`{other}` is not a measurement mode; write `three-phase`, `single-phase` or \
+                 `per-phase`"
+            ),
         )),
     }
+}
+
+/// `[controller.wiring]`: the channels as actually wired, starting from the assumption.
+fn wiring(
+    w: &WiringSection,
+    measurement: Measurement,
+    voltage: Option<VoltagePair>,
+) -> Result<[Channel; 3], FieldError> {
+    const KEY: &str = "controller.wiring";
+    let mut ch = [Channel::phase(0), Channel::phase(1), Channel::phase(2)];
+    match measurement {
+        Measurement::SinglePhase(x) => {
+            let mut c = Channel {
+                current: x,
+                reversed: false,
+                voltage: voltage.unwrap_or(VoltagePair::Ln(x)),
+            };
+            if let Some(cur) = &w.current {
+                c.current = phase_index(&format!("{KEY}.current"), cur)?;
+            }
+            match &w.reversed {
+                None => {}
+                Some(ReversedValue::Flag(b)) => c.reversed = *b,
+                Some(ReversedValue::Channels(_)) => {
+                    return Err(FieldError::new(
+                        format!("{KEY}.reversed"),
+                        "write `true` or `false` for a single-phase measurement",
+                    ))
+                }
+            }
+            if let Some(v) = &w.voltage {
+                let pair = VoltagePair::parse(v).ok_or_else(|| {
+                    FieldError::new(
+                        format!("{KEY}.voltage"),
+                        format!("`{v}` is not a voltage input; write `an`, `bn`, `cn` or a pair of lines such as `bc`"),
+                    )
+                })?;
+                if pair.is_line_to_line() != c.voltage.is_line_to_line() {
+                    return Err(FieldError::new(
+                        format!("{KEY}.voltage"),
+                        format!(
+                            "`{v}` is not of the kind the controller's voltage input takes \
+                             (`{}`): line to neutral and line to line are not interchanged \
+                             by a wiring slip",
+                            c.voltage.label()
+                        ),
+                    ));
+                }
+                c.voltage = pair;
+            }
+            ch[0] = c;
+        }
+        Measurement::ThreePhase => {
+            if w.voltage.is_some() {
+                return Err(FieldError::new(
+                    format!("{KEY}.voltage"),
+                    "only meaningful with measurement = \"single-phase\"",
+                ));
+            }
+            if let Some(cur) = &w.current {
+                let key = format!("{KEY}.current");
+                let letters: Vec<char> = cur.trim().chars().collect();
+                let bad = || {
+                    FieldError::new(
+                        key.clone(),
+                        format!(
+                            "`{cur}` is not a wiring of three channels; write the lines the \
+                             channels a, b and c carry, each once, e.g. `bca`"
+                        ),
+                    )
+                };
+                if letters.len() != 3 {
+                    return Err(bad());
+                }
+                let mut seen = [false; 3];
+                for (i, l) in letters.iter().enumerate() {
+                    let y = phase_index(&key, &l.to_string()).map_err(|_| bad())?;
+                    if seen[y] {
+                        return Err(bad());
+                    }
+                    seen[y] = true;
+                    ch[i].current = y;
+                }
+            }
+            match &w.reversed {
+                None => {}
+                Some(ReversedValue::Flag(_)) => {
+                    return Err(FieldError::new(
+                        format!("{KEY}.reversed"),
+                        "name the reversed channels, e.g. \"a\" or \"abc\"",
+                    ))
+                }
+                Some(ReversedValue::Channels(s)) => {
+                    for l in s.trim().chars() {
+                        let i = phase_index(&format!("{KEY}.reversed"), &l.to_string())?;
+                        ch[i].reversed = true;
+                    }
+                }
+            }
+        }
+    }
+    Ok(ch)
 }
 
 /// `[controller.protection]`.

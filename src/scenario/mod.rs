@@ -77,6 +77,9 @@ pub struct Scenario {
     pub description: Option<String>,
     /// Supply.
     pub supply: SupplyParams,
+    /// How the bus is solved (`supply.bus`, `supply.transformer.winding`). Default
+    /// per phase.
+    pub bus: crate::supply::BusModel,
     /// Steps in number order.
     pub steps: Vec<StepSpec>,
     /// Controller settings.
@@ -108,6 +111,10 @@ pub struct Scenario {
     pub overcorrection_min_s: f64,
     /// Hunting window, s.
     pub hunting_window_s: f64,
+    /// Measure unbalance over the run (`report.unbalance`): voltage and current
+    /// unbalance, their weekly 95th percentile, and the IEEE Std 1459-2010 apparent
+    /// powers. Default false.
+    pub unbalance: bool,
     /// Discharge-device time of the capacitors, s, if given.
     pub capacitor_discharge_s: Option<f64>,
     /// The key the user wrote to set the dead band: [`DEAD_BAND_KVAR_KEY`]
@@ -173,10 +180,17 @@ impl Scenario {
     /// Applies the defaults and checks every section, in file order.
     fn validate(f: ScenarioFile, path: &Path) -> Result<Scenario, FieldError> {
         let supply = supply::supply(&f.supply)?;
+        let bus = supply::bus(&f.supply)?;
         let steps = steps::steps(&f.steps, supply.nominal_voltage_v)?;
         let smallest = crate::bank::smallest_switched_kvar(&steps);
         let mut ctl = controller::controller(&f.controller, supply.nominal_voltage_v, smallest)?;
         ctl.params.detection = maintenance::detection(&f.controller.detection)?;
+        if ctl.params.per_phase && ctl.params.detection.is_some() {
+            return Err(FieldError::new(
+                "controller.detection",
+                "fault detection is not available with measurement = \"per-phase\"",
+            ));
+        }
         let maintenance = maintenance::maintenance(&f.maintenance, &f.steps, &steps::table_label)?;
         let load = load::load(&f.load, path)?;
         let harm = harmonics::harmonics(&f.harmonics)?;
@@ -208,6 +222,8 @@ impl Scenario {
             overcorrection_threshold_kvar: rep.overcorrection_threshold_kvar,
             overcorrection_min_s: rep.overcorrection_min_s,
             hunting_window_s: rep.hunting_window_s,
+            unbalance: rep.unbalance,
+            bus,
             capacitor_discharge_s: ctl.capacitor_discharge_s,
             dead_band_key: ctl.dead_band_key,
             tariff,

@@ -16,6 +16,8 @@ pub(super) struct ReportSettings {
     pub overcorrection_min_s: f64,
     /// Hunting window, s.
     pub hunting_window_s: f64,
+    /// Measure unbalance.
+    pub unbalance: bool,
 }
 
 /// The report settings these keys describe; the defaults depend on the smallest switched
@@ -58,5 +60,6 @@ pub(super) fn report(
             1e7,
             "s",
         )?,
+        unbalance: rp.unbalance.unwrap_or(false),
     })
 }

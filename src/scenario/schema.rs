@@ -74,6 +74,9 @@ pub struct SupplySection {
     pub grid_x_over_r: Option<f64>,
     /// The transformer feeding the bus. Default: none.
     pub transformer: Option<TransformerSection>,
+    /// How the bus is solved: `per-phase` (default, each phase on its own) or `coupled`
+    /// (the three phases together through the 3×3 phase impedance).
+    pub bus: Option<String>,
 }
 
 /// `[supply.transformer]`.
@@ -86,6 +89,8 @@ pub struct TransformerSection {
     pub impedance_pct: Option<f64>,
     /// X/R. Default 8.
     pub x_over_r: Option<f64>,
+    /// Winding connection, for a coupled bus: `Dyn` (default) or `YNyn`.
+    pub winding: Option<String>,
 }
 
 /// One `[[steps]]` entry.
@@ -169,10 +174,18 @@ pub struct ControllerSection {
     pub capacitor_discharge_s: Option<f64>,
     /// `sequential` (default), `rotating` or `best-fit`.
     pub ordering: Option<OrderingKind>,
-    /// `three-phase` (default) or `single-phase`.
+    /// `three-phase` (default), `single-phase` or `per-phase`.
     pub measurement: Option<String>,
     /// Phase of a single-phase measurement: `a` (default), `b` or `c`.
     pub measurement_phase: Option<String>,
+    /// Voltage input of a single-phase measurement: `an`, `bn`, `cn`, or a line-to-line
+    /// pair `ab`, `bc`, `ca`, `ba`, `cb`, `ac`. Default: the measured phase to neutral.
+    pub measurement_voltage: Option<String>,
+    /// Dead band of each phase's own control under per-phase control, kvar. Default
+    /// 0.65 × the phase's smallest switched single-phase step.
+    pub phase_dead_band_kvar: Option<f64>,
+    /// How the measuring inputs are actually wired (a what-if); absent: as assumed.
+    pub wiring: Option<WiringSection>,
     /// Averaging window, s. Default 0 (none).
     pub averaging_s: Option<f64>,
     /// While the site exports (measured P < 0): `absolute` (default; aim at the target on
@@ -288,6 +301,35 @@ pub struct ReportSection {
     pub overcorrection_min_s: Option<f64>,
     /// Hunting window, s. Default 10 × the switching delay.
     pub hunting_window_s: Option<f64>,
+    /// Measure unbalance: voltage and current unbalance over time and the IEEE Std
+    /// 1459-2010 apparent powers. Default false.
+    pub unbalance: Option<bool>,
+}
+
+/// `[controller.wiring]`: the measuring inputs as actually wired, while the controller
+/// keeps the assumption its other keys describe.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct WiringSection {
+    /// The line the current transformer actually sits on (single-phase: `a`, `b`, `c`),
+    /// or the lines the channels a, b and c actually carry (three-phase and per-phase:
+    /// three letters, e.g. `bca`). Default: as assumed.
+    pub current: Option<String>,
+    /// Reversed current transformers: `true`/`false` for a single-phase measurement, or
+    /// the channels reversed (`"a"`, `"ac"`, `"abc"`). Default none.
+    pub reversed: Option<ReversedValue>,
+    /// The voltage pair actually connected (single-phase only). Default: as assumed.
+    pub voltage: Option<String>,
+}
+
+/// Reversed polarity as written: a flag, or the channels' letters.
+#[derive(Debug, Clone, PartialEq, Deserialize)]
+#[serde(untagged)]
+pub enum ReversedValue {
+    /// The one channel of a single-phase measurement reversed, or not.
+    Flag(bool),
+    /// The channels reversed, by letter.
+    Channels(String),
 }
 
 /// A target PF as written: a number (`0.97`, `1`) or text (`"0.95 lag"`).

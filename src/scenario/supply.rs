@@ -4,7 +4,7 @@
 use super::check::range;
 use super::schema::SupplySection;
 use crate::error::FieldError;
-use crate::supply::{SupplyParams, Transformer};
+use crate::supply::{BusModel, SupplyParams, Transformer, Winding};
 
 /// The supply these keys describe, with defaults applied.
 pub(super) fn supply(s: &SupplySection) -> Result<SupplyParams, FieldError> {
@@ -72,4 +72,37 @@ pub(super) fn supply(s: &SupplySection) -> Result<SupplyParams, FieldError> {
             "pu",
         )?,
     })
+}
+
+/// How the bus is solved: `supply.bus` and the transformer's `winding`.
+pub(super) fn bus(s: &SupplySection) -> Result<BusModel, FieldError> {
+    let winding = match s.transformer.as_ref().and_then(|t| t.winding.as_deref()) {
+        None => None,
+        Some(w) => Some(match w.trim() {
+            "Dyn" | "dyn" | "Dyn11" | "Dyn5" | "Dyn1" => Winding::Dyn,
+            "YNyn" | "ynyn" | "YNyn0" => Winding::YNyn,
+            other => {
+                return Err(FieldError::new(
+                    "supply.transformer.winding",
+                    format!("`{other}` is not a winding connection; write `Dyn` or `YNyn`"),
+                ))
+            }
+        }),
+    };
+    match s.bus.as_deref().unwrap_or("per-phase") {
+        "per-phase" => {
+            if winding.is_some() {
+                return Err(FieldError::new(
+                    "supply.transformer.winding",
+                    "only meaningful with supply.bus = \"coupled\"",
+                ));
+            }
+            Ok(BusModel::PerPhase)
+        }
+        "coupled" => Ok(BusModel::Coupled(winding.unwrap_or_default())),
+        other => Err(FieldError::new(
+            "supply.bus",
+            format!("`{other}` is not a bus model; write `per-phase` or `coupled`"),
+        )),
+    }
 }
