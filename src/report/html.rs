@@ -7,7 +7,6 @@
 //! time, each written to its files and into the page before the next is drawn.
 
 use crate::analysis::Severity;
-use crate::controller::Measurement;
 use crate::metrics::OvercorrectionCause;
 use crate::pf::Quadrant;
 use crate::report::figures::{self, escape, FigureError, Plot};
@@ -190,12 +189,7 @@ fn settings(ctx: &ReportContext<'_>, h: &mut String) {
     }
     let s_sc = s.short_circuit_kva();
     let c = &sc.controller;
-    let measurement = match c.measurement {
-        Measurement::ThreePhase => "three-phase".to_string(),
-        Measurement::SinglePhase(p) => {
-            format!("single-phase on phase {}", crate::profile::PHASES[p.min(2)])
-        }
-    };
+    let measurement = c.measurement_label();
     let p = &c.protection;
     let mut prot = Vec::new();
     if let Some(v) = p.overvoltage_v {
