@@ -8,7 +8,8 @@
 //! - **never switches**: no operation in the run although the bank has switched steps;
 //! - **switches every step in**: every switched step connected at least half the time;
 //! - **hunts**: 10 hunting cycles a day or more (the hunting finding's warning level);
-//! - **overcorrects**: the supply, or one phase, overcorrected at least 1 % of the time;
+//! - **overcorrects**: the three-phase supply overcorrected at least 1 % of the time, or
+//!   **overcorrects one phase** where only a phase is;
 //! - **leaves the billed PF below target**: the billed PF falls short of the target's goal;
 //! - otherwise **shows no visible symptom**.
 
@@ -29,8 +30,10 @@ pub enum Symptom {
     AllStepsIn,
     /// 10 hunting cycles a day or more.
     Hunts,
-    /// Overcorrected (the supply or a phase) at least 1 % of the time.
+    /// The three-phase supply overcorrected at least 1 % of the time.
     Overcorrects,
+    /// A phase overcorrected at least 1 % of the time while the three-phase supply is not.
+    OvercorrectsPhase,
     /// The billed PF falls short of the target.
     BelowTarget,
     /// None of the above.
@@ -45,6 +48,7 @@ impl Symptom {
             Symptom::AllStepsIn => "switches every step in",
             Symptom::Hunts => "hunts",
             Symptom::Overcorrects => "overcorrects",
+            Symptom::OvercorrectsPhase => "overcorrects one phase",
             Symptom::BelowTarget => "leaves the billed PF below target",
             Symptom::None => "shows no visible symptom",
         }
@@ -75,13 +79,15 @@ pub fn symptoms(study: &Study, result: &RunResult) -> Vec<Symptom> {
     if d > 0.0 && m.switching.hunting_cycles as f64 * 86_400.0 / d >= 10.0 {
         out.push(Symptom::Hunts);
     }
-    let worst_over = m
+    let worst_phase = m
         .phases
         .iter()
         .map(|p| p.overcorrection.total_s)
-        .fold(m.overcorrection.total_s, f64::max);
-    if d > 0.0 && worst_over >= 0.01 * d {
+        .fold(0.0, f64::max);
+    if d > 0.0 && m.overcorrection.total_s >= 0.01 * d {
         out.push(Symptom::Overcorrects);
+    } else if d > 0.0 && worst_phase >= 0.01 * d {
+        out.push(Symptom::OvercorrectsPhase);
     }
     let goal = crate::analysis::findings::billed_goal(study.scenario.controller.target);
     if m.pf.energy_pf < goal {
