@@ -253,6 +253,10 @@ fn the_cold_store_hides_a_leading_phase_and_per_phase_control_fixes_it() {
         f.text
     );
     assert!(f.text.contains("three-phase sum was never overcorrected"));
+    // The wiring symptoms say the same: one phase overcorrects, the supply does not.
+    let sy = bankstep::analysis::wiring::symptoms(&st, &r);
+    assert!(sy.contains(&bankstep::analysis::wiring::Symptom::OvercorrectsPhase));
+    assert!(!sy.contains(&bankstep::analysis::wiring::Symptom::Overcorrects));
 
     let pp = cold_store(Some((
         "measurement = \"three-phase\"",
