@@ -119,7 +119,8 @@ fn main() {
         if threads == 1 {
             // The same runs again with every bank state already solved: the engine's share.
             let t = Instant::now();
-            sw.run_list(&runs, &|_, _| {}).expect("runs");
+            pool.install(|| sw.run_list(&runs, &|_, _| {}))
+                .expect("runs");
             let warm = t.elapsed().as_secs_f64();
             println!(
                 "sweep/{settings}-settings-{days}d-1s on 1 thread, resonance cache warm: {warm:.2} s = {:.3} s a run ({:.1} ns an interval a run)",
