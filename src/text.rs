@@ -103,6 +103,44 @@ pub fn duration(s: f64) -> String {
     }
 }
 
+/// The controller's protections in words, `; `-separated (`none` when none is set):
+/// "overvoltage above 440 V after 5 s; at most 20 operations per hour".
+pub fn protections(p: &crate::controller::ProtectionParams) -> String {
+    let mut prot = Vec::new();
+    if let Some(v) = p.overvoltage_v {
+        prot.push(format!(
+            "overvoltage above {} V after {}",
+            num(v, 0),
+            duration(p.overvoltage_delay_s)
+        ));
+    }
+    if let Some(a) = p.min_current_a {
+        prot.push(format!(
+            "loss of current below {} A after {}",
+            num(a, 1),
+            duration(p.min_current_delay_s)
+        ));
+    }
+    if p.trip_on_export {
+        prot.push(format!("export after {}", duration(p.export_delay_s)));
+    }
+    if let Some(x) = p.thd_limit_pct {
+        prot.push(format!(
+            "voltage THD above {} % after {}",
+            num(x, 1),
+            duration(p.thd_delay_s)
+        ));
+    }
+    if let Some(n) = p.max_operations_per_hour {
+        prot.push(format!("at most {n} operations per hour"));
+    }
+    if prot.is_empty() {
+        "none".to_string()
+    } else {
+        prot.join("; ")
+    }
+}
+
 /// A set of step numbers joined by `+`, e.g. `1+2+3`; `none` for the empty set.
 pub fn steps_label(steps: &[usize]) -> String {
     join_steps(steps.iter().copied())

@@ -190,35 +190,6 @@ fn settings(ctx: &ReportContext<'_>, h: &mut String) {
     let s_sc = s.short_circuit_kva();
     let c = &sc.controller;
     let measurement = c.measurement_label();
-    let p = &c.protection;
-    let mut prot = Vec::new();
-    if let Some(v) = p.overvoltage_v {
-        prot.push(format!(
-            "overvoltage above {} V after {}",
-            num(v, 0),
-            duration(p.overvoltage_delay_s)
-        ));
-    }
-    if let Some(a) = p.min_current_a {
-        prot.push(format!(
-            "loss of current below {} A after {}",
-            num(a, 1),
-            duration(p.min_current_delay_s)
-        ));
-    }
-    if p.trip_on_export {
-        prot.push(format!("export after {}", duration(p.export_delay_s)));
-    }
-    if let Some(x) = p.thd_limit_pct {
-        prot.push(format!(
-            "voltage THD above {} % after {}",
-            num(x, 1),
-            duration(p.thd_delay_s)
-        ));
-    }
-    if let Some(n) = p.max_operations_per_hour {
-        prot.push(format!("at most {n} operations per hour"));
-    }
     pairs(
         h,
         &[
@@ -252,14 +223,7 @@ fn settings(ctx: &ReportContext<'_>, h: &mut String) {
                     "none".to_string()
                 },
             ),
-            (
-                "Protections",
-                if prot.is_empty() {
-                    "none".to_string()
-                } else {
-                    prot.join("; ")
-                },
-            ),
+            ("Protections", crate::text::protections(&c.protection)),
         ],
     );
     h.push_str("<h3>Bank</h3>\n");
