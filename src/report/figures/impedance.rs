@@ -6,9 +6,9 @@
 //! The curves come from the harmonic model's scan ([`crate::harmonics::scan::Scanner`]);
 //! the states and their order of importance from the run's assessment.
 
+use super::HouseMesh;
 use super::{
-    de, text, Draw, FigureError, FigureMeta, Plot, BAND, BANK, GRID, INK, LIMIT, MAIN, MEDIUM,
-    MUTED,
+    de, text, Draw, FigureError, FigureMeta, Plot, BAND, BANK, INK, LIMIT, MAIN, MEDIUM, MUTED,
 };
 use crate::bank::BankState;
 use crate::harmonics::is_triplen;
@@ -150,11 +150,7 @@ impl Draw for ZDraw {
                     format!("{v:.3}")
                 }
             })
-            .label_style(text(12.0))
-            .axis_desc_style(text(13.0))
-            .light_line_style(WHITE)
-            .bold_line_style(GRID)
-            .axis_style(MUTED)
+            .house()
             .draw()
             .map_err(de)?;
         // The harmonics of the load: a band of the warning tolerance and a line each.

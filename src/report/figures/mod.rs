@@ -231,6 +231,36 @@ pub fn text(size: f64) -> TextStyle<'static> {
     (FAMILY, size).into_font().color(&INK)
 }
 
+/// The house style of every chart's mesh: label and axis text, grid and axis colours.
+pub trait HouseMesh {
+    /// Applies the house style.
+    fn house(&mut self) -> &mut Self;
+}
+
+impl<X, Y, XT, YT, DB> HouseMesh for plotters::chart::MeshStyle<'_, '_, X, Y, DB>
+where
+    X: Ranged<ValueType = XT> + plotters::coord::ranged1d::ValueFormatter<XT>,
+    Y: Ranged<ValueType = YT> + plotters::coord::ranged1d::ValueFormatter<YT>,
+    DB: DrawingBackend,
+{
+    fn house(&mut self) -> &mut Self {
+        self.label_style(text(12.0))
+            .axis_desc_style(text(13.0))
+            .light_line_style(WHITE)
+            .bold_line_style(GRID)
+            .axis_style(MUTED)
+    }
+}
+
+/// A tick label for whole numbers only (steps numbered 1, 2, …), blank between them.
+pub fn whole_label(v: &f64) -> String {
+    if (v - v.round()).abs() < 1e-9 {
+        format!("{v:.0}")
+    } else {
+        String::new()
+    }
+}
+
 /// Something that draws itself on any plotters backend.
 pub trait Draw {
     /// Draws on `root` (already filled white) and records what it plotted in `meta`.

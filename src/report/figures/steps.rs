@@ -1,10 +1,8 @@
 //! The wear figure: operations in the run and projected years to rated life, one bar per
 //! step, from the run's metrics.
 
-use super::{
-    de, legend, text, Draw, FigureError, FigureMeta, Key, Plot, BANK, GRID, INK, MAIN, MEDIUM,
-    MUTED,
-};
+use super::{de, legend, text, Draw, FigureError, FigureMeta, Key, Plot, BANK, INK, MAIN, MEDIUM};
+use super::{whole_label, HouseMesh};
 use crate::report::ReportContext;
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -36,23 +34,13 @@ impl Draw for WearDraw<'_> {
             .map_err(de)?;
         ch.configure_mesh()
             .x_labels(n.min(24))
-            .x_label_formatter(&|v| {
-                if (v - v.round()).abs() < 1e-9 {
-                    format!("{v:.0}")
-                } else {
-                    String::new()
-                }
-            })
+            .x_label_formatter(&whole_label)
             .y_labels(6)
             .y_label_formatter(&|v| format!("{v:.0}"))
             .x_desc("step")
             .y_desc("operations, count")
             .disable_x_mesh()
-            .label_style(text(12.0))
-            .axis_desc_style(text(13.0))
-            .light_line_style(WHITE)
-            .bold_line_style(GRID)
-            .axis_style(MUTED)
+            .house()
             .draw()
             .map_err(de)?;
         for w in wear {
@@ -93,23 +81,13 @@ impl Draw for WearDraw<'_> {
             .map_err(de)?;
         ch.configure_mesh()
             .x_labels(n.min(24))
-            .x_label_formatter(&|v| {
-                if (v - v.round()).abs() < 1e-9 {
-                    format!("{v:.0}")
-                } else {
-                    String::new()
-                }
-            })
+            .x_label_formatter(&whole_label)
             .y_labels(6)
             .y_label_formatter(&|v| format!("{v:.0}"))
             .x_desc("step")
             .y_desc("years to rated life, years")
             .disable_x_mesh()
-            .label_style(text(12.0))
-            .axis_desc_style(text(13.0))
-            .light_line_style(WHITE)
-            .bold_line_style(GRID)
-            .axis_style(MUTED)
+            .house()
             .draw()
             .map_err(de)?;
         for (w, y) in wear.iter().zip(&years) {

@@ -5,9 +5,10 @@
 //! Each time bucket is drawn as its lowest-to-highest band, so a spike shorter than a
 //! pixel still shows at its full height.
 
+use super::HouseMesh;
 use super::{
     dashed, de, legend, scale_colour, text, tint, Draw, FigureError, FigureMeta, Key, Plot, BAND,
-    BANK, BANK_LIGHT, GRID, INK, LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED, OVER, WIDE,
+    BANK, BANK_LIGHT, INK, LIMIT, MAIN, MAIN_LIGHT, MEDIUM, MUTED, OVER, WIDE,
 };
 use crate::pf::Quadrant;
 use crate::report::{num, ReportContext};
@@ -204,11 +205,7 @@ impl Draw for PfDraw<'_> {
             .y_labels(6)
             .y_label_formatter(&|v| pf_label(*v))
             .y_desc("supply power factor")
-            .label_style(text(12.0))
-            .axis_desc_style(text(13.0))
-            .light_line_style(WHITE)
-            .bold_line_style(GRID)
-            .axis_style(MUTED)
+            .house()
             .draw()
             .map_err(de)?;
         for &(x0, x1) in &over {
@@ -309,11 +306,7 @@ impl Draw for PfDraw<'_> {
             .x_desc(ax.desc.as_str())
             .y_desc("supply reactive power, kvar")
             .y_label_formatter(&|v| format!("{v:.0}"))
-            .label_style(text(12.0))
-            .axis_desc_style(text(13.0))
-            .light_line_style(WHITE)
-            .bold_line_style(GRID)
-            .axis_style(MUTED)
+            .house()
             .draw()
             .map_err(de)?;
         for &(x0, x1) in &over {
@@ -456,11 +449,7 @@ impl Draw for KvarDraw<'_> {
             .x_desc(ax.desc.as_str())
             .y_desc("reactive power, kvar")
             .y_label_formatter(&|v| format!("{v:.0}"))
-            .label_style(text(12.0))
-            .axis_desc_style(text(13.0))
-            .light_line_style(WHITE)
-            .bold_line_style(GRID)
-            .axis_style(MUTED)
+            .house()
             .draw()
             .map_err(de)?;
         ch.draw_series(envelope(
@@ -588,11 +577,7 @@ impl Draw for RasterDraw<'_> {
             .y_labels(0)
             .disable_y_mesh()
             .x_desc(ax.desc.as_str())
-            .label_style(text(12.0))
-            .axis_desc_style(text(13.0))
-            .light_line_style(WHITE)
-            .bold_line_style(GRID)
-            .axis_style(MUTED)
+            .house()
             .draw()
             .map_err(de)?;
         let mut boxes = 0usize;

@@ -11,6 +11,7 @@
 //! point and level drawn is named in the SVG's metadata (`<mark>`), so a test can check
 //! the figure against the command's JSON.
 
+use super::HouseMesh;
 use super::{
     dashed, de, legend, text, Draw, FigureError, FigureMeta, Key, Plot, BANK, GRID, INK, LIMIT,
     MAIN, MAIN_LIGHT, MEDIUM, MUTED,
@@ -181,11 +182,7 @@ impl Draw for TradeoffData {
             .y_label_formatter(&|v| tick(*v, ys))
             .x_desc(self.x_label.as_str())
             .y_desc(self.y_label.as_str())
-            .label_style(text(12.0))
-            .axis_desc_style(text(13.0))
-            .light_line_style(WHITE)
-            .bold_line_style(GRID)
-            .axis_style(MUTED)
+            .house()
             .draw()
             .map_err(de)?;
         // Whiskers first, so that the points sit on top.
@@ -425,11 +422,7 @@ impl Draw for DurationData {
             .y_label_formatter(&|v| tick(*v, span))
             .x_desc("share of time, %")
             .y_desc(self.y_label.as_str())
-            .label_style(text(12.0))
-            .axis_desc_style(text(13.0))
-            .light_line_style(WHITE)
-            .bold_line_style(GRID)
-            .axis_style(MUTED)
+            .house()
             .draw()
             .map_err(de)?;
         let base = 0f64.clamp(y0, y1);
