@@ -972,6 +972,35 @@ fn simulate(args: &SimulateArgs) -> Result<(), Failure> {
 }
 
 /// Writes one output of the resonance command to FILE or standard output (`-`).
+/// A file a command may write: where (`-`: standard output), what it is, and its writer.
+type FileOutput<'a> = (
+    Option<&'a Path>,
+    &'a str,
+    &'a dyn Fn(&mut dyn std::io::Write) -> Result<(), ReportError>,
+);
+
+/// Writes the files asked for, then the text report (what it is and its writer) on
+/// standard output unless one of the files went there.
+fn write_outputs(files: &[FileOutput<'_>], text: FileText<'_>, quiet: bool) -> Result<(), Failure> {
+    let mut to_stdout = false;
+    for (path, what, write) in files {
+        if let Some(path) = path {
+            to_stdout |= is_stdout(path);
+            write_output(path, what, quiet, |out| write(out))?;
+        }
+    }
+    if !to_stdout {
+        write_output(Path::new("-"), text.0, true, |out| (text.1)(out))?;
+    }
+    Ok(())
+}
+
+/// The text report of a command: what it is and its writer.
+type FileText<'a> = (
+    &'a str,
+    &'a dyn Fn(&mut dyn std::io::Write) -> Result<(), ReportError>,
+);
+
 fn write_output(
     path: &Path,
     what: &str,
@@ -1076,25 +1105,18 @@ fn resonance(args: &ResonanceArgs) -> Result<(), Failure> {
         profile_sha256: profile_sha256.as_deref(),
         curves: args.curves,
     };
-    let mut to_stdout = false;
-    if let Some(path) = &args.csv {
-        to_stdout |= is_stdout(path);
-        write_output(path, "impedance curves (CSV)", args.quiet, |out| {
-            resonance_report::write_csv(&ctx, out)
-        })?;
-    }
-    if let Some(path) = &args.json {
-        to_stdout |= is_stdout(path);
-        write_output(path, "resonance scan (JSON)", args.quiet, |out| {
-            resonance_report::write_json(&ctx, out)
-        })?;
-    }
-    if !to_stdout {
-        write_output(Path::new("-"), "tables", true, |out| {
-            resonance_report::write_text(&ctx, out)
-        })?;
-    }
-    Ok(())
+    write_outputs(
+        &[
+            (args.csv.as_deref(), "impedance curves (CSV)", &|out| {
+                resonance_report::write_csv(&ctx, out)
+            }),
+            (args.json.as_deref(), "resonance scan (JSON)", &|out| {
+                resonance_report::write_json(&ctx, out)
+            }),
+        ],
+        ("tables", &|out| resonance_report::write_text(&ctx, out)),
+        args.quiet,
+    )
 }
 
 /// A sweep error with its exit code: a failed run as a run failure (1, or 2 for a profile
@@ -1217,25 +1239,18 @@ fn write_sweep_outputs(
         })?;
         report_note(&files, dir, quiet);
     }
-    let mut to_stdout = false;
-    if let Some(path) = csv {
-        to_stdout |= is_stdout(path);
-        write_output(path, "sweep rows (CSV)", quiet, |out| {
-            sweep_report::write_csv(o, out)
-        })?;
-    }
-    if let Some(path) = json {
-        to_stdout |= is_stdout(path);
-        write_output(path, "sweep report (JSON)", quiet, |out| {
-            sweep_report::write_json_report(o, out)
-        })?;
-    }
-    if !to_stdout {
-        write_output(Path::new("-"), "summary", true, |out| {
-            sweep_report::write_summary(o, out)
-        })?;
-    }
-    Ok(())
+    write_outputs(
+        &[
+            (csv, "sweep rows (CSV)", &|out| {
+                sweep_report::write_csv(o, out)
+            }),
+            (json, "sweep report (JSON)", &|out| {
+                sweep_report::write_json_report(o, out)
+            }),
+        ],
+        ("summary", &|out| sweep_report::write_summary(o, out)),
+        quiet,
+    )
 }
 
 fn merge(args: &MergeArgs) -> Result<(), Failure> {
@@ -1327,25 +1342,18 @@ fn design(args: &DesignArgs) -> Result<(), Failure> {
         })?;
         report_note(&files, dir, args.quiet);
     }
-    let mut to_stdout = false;
-    if let Some(path) = &args.json {
-        to_stdout |= is_stdout(path);
-        write_output(path, "design (JSON)", args.quiet, |out| {
-            design_report::write_json(&d, out)
-        })?;
-    }
-    if let Some(path) = &args.csv {
-        to_stdout |= is_stdout(path);
-        write_output(path, "candidates (CSV)", args.quiet, |out| {
-            design_report::write_csv(&d, out)
-        })?;
-    }
-    if !to_stdout {
-        write_output(Path::new("-"), "design report", true, |out| {
-            design_report::write_text(&d, out)
-        })?;
-    }
-    Ok(())
+    write_outputs(
+        &[
+            (args.json.as_deref(), "design (JSON)", &|out| {
+                design_report::write_json(&d, out)
+            }),
+            (args.csv.as_deref(), "candidates (CSV)", &|out| {
+                design_report::write_csv(&d, out)
+            }),
+        ],
+        ("design report", &|out| design_report::write_text(&d, out)),
+        args.quiet,
+    )
 }
 
 /// The fault `--fail-kind`, `--fraction` and `--from-h` describe.
