@@ -13,6 +13,9 @@ use bankstep::study::Study;
 use std::path::Path;
 use std::time::Instant;
 
+mod common;
+use common::peak_rss_kb;
+
 /// The site: supply, the 12-step bank and the controller settings.
 const SITE: &str = include_str!("site_12_steps.toml");
 
@@ -32,15 +35,6 @@ __SYNTH__
 
 /// A plant-like generator section; kept in one place so the bench and the docs agree.
 const SYNTH: &str = include_str!("synthetic_section.toml");
-
-/// Peak resident set size of this process, kB (Linux).
-fn peak_rss_kb() -> Option<u64> {
-    let s = std::fs::read_to_string("/proc/self/status").ok()?;
-    s.lines()
-        .find(|l| l.starts_with("VmHWM:"))
-        .and_then(|l| l.split_whitespace().nth(1))
-        .and_then(|v| v.parse().ok())
-}
 
 fn main() {
     let days: f64 = std::env::var("BANKSTEP_BENCH_DAYS")

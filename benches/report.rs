@@ -19,6 +19,9 @@ use bankstep::trace::{Trace, TraceSettings};
 use std::path::Path;
 use std::time::Instant;
 
+mod common;
+use common::peak_rss_kb;
+
 const SITE: &str = include_str!("site_12_steps.toml");
 const SYNTH: &str = include_str!("synthetic_section.toml");
 const SCENARIO: &str = r#"
@@ -33,15 +36,6 @@ seed = 7
 [load.synthetic]
 __SYNTH__
 "#;
-
-/// Peak resident set size of this process, kB (Linux).
-fn peak_rss_kb() -> Option<u64> {
-    let s = std::fs::read_to_string("/proc/self/status").ok()?;
-    s.lines()
-        .find(|l| l.starts_with("VmHWM:"))
-        .and_then(|l| l.split_whitespace().nth(1))
-        .and_then(|v| v.parse().ok())
-}
 
 /// Peak, anonymous and file-backed resident memory of this process, kB (Linux).
 fn mem() -> String {

@@ -16,17 +16,11 @@ use std::io::Write;
 use std::path::Path;
 use std::time::Instant;
 
+mod common;
+use common::peak_rss_kb;
+
 const SITE: &str = include_str!("site_12_steps.toml");
 const SYNTH: &str = include_str!("synthetic_section.toml");
-
-/// Peak resident set size of this process, kB (Linux).
-fn peak_rss_kb() -> Option<u64> {
-    let s = std::fs::read_to_string("/proc/self/status").ok()?;
-    s.lines()
-        .find(|l| l.starts_with("VmHWM:"))
-        .and_then(|l| l.split_whitespace().nth(1))
-        .and_then(|v| v.parse().ok())
-}
 
 /// Writes `days` of the synthetic plant at 1 s as a CSV profile.
 fn write_profile(path: &Path, days: f64) -> u64 {
