@@ -378,8 +378,29 @@ pub fn recommend(stats: &[SettingStats], axes: FrontAxes, seeds: u32) -> Recomme
         };
         match pick {
             Some(b) => {
+                // Billed PFs equal to three decimals are told apart in the fourth, so the
+                // sentence never reads as a gain between two equal figures.
+                let fourth = if matches!(axes, FrontAxes::PfOps | FrontAxes::PfLife)
+                    && pf3(b) == pf3(own)
+                {
+                    format!(
+                        " (billed PF {} against {} to four decimals)",
+                        num(b.billed_pf.median, 4),
+                        num(own.billed_pf.median, 4)
+                    )
+                } else {
+                    String::new()
+                };
+                let goal = if b.meets_target && !own.meets_target {
+                    format!(
+                        " It meets the billed-PF goal of {goal_text}, which the scenario's own \
+                         settings miss."
+                    )
+                } else {
+                    String::new()
+                };
                 sentences.push(format!(
-                    "{} beats the scenario's own settings on both objectives: {} against {}.",
+                    "{} beats the scenario's own settings on both objectives: {} against {}{fourth}.{goal}",
                     capital(&setting_words(b)),
                     figures(b, axes, seeds),
                     figures(own, axes, seeds)
@@ -432,6 +453,8 @@ fn capital(s: &str) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::pf::Quadrant;
+    use crate::sweep::outcome::Spread;
 
     #[test]
     fn front_of_a_hand_made_set_with_ties_and_duplicates() {
@@ -457,5 +480,48 @@ mod tests {
     fn all_equal_points_are_all_on_the_front() {
         assert_eq!(pareto_front(&[(1.0, 1.0); 3]), vec![true; 3]);
         assert!(pareto_front(&[]).is_empty());
+    }
+
+    fn stats(setting: usize, pf: f64, ops: f64, on_front: bool) -> SettingStats {
+        SettingStats {
+            setting,
+            keys: vec!["controller.switching_delay_s".into()],
+            values: vec![format!("{}", 30 * (setting + 1))],
+            runs: 1,
+            billed_pf: Spread::of(&[pf]),
+            billed_pf_quadrant: Quadrant::Lag,
+            pf_goal: 0.95,
+            meets_target: pf >= 0.95,
+            pf_shortfall: Spread::of(&[(0.95 - pf).max(0.0)]),
+            share_under_target: Spread::of(&[0.5]),
+            operations_per_year: Spread::of(&[ops]),
+            years_to_first_life: Spread::of(&[f64::INFINITY]),
+            cost_per_year: None,
+            on_front,
+        }
+    }
+
+    #[test]
+    fn a_win_hidden_in_the_fourth_decimal_is_shown_there() {
+        // Both billed PFs print as 0.950 to three decimals; the sentence that says one
+        // beats the other must show the figures that differ, and that only one meets
+        // the 0.95 goal (a billed PF below the goal misses it: common practice).
+        let all = [
+            stats(0, 0.949_56, 92_100.0, false),
+            stats(1, 0.950_06, 29_600.0, true),
+        ];
+        let r = recommend(&all, FrontAxes::PfOps, 1);
+        assert_eq!(r.beats_scenario, Some(1));
+        let text = r.sentences.join(" ");
+        assert!(
+            text.contains("(billed PF 0.9501 against 0.9496 to four decimals)"),
+            "{text}"
+        );
+        assert!(
+            text.contains(
+                "It meets the billed-PF goal of 0.95 lag, which the scenario's own settings miss."
+            ),
+            "{text}"
+        );
     }
 }
