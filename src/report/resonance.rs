@@ -51,6 +51,8 @@ fn likeness(sc: &Scenario, state: BankState) -> Vec<(u64, u64, usize)> {
             let phase = match s.phase {
                 crate::bank::StepPhase::Three => 0,
                 crate::bank::StepPhase::Single(p) => 1 + p,
+                crate::bank::StepPhase::Star => 4,
+                crate::bank::StepPhase::Line(p) => 5 + p,
             };
             (s.kvar.to_bits(), s.detuning.unwrap_or(0.0).to_bits(), phase)
         })

@@ -1,7 +1,12 @@
 //! Closing inrush of a capacitor step: peak current and frequency.
 //!
-//! Each step is taken per phase as its star-equivalent capacitance C = Q/(ω·U²) (Q the
-//! three-phase kvar, U line to line; a single-phase step on its phase C = Q/(ω·U_ph²)),
+//! Each step is taken per phase as its star-equivalent capacitance: C = Q/(ω·U²) for a
+//! three-phase step (Q the three-phase kvar, U line to line; a delta's branches are C/3
+//! each, an earthed star's elements C), C = Q/(ω·U_ph²) on its phase for a single-phase
+//! step line to neutral, and C = 1.5·Q/(ω·U²) on each of its two phases for one line to
+//! line (its capacitance Q/(ω·U²) between the lines, carrying Q/2 on each phase at U_ph,
+//! as [`crate::bank::Shunt::per_phase`] has it; the peak is that of the loop through
+//! both lines, the frequency an estimate),
 //! uncharged when it closes (the discharge lockout sees to that), switched at the peak of
 //! the phase voltage sqrt(2/3)·U_LL (the worst instant).
 //!
@@ -97,12 +102,10 @@ pub fn series_rlc(v0: f64, l_h: f64, c_f: f64, r_ohm: f64) -> Inrush {
     }
 }
 
-/// Rated rms current of a step at U_n, A: Q/(sqrt(3)·U) three-phase, Q/U_ph single-phase.
+/// Rated rms current of a step at U_n, A: Q/(sqrt(3)·U) three-phase, Q/U_ph single-phase
+/// line to neutral, Q/U line to line ([`StepPhase::line_current_a`]).
 pub fn rated_current_a(s: &StepSpec, u_n_v: f64) -> f64 {
-    match s.phase {
-        StepPhase::Three => s.kvar * 1e3 / (3f64.sqrt() * u_n_v),
-        StepPhase::Single(_) => s.kvar * 1e3 / (u_n_v / 3f64.sqrt()),
-    }
+    s.phase.line_current_a(s.kvar, u_n_v)
 }
 
 /// What a closing depends on besides the steps.
@@ -119,12 +122,13 @@ pub struct Circuit {
 }
 
 /// Capacitance and reactor inductance of a step on phase `ph` (0 to 2): zero for a
-/// single-phase step on another phase.
+/// single-phase step not connected to that phase.
 fn per_phase(s: &StepSpec, ph: usize, c: &Circuit) -> (f64, Option<f64>) {
     let cap = match s.phase {
-        StepPhase::Three => capacitance_f(s.kvar, c.u_n_v, c.f_hz),
-        StepPhase::Single(p) if p == ph => capacitance_f(3.0 * s.kvar, c.u_n_v, c.f_hz),
-        StepPhase::Single(_) => 0.0,
+        _ if s.phase.phase_bits() & (1 << ph) == 0 => 0.0,
+        StepPhase::Three | StepPhase::Star => capacitance_f(s.kvar, c.u_n_v, c.f_hz),
+        StepPhase::Single(_) => capacitance_f(3.0 * s.kvar, c.u_n_v, c.f_hz),
+        StepPhase::Line(_) => capacitance_f(1.5 * s.kvar, c.u_n_v, c.f_hz),
     };
     let w = 2.0 * PI * c.f_hz;
     let reactor = s.detuning.filter(|_| cap > 0.0).map(|p| p / (w * w * cap));
