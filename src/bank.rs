@@ -591,6 +591,83 @@ mod tests {
         assert!((bs.phase[1] * 400.0 * 400.0 / 3.0 - 10_000.0).abs() < 1e-6);
     }
 
+    fn with_phase(phase: StepPhase, kvar: f64) -> StepSpec {
+        StepSpec {
+            phase,
+            ..step(kvar)
+        }
+    }
+
+    // Q of a capacitor is U²·ωC with U the voltage across it (common practice). A delta
+    // step's three capacitors see U and give Q/3 each; an earthed star's see U/√3 and give
+    // Q/3 each; a step line to line sees U, one line to neutral U/√3. The admittances the
+    // bus models take are those ωC, and the delta's star equivalent is three times its
+    // branch (Z_Y = Z_Δ/3 for a balanced load, common practice), the star's element.
+    #[test]
+    fn each_connection_is_its_capacitors_omega_c() {
+        let (u, q) = (400.0f64, 60e3);
+        let u_ph = u / 3f64.sqrt();
+        let delta = with_phase(StepPhase::Three, 60.0).susceptance(u);
+        let star = with_phase(StepPhase::Star, 60.0).susceptance(u);
+        let line = with_phase(StepPhase::Line(2), 60.0).susceptance(u);
+        let single = with_phase(StepPhase::Single(1), 20.0).susceptance(u);
+        let close = |a: f64, b: f64| (a - b).abs() < 1e-12 * b;
+        assert!(close(delta.delta / 3.0, q / 3.0 / (u * u)));
+        assert_eq!(delta.earthed, [0.0; 3]);
+        for x in 0..3 {
+            assert!(close(star.earthed[x], q / 3.0 / (u_ph * u_ph)));
+            assert!(close(delta.phase[x], star.phase[x]));
+        }
+        assert!(close(line.line[2], q / (u * u)));
+        assert_eq!(
+            (line.phase, line.line[0], line.line[1]),
+            ([0.0; 3], 0.0, 0.0)
+        );
+        assert!(close(single.earthed[1], 20e3 / (u_ph * u_ph)));
+    }
+
+    // A step of susceptance B = Q/U² between x and y on a balanced bus: S_x = V_x·conj(I),
+    // S_y = V_y·conj(−I) with I = jB·(V_x − V_y) (circuit theory, common practice), which
+    // is what the per-phase admittance G + jB of `Shunt::per_phase` draws, conj(Y)·|V|²:
+    // each phase Q/2, and P −Q/(2√3) on x, +Q/(2√3) on y, the split of a line-to-line
+    // load. A delta (three such branches) leaves no P and B = Q/U² on every phase.
+    #[test]
+    fn a_line_to_line_step_splits_like_a_line_to_line_load() {
+        use num_complex::Complex64;
+        let u = 400.0f64;
+        let v: Vec<Complex64> = [0.0f64, -120.0, 120.0]
+            .iter()
+            .map(|d| Complex64::from_polar(u / 3f64.sqrt(), d.to_radians()))
+            .collect();
+        for pair in 0..3 {
+            let (x, y) = (pair, (pair + 1) % 3);
+            let (g, b) = with_phase(StepPhase::Line(pair), 30.0)
+                .susceptance(u)
+                .per_phase();
+            let i = Complex64::new(0.0, 30e3 / (u * u)) * (v[x] - v[y]);
+            let mut want = [Complex64::default(); 3];
+            want[x] = v[x] * i.conj();
+            want[y] = v[y] * (-i).conj();
+            for ph in 0..3 {
+                let got = Complex64::new(g[ph], -b[ph]) * v[ph].norm_sqr();
+                assert!(
+                    (got - want[ph]).norm() < 1e-9,
+                    "pair {pair} phase {ph}: {got}"
+                );
+            }
+            assert!((want[x].im + 15e3).abs() < 1e-9 && (want[y].im + 15e3).abs() < 1e-9);
+            let shift = 30e3 / (2.0 * 3f64.sqrt());
+            assert!((want[x].re + shift).abs() < 1e-9 && (want[y].re - shift).abs() < 1e-9);
+        }
+        let mut delta = Shunt::default();
+        delta.line = [20e3 / (u * u); 3];
+        let (g, b) = delta.per_phase();
+        for ph in 0..3 {
+            assert!(g[ph].abs() < 1e-15);
+            assert!((b[ph] * u * u - 60e3).abs() < 1e-9);
+        }
+    }
+
     #[test]
     fn faults_take_effect_at_their_time() {
         let mut s = step(50.0);

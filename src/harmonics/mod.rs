@@ -1307,6 +1307,42 @@ mod tests {
         assert_eq!(m.lowest_harmonic(), Some(5.0));
     }
 
+    // Zero sequence by connection (symmetrical components, common practice): an earthed
+    // star's zero-sequence admittance is its per-phase admittance, so it stays in the
+    // triplen circuit and carries triplen current; a delta and a step line to line have no
+    // path to the neutral, leave the circuit and carry the fundamental alone. A step line
+    // to line draws Q/U from each of its lines.
+    #[test]
+    fn triplen_orders_by_connection() {
+        let spectrum = Spectrum {
+            orders: vec![(3.0, 80.0)],
+            reference_kva: 100.0,
+            preset: None,
+        };
+        let site = site_with_grid(Some(250.0), true);
+        let model = |phase| {
+            let s = StepSpec {
+                phase,
+                ..StepSpec::plain(60.0)
+            };
+            HarmonicModel::new(&site, &[s], spectrum.clone(), HarmonicOptions::default())
+        };
+        let z0 = model(StepPhase::Three).supply_impedance_at_order(3.0);
+        for phase in [StepPhase::Three, StepPhase::Line(1)] {
+            let m = model(phase);
+            assert!((m.impedance_at_order(STEP_1, 3.0) - z0).norm() < 1e-15);
+            assert!((m.state(STEP_1).steps[0].current_ratio - 1.0).abs() < 1e-12);
+        }
+        let line = model(StepPhase::Line(1)).state(STEP_1);
+        assert!((line.steps[0].current_a - 60e3 / 400.0).abs() < 1e-9);
+        let m = model(StepPhase::Star);
+        let y = z0.inv() + Complex64::new(0.0, m.step_susceptance(0, 3.0));
+        assert!((m.impedance_at_order(STEP_1, 3.0) - y.inv()).norm() < 1e-12);
+        let st = m.state(STEP_1);
+        assert!(st.steps[0].current_ratio > 1.0);
+        assert!((st.steps[0].rated_current_a - 60e3 / (3f64.sqrt() * 400.0)).abs() < 1e-9);
+    }
+
     // Background distortion, by hand: an open-circuit source behind the supply impedance,
     // V = V_bg·|Y_s/(Y_s + G + jB)|. Grid 250 MVA (X/R 10) and 1000 kVA at 6 %, X/R 8, 2 %
     // at h5 and 1.5 % at h3, no load harmonics.

@@ -121,8 +121,8 @@ pub struct StepSection {
     /// Rated electrical life of the contactor, operations. Default 100 000.
     pub rated_operations: Option<f64>,
     /// Rated voltage of the step's capacitors, V (line to line; line to neutral for a
-    /// single-phase step line to neutral). Default: U_n for a plain step; for a detuned step the smallest
-    /// common rating at or above U/(1 − p), e.g. 440 V for 7 % at 400 V.
+    /// single-phase step line to neutral). Default: U_n for a plain step; for a detuned
+    /// step the smallest common rating at or above U/(1 − p), e.g. 440 V for 7 % at 400 V.
     pub capacitor_rated_voltage_v: Option<f64>,
     /// Repeat this step this many times (consecutive numbers). Default 1.
     pub count: Option<u32>,

@@ -212,6 +212,41 @@ mod tests {
         assert!((a.frequency_hz / b.frequency_hz - 1.0).abs() < 1e-9);
     }
 
+    // A step line to line closing alone: its capacitance C = Q/(ω·U²) between the lines
+    // charges through the loop of both lines' supply inductance, 2·L_s, from √2·U, so
+    // Î = √2·U·sqrt(C/(2·L_s)) = U·sqrt(C/L_s) (the isolated closing's series L-C circuit
+    // applied to that loop, common practice); the star equivalent C = 1.5·Q/(ω·U²) on each
+    // phase at sqrt(2/3)·U gives the same peak. Its rated current is Q/U.
+    #[test]
+    fn a_line_to_line_step_closes_through_the_loop_of_two_lines() {
+        let s = StepSpec {
+            phase: StepPhase::Line(0),
+            ..StepSpec::plain(50.0)
+        };
+        let c = Circuit {
+            u_n_v: 400.0,
+            f_hz: 50.0,
+            s_sc_kva: 16_666.7,
+            l_between_h: 5e-6,
+        };
+        let w = 2.0 * PI * 50.0;
+        let c_ll = 50e3 / (w * 400.0 * 400.0);
+        let l_s = 400.0 * 400.0 / (w * 16_666.7e3);
+        let want = 2f64.sqrt() * 400.0 * (c_ll / (2.0 * l_s)).sqrt();
+        let got = closing(&[s.clone()], 0, std::iter::empty(), &c, None);
+        assert!((got.peak_a / want - 1.0).abs() < 1e-9, "{}", got.peak_a);
+        assert!((rated_current_a(&s, 400.0) - 125.0).abs() < 1e-9);
+        // A step line to line between b and c has its star equivalent 1.5·Q/(ω·U²) on
+        // phases b and c and nothing on a, so a step between a and b closing onto it
+        // meets it on phase b only.
+        let other = StepSpec {
+            phase: StepPhase::Line(1),
+            ..StepSpec::plain(50.0)
+        };
+        assert_eq!(per_phase(&other, 0, &c).0, 0.0);
+        assert!((per_phase(&other, 1, &c).0 - 1.5 * c_ll).abs() < 1e-15);
+    }
+
     // Damping lowers the peak; a resistor of 2·sqrt(L/C) (critical damping) gives
     // V0·sqrt(C/L)/e (from Î = V0/(L·α·e) with α = 1/sqrt(LC)); a heavily overdamped
     // circuit stays below V0/R.
