@@ -659,8 +659,10 @@ mod tests {
             let shift = 30e3 / (2.0 * 3f64.sqrt());
             assert!((want[x].re + shift).abs() < 1e-9 && (want[y].re - shift).abs() < 1e-9);
         }
-        let mut delta = Shunt::default();
-        delta.line = [20e3 / (u * u); 3];
+        let delta = Shunt {
+            line: [20e3 / (u * u); 3],
+            ..Shunt::default()
+        };
         let (g, b) = delta.per_phase();
         for ph in 0..3 {
             assert!(g[ph].abs() < 1e-15);

@@ -233,7 +233,7 @@ mod tests {
         let c_ll = 50e3 / (w * 400.0 * 400.0);
         let l_s = 400.0 * 400.0 / (w * 16_666.7e3);
         let want = 2f64.sqrt() * 400.0 * (c_ll / (2.0 * l_s)).sqrt();
-        let got = closing(&[s.clone()], 0, std::iter::empty(), &c, None);
+        let got = closing(std::slice::from_ref(&s), 0, std::iter::empty(), &c, None);
         assert!((got.peak_a / want - 1.0).abs() < 1e-9, "{}", got.peak_a);
         assert!((rated_current_a(&s, 400.0) - 125.0).abs() < 1e-9);
         // A step line to line between b and c has its star equivalent 1.5·Q/(ω·U²) on
