@@ -280,8 +280,8 @@ fn a_line_to_line_step_on_the_per_phase_bus_splits_its_kvar() {
     let b = 30e3 / (U_N * U_N);
     let i = Complex64::new(0.0, b) * (v[0] - v[1]);
     let s_bank = [v[0] * i.conj(), -v[1] * i.conj(), Complex64::default()];
-    for x in 0..3 {
-        let s = Complex64::new(50e3, 20e3) + s_bank[x];
+    for (x, s_x) in s_bank.iter().enumerate() {
+        let s = Complex64::new(50e3, 20e3) + s_x;
         let ph = &r.metrics.phases[x];
         assert!(
             close(ph.kwh_import, s.re * 1e-3 * HOURS, 1e-9),
