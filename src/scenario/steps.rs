@@ -195,7 +195,10 @@ fn phase(st: &StepSection, key: &dyn Fn(&str) -> String) -> Result<StepPhase, Fi
         Some(p) => StepPhase::Single(phase_index(&key("phase"), p).map_err(|_| {
             FieldError::new(
                 key("phase"),
-                format!("`{}` is not a connection; {ALLOWED}", written.unwrap_or(p)),
+                format!(
+                    "`{}` is not a phase or a pair of lines; {ALLOWED}",
+                    written.unwrap_or(p)
+                ),
             )
         })?),
     };
