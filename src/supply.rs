@@ -8,8 +8,12 @@
 //! voltage); connected capacitor steps are shunt admittances, so their output scales with
 //! (U/U_n)^2. A step connected line to line appears on each of its two phases as the
 //! admittance it presents at balanced voltages ([`crate::bank::Shunt::per_phase`]): half
-//! its Q on each, and a P that it takes from one phase and gives to the other. With no transformer and an infinite grid the impedance is zero and the bus
-//! voltage is fixed at the EMF.
+//! its Q on each, and a P that it takes from one phase and gives to the other. With no
+//! transformer and an infinite grid the impedance is zero and the bus voltage is fixed at
+//! the EMF.
+//!
+//! [`CoupledSolver`] solves the three phases together instead, with each step as it is
+//! connected.
 
 use crate::bank::Shunt;
 use num_complex::Complex64;

@@ -25,8 +25,8 @@
 //! Each part has its own delays, averaging (of its own reading), protections (all see
 //! the same voltage, current and distortion, and each opens only its own steps) and cap
 //! on operations per hour, so up to four operations (seven with steps on every pair) can
-//! happen in one interval. Fault
-//! detection is not available under per-phase control (refused in validation).
+//! happen in one interval. Fault detection is not available under per-phase control
+//! (refused in validation).
 
 use super::{Controller, ControllerParams, Decision, StepState};
 use crate::bank::{Bank, BankState, StepPhase};
