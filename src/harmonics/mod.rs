@@ -832,8 +832,7 @@ impl HarmonicModel {
     /// Impedance that the load's current at order h sees with the steps in `mask`, ohm per
     /// phase: [`HarmonicModel::impedance`] at a positive- or negative-sequence order, the
     /// zero-sequence circuit (transformer alone, steps line to neutral and earthed stars
-    /// only, no damping) at a
-    /// triplen order. Zero for a stiff bus.
+    /// only, no damping) at a triplen order. Zero for a stiff bus.
     pub fn impedance_at_order(&self, mask: BankState, h: f64) -> Complex64 {
         match self.order_admittances(mask, h) {
             None => Complex64::new(0.0, 0.0),
