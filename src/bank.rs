@@ -178,34 +178,156 @@ impl IntoIterator for BankState {
     }
 }
 
-/// Where a step is connected.
+/// Where and how a step is connected.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum StepPhase {
-    /// A three-phase step, its kvar shared equally by the phases.
+    /// A three-phase step connected in delta (the default), its kvar shared equally by
+    /// the phases. It has no path to the neutral, so it carries no zero-sequence current.
     Three,
+    /// A three-phase step connected in star with its star point earthed (joined to the
+    /// bus neutral), its kvar shared equally by the phases; it carries zero-sequence
+    /// current.
+    Star,
     /// A single-phase step on phase a, b or c (index 0, 1, 2), connected line to neutral.
     Single(usize),
+    /// A single-phase step connected line to line: index 0 between a and b, 1 between b
+    /// and c, 2 between c and a (the first line of the pair is the index, the second the
+    /// next phase).
+    Line(usize),
 }
+
+/// √3/2.
+const HALF_SQRT3: f64 = 0.866_025_403_784_438_6;
 
 impl StepPhase {
     /// The phases the step is connected to, as scenarios and reports write them: `abc` for
-    /// a three-phase step, else `a`, `b` or `c`.
+    /// a three-phase step (delta or star), `a`, `b` or `c` line to neutral, `ab`, `bc` or
+    /// `ca` line to line.
     pub fn label(self) -> &'static str {
         match self {
-            StepPhase::Three => "abc",
+            StepPhase::Three | StepPhase::Star => "abc",
             StepPhase::Single(p) => crate::profile::PHASES[p.min(2)],
+            StepPhase::Line(p) => ["ab", "bc", "ca"][p.min(2)],
         }
     }
 
-    /// Voltage across a step connected this way on a bus at `u_bus_v` line to line: the
-    /// line voltage for a three-phase (delta) step, the phase voltage for a single-phase
-    /// step connected line to neutral, V.
+    /// The connection in words, as reports and JSON write it: `delta`, `star`,
+    /// `line-to-neutral` or `line-to-line`.
+    pub fn connection(self) -> &'static str {
+        match self {
+            StepPhase::Three => "delta",
+            StepPhase::Star => "star",
+            StepPhase::Single(_) => "line-to-neutral",
+            StepPhase::Line(_) => "line-to-line",
+        }
+    }
+
+    /// The phases and the connection in a few characters for tables: `abc` for a delta
+    /// step (the usual one), `abc star` for an earthed star, else [`StepPhase::label`].
+    pub fn describe(self) -> &'static str {
+        match self {
+            StepPhase::Star => "abc star",
+            other => other.label(),
+        }
+    }
+
+    /// True for a three-phase step (delta or star).
+    pub fn is_three_phase(self) -> bool {
+        matches!(self, StepPhase::Three | StepPhase::Star)
+    }
+
+    /// True when the step carries zero-sequence (and so triplen) current: an earthed
+    /// star or a step line to neutral. A delta step or a step line to line has no path
+    /// to the neutral.
+    pub fn carries_zero_sequence(self) -> bool {
+        matches!(self, StepPhase::Star | StepPhase::Single(_))
+    }
+
+    /// The phases (index 0 to 2) the step is connected to, as a bit set (bit x: phase x).
+    pub fn phase_bits(self) -> u8 {
+        match self {
+            StepPhase::Three | StepPhase::Star => 0b111,
+            StepPhase::Single(p) => 1 << p.min(2),
+            StepPhase::Line(p) => (1 << p.min(2)) | (1 << ((p.min(2) + 1) % 3)),
+        }
+    }
+
+    /// Voltage a step connected this way is rated and given at, on a bus at `u_bus_v`
+    /// line to line: the line voltage for a three-phase step (a three-phase unit's
+    /// nameplate voltage is line to line, star or delta inside) and for a single-phase
+    /// step line to line, the phase voltage for a single-phase step line to neutral, V.
     pub fn connection_voltage_v(self, u_bus_v: f64) -> f64 {
         match self {
-            StepPhase::Three => u_bus_v,
+            StepPhase::Three | StepPhase::Star | StepPhase::Line(_) => u_bus_v,
             StepPhase::Single(_) => u_bus_v / 3f64.sqrt(),
         }
+    }
+
+    /// Rms current in each line a step of `kvar` draws at `u_bus_v` line to line, A:
+    /// Q/(√3·U) for a three-phase step, Q/U_ph line to neutral, Q/U line to line.
+    pub fn line_current_a(self, kvar: f64, u_bus_v: f64) -> f64 {
+        match self {
+            StepPhase::Three | StepPhase::Star => kvar * 1e3 / (3f64.sqrt() * u_bus_v),
+            StepPhase::Single(_) => kvar * 1e3 / (u_bus_v / 3f64.sqrt()),
+            StepPhase::Line(_) => kvar * 1e3 / u_bus_v,
+        }
+    }
+}
+
+/// The shunt admittance of a set of connected steps at the fundamental, in the forms the
+/// two bus models take. Steps are lossless, so every part is a susceptance (siemens,
+/// > 0 capacitive).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Shunt {
+    /// Star-equivalent susceptance on each phase of every step except those line to line,
+    /// added in step order: what each phase of the per-phase bus sees of them (a delta
+    /// step and an earthed star of the same kvar look alike there). S.
+    pub phase: [f64; 3],
+    /// The part of `phase` connected line to neutral (earthed star steps and single-phase
+    /// steps line to neutral), added in step order. S.
+    pub earthed: [f64; 3],
+    /// The part of `phase` from delta steps, star equivalent on each phase (the same on
+    /// every phase); each of the delta's three branches is a third of it. S.
+    pub delta: f64,
+    /// Susceptance of the single-phase steps line to line between a and b, b and c, c and
+    /// a, S.
+    pub line: [f64; 3],
+}
+
+impl Shunt {
+    /// Adds `other` scaled by `health` (the fraction of capacitance delivering).
+    fn add_scaled(&mut self, other: &Shunt, health: f64) {
+        for x in 0..3 {
+            self.phase[x] += other.phase[x] * health;
+            self.earthed[x] += other.earthed[x] * health;
+            self.line[x] += other.line[x] * health;
+        }
+        self.delta += other.delta * health;
+    }
+
+    /// The admittance each phase of the per-phase bus sees, G + jB (siemens), with the
+    /// phase voltages taken as a balanced positive-sequence set: a step of susceptance B
+    /// between x and y draws I = jB·(V_x − V_y) = jB·√3·e^(j30°)·V_x, so phase x sees
+    /// B·(−√3/2 + j·3/2) and phase y B·(+√3/2 + j·3/2). Its Q is shared half and half and
+    /// its P is +Q/(2√3) on y and −Q/(2√3) on x (S_x = V_x·conj(I), S_y = V_y·conj(−I)),
+    /// as a line-to-line load's is. Without steps line to line the conductance is zero
+    /// and the susceptance is `phase` exactly. Returns (G, B).
+    pub fn per_phase(&self) -> ([f64; 3], [f64; 3]) {
+        let mut g = [0.0; 3];
+        let mut b = self.phase;
+        for x in 0..3 {
+            // Pair x starts at phase x; pair (x + 2) % 3 ends at it.
+            let before = (x + 2) % 3;
+            b[x] += 1.5 * (self.line[x] + self.line[before]);
+            g[x] = HALF_SQRT3 * (self.line[before] - self.line[x]);
+        }
+        (g, b)
+    }
+
+    /// True when some step is connected line to line.
+    pub fn has_line(&self) -> bool {
+        self.line.iter().any(|&b| b != 0.0)
     }
 }
 
@@ -238,7 +360,8 @@ pub struct Fault {
 pub struct StepSpec {
     /// Effective reactive output at U_n, kvar (three-phase total, or of its one phase).
     pub kvar: f64,
-    /// Three-phase or single-phase.
+    /// Three-phase (delta or earthed star) or single-phase (line to neutral or line to
+    /// line).
     pub phase: StepPhase,
     /// Fixed steps are on from the start and never switched by the controller.
     pub fixed: bool,
@@ -246,8 +369,9 @@ pub struct StepSpec {
     pub detuning: Option<f64>,
     /// Rated electrical life of the contactor, operations.
     pub rated_operations: f64,
-    /// Rated voltage of the step's capacitors, V (line to line for a three-phase step,
-    /// line to neutral for a single-phase one). `None`: the default of
+    /// Rated voltage of the step's capacitors, V (line to line for a three-phase step and
+    /// a single-phase step line to line, line to neutral for a single-phase step line to
+    /// neutral). `None`: the default of
     /// [`crate::harmonics::limits::default_rated_voltage`] (U_n for a plain step, the next
     /// standard rating above U/(1 − p) for a detuned one).
     pub capacitor_rated_voltage_v: Option<f64>,
@@ -288,22 +412,35 @@ impl StepSpec {
         }
     }
 
-    /// Nominal susceptance per phase at U_n, siemens: Q per phase / U_ln^2.
-    pub fn susceptance(&self, u_n_v: f64) -> [f64; 3] {
+    /// Nominal admittance at U_n, siemens: a three-phase step Q/3 per phase at U_ln
+    /// (B = Q/U_ll² on each phase, star equivalent; a delta's branches a third of that),
+    /// a single-phase step line to neutral Q/U_ln² on its phase, one line to line
+    /// Q/U_ll² between its two lines.
+    pub fn susceptance(&self, u_n_v: f64) -> Shunt {
         let u_ln2 = u_n_v * u_n_v / 3.0;
+        let mut y = Shunt::default();
         match self.phase {
-            StepPhase::Three => [self.kvar * 1e3 / 3.0 / u_ln2; 3],
-            StepPhase::Single(p) => {
-                let mut b = [0.0; 3];
-                b[p] = self.kvar * 1e3 / u_ln2;
-                b
+            StepPhase::Three => {
+                let b = self.kvar * 1e3 / 3.0 / u_ln2;
+                y.phase = [b; 3];
+                y.delta = b;
             }
+            StepPhase::Star => {
+                let b = self.kvar * 1e3 / 3.0 / u_ln2;
+                y.phase = [b; 3];
+                y.earthed = [b; 3];
+            }
+            StepPhase::Single(p) => {
+                y.phase[p] = self.kvar * 1e3 / u_ln2;
+                y.earthed[p] = y.phase[p];
+            }
+            StepPhase::Line(p) => y.line[p] = self.kvar * 1e3 / (u_n_v * u_n_v),
         }
+        y
     }
 
-    /// Voltage across the step's connection on a bus at `u_bus_v` line to line: the line
-    /// voltage for a three-phase (delta) step, the phase voltage for a single-phase step
-    /// connected line to neutral, V.
+    /// Voltage across the step's connection on a bus at `u_bus_v` line to line, as its
+    /// kvar and rated voltage are given: see [`StepPhase::connection_voltage_v`], V.
     pub fn connection_voltage_v(&self, u_bus_v: f64) -> f64 {
         self.phase.connection_voltage_v(u_bus_v)
     }
@@ -326,7 +463,7 @@ impl StepSpec {
 pub struct Bank {
     /// The steps in number order (step n is `steps[n - 1]`).
     pub steps: Vec<StepSpec>,
-    nominal_b: Vec<[f64; 3]>,
+    nominal_b: Vec<Shunt>,
     health: Vec<f64>,
     /// The fixed steps.
     pub fixed_mask: BankState,
@@ -410,17 +547,15 @@ impl Bank {
         }
     }
 
-    /// Actual per-phase susceptance of the connected steps in `state`, siemens, with
-    /// faults (a step stuck closed is connected whatever `state` says).
-    pub fn susceptance(&self, state: BankState) -> [f64; 3] {
-        let mut b = [0.0; 3];
+    /// Actual admittance of the connected steps in `state`, with faults (a step stuck
+    /// closed is connected whatever `state` says).
+    pub fn susceptance(&self, state: BankState) -> Shunt {
+        let mut y = Shunt::default();
         for n in state.or(self.stuck) {
             let i = n - 1;
-            for (bp, nb) in b.iter_mut().zip(self.nominal_b[i]) {
-                *bp += nb * self.health[i];
-            }
+            y.add_scaled(&self.nominal_b[i], self.health[i]);
         }
-        b
+        y
     }
 
     /// Nominal kvar at U_n of the steps in `state` (what the controller believes).
@@ -446,14 +581,93 @@ mod tests {
     fn susceptance_gives_rated_kvar_at_nominal_voltage() {
         // Q = 3 · B · U_ln² = B · U_ll² (definition of a star-connected shunt).
         let b = step(50.0).susceptance(400.0);
-        assert!((b[0] * 400.0 * 400.0 - 50_000.0).abs() < 1e-6);
+        assert!((b.phase[0] * 400.0 * 400.0 - 50_000.0).abs() < 1e-6);
         let single = StepSpec {
             phase: StepPhase::Single(1),
             ..step(10.0)
         };
         let bs = single.susceptance(400.0);
-        assert_eq!(bs[0], 0.0);
-        assert!((bs[1] * 400.0 * 400.0 / 3.0 - 10_000.0).abs() < 1e-6);
+        assert_eq!(bs.phase[0], 0.0);
+        assert!((bs.phase[1] * 400.0 * 400.0 / 3.0 - 10_000.0).abs() < 1e-6);
+    }
+
+    fn with_phase(phase: StepPhase, kvar: f64) -> StepSpec {
+        StepSpec {
+            phase,
+            ..step(kvar)
+        }
+    }
+
+    // Q of a capacitor is U²·ωC with U the voltage across it (common practice). A delta
+    // step's three capacitors see U and give Q/3 each; an earthed star's see U/√3 and give
+    // Q/3 each; a step line to line sees U, one line to neutral U/√3. The admittances the
+    // bus models take are those ωC, and the delta's star equivalent is three times its
+    // branch (Z_Y = Z_Δ/3 for a balanced load, common practice), the star's element.
+    #[test]
+    fn each_connection_is_its_capacitors_omega_c() {
+        let (u, q) = (400.0f64, 60e3);
+        let u_ph = u / 3f64.sqrt();
+        let delta = with_phase(StepPhase::Three, 60.0).susceptance(u);
+        let star = with_phase(StepPhase::Star, 60.0).susceptance(u);
+        let line = with_phase(StepPhase::Line(2), 60.0).susceptance(u);
+        let single = with_phase(StepPhase::Single(1), 20.0).susceptance(u);
+        let close = |a: f64, b: f64| (a - b).abs() < 1e-12 * b;
+        assert!(close(delta.delta / 3.0, q / 3.0 / (u * u)));
+        assert_eq!(delta.earthed, [0.0; 3]);
+        for x in 0..3 {
+            assert!(close(star.earthed[x], q / 3.0 / (u_ph * u_ph)));
+            assert!(close(delta.phase[x], star.phase[x]));
+        }
+        assert!(close(line.line[2], q / (u * u)));
+        assert_eq!(
+            (line.phase, line.line[0], line.line[1]),
+            ([0.0; 3], 0.0, 0.0)
+        );
+        assert!(close(single.earthed[1], 20e3 / (u_ph * u_ph)));
+    }
+
+    // A step of susceptance B = Q/U² between x and y on a balanced bus: S_x = V_x·conj(I),
+    // S_y = V_y·conj(−I) with I = jB·(V_x − V_y) (circuit theory, common practice), which
+    // is what the per-phase admittance G + jB of `Shunt::per_phase` draws, conj(Y)·|V|²:
+    // each phase Q/2, and P −Q/(2√3) on x, +Q/(2√3) on y, the split of a line-to-line
+    // load. A delta (three such branches) leaves no P and B = Q/U² on every phase.
+    #[test]
+    fn a_line_to_line_step_splits_like_a_line_to_line_load() {
+        use num_complex::Complex64;
+        let u = 400.0f64;
+        let v: Vec<Complex64> = [0.0f64, -120.0, 120.0]
+            .iter()
+            .map(|d| Complex64::from_polar(u / 3f64.sqrt(), d.to_radians()))
+            .collect();
+        for pair in 0..3 {
+            let (x, y) = (pair, (pair + 1) % 3);
+            let (g, b) = with_phase(StepPhase::Line(pair), 30.0)
+                .susceptance(u)
+                .per_phase();
+            let i = Complex64::new(0.0, 30e3 / (u * u)) * (v[x] - v[y]);
+            let mut want = [Complex64::default(); 3];
+            want[x] = v[x] * i.conj();
+            want[y] = v[y] * (-i).conj();
+            for ph in 0..3 {
+                let got = Complex64::new(g[ph], -b[ph]) * v[ph].norm_sqr();
+                assert!(
+                    (got - want[ph]).norm() < 1e-9,
+                    "pair {pair} phase {ph}: {got}"
+                );
+            }
+            assert!((want[x].im + 15e3).abs() < 1e-9 && (want[y].im + 15e3).abs() < 1e-9);
+            let shift = 30e3 / (2.0 * 3f64.sqrt());
+            assert!((want[x].re + shift).abs() < 1e-9 && (want[y].re - shift).abs() < 1e-9);
+        }
+        let delta = Shunt {
+            line: [20e3 / (u * u); 3],
+            ..Shunt::default()
+        };
+        let (g, b) = delta.per_phase();
+        for ph in 0..3 {
+            assert!(g[ph].abs() < 1e-15);
+            assert!((b[ph] * u * u - 60e3).abs() < 1e-9);
+        }
     }
 
     #[test]
@@ -469,7 +683,7 @@ mod tests {
         assert!(!bank.advance_faults(99.0));
         assert!(bank.advance_faults(100.0));
         let after = bank.susceptance(both);
-        assert!((after[0] - full[0] / 3.0).abs() < 1e-12);
+        assert!((after.phase[0] - full.phase[0] / 3.0).abs() < 1e-12);
         assert_eq!(bank.nominal_kvar(both), 75.0);
     }
 

@@ -63,7 +63,7 @@
 //! [`Observer::wants_every_interval`] (the default), and then every interval is stepped
 //! on its own; [`Stepping::EveryInterval`] forces it for any observer.
 
-use crate::bank::{Bank, BankState};
+use crate::bank::{Bank, BankState, Shunt};
 use crate::controller::Measurement;
 use crate::controller::{Control, Decision};
 use crate::error::RunError;
@@ -227,7 +227,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     };
 
     set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
-    let mut b_fixed = bank.susceptance(bank.fixed_mask);
+    let mut b_fixed = bank.susceptance(bank.fixed_mask).per_phase().1;
     let mut thd = thd_of(ctl.mask());
     let want_current = sc.controller.protection.min_current_a.is_some();
     let has_fixed = !bank.fixed_mask.is_empty();
@@ -267,7 +267,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         if k >= k_fault {
             if bank.advance_faults(k as f64 * dt) {
                 set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
-                b_fixed = bank.susceptance(bank.fixed_mask);
+                b_fixed = bank.susceptance(bank.fixed_mask).per_phase().1;
                 same_until = 0;
                 // Solutions from this interval on are stale.
                 let i = k.wrapping_sub(buf_k) as usize;
@@ -317,15 +317,23 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         let unsolved = lanes.unsolved[j];
         unsolved_n += unsolved;
         let p3 = sample.p_kw[0] + sample.p_kw[1] + sample.p_kw[2];
+        // Each phase's P at the metering point: the load's, plus what steps between two
+        // lines take from one phase and give to the other (zero without such steps; the
+        // three-phase P is the load's, the steps being lossless).
+        let p_ph = [
+            sample.p_kw[0] + lanes.p_bank[0][j],
+            sample.p_kw[1] + lanes.p_bank[1][j],
+            sample.p_kw[2] + lanes.p_bank[2][j],
+        ];
         let q3 = lanes.q3[j];
         let v_ll_min = lanes.v_ll_min[j];
         let v_ll_max = lanes.v_ll_max[j];
         let current_a = if want_current {
             let mut i2_max: f64 = 0.0;
-            for ph in 0..3 {
+            for (ph, p) in p_ph.iter().enumerate() {
                 let v = lanes.w[ph][j].sqrt();
                 let qs = sample.q_kvar[ph] - lanes.q_bank[ph][j];
-                let i2 = (sample.p_kw[ph] * sample.p_kw[ph] + qs * qs) / (v * v).max(1e-18);
+                let i2 = (p * p + qs * qs) / (v * v).max(1e-18);
                 if i2 > i2_max {
                     i2_max = i2;
                 }
@@ -350,7 +358,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             })
         });
         let unbalance = match (&phasors, want_unbalance) {
-            (Some(v), true) => Some(unbalance_of(v, &sample.p_kw, &q_ph)),
+            (Some(v), true) => Some(unbalance_of(v, &p_ph, &q_ph)),
             _ => None,
         };
         let mask = ctl.mask();
@@ -358,18 +366,18 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             let (p_raw, q_raw) = match measurement {
                 Measurement::ThreePhase => (p3, q3),
                 Measurement::SinglePhase(ph) => (
-                    3.0 * sample.p_kw[ph],
+                    3.0 * p_ph[ph],
                     3.0 * (sample.q_kvar[ph] - lanes.q_bank[ph][j]),
                 ),
             };
             ctl.decide_measured(p_raw, q_raw, v_ll_max, current_a, thd, t_next)
         } else {
             let (p_ch, q_ch) = if direct {
-                (sample.p_kw, q_ph)
+                (p_ph, q_ph)
             } else {
                 let v = phasors.unwrap_or_default();
                 let s_ph: [Complex64; 3] =
-                    std::array::from_fn(|ph| Complex64::new(sample.p_kw[ph], q_ph[ph]));
+                    std::array::from_fn(|ph| Complex64::new(p_ph[ph], q_ph[ph]));
                 let m = wiring.measure(&v, &s_ph);
                 (m.map(|c| c.re), m.map(|c| c.im))
             };
@@ -406,7 +414,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             t_s: t,
             p_kw: p3,
             q_kvar: q3,
-            p_ph_kw: sample.p_kw,
+            p_ph_kw: p_ph,
             q_ph_kvar: q_ph,
             unbalance,
             load_q_kvar: sample.q_total(),
@@ -485,7 +493,7 @@ fn unbalance_of(v: &[Complex64; 3], p: &[f64; 3], q: &[f64; 3]) -> crate::metric
 }
 
 /// Sets the connected steps' susceptance on the bus solver in use.
-fn set_bank(solver: &mut BusSolver, coupled: &mut Option<CoupledSolver>, b: &[f64; 3]) {
+fn set_bank(solver: &mut BusSolver, coupled: &mut Option<CoupledSolver>, b: &Shunt) {
     match coupled {
         Some(c) => c.set_bank(b),
         None => solver.set_bank(b),

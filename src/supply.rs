@@ -5,10 +5,17 @@
 //! voltage) behind the series impedance of the grid and the transformer. Phases are not
 //! mutually coupled, so each phase is solved on its own, in its own angle reference. The
 //! load is a constant-power sink (it draws the P and Q of the profile whatever the
-//! voltage); connected capacitor steps are shunt susceptances, so their output scales with
-//! (U/U_n)^2. With no transformer and an infinite grid the impedance is zero and the bus
-//! voltage is fixed at the EMF.
+//! voltage); connected capacitor steps are shunt admittances, so their output scales with
+//! (U/U_n)^2. A step connected line to line appears on each of its two phases as the
+//! admittance it presents at balanced voltages ([`crate::bank::Shunt::per_phase`]): half
+//! its Q on each, and a P that it takes from one phase and gives to the other. With no
+//! transformer and an infinite grid the impedance is zero and the bus voltage is fixed at
+//! the EMF.
+//!
+//! [`CoupledSolver`] solves the three phases together instead, with each step as it is
+//! connected.
 
+use crate::bank::Shunt;
 use num_complex::Complex64;
 
 /// A transformer between the grid and the bus.
@@ -114,9 +121,10 @@ pub struct PhaseSolution {
 }
 
 /// Thevenin equivalent of one phase as the load sees it, with the connected capacitors
-/// folded in: E' = E/(1 + jB·Z), Z' = Z/(1 + jB·Z).
+/// folded in: E' = E/(1 + Y·Z), Z' = Z/(1 + Y·Z) with Y = G + jB.
 #[derive(Debug, Clone, Copy, Default)]
 struct Equivalent {
+    g: f64,
     b: f64,
     e2: f64,
     e: Complex64,
@@ -152,15 +160,16 @@ impl BusSolver {
             nonconverged: 0,
         };
         for ph in 0..3 {
-            s.fold(ph, 0.0);
+            s.fold(ph, 0.0, 0.0);
         }
         s
     }
 
-    fn fold(&mut self, ph: usize, b: f64) {
-        let d = Complex64::new(1.0, 0.0) + Complex64::new(0.0, b) * self.z;
+    fn fold(&mut self, ph: usize, g: f64, b: f64) {
+        let d = Complex64::new(1.0, 0.0) + Complex64::new(g, b) * self.z;
         let e = Complex64::new(self.e_ln, 0.0) / d;
         self.eq[ph] = Equivalent {
+            g,
             b,
             e2: e.norm_sqr(),
             e,
@@ -168,12 +177,13 @@ impl BusSolver {
         };
     }
 
-    /// Sets the shunt capacitive susceptance (siemens) per phase of the connected steps;
+    /// Sets the admittance of the connected steps ([`Shunt::per_phase`] on each phase);
     /// call it whenever the bank state or a step's health changes.
-    pub fn set_bank(&mut self, b_s: &[f64; 3]) {
-        for (ph, b) in b_s.iter().enumerate() {
-            if self.eq[ph].b != *b {
-                self.fold(ph, *b);
+    pub fn set_bank(&mut self, y: &Shunt) {
+        let (g, b) = y.per_phase();
+        for ph in 0..3 {
+            if self.eq[ph].b != b[ph] || self.eq[ph].g != g[ph] {
+                self.fold(ph, g[ph], b[ph]);
             }
         }
     }
@@ -190,7 +200,7 @@ impl BusSolver {
             let q_bank = self.eq[ph].b * w * 1e-3;
             out[ph] = PhaseSolution {
                 v_ln: w.sqrt(),
-                p_kw: p_kw[ph],
+                p_kw: p_kw[ph] + self.eq[ph].g * w * 1e-3,
                 q_kvar: q_kvar[ph] - q_bank,
                 q_bank_kvar: q_bank,
             };
@@ -335,11 +345,13 @@ fn mat_vec(m: &[[Complex64; 3]; 3], v: &[Complex64; 3]) -> [Complex64; 3] {
 /// The three phases of the bus solved together: source EMFs E (a balanced positive
 /// sequence at the no-load voltage) behind the 3×3 phase impedance of grid and
 /// transformer, Z_abc = Z1·1 + (Z0 − Z1)/3·J (J all ones: the sequence impedances
-/// Z0, Z1 = Z2 turned into phase quantities), the connected steps as star shunts jB_x,
-/// and constant-power loads line to neutral.
+/// Z0, Z1 = Z2 turned into phase quantities), the connected steps as their nodal
+/// admittance Y_bank (an earthed star or a step line to neutral jB on the diagonal; a
+/// delta's branches and a step line to line jB between two lines, +jB on both diagonal
+/// places and −jB on both crossed ones), and constant-power loads line to neutral.
 ///
-/// The bus voltages satisfy V = E − Z_abc·(I_load(V) + jB·V), that is
-/// V = M·E − M·Z_abc·I_load(V) with M = (1 + Z_abc·jB)⁻¹ (worked out once per bank
+/// The bus voltages satisfy V = E − Z_abc·(I_load(V) + Y_bank·V), that is
+/// V = M·E − M·Z_abc·I_load(V) with M = (1 + Z_abc·Y_bank)⁻¹ (worked out once per bank
 /// state), solved by fixed-point iteration from the no-load voltages until no phase moves
 /// by more than 1e-12 of E (at most [`CoupledSolver::MAX_ITERATIONS`]; past that, or
 /// when a voltage collapses, the interval counts as unsolved). With Z0 = Z1 the phases
@@ -348,7 +360,10 @@ fn mat_vec(m: &[[Complex64; 3]; 3], v: &[Complex64; 3]) -> [Complex64; 3] {
 pub struct CoupledSolver {
     e: [Complex64; 3],
     z: [[Complex64; 3]; 3],
-    b: [f64; 3],
+    /// The connected steps: line to neutral on the diagonal (`shunt.earthed`), and
+    /// between lines the delta branches plus the steps line to line (`line_b`).
+    shunt: Shunt,
+    line_b: [f64; 3],
     me: [Complex64; 3],
     mz: [[Complex64; 3]; 3],
     e_abs: f64,
@@ -369,12 +384,16 @@ impl CoupledSolver {
         let mut s = CoupledSolver {
             e,
             z,
-            b: [f64::NAN; 3],
+            shunt: Shunt {
+                delta: f64::NAN,
+                ..Shunt::default()
+            },
+            line_b: [0.0; 3],
             me: e,
             mz: z,
             e_abs,
         };
-        s.set_bank(&[0.0; 3]);
+        s.set_bank(&Shunt::default());
         s
     }
 
@@ -383,16 +402,34 @@ impl CoupledSolver {
         self.z
     }
 
-    /// Sets the shunt susceptance per phase of the connected steps, siemens.
-    pub fn set_bank(&mut self, b_s: &[f64; 3]) {
-        if self.b == *b_s {
+    /// The nodal admittance of the connected steps, Y_bank, siemens (all imaginary).
+    pub fn bank_admittance(&self) -> [[Complex64; 3]; 3] {
+        let mut y: [[f64; 3]; 3] = std::array::from_fn(|r| {
+            std::array::from_fn(|k| if r == k { self.shunt.earthed[r] } else { 0.0 })
+        });
+        for (pair, &b) in self.line_b.iter().enumerate() {
+            let (x, k) = (pair, (pair + 1) % 3);
+            y[x][x] += b;
+            y[k][k] += b;
+            y[x][k] -= b;
+            y[k][x] -= b;
+        }
+        y.map(|row| row.map(|b| Complex64::new(0.0, b)))
+    }
+
+    /// Sets the admittance of the connected steps.
+    pub fn set_bank(&mut self, shunt: &Shunt) {
+        if self.shunt == *shunt {
             return;
         }
-        self.b = *b_s;
+        self.shunt = *shunt;
+        // A delta's three branches are a third of its star equivalent each.
+        self.line_b = std::array::from_fn(|p| shunt.delta / 3.0 + shunt.line[p]);
         let one = Complex64::new(1.0, 0.0);
+        let y = self.bank_admittance();
         let a: [[Complex64; 3]; 3] = std::array::from_fn(|r| {
             std::array::from_fn(|k| {
-                let zy = self.z[r][k] * Complex64::new(0.0, b_s[k]);
+                let zy: Complex64 = (0..3).map(|j| self.z[r][j] * y[j][k]).sum();
                 if r == k {
                     one + zy
                 } else {
@@ -448,10 +485,23 @@ impl CoupledSolver {
             let (v, ok) = self.solve(&smp.p_kw, &smp.q_kvar);
             let mut q3 = 0.0;
             let (mut lo, mut hi) = (f64::INFINITY, 0.0f64);
+            // What the steps between lines give and take on each phase:
+            // S_x = V_x·conj(I), S_y = V_y·conj(−I) with I = jB·(V_x − V_y).
+            let mut s_line = [Complex64::default(); 3];
+            for (pair, &b) in self.line_b.iter().enumerate() {
+                if b == 0.0 {
+                    continue;
+                }
+                let (x, y) = (pair, (pair + 1) % 3);
+                let cur = Complex64::new(0.0, b) * (v[x] - v[y]);
+                s_line[x] += v[x] * cur.conj();
+                s_line[y] -= v[y] * cur.conj();
+            }
             for ph in 0..3 {
                 let w = v[ph].norm_sqr();
                 out.w[ph][i] = w;
-                out.q_bank[ph][i] = self.b[ph] * w * 1e-3;
+                out.q_bank[ph][i] = self.shunt.earthed[ph] * w * 1e-3 - s_line[ph].im * 1e-3;
+                out.p_bank[ph][i] = s_line[ph].re * 1e-3;
                 q3 += smp.q_kvar[ph] - out.q_bank[ph][i];
                 lo = lo.min(w);
                 hi = hi.max(w);
@@ -476,6 +526,11 @@ pub struct Lanes {
     pub w: [[f64; LANE]; 3],
     /// Reactive power of the connected steps on each phase, kvar.
     pub q_bank: [[f64; LANE]; 3],
+    /// Active power the connected steps draw on each phase, kW: zero unless a step is
+    /// connected line to line (or, on the coupled bus, in delta), which takes P from one
+    /// phase and gives it to another (lossless: the phases add up to zero on the coupled
+    /// bus, and on a balanced per-phase bus).
+    pub p_bank: [[f64; LANE]; 3],
     /// Three-phase reactive power through the metering point, kvar: the phases' load
     /// minus bank output, added in the order a, b, c.
     pub q3: [f64; LANE],
@@ -492,6 +547,7 @@ impl Default for Lanes {
         Lanes {
             w: [[0.0; LANE]; 3],
             q_bank: [[0.0; LANE]; 3],
+            p_bank: [[0.0; LANE]; 3],
             q3: [0.0; LANE],
             v_ll_min: [0.0; LANE],
             v_ll_max: [0.0; LANE],
@@ -506,7 +562,7 @@ impl Lanes {
     pub fn phases(&self, i: usize, s: &crate::profile::LoadSample) -> [PhaseSolution; 3] {
         std::array::from_fn(|ph| PhaseSolution {
             v_ln: self.w[ph][i].sqrt(),
-            p_kw: s.p_kw[ph],
+            p_kw: s.p_kw[ph] + self.p_bank[ph][i],
             q_kvar: s.q_kvar[ph] - self.q_bank[ph][i],
             q_bank_kvar: self.q_bank[ph][i],
         })
@@ -548,9 +604,10 @@ impl BusSolver {
         let mut disc_min = [f64::INFINITY; LANE];
         for ph in 0..3 {
             let eq = self.eq[ph];
-            let (zr, zi, e2, b) = (eq.z.re, eq.z.im, eq.e2, eq.b);
+            let (zr, zi, e2, b, g) = (eq.z.re, eq.z.im, eq.e2, eq.b, eq.g);
             let w_out = &mut out.w[ph][..n];
             let qb_out = &mut out.q_bank[ph][..n];
+            let pb_out = &mut out.p_bank[ph][..n];
             let disc_min = &mut disc_min[..n];
             for i in 0..n {
                 let p = samples[i].p_kw[ph] * 1e3;
@@ -565,6 +622,7 @@ impl BusSolver {
                 let w = if disc < 0.0 { nose } else { high };
                 w_out[i] = w;
                 qb_out[i] = b * w * 1e-3;
+                pb_out[i] = g * w * 1e-3;
                 disc_min[i] = if disc < disc_min[i] {
                     disc
                 } else {
@@ -602,6 +660,15 @@ pub fn ll_from_ln(v_ln: f64) -> f64 {
 mod tests {
     use super::*;
 
+    /// Steps line to neutral of susceptance `b` on each phase.
+    fn star(b: [f64; 3]) -> Shunt {
+        Shunt {
+            phase: b,
+            earthed: b,
+            ..Shunt::default()
+        }
+    }
+
     fn site() -> SupplyParams {
         SupplyParams {
             transformer: Some(Transformer {
@@ -628,7 +695,7 @@ mod tests {
     #[test]
     fn stiff_bus_stays_at_nominal() {
         let mut b = BusSolver::new(&SupplyParams::default());
-        b.set_bank(&[1e-3; 3]);
+        b.set_bank(&star([1e-3; 3]));
         let r = b.solve(&[100.0; 3], &[50.0; 3]);
         assert!((r[0].v_ln - 230.940_107_675_850_3).abs() < 1e-9);
     }
@@ -667,7 +734,7 @@ mod tests {
         let s = site();
         let mut closed = BusSolver::new(&s);
         let mut coupled = CoupledSolver::new(&s, Winding::YNyn);
-        let b = [2e-3, 1e-3, 0.0];
+        let b = star([2e-3, 1e-3, 0.0]);
         closed.set_bank(&b);
         coupled.set_bank(&b);
         let (p, q) = ([200.0, 50.0, 120.0], [150.0, 10.0, -20.0]);
@@ -713,7 +780,7 @@ mod tests {
     fn solution_satisfies_the_circuit() {
         let s = site();
         let mut b = BusSolver::new(&s);
-        b.set_bank(&[2e-3; 3]);
+        b.set_bank(&star([2e-3; 3]));
         let r = b.solve(&[200.0; 3], &[150.0; 3]);
         // The voltage drop across Z equals Z times the supply current (Kirchhoff).
         let v = b.phasor(0, 200.0, 150.0);

@@ -29,6 +29,7 @@ fixed = true
 [[steps]]
 kvar = 30
 fixed = true
+connection = "star"
 [report]
 unbalance = true
 [load.synthetic]
@@ -105,8 +106,9 @@ fn an_unbalanced_load_matches_an_independent_nodal_calculation() {
         Complex64::from_polar(e_abs, -120f64.to_radians()),
         Complex64::from_polar(e_abs, 120f64.to_radians()),
     );
-    // Susceptances: 20 kvar on phase a alone, 30 kvar three-phase (10 kvar a phase), at
-    // the nominal phase voltage.
+    // Susceptances: 20 kvar on phase a alone, 30 kvar three-phase in earthed star (10 kvar
+    // a phase, line to neutral), at the nominal phase voltage. (Delta steps are checked in
+    // tests/connections.rs.)
     let u_ln2 = e_abs * e_abs;
     let b = [(20e3 + 10e3) / u_ln2, 10e3 / u_ln2, 10e3 / u_ln2];
     let s: Vec<Complex64> = (0..3)

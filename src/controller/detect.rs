@@ -15,7 +15,9 @@
 //! sensible tolerance; a load that changes in the same interval as the operation adds to
 //! the measured change, which is why more than one mismatched operation is asked for by
 //! default. With a single-phase measurement the change is the measured phase × 3, which
-//! is right for three-phase steps only. Protection trips (several steps at once) are not
+//! is right for three-phase steps only (a step line to line between the measured phase
+//! and another shows 1.5 × its kvar, one elsewhere nothing); with a three-phase
+//! measurement every connection shows its kvar. Protection trips (several steps at once) are not
 //! checked.
 
 use crate::bank::BankState;

@@ -8,24 +8,34 @@
 //! - the switched single-phase steps of phase x follow phase x's own reading (P_x, Q_x,
 //!   not multiplied by 3), with the phase dead band (`phase_dead_band_kvar`, default
 //!   0.65 × the phase's smallest switched step);
-//! - the switched three-phase steps follow the phase that needs least: the reading of the
-//!   phase with the smallest demand Q_x − |P_x|·tan φ_t, times 3, with the bank's dead
-//!   band. A three-phase step then closes only when every phase needs its third, and
-//!   opens as soon as one phase leads beyond the dead band, so it never overcorrects one
-//!   phase to help another; the single-phase steps make up each phase's rest.
+//! - the switched three-phase steps (delta or star) follow the phase that needs least:
+//!   the reading of the phase with the smallest demand Q_x − |P_x|·tan φ_t, times 3, with
+//!   the bank's dead band. A three-phase step then closes only when every phase needs its
+//!   third, and opens as soon as one phase leads beyond the dead band, so it never
+//!   overcorrects one phase to help another; the single-phase steps make up each phase's
+//!   rest;
+//! - the switched steps line to line between x and y, when there are any, follow their
+//!   pair by the same rule: the reading of whichever of x and y needs less, times 2 (such
+//!   a step puts half its kvar on each of its two phases), with a dead band of 0.65 × the
+//!   pair's smallest switched step (2 × `phase_dead_band_kvar` when that is set, the
+//!   pair's reading being two phases' worth). It closes only when both its phases need
+//!   their half, so it corrects a load between the same two lines (a welder, a
+//!   single-phase motor on 400 V) without pushing either phase leading.
 //!
 //! Each part has its own delays, averaging (of its own reading), protections (all see
 //! the same voltage, current and distortion, and each opens only its own steps) and cap
-//! on operations per hour, so up to four operations can happen in one interval. Fault
-//! detection is not available under per-phase control (refused in validation).
+//! on operations per hour, so up to four operations (seven with steps on every pair) can
+//! happen in one interval. Fault detection is not available under per-phase control
+//! (refused in validation).
 
 use super::{Controller, ControllerParams, Decision, StepState};
 use crate::bank::{Bank, BankState, StepPhase};
 
-/// Which part of the control owns a step: the three-phase part or a phase's.
+/// Which part of the control owns a step: the three-phase part, a phase's or a pair's.
 const FIXED: usize = usize::MAX;
 
-/// The controller of a run: one part, or four under per-phase control.
+/// The controller of a run: one part, or under per-phase control four and one for each
+/// pair of lines with switched steps between them.
 pub struct Control {
     parts: Vec<Controller>,
     /// The part that switches each step (by index); [`FIXED`] for fixed steps.
@@ -36,6 +46,8 @@ pub struct Control {
     per_phase: bool,
     /// The switched steps of each part.
     own: Vec<BankState>,
+    /// The pair (0 ab, 1 bc, 2 ca) of each part after the four first, in order.
+    pairs: Vec<usize>,
 }
 
 impl Control {
@@ -58,9 +70,10 @@ impl Control {
                 tan_t,
                 per_phase: false,
                 own: vec![bank.switched_mask],
+                pairs: Vec::new(),
             };
         }
-        let three = BankState::select(&bank.steps, |s| s.phase == StepPhase::Three);
+        let three = BankState::select(&bank.steps, |s| s.phase.is_three_phase());
         let mut parts = vec![Controller::for_steps(params, bank, dt_s, t_first_s, three)];
         let mut owns = vec![three.and(bank.switched_mask)];
         for ph in 0..3 {
@@ -70,13 +83,33 @@ impl Control {
             p.dead_band_kvar = phase_dead_band(&params, bank, own);
             parts.push(Controller::for_steps(p, bank, dt_s, t_first_s, own));
         }
+        // A part for each pair of lines with a switched step between them.
+        let mut pairs = Vec::new();
+        let mut pair_part = [FIXED; 3];
+        for (pair, part) in pair_part.iter_mut().enumerate() {
+            let own = BankState::select(&bank.steps, |s| s.phase == StepPhase::Line(pair));
+            let own = own.and(bank.switched_mask);
+            if own.is_empty() {
+                continue;
+            }
+            let mut p = params;
+            p.dead_band_kvar = match params.phase_dead_band_kvar {
+                Some(b) => 2.0 * b,
+                None => phase_dead_band(&params, bank, own),
+            };
+            *part = parts.len();
+            parts.push(Controller::for_steps(p, bank, dt_s, t_first_s, own));
+            owns.push(own);
+            pairs.push(pair);
+        }
         let owner = bank
             .steps
             .iter()
             .map(|s| match (s.fixed, s.phase) {
                 (true, _) => FIXED,
-                (false, StepPhase::Three) => 0,
+                (false, StepPhase::Three | StepPhase::Star) => 0,
                 (false, StepPhase::Single(ph)) => 1 + ph.min(2),
+                (false, StepPhase::Line(pair)) => pair_part[pair.min(2)],
             })
             .collect();
         let steps = parts[0].steps().to_vec();
@@ -87,6 +120,7 @@ impl Control {
             tan_t,
             per_phase: true,
             own: owns,
+            pairs,
         }
     }
 
@@ -184,6 +218,29 @@ impl Control {
             d.q_m_kvar += dp.q_m_kvar;
             d.demand_kvar += dp.demand_kvar;
             let wp = wish_of(&self.parts[1 + ph], self.own[1 + ph], dp.wish);
+            d.wish = match (d.wish, wp) {
+                (-1, _) | (_, -1) => -1,
+                (1, _) | (_, 1) => 1,
+                _ => 0,
+            };
+            d.closed = d.closed.or(dp.closed);
+            d.opened = d.opened.or(dp.opened);
+            d.alarm = d.alarm.or(dp.alarm);
+            d.trip = d.trip.or(dp.trip);
+        }
+        for (k, &pair) in self.pairs.iter().enumerate() {
+            let (x, y) = (pair, (pair + 1) % 3);
+            let least = if demand(y) < demand(x) { y } else { x };
+            let part = 4 + k;
+            let dp = self.parts[part].decide_measured(
+                2.0 * p_kw[least],
+                2.0 * q_kvar[least],
+                v_ll_max,
+                current_a,
+                thd_pct,
+                t_next,
+            );
+            let wp = wish_of(&self.parts[part], self.own[part], dp.wish);
             d.wish = match (d.wish, wp) {
                 (-1, _) | (_, -1) => -1,
                 (1, _) | (_, 1) => 1,

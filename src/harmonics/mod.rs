@@ -38,10 +38,13 @@
 //! balanced system, and the positive-sequence circuit is wrong for them. They are solved
 //! on the zero-sequence circuit instead:
 //!
-//! - three-phase steps carry no zero-sequence current (a delta-connected bank, or a star
-//!   with an isolated neutral, the usual low-voltage connection; common practice), so they
-//!   leave the bank admittance and see no triplen voltage;
-//! - single-phase steps connected line to neutral stay in;
+//! - delta-connected three-phase steps (the default, the usual low-voltage connection;
+//!   a star with an isolated neutral behaves the same) and single-phase steps connected
+//!   line to line carry no zero-sequence current (no path to the neutral; common
+//!   practice), so they leave the bank admittance and see no triplen voltage;
+//! - single-phase steps connected line to neutral and three-phase steps in star with the
+//!   star point earthed (`connection = "star"`) stay in, an earthed star with its
+//!   per-phase admittance (its zero-sequence admittance equals its positive-sequence one);
 //! - the supply is the transformer alone: a Dyn transformer's delta winding blocks the
 //!   grid's part, and its zero-sequence impedance is taken equal to its short-circuit
 //!   impedance (about right for core-type distribution transformers, common practice, from
@@ -72,7 +75,7 @@ pub mod limits;
 pub mod scan;
 pub mod survey;
 
-use crate::bank::{BankState, StepPhase, StepSpec};
+use crate::bank::{BankState, StepSpec};
 use crate::supply::SupplyParams;
 use limits::{default_rated_voltage, CapacitorLimits, VoltageLimits};
 use num_complex::Complex64;
@@ -182,14 +185,18 @@ struct StepModel {
     p: f64,
     /// Capacitor reactance at the fundamental, star equivalent, ohm.
     x_c: f64,
-    /// Voltage the step is connected to (U_n, or U_n/sqrt(3) for a single-phase step), V.
+    /// Voltage the step is connected to (U_n, or U_n/sqrt(3) for a single-phase step line
+    /// to neutral), V.
     u_conn: f64,
+    /// Fundamental line current at U_n, A.
+    i1: f64,
     /// Rated voltage of the capacitors, V.
     u_rated: f64,
     /// True for a plain step.
     plain: bool,
-    /// True for a three-phase step (carries no zero-sequence current).
-    three_phase: bool,
+    /// True for a step that carries zero-sequence current (an earthed star, or a step line
+    /// to neutral).
+    zero_sequence: bool,
 }
 
 /// Harmonic model of one site: supply and bank impedances versus order.
@@ -567,11 +574,12 @@ impl HarmonicModel {
                     p,
                     x_c: u2 / (s.kvar * 1e3 * (1.0 - p)),
                     u_conn,
+                    i1: s.phase.line_current_a(s.kvar, u_n),
                     u_rated: s
                         .capacitor_rated_voltage_v
                         .unwrap_or_else(|| default_rated_voltage(u_conn, s.detuning)),
                     plain: s.detuning.is_none(),
-                    three_phase: matches!(s.phase, StepPhase::Three),
+                    zero_sequence: s.phase.carries_zero_sequence(),
                 }
             })
             .collect();
@@ -810,11 +818,11 @@ impl HarmonicModel {
         }
     }
 
-    /// Susceptance of step index `i` for the current at order h, siemens: 0 for a
-    /// three-phase step at a triplen order (it carries no zero-sequence current), else
-    /// [`HarmonicModel::step_susceptance`].
+    /// Susceptance of step index `i` for the current at order h, siemens: 0 for a delta
+    /// step or a step line to line at a triplen order (it carries no zero-sequence
+    /// current), else [`HarmonicModel::step_susceptance`].
     pub fn step_susceptance_at_order(&self, i: usize, h: f64) -> f64 {
-        if is_triplen(h) && self.steps[i].three_phase {
+        if is_triplen(h) && !self.steps[i].zero_sequence {
             0.0
         } else {
             self.step_susceptance(i, h)
@@ -823,8 +831,8 @@ impl HarmonicModel {
 
     /// Impedance that the load's current at order h sees with the steps in `mask`, ohm per
     /// phase: [`HarmonicModel::impedance`] at a positive- or negative-sequence order, the
-    /// zero-sequence circuit (transformer alone, single-phase steps only, no damping) at a
-    /// triplen order. Zero for a stiff bus.
+    /// zero-sequence circuit (transformer alone, steps line to neutral and earthed stars
+    /// only, no damping) at a triplen order. Zero for a stiff bus.
     pub fn impedance_at_order(&self, mask: BankState, h: f64) -> Complex64 {
         match self.order_admittances(mask, h) {
             None => Complex64::new(0.0, 0.0),
@@ -960,8 +968,8 @@ impl HarmonicModel {
             let i = n - 1;
             let s = &self.steps[i];
             // Branch current at order h over its fundamental current at U_n:
-            // r_h = u_h·|Z_step(1)|/|Z_step(h)|; capacitor voltage c_h = r_h/h. A
-            // three-phase step carries no triplen current.
+            // r_h = u_h·|Z_step(1)|/|Z_step(h)|; capacitor voltage c_h = r_h/h. A delta
+            // step or a step line to line carries no triplen current.
             let (mut sum_r2, mut sum_c2, mut sum_c, mut sum_cr) = (0.0, 0.0, 0.0, 0.0);
             for hv in harmonics {
                 let u_h = hv.v_pct / 100.0;
@@ -973,10 +981,7 @@ impl HarmonicModel {
                 sum_c += c;
                 sum_cr += c * r;
             }
-            let i1 = match s.u_conn {
-                u if (u - self.u_n).abs() < 1e-9 => s.kvar * 1e3 / (3f64.sqrt() * self.u_n),
-                u => s.kvar * 1e3 / u,
-            };
+            let i1 = s.i1;
             // Rated kvar of the capacitors at their rated voltage:
             // Q_R = Q·(1 − p)·(U_R/U)², so Q = Q_R·(U/U_R)²/(1 − p).
             let i_n = i1 * s.u_rated * (1.0 - s.p) / s.u_conn;
@@ -1095,6 +1100,7 @@ pub fn thd_pct(fundamental: f64, harmonics: &[f64]) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::bank::StepPhase;
     use crate::supply::Transformer;
     use limits::CapacitorLimits;
 
@@ -1298,6 +1304,42 @@ mod tests {
         assert_eq!(m.near_harmonic(3.1, 0.5), None);
         assert_eq!(m.near_harmonic(4.8, 0.5), Some(5.0));
         assert_eq!(m.lowest_harmonic(), Some(5.0));
+    }
+
+    // Zero sequence by connection (symmetrical components, common practice): an earthed
+    // star's zero-sequence admittance is its per-phase admittance, so it stays in the
+    // triplen circuit and carries triplen current; a delta and a step line to line have no
+    // path to the neutral, leave the circuit and carry the fundamental alone. A step line
+    // to line draws Q/U from each of its lines.
+    #[test]
+    fn triplen_orders_by_connection() {
+        let spectrum = Spectrum {
+            orders: vec![(3.0, 80.0)],
+            reference_kva: 100.0,
+            preset: None,
+        };
+        let site = site_with_grid(Some(250.0), true);
+        let model = |phase| {
+            let s = StepSpec {
+                phase,
+                ..StepSpec::plain(60.0)
+            };
+            HarmonicModel::new(&site, &[s], spectrum.clone(), HarmonicOptions::default())
+        };
+        let z0 = model(StepPhase::Three).supply_impedance_at_order(3.0);
+        for phase in [StepPhase::Three, StepPhase::Line(1)] {
+            let m = model(phase);
+            assert!((m.impedance_at_order(STEP_1, 3.0) - z0).norm() < 1e-15);
+            assert!((m.state(STEP_1).steps[0].current_ratio - 1.0).abs() < 1e-12);
+        }
+        let line = model(StepPhase::Line(1)).state(STEP_1);
+        assert!((line.steps[0].current_a - 60e3 / 400.0).abs() < 1e-9);
+        let m = model(StepPhase::Star);
+        let y = z0.inv() + Complex64::new(0.0, m.step_susceptance(0, 3.0));
+        assert!((m.impedance_at_order(STEP_1, 3.0) - y.inv()).norm() < 1e-12);
+        let st = m.state(STEP_1);
+        assert!(st.steps[0].current_ratio > 1.0);
+        assert!((st.steps[0].rated_current_a - 60e3 / (3f64.sqrt() * 400.0)).abs() < 1e-9);
     }
 
     // Background distortion, by hand: an open-circuit source behind the supply impedance,

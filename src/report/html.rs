@@ -235,7 +235,7 @@ fn settings(ctx: &ReportContext<'_>, h: &mut String) {
             vec![
                 (i + 1).to_string(),
                 format!("{} kvar", num(st.kvar, 1)),
-                st.phase.label().to_string(),
+                st.phase.describe().to_string(),
                 if st.fixed { "fixed" } else { "switched" }.to_string(),
                 st.detuning
                     .map(|p| format!("{} %", num(p * 100.0, 2)))

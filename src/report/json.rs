@@ -41,6 +41,8 @@ struct StepJson {
     step: usize,
     kvar: f64,
     phase: &'static str,
+    /// `delta`, `star`, `line-to-neutral` or `line-to-line`.
+    connection: &'static str,
     fixed: bool,
     detuning_pct: Option<f64>,
     rated_operations: f64,
@@ -143,6 +145,7 @@ fn document<'a>(ctx: &ReportContext<'a>) -> Document<'a> {
             step: i + 1,
             kvar: s.kvar,
             phase: s.phase.label(),
+            connection: s.phase.connection(),
             fixed: s.fixed,
             detuning_pct: s.detuning.map(|p| p * 100.0),
             rated_operations: s.rated_operations,

@@ -6,7 +6,7 @@
 //! (e.g. 1+2 and 3+4 of equal steps) behave alike and share one row; the CSV and JSON
 //! keep every state.
 
-use crate::bank::BankState;
+use crate::bank::{BankState, StepPhase};
 use crate::harmonics::limits::CapacitorLimits;
 use crate::harmonics::scan::{Peak, ScanGrid};
 use crate::harmonics::survey::{Survey, SurveyState};
@@ -51,6 +51,8 @@ fn likeness(sc: &Scenario, state: BankState) -> Vec<(u64, u64, usize)> {
             let phase = match s.phase {
                 crate::bank::StepPhase::Three => 0,
                 crate::bank::StepPhase::Single(p) => 1 + p,
+                crate::bank::StepPhase::Star => 4,
+                crate::bank::StepPhase::Line(p) => 5 + p,
             };
             (s.kvar.to_bits(), s.detuning.unwrap_or(0.0).to_bits(), phase)
         })
@@ -264,15 +266,20 @@ pub fn write_text(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         super::wrap_plain(&mut t, "", &line);
     }
     if hm.has_triplen() {
-        super::wrap_plain(
-            &mut t,
-            "",
+        let text = if other_connections(sc) {
+            "Triplen orders (3, 9, 15, ...) are zero-sequence: delta-connected steps and steps \
+             line to line do not carry them and the transformer's delta winding (taken as Dyn) \
+             blocks the grid's part, so they are solved with the transformer's impedance alone \
+             and the steps line to neutral and in earthed star only, and a resonance near them \
+             is not flagged (the scan and its peaks are the positive-sequence circuit)."
+        } else {
             "Triplen orders (3, 9, 15, ...) are zero-sequence: three-phase steps (taken as \
              delta-connected) do not carry them and the transformer's delta winding (taken as \
              Dyn) blocks the grid's part, so they are solved with the transformer's impedance \
              alone and the single-phase steps only, and a resonance near them is not flagged \
-             (the scan and its peaks are the positive-sequence circuit).",
-        );
+             (the scan and its peaks are the positive-sequence circuit)."
+        };
+        super::wrap_plain(&mut t, "", text);
     }
     let cl = hm.options.capacitor_limits;
     let line = format!(
@@ -674,6 +681,22 @@ struct Document<'a> {
 const HARMONIC_LOAD_NOTE: &str = "the harmonic load is taken at its full rating in every \
 state: the estimate assumes the full harmonic load";
 
+/// True when some step is in earthed star or line to line, so that the triplen notes
+/// name the connections (with delta and line-to-neutral steps only they keep their
+/// shorter words).
+fn other_connections(sc: &Scenario) -> bool {
+    sc.steps
+        .iter()
+        .any(|s| matches!(s.phase, StepPhase::Star | StepPhase::Line(_)))
+}
+
+/// What the JSON says about triplen orders when the bank has steps in earthed star or line
+/// to line and the spectrum has triplen orders.
+const TRIPLEN_NOTE_CONNECTIONS: &str = "triplen orders are zero-sequence: solved with the \
+transformer's impedance alone and the steps line to neutral and in earthed star only (delta \
+steps and steps line to line carry none; the transformer taken as Dyn), and not used for \
+near_harmonic";
+
 /// What the JSON says about triplen orders when the spectrum has any.
 const TRIPLEN_NOTE: &str = "triplen orders are zero-sequence: solved with the transformer's \
 impedance alone and the single-phase steps only (three-phase steps taken as delta-connected, \
@@ -759,7 +782,11 @@ pub fn write_json(ctx: &ResonanceContext<'_>, out: &mut dyn Write) -> Result<(),
         harmonic_load_kva: sc.spectrum.reference_kva,
         harmonic_load_note: HARMONIC_LOAD_NOTE,
         background_pct: hm.background(),
-        triplen_note: hm.has_triplen().then_some(TRIPLEN_NOTE),
+        triplen_note: hm.has_triplen().then_some(if other_connections(sc) {
+            TRIPLEN_NOTE_CONNECTIONS
+        } else {
+            TRIPLEN_NOTE
+        }),
         full_bank_order: sv.full_bank_order,
         states,
         detuning,

@@ -237,12 +237,18 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
             num(fixed, 1)
         ),
     );
+    // The phase column is as wide as its longest entry (`abc star`), at least 5.
+    let pw = sc
+        .steps
+        .iter()
+        .map(|s| s.phase.describe().len())
+        .fold(5, usize::max);
     t.push_str(&format!(
-        "    {:>4}  {:>9}  {:<5}  {:<8}  {:>9}  {:>16}  {}\n",
+        "    {:>4}  {:>9}  {:<pw$}  {:<8}  {:>9}  {:>16}  {}\n",
         "step", "kvar", "phase", "kind", "detuning", "contactor life", "fault"
     ));
     for (i, st) in sc.steps.iter().enumerate() {
-        let phase = st.phase.label();
+        let phase = st.phase.describe();
         let detuning = st
             .detuning
             .map(|p| format!("{} %", num(p * 100.0, 2)))
@@ -259,7 +265,7 @@ fn study(ctx: &ReportContext<'_>, t: &mut String) {
             }
         };
         t.push_str(&format!(
-            "    {:>4}  {:>9}  {:<5}  {:<8}  {:>9}  {:>16}  {}\n",
+            "    {:>4}  {:>9}  {:<pw$}  {:<8}  {:>9}  {:>16}  {}\n",
             i + 1,
             num(st.kvar, 1),
             phase,

@@ -105,11 +105,15 @@ pub struct StepSection {
     /// U the connection voltage and p the detuning ratio (0 for a plain step).
     pub rated_kvar: Option<f64>,
     /// Rated voltage of the capacitors that `rated_kvar` refers to, V (line to line; line
-    /// to neutral for a single-phase step). Required with `rated_kvar`; it is also the
-    /// capacitors' rated voltage for the harmonic limits.
+    /// to neutral for a single-phase step line to neutral). Required with `rated_kvar`; it
+    /// is also the capacitors' rated voltage for the harmonic limits.
     pub rated_voltage_v: Option<f64>,
-    /// `abc` (three-phase, default) or `a`, `b`, `c` (single-phase, line to neutral).
+    /// `abc` (three-phase, default), `a`, `b`, `c` (single-phase, line to neutral) or
+    /// `ab`, `bc`, `ca` (single-phase, line to line; `ba`, `cb`, `ac` the same).
     pub phase: Option<String>,
+    /// How a three-phase step is connected: `delta` (default) or `star` (star point
+    /// earthed).
+    pub connection: Option<String>,
     /// Fixed step (on from the start, never switched). Default false.
     pub fixed: Option<bool>,
     /// Detuning reactor ratio p, %. Default: none (plain capacitor).
@@ -117,8 +121,8 @@ pub struct StepSection {
     /// Rated electrical life of the contactor, operations. Default 100 000.
     pub rated_operations: Option<f64>,
     /// Rated voltage of the step's capacitors, V (line to line; line to neutral for a
-    /// single-phase step). Default: U_n for a plain step; for a detuned step the smallest
-    /// common rating at or above U/(1 − p), e.g. 440 V for 7 % at 400 V.
+    /// single-phase step line to neutral). Default: U_n for a plain step; for a detuned
+    /// step the smallest common rating at or above U/(1 − p), e.g. 440 V for 7 % at 400 V.
     pub capacitor_rated_voltage_v: Option<f64>,
     /// Repeat this step this many times (consecutive numbers). Default 1.
     pub count: Option<u32>,

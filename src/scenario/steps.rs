@@ -1,13 +1,14 @@
 //! Validation of the `[[steps]]` tables: output (effective kvar at U_n, or the
-//! capacitors' catalogue rating), phase, detuning, contactor life, capacitor rating,
+//! capacitors' catalogue rating), phase and connection, detuning, contactor life, capacitor rating,
 //! repetition and fault injection.
 //!
 //! A step's output is given one of two ways. `kvar` is the effective output at U_n, what
 //! the step delivers on the bus whatever its parts. `rated_kvar` with `rated_voltage_v` is
 //! the catalogue rating of its capacitors, Q_R at U_R; behind a detuning reactor of ratio p
 //! the capacitors see U/(1 − p), so the step delivers Q = Q_R·(U/U_R)²/(1 − p) at the
-//! connection voltage U (line to line for a three-phase step, line to neutral for a
-//! single-phase one). For example 50 kvar rated at 440 V behind a 7 % reactor on a 400 V
+//! connection voltage U (line to line for a three-phase step, star or delta, and for a
+//! single-phase step line to line; line to neutral for a single-phase step line to
+//! neutral). For example 50 kvar rated at 440 V behind a 7 % reactor on a 400 V
 //! bus delivers 50·(400/440)²/0.93 = 44.43 kvar.
 //!
 //! Steps are numbered from 1 in the order the tables expand (a table with `count = 3`
@@ -71,15 +72,7 @@ pub(super) fn steps(tables: &[StepSection], u_n: f64) -> Result<Vec<StepSpec>, F
 
 /// One table's step; `key` turns a field name into the key errors show.
 fn step(st: &StepSection, u_n: f64, key: &dyn Fn(&str) -> String) -> Result<StepSpec, FieldError> {
-    let phase = match st.phase.as_deref().map(str::trim) {
-        None | Some("abc") | Some("ABC") | Some("3") => StepPhase::Three,
-        Some(p) => StepPhase::Single(phase_index(&key("phase"), p).map_err(|e| {
-            FieldError::new(
-                e.key,
-                format!("{}; or `abc` for a three-phase step", e.message),
-            )
-        })?),
-    };
+    let phase = phase(st, key)?;
     let detuning = match st.detuning_pct {
         None => None,
         Some(p) => Some(range_open(&key("detuning_pct"), p, 0.0, 20.0, "%")? / 100.0),
@@ -186,6 +179,49 @@ pub fn effective_kvar(
 ) -> f64 {
     let p = detuning.unwrap_or(0.0);
     rated_kvar * (u_conn_v / rated_voltage_v).powi(2) / (1.0 - p)
+}
+
+/// Where and how a step is connected: `phase` (`abc`, a phase, or a pair of lines) and,
+/// for a three-phase step, `connection` (`delta` or `star`).
+fn phase(st: &StepSection, key: &dyn Fn(&str) -> String) -> Result<StepPhase, FieldError> {
+    const ALLOWED: &str = "write `abc` (three-phase), `a`, `b` or `c` (line to neutral), or \
+                           `ab`, `bc` or `ca` (line to line)";
+    let written = st.phase.as_deref().map(str::trim);
+    let phase = match written.map(str::to_ascii_lowercase).as_deref() {
+        None | Some("abc") | Some("3") => StepPhase::Three,
+        Some("ab") | Some("ba") => StepPhase::Line(0),
+        Some("bc") | Some("cb") => StepPhase::Line(1),
+        Some("ca") | Some("ac") => StepPhase::Line(2),
+        Some(p) => StepPhase::Single(phase_index(&key("phase"), p).map_err(|_| {
+            FieldError::new(
+                key("phase"),
+                format!(
+                    "`{}` is not a phase or a pair of lines; {ALLOWED}",
+                    written.unwrap_or(p)
+                ),
+            )
+        })?),
+    };
+    match st.connection.as_deref().map(str::trim) {
+        None => Ok(phase),
+        Some(c) if !phase.is_three_phase() => Err(FieldError::new(
+            key("connection"),
+            format!(
+                "`{c}` given for a single-phase step (phase = \"{}\"); `connection` is only \
+                 for a three-phase step (`delta` or `star`), leave it out here",
+                phase.label()
+            ),
+        )),
+        Some("delta") => Ok(StepPhase::Three),
+        Some("star") => Ok(StepPhase::Star),
+        Some(other) => Err(FieldError::new(
+            key("connection"),
+            format!(
+                "`{other}` is not a connection of a three-phase step; write `delta` (the \
+                 default) or `star` (star point earthed)"
+            ),
+        )),
+    }
 }
 
 /// A step's injected fault.

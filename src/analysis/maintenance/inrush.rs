@@ -1,7 +1,12 @@
 //! Closing inrush of a capacitor step: peak current and frequency.
 //!
-//! Each step is taken per phase as its star-equivalent capacitance C = Q/(ω·U²) (Q the
-//! three-phase kvar, U line to line; a single-phase step on its phase C = Q/(ω·U_ph²)),
+//! Each step is taken per phase as its star-equivalent capacitance: C = Q/(ω·U²) for a
+//! three-phase step (Q the three-phase kvar, U line to line; a delta's branches are C/3
+//! each, an earthed star's elements C), C = Q/(ω·U_ph²) on its phase for a single-phase
+//! step line to neutral, and C = 1.5·Q/(ω·U²) on each of its two phases for one line to
+//! line (its capacitance Q/(ω·U²) between the lines, carrying Q/2 on each phase at U_ph,
+//! as [`crate::bank::Shunt::per_phase`] has it; the peak is that of the loop through
+//! both lines, the frequency an estimate),
 //! uncharged when it closes (the discharge lockout sees to that), switched at the peak of
 //! the phase voltage sqrt(2/3)·U_LL (the worst instant).
 //!
@@ -97,12 +102,10 @@ pub fn series_rlc(v0: f64, l_h: f64, c_f: f64, r_ohm: f64) -> Inrush {
     }
 }
 
-/// Rated rms current of a step at U_n, A: Q/(sqrt(3)·U) three-phase, Q/U_ph single-phase.
+/// Rated rms current of a step at U_n, A: Q/(sqrt(3)·U) three-phase, Q/U_ph single-phase
+/// line to neutral, Q/U line to line ([`StepPhase::line_current_a`]).
 pub fn rated_current_a(s: &StepSpec, u_n_v: f64) -> f64 {
-    match s.phase {
-        StepPhase::Three => s.kvar * 1e3 / (3f64.sqrt() * u_n_v),
-        StepPhase::Single(_) => s.kvar * 1e3 / (u_n_v / 3f64.sqrt()),
-    }
+    s.phase.line_current_a(s.kvar, u_n_v)
 }
 
 /// What a closing depends on besides the steps.
@@ -119,12 +122,13 @@ pub struct Circuit {
 }
 
 /// Capacitance and reactor inductance of a step on phase `ph` (0 to 2): zero for a
-/// single-phase step on another phase.
+/// single-phase step not connected to that phase.
 fn per_phase(s: &StepSpec, ph: usize, c: &Circuit) -> (f64, Option<f64>) {
     let cap = match s.phase {
-        StepPhase::Three => capacitance_f(s.kvar, c.u_n_v, c.f_hz),
-        StepPhase::Single(p) if p == ph => capacitance_f(3.0 * s.kvar, c.u_n_v, c.f_hz),
-        StepPhase::Single(_) => 0.0,
+        _ if s.phase.phase_bits() & (1 << ph) == 0 => 0.0,
+        StepPhase::Three | StepPhase::Star => capacitance_f(s.kvar, c.u_n_v, c.f_hz),
+        StepPhase::Single(_) => capacitance_f(3.0 * s.kvar, c.u_n_v, c.f_hz),
+        StepPhase::Line(_) => capacitance_f(1.5 * s.kvar, c.u_n_v, c.f_hz),
     };
     let w = 2.0 * PI * c.f_hz;
     let reactor = s.detuning.filter(|_| cap > 0.0).map(|p| p / (w * w * cap));
@@ -206,6 +210,41 @@ mod tests {
         let b = isolated(50.0, 400.0, 16_666.7, 50.0);
         assert!((a.peak_a / b.peak_a - 1.0).abs() < 1e-9);
         assert!((a.frequency_hz / b.frequency_hz - 1.0).abs() < 1e-9);
+    }
+
+    // A step line to line closing alone: its capacitance C = Q/(ω·U²) between the lines
+    // charges through the loop of both lines' supply inductance, 2·L_s, from √2·U, so
+    // Î = √2·U·sqrt(C/(2·L_s)) = U·sqrt(C/L_s) (the isolated closing's series L-C circuit
+    // applied to that loop, common practice); the star equivalent C = 1.5·Q/(ω·U²) on each
+    // phase at sqrt(2/3)·U gives the same peak. Its rated current is Q/U.
+    #[test]
+    fn a_line_to_line_step_closes_through_the_loop_of_two_lines() {
+        let s = StepSpec {
+            phase: StepPhase::Line(0),
+            ..StepSpec::plain(50.0)
+        };
+        let c = Circuit {
+            u_n_v: 400.0,
+            f_hz: 50.0,
+            s_sc_kva: 16_666.7,
+            l_between_h: 5e-6,
+        };
+        let w = 2.0 * PI * 50.0;
+        let c_ll = 50e3 / (w * 400.0 * 400.0);
+        let l_s = 400.0 * 400.0 / (w * 16_666.7e3);
+        let want = 2f64.sqrt() * 400.0 * (c_ll / (2.0 * l_s)).sqrt();
+        let got = closing(std::slice::from_ref(&s), 0, std::iter::empty(), &c, None);
+        assert!((got.peak_a / want - 1.0).abs() < 1e-9, "{}", got.peak_a);
+        assert!((rated_current_a(&s, 400.0) - 125.0).abs() < 1e-9);
+        // A step line to line between b and c has its star equivalent 1.5·Q/(ω·U²) on
+        // phases b and c and nothing on a, so a step between a and b closing onto it
+        // meets it on phase b only.
+        let other = StepSpec {
+            phase: StepPhase::Line(1),
+            ..StepSpec::plain(50.0)
+        };
+        assert_eq!(per_phase(&other, 0, &c).0, 0.0);
+        assert!((per_phase(&other, 1, &c).0 - 1.5 * c_ll).abs() < 1e-15);
     }
 
     // Damping lowers the peak; a resistor of 2·sqrt(L/C) (critical damping) gives
