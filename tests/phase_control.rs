@@ -320,3 +320,74 @@ fn per_phase_keys_are_checked() {
         bad("measurement = \"per-phase\"\n[controller.detection]").contains("controller.detection")
     );
 }
+
+// Under per-phase control a phase can still be overcorrected when its own step is coarse
+// for its light load; the finding must then not advise per-phase control again. Worked by
+// hand: tan φ_t of 0.95 lag = 0.328684 (common practice). Phase c draws 1 kW + j6 kvar for
+// 100 s: its demand 6 − 0.33 = 5.67 kvar is beyond its dead band of 5.5 kvar, so its 5 kvar
+// step closes after the 10 s delay. From 100 s phase c draws 1 kW + j0: with the step in
+// it leads by 5 kvar, past its threshold of 3/3 = 1 kvar, while its demand −5.33 kvar stays
+// inside the dead band, so the step stays in and phase c is overcorrected from 100 s to the
+// end (500 s). The three-phase sum, 6 + 6 − 5 = 7 kvar lagging, never leads.
+#[test]
+fn a_phase_still_leading_under_per_phase_control_gets_other_advice() {
+    let text = r#"
+[[steps]]
+kvar = 5
+phase = "c"
+[controller]
+target_pf = "0.95 lag"
+measurement = "per-phase"
+phase_dead_band_kvar = 5.5
+switching_delay_s = 10
+discharge_time_s = 60
+[report]
+overcorrection_threshold_kvar = 3
+[load.synthetic]
+[run]
+duration_s = 600
+"#;
+    let mut samples = vec![
+        LoadSample {
+            p_kw: [30.0, 30.0, 1.0],
+            q_kvar: [6.0, 6.0, 6.0],
+        };
+        100
+    ];
+    samples.extend(vec![
+        LoadSample {
+            p_kw: [30.0, 30.0, 1.0],
+            q_kvar: [6.0, 6.0, 0.0],
+        };
+        500
+    ]);
+    let st = common::study(text);
+    let r = st.run_on(&mut Listed(samples), &mut Quiet).unwrap();
+    let m = &r.metrics;
+    assert_eq!(m.switching.total_operations, 1);
+    assert_eq!(m.overcorrection.episodes, 0);
+    let c = &m.phases[2];
+    assert_eq!(c.overcorrection.episodes, 1);
+    assert!(
+        (c.overcorrection.total_s - 500.0).abs() < 1e-9,
+        "{}",
+        c.overcorrection.total_s
+    );
+    let a = bankstep::analysis::assess(&st, &r);
+    let f = a
+        .findings
+        .iter()
+        .find(|f| f.topic == "phase")
+        .expect("a phase finding");
+    assert!(
+        f.text.starts_with("Phase c was overcorrected"),
+        "{}",
+        f.text
+    );
+    let advice = f.advice.as_deref().unwrap_or("");
+    assert!(
+        advice.starts_with("Per-phase control is already on"),
+        "{advice}"
+    );
+    assert!(!advice.contains("measurement = \"per-phase\""), "{advice}");
+}

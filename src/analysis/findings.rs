@@ -505,12 +505,23 @@ fn phases(ctx: &Context<'_>, out: &mut Vec<Finding>) {
                 num(po.worst_leading_kvar, 1),
                 pct(w.share_leading),
             );
-            out.push(Finding::new(severity, "phase", share, text).advise(
+            let advice = if ctx.scenario().controller.per_phase {
+                // Per-phase control is already on: advising it again would mislead.
+                format!(
+                    "Per-phase control is already on, so the steps serving phase {} are \
+                     too coarse for its light load (or three-phase steps, switched on the \
+                     sum, lead it): give the phase a smaller single-phase step, widen its \
+                     dead band (`controller.phase_dead_band_kvar`), or move single-phase \
+                     loads to even out the phases.",
+                    w.phase
+                )
+            } else {
                 "Unbalanced load: correct the phases on their own (single-phase steps \
-                     under per-phase control, `controller.measurement = \"per-phase\"`), or \
-                     move single-phase loads to even out the phases.",
-                true,
-            ));
+                 under per-phase control, `controller.measurement = \"per-phase\"`), or \
+                 move single-phase loads to even out the phases."
+                    .to_string()
+            };
+            out.push(Finding::new(severity, "phase", share, text).advise(advice, true));
         }
     }
     let goal = ctx.billed_pf.goal;

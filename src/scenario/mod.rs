@@ -5,8 +5,7 @@
 //! Parsing is serde with unknown keys refused ([`schema`]); validation then checks every
 //! value against its allowed range, one module per section, and reports the key, the
 //! value, the range and the unit. The result is a [`Scenario`]: validated settings, ready
-//! for [`crate::study`] to attach a load profile and build a
-//! [`crate::engine::Simulation`].
+//! for [`crate::study`] to attach a load profile and hand to [`crate::engine::run`].
 
 mod check;
 mod controller;
