@@ -189,6 +189,38 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     source: &mut S,
     observer: &mut O,
 ) -> Result<RunResult, RunError> {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the processor has AVX2, checked just above.
+            return unsafe { run_avx2(sc, plan, source, observer) };
+        }
+    }
+    run_body(sc, plan, source, observer)
+}
+
+/// [`run`] compiled for AVX2: the same operations in the same order (AVX2 brings no
+/// fused multiply-add, which would round differently), four lanes of the metrics at a
+/// time.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn run_avx2<S: LoadSource + ?Sized, O: Observer + ?Sized>(
+    sc: &Scenario,
+    plan: &RunPlan,
+    source: &mut S,
+    observer: &mut O,
+) -> Result<RunResult, RunError> {
+    run_body(sc, plan, source, observer)
+}
+
+/// The body of [`run`].
+#[inline(always)]
+fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
+    sc: &Scenario,
+    plan: &RunPlan,
+    source: &mut S,
+    observer: &mut O,
+) -> Result<RunResult, RunError> {
     let u_n = sc.supply.nominal_voltage_v;
     let dt = plan.dt_s;
     let t0 = plan.t_first_s;
