@@ -277,6 +277,49 @@ impl MemoryProfile {
         };
         first_interval_reaching(t0, dt, k, t_next)
     }
+
+    /// [`LoadSource::fill`] for a cursor at `at`: the same samples and the same stops as
+    /// the default. The promise is asked for in full only when interval k + 1 does not
+    /// reach the next row (by the comparison [`first_interval_reaching`] makes): on data
+    /// as fine as the grid, every interval reaches the next row and nothing is promised.
+    fn fill_at(
+        &self,
+        at: &mut At,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        let on_grid = stop_at_hold && at.grid.is_some();
+        for (i, s) in out.iter_mut().enumerate() {
+            let j = k + i as u64;
+            if let Err(e) = self.sample_at(at, t_first_s + j as f64 * dt_s, s) {
+                return (i, Some(e));
+            }
+            if on_grid && self.may_hold(at, j) && self.next_change(at, j) > j + 1 {
+                return (i + 1, None);
+            }
+        }
+        (out.len(), None)
+    }
+
+    /// False only when [`MemoryProfile::next_change`] after interval j is sure to be
+    /// j + 1: the grid's interval j + 1 reaches the row after the one in force.
+    #[inline]
+    fn may_hold(&self, at: &At, j: u64) -> bool {
+        let Some((t0, dt)) = at.grid else {
+            return false;
+        };
+        let t_next = match self.times.get(at.idx + 1) {
+            Some(&tb) => tb,
+            None => self.end_s,
+        };
+        // Far out on the grid the full answer may differ (it gives up past 1e15
+        // intervals); ask it there.
+        let t = t0 + (j + 1) as f64 * dt;
+        !(t_next <= t + time_tolerance(t)) || j >= 1 << 48
+    }
 }
 
 /// Sample-and-hold over a borrowed [`MemoryProfile`]. Moving forward costs O(1)
@@ -305,6 +348,18 @@ impl LoadSource for MemoryCursor<'_> {
 
     fn unchanged_until(&self, k: u64) -> u64 {
         self.profile.next_change(&self.at, k)
+    }
+
+    fn fill(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        self.profile
+            .fill_at(&mut self.at, k, t_first_s, dt_s, out, stop_at_hold)
     }
 }
 
@@ -338,5 +393,17 @@ impl LoadSource for SharedCursor {
 
     fn unchanged_until(&self, k: u64) -> u64 {
         self.profile.next_change(&self.at, k)
+    }
+
+    fn fill(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        self.profile
+            .fill_at(&mut self.at, k, t_first_s, dt_s, out, stop_at_hold)
     }
 }
