@@ -132,3 +132,86 @@ fn fill_equals_one_sample_at_a_time_across_gaps() {
         all_walks(&sc, &[1.0, 0.5, 2.0], 250);
     }
 }
+
+/// A plant-like generator section (invented figures): machines, welders, PV with clouds.
+const PLANT: &str = r#"
+[[steps]]
+kvar = 50
+count = 4
+[run]
+duration_days = 2
+time_step_s = 1
+seed = 11
+[load.synthetic]
+noise_percent = __NOISE__
+[load.synthetic.base]
+kw = 300
+pf = 0.88
+night_kw = 120
+[load.synthetic.shifts]
+days = "mon-fri"
+hours = ["06:00-14:00", "14:00-22:00"]
+[[load.synthetic.machines]]
+units = 4
+kw = 90
+pf = 0.84
+runs = "shifts"
+on_s = 900
+off_s = 420
+[[load.synthetic.welders]]
+units = 3
+kw = 25
+pf = 0.6
+phase = "ab"
+burst_s = 2
+pause_s = 8
+[[load.synthetic.pv]]
+peak_kw = 150
+[load.synthetic.pv.clouds]
+clear_s = 1800
+shade_s = 300
+"#;
+
+// The generator's `fill` gives the bits of one `sample` call per interval, with noise
+// (the chunk's load first, then its noise) and without (stopping at its promises), for
+// chunks of several sizes over two days at 1 s.
+#[test]
+fn generator_fill_equals_one_sample_at_a_time() {
+    use bankstep::scenario::Scenario;
+    use bankstep::study::Study;
+    for noise in ["1.0", "0"] {
+        let text = PLANT.replace("__NOISE__", noise);
+        let sc = Scenario::from_str(&text, std::path::Path::new("plant.toml")).expect("scenario");
+        let study = Study::prepare(sc).expect("study");
+        let (n, dt, t0) = (study.plan.intervals, study.plan.dt_s, study.plan.t_first_s);
+        for (chunk, stop) in [(1, false), (7, false), (256, false), (256, true)] {
+            let mut a = study.source().expect("source");
+            let mut b = study.source().expect("source");
+            let mut fa = vec![LoadSample::default(); chunk];
+            let mut fb = vec![LoadSample::default(); chunk];
+            let mut k = 0;
+            while k < n {
+                let want = chunk.min((n - k) as usize);
+                let (ga, ea) = a.fill(k, t0, dt, &mut fa[..want], stop);
+                let (gb, eb) = reference(&mut b, k, t0, dt, &mut fb[..want], stop);
+                assert!(ea.is_none() && eb.is_none());
+                assert_eq!(ga, gb, "noise {noise}, chunk {chunk}, k {k}");
+                for (x, y) in fa[..ga].iter().zip(&fb[..gb]) {
+                    for (u, v) in x
+                        .p_kw
+                        .iter()
+                        .chain(&x.q_kvar)
+                        .zip(y.p_kw.iter().chain(&y.q_kvar))
+                    {
+                        assert_eq!(
+                            u.to_bits(),
+                            v.to_bits(),
+                            "noise {noise}, chunk {chunk}, k {k}"
+                        );
+                    }
+                }
+                k += gb as u64;
+            }
+        }
+    }
+}
