@@ -336,10 +336,9 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
                     };
                     met.record(&IntervalObs {
                         t_s: t,
-                        p_kw: p3,
-                        q_kvar: q3,
-                        p_ph_kw: sample.p_kw,
-                        q_ph_kvar: [
+                        p_kw: [p3, sample.p_kw[0], sample.p_kw[1], sample.p_kw[2]],
+                        q_kvar: [
+                            q3,
                             sample.q_kvar[0] - lanes.q_bank[0][j],
                             sample.q_kvar[1] - lanes.q_bank[1][j],
                             sample.q_kvar[2] - lanes.q_bank[2][j],
@@ -516,10 +515,8 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         // so that nothing is kept alive across the common path).
         let obs = || IntervalObs {
             t_s: t,
-            p_kw: p3,
-            q_kvar: q3,
-            p_ph_kw: sample.p_kw,
-            q_ph_kvar: q_ph,
+            p_kw: [p3, sample.p_kw[0], sample.p_kw[1], sample.p_kw[2]],
+            q_kvar: [q3, q_ph[0], q_ph[1], q_ph[2]],
             unbalance,
             load_q_kvar: sample.q_total(),
             load_p_kw: p3,

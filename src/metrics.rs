@@ -43,14 +43,11 @@ pub struct MetricParams {
 pub struct IntervalObs<'a> {
     /// Start of the interval t_k, s.
     pub t_s: f64,
-    /// Three-phase supply active power, kW.
-    pub p_kw: f64,
-    /// Three-phase supply reactive power, kvar.
-    pub q_kvar: f64,
-    /// Supply active power of each phase a, b, c, kW.
-    pub p_ph_kw: [f64; 3],
-    /// Supply reactive power of each phase a, b, c, kvar.
-    pub q_ph_kvar: [f64; 3],
+    /// Supply active power, kW: the three phases together (the phases added in the
+    /// order a, b, c), then each phase a, b, c.
+    pub p_kw: [f64; 4],
+    /// Supply reactive power, kvar, in the order of `p_kw`.
+    pub q_kvar: [f64; 4],
     /// Unbalance of the interval, when the run measures it (`report.unbalance`).
     pub unbalance: Option<UnbalanceObs>,
     /// Three-phase load reactive power, kvar.
@@ -895,9 +892,8 @@ impl Metrics {
     /// supply, bits 1 to 3 the phases).
     #[inline(always)]
     fn add_lanes(&mut self, o: &IntervalObs<'_>, h: f64, m: u64) -> u32 {
-        let p = [o.p_kw, o.p_ph_kw[0], o.p_ph_kw[1], o.p_ph_kw[2]];
-        let q = [o.q_kvar, o.q_ph_kvar[0], o.q_ph_kvar[1], o.q_ph_kvar[2]];
-        self.win.add(&p, &q, h);
+        let (p, q) = (&o.p_kw, &o.q_kvar);
+        self.win.add(p, q, h);
         let tan_t = self.tan_t;
         // Counted in floating point, exactly (whole numbers below 2^53), and with selects
         // rather than branches, so that the lanes go together as the registers do.
@@ -941,7 +937,7 @@ impl Metrics {
     #[inline(never)]
     fn episodes(&mut self, o: &IntervalObs<'_>, oc: u32, m: u64) {
         for ph in 0..3 {
-            let q = o.q_ph_kvar[ph];
+            let q = o.q_kvar[ph + 1];
             let a = &mut self.phase[ph];
             if oc & (2 << ph) != 0 {
                 a.ep_n += m;
@@ -971,7 +967,7 @@ impl Metrics {
                     };
                 }
                 self.ep.intervals += 1;
-                self.ep.worst = self.ep.worst.max(-o.q_kvar);
+                self.ep.worst = self.ep.worst.max(-o.q_kvar[0]);
                 self.ep.cause_n[cause] += 1;
                 self.ep.weekday_n[self.calendar.weekday(o.t_s)] += 1;
             }
@@ -1012,8 +1008,8 @@ impl Metrics {
 
     /// The cause (index into `CAUSES`) of an interval that is overcorrected.
     fn cause(&self, o: &IntervalObs<'_>) -> usize {
-        let limit = self.overcorrection_limit(o.p_kw);
-        if o.p_kw < 0.0 {
+        let limit = self.overcorrection_limit(o.p_kw[0]);
+        if o.p_kw[0] < 0.0 {
             0
         } else if o.load_q_kvar - o.fixed_q_kvar < limit {
             1
@@ -1377,10 +1373,8 @@ mod tests {
         let d = Decision::default();
         m.record(&IntervalObs {
             t_s,
-            p_kw,
-            q_kvar,
-            p_ph_kw: [p_kw / 3.0; 3],
-            q_ph_kvar: [q_kvar / 3.0; 3],
+            p_kw: [p_kw, p_kw / 3.0, p_kw / 3.0, p_kw / 3.0],
+            q_kvar: [q_kvar, q_kvar / 3.0, q_kvar / 3.0, q_kvar / 3.0],
             unbalance: None,
             load_q_kvar: q_kvar,
             load_p_kw: p_kw,
