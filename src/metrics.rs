@@ -872,7 +872,8 @@ impl Metrics {
             acc.add(u, self.calendar.epoch(o.t_s), 1, self.h);
         }
         if oc != 0 || self.any_open {
-            self.episodes(o, oc, 1);
+            let cause = if oc & 1 != 0 { self.cause(o) } else { 0 };
+            self.episodes(o.t_s, o.q_kvar, oc, cause, 1);
         }
     }
 
@@ -928,16 +929,19 @@ impl Metrics {
         }
     }
 
-    /// The episodes of `m` intervals of `o` whose lanes `oc` are overcorrected (bits as
-    /// [`Metrics::add_lanes`] returns them), when some lane is or an episode is open (out
-    /// of line: most intervals are neither). An open episode of a phase closes on an
-    /// interval in which that phase is not overcorrected, which is never inside a block;
-    /// a block continues the three-phase episode the interval just recorded opened or
-    /// continued (its worst value and weekday already counted).
+    /// The episodes of `m` intervals starting at `t_s` with supply reactive power `q`
+    /// (lanes as in [`IntervalObs`]) whose lanes `oc` are overcorrected (bits as
+    /// [`Metrics::add_lanes`] returns them; `cause` is the three-phase one when bit 0 is
+    /// set), when some lane is or an episode is open (out of line: most intervals are
+    /// neither). An open episode of a phase closes on an interval in which that phase is
+    /// not overcorrected, which is never inside a block; a block continues the
+    /// three-phase episode the interval just recorded opened or continued (its worst
+    /// value and weekday already counted).
     #[inline(never)]
-    fn episodes(&mut self, o: &IntervalObs<'_>, oc: u32, m: u64) {
+    fn episodes(&mut self, t_s: f64, q: [f64; 4], oc: u32, cause: usize, m: u64) {
+        let q_all = q;
         for ph in 0..3 {
-            let q = o.q_kvar[ph + 1];
+            let q = q_all[ph + 1];
             let a = &mut self.phase[ph];
             if oc & (2 << ph) != 0 {
                 a.ep_n += m;
@@ -948,16 +952,12 @@ impl Metrics {
                 a.close(self.min_ep_n);
             }
         }
-        let cause = if oc & 1 != 0 {
-            Some(self.cause(o))
-        } else {
-            None
-        };
+        let cause = (oc & 1 != 0).then_some(cause);
         match cause {
             Some(cause) if m > 1 => {
                 self.ep.intervals += m;
                 self.ep.cause_n[cause] += m;
-                self.ep.weekday_n[self.calendar.weekday(o.t_s)] += m;
+                self.ep.weekday_n[self.calendar.weekday(t_s)] += m;
             }
             Some(cause) => {
                 if !self.ep.open {
@@ -967,9 +967,9 @@ impl Metrics {
                     };
                 }
                 self.ep.intervals += 1;
-                self.ep.worst = self.ep.worst.max(-o.q_kvar[0]);
+                self.ep.worst = self.ep.worst.max(-q_all[0]);
                 self.ep.cause_n[cause] += 1;
-                self.ep.weekday_n[self.calendar.weekday(o.t_s)] += 1;
+                self.ep.weekday_n[self.calendar.weekday(t_s)] += 1;
             }
             None if self.ep.open => self.close_episode(),
             None => {}
@@ -1007,6 +1007,7 @@ impl Metrics {
     }
 
     /// The cause (index into `CAUSES`) of an interval that is overcorrected.
+    #[inline(always)]
     fn cause(&self, o: &IntervalObs<'_>) -> usize {
         let limit = self.overcorrection_limit(o.p_kw[0]);
         if o.p_kw[0] < 0.0 {
@@ -1054,7 +1055,8 @@ impl Metrics {
         }
         // The extremes were taken by the interval just recorded.
         if oc != 0 || self.any_open {
-            self.episodes(o, oc, m);
+            let cause = if oc & 1 != 0 { self.cause(o) } else { 0 };
+            self.episodes(o.t_s, o.q_kvar, oc, cause, m);
         }
     }
 

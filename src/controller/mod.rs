@@ -767,12 +767,14 @@ impl Controller {
         if wish == 0 {
             return d;
         }
-        let delay = if wish > 0 {
-            self.params.connect_delay_s
+        // The delay in whole intervals, by the same comparison (count·Δt against the delay
+        // less the tolerance, which grows with the count; the count is at least 1 here).
+        let needed = if wish > 0 {
+            self.connect_n
         } else {
-            self.params.disconnect_delay_s
+            self.disconnect_n
         };
-        if (self.count as f64) * dt < delay - TIME_EPS_S {
+        if self.count < needed {
             return d;
         }
         if !self.cap_allows(t_next) {
