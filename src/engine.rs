@@ -25,6 +25,15 @@
 //! first interval. A source error is reported after the intervals before it, as it
 //! would be one sample at a time.
 //!
+//! In the usual run (the controller reads the supply's own P and Q, three-phase or one
+//! phase; no per-phase control, unbalance, current protection or coupled bus) the
+//! intervals of a solved lane go through a short loop, up to the first operation, the
+//! next fault, the end of the run and, with blocks, the chunk's last sample (whose promise
+//! the long path asks for): the same steps in the same order, without the long path's
+//! buffer, lane and block checks. Where the processor has AVX2 the whole loop is compiled
+//! for it (chosen at run time): the same operations in the same order, no fused
+//! multiply-add, so the same bits.
+//!
 //! # Blocks of identical intervals
 //!
 //! While the load sample, the bank state and the controller's inputs stay the same, the
@@ -304,7 +313,7 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         // sample, solution, decision and record in the same order as the long path.
         if usual && k >= same_until && k >= buf_k && k < k_fault {
             let i0 = (k - buf_k) as usize;
-            let lane_end = (sol_base + sol_len).min(buf_len - usize::from(blocks));
+            let lane_end = (sol_base + sol_len).min(buf_len.saturating_sub(usize::from(blocks)));
             let i_end = lane_end
                 .min((n - buf_k) as usize)
                 .min(k_fault.saturating_sub(buf_k).min(usize::MAX as u64) as usize);
