@@ -1,6 +1,8 @@
 //! Run metrics: everything a run reports, accumulated interval by interval without
 //! allocating, then finished into a [`RunMetrics`] value that the report writers turn
-//! into text or JSON.
+//! into text or JSON. The three-phase supply's and each phase's registers and shares are
+//! kept side by side in four lanes, each summed in interval order; episodes and billing
+//! windows are kept out of line, for the intervals that need them.
 //!
 //! Definitions: energy PF = E_P / sqrt(E_P² + E_Q,ind²) over the import register (the
 //! billed figure, see [`BilledPf`]), with tan φ and the capacitive figures beside it; four
