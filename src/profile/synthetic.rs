@@ -1024,7 +1024,7 @@ impl SyntheticProfile {
 
     /// Adds the PV output of [t0, t1) to `v`; an array in daylight marks the sample as
     /// varied.
-    #[inline]
+    #[inline(always)]
     fn add_pv(&mut self, t0: f64, t1: f64, v: &mut [f64; 6]) {
         let tm = t0 + 0.5 * self.dt;
         if tm < self.pv_idle_until {
