@@ -318,7 +318,8 @@ impl MemoryProfile {
         // Far out on the grid the full answer may differ (it gives up past 1e15
         // intervals); ask it there.
         let t = t0 + (j + 1) as f64 * dt;
-        !(t_next <= t + time_tolerance(t)) || j >= 1 << 48
+        let reaches = t_next <= t + time_tolerance(t);
+        !reaches || j >= 1 << 48
     }
 }
 
