@@ -855,21 +855,14 @@ impl Metrics {
             self.next_window(o.t_s);
         }
         let oc = self.add_lanes(o, self.h, 1);
-        if o.v_ll_min < self.v_min {
-            self.v_min = o.v_ll_min;
-        }
-        if o.v_ll_max > self.v_max {
-            self.v_max = o.v_ll_max;
-        }
-        if o.load_q_kvar > self.load_q_max {
-            self.load_q_max = o.load_q_kvar;
-        }
-        if o.load_p_kw > self.load_p_max {
-            self.load_p_max = o.load_p_kw;
-        }
-        if o.load_p_kw < self.load_p_min {
-            self.load_p_min = o.load_p_kw;
-        }
+        // The extremes as selects (the same comparisons, without branches).
+        let lower = |x: f64, m: f64| if x < m { x } else { m };
+        let higher = |x: f64, m: f64| if x > m { x } else { m };
+        self.v_min = lower(o.v_ll_min, self.v_min);
+        self.v_max = higher(o.v_ll_max, self.v_max);
+        self.load_q_max = higher(o.load_q_kvar, self.load_q_max);
+        self.load_p_max = higher(o.load_p_kw, self.load_p_max);
+        self.load_p_min = lower(o.load_p_kw, self.load_p_min);
         if let (Some(acc), Some(u)) = (&mut self.unbalance, &o.unbalance) {
             acc.add(u, self.calendar.epoch(o.t_s), 1, self.h);
         }
@@ -906,29 +899,20 @@ impl Metrics {
             self.under_n[i] += if q[i] > p[i] * tan_t { importing } else { 0.0 };
             self.lead_n[i] += if q[i] < 0.0 { mf } else { 0.0 };
         }
-        let mut oc = [0.0f64; 4];
-        if tan_t < 0.0 {
-            for i in 0..4 {
-                let limit = p[i].abs() * tan_t - self.thr[i];
-                oc[i] = if q[i] < limit { 1.0 } else { 0.0 };
-            }
+        let limit: [f64; 4] = if tan_t < 0.0 {
+            std::array::from_fn(|i| p[i].abs() * tan_t - self.thr[i])
         } else {
-            for i in 0..4 {
-                oc[i] = if q[i] < -self.thr[i] { 1.0 } else { 0.0 };
-            }
-        }
+            std::array::from_fn(|i| -self.thr[i])
+        };
         if o.v_ll_max > self.v_110 {
             self.over_110_n += m;
         }
-        // The overcorrected lanes as bits; almost always none.
-        if oc[0] + oc[1] + oc[2] + oc[3] == 0.0 {
-            0
-        } else {
-            u32::from(oc[0] > 0.0)
-                | u32::from(oc[1] > 0.0) << 1
-                | u32::from(oc[2] > 0.0) << 2
-                | u32::from(oc[3] > 0.0) << 3
+        // The overcorrected lanes as bits (one comparison of the four lanes and its mask).
+        let mut oc = 0;
+        for i in 0..4 {
+            oc |= u32::from(q[i] < limit[i]) << i;
         }
+        oc
     }
 
     /// The episodes of `m` intervals starting at `t_s` with supply reactive power `q`
