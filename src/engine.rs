@@ -25,6 +25,15 @@
 //! first interval. A source error is reported after the intervals before it, as it
 //! would be one sample at a time.
 //!
+//! In the usual run (the controller reads the supply's own P and Q, three-phase or one
+//! phase; no per-phase control, unbalance, current protection, coupled bus or step
+//! between two lines) the intervals of a solved lane go through a short loop, up to the
+//! first operation, the next fault, the end of the run and, with blocks, the chunk's
+//! last sample (whose promise the long path asks for): the same steps in the same order,
+//! without the long path's buffer, lane and block checks. Where the processor has AVX2 the whole loop is compiled
+//! for it (chosen at run time): the same operations in the same order, no fused
+//! multiply-add, so the same bits.
+//!
 //! # Blocks of identical intervals
 //!
 //! While the load sample, the bank state and the controller's inputs stay the same, the
@@ -34,7 +43,7 @@
 //! through interval k as usual and then, if k made no operation, adds the identical
 //! intervals that follow as one block: the metrics take them as a count
 //! ([`Metrics::record_block`]) and the controller moves its counters on
-//! ([`Controller::skip`]). The next interval stepped on its own is the block's end,
+//! ([`crate::controller::Controller::skip`]). The next interval stepped on its own is the block's end,
 //! the earliest of:
 //!
 //! - the next interval whose sample may differ ([`LoadSource::unchanged_until`]);
@@ -42,7 +51,7 @@
 //! - two intervals before the next fault starts, the next billing window starts or the
 //!   next calendar midnight (overcorrection is counted by weekday; the time per bank state
 //!   and its `max_day_s` change only with operations, which blocks never hold);
-//! - the controller's quiet stretch ([`Controller::quiet_after`]): none while the averaging
+//! - the controller's quiet stretch ([`crate::controller::Controller::quiet_after`]): none while the averaging
 //!   window still holds older values, and not past the push that first resums a window
 //!   full of one value; otherwise until a protection timer would trip, the
 //!   switching timer meets its delay, or (delay met, operation not possible) the cap on
@@ -189,6 +198,38 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     source: &mut S,
     observer: &mut O,
 ) -> Result<RunResult, RunError> {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the processor has AVX2, checked just above.
+            return unsafe { run_avx2(sc, plan, source, observer) };
+        }
+    }
+    run_body(sc, plan, source, observer)
+}
+
+/// [`run`] compiled for AVX2: the same operations in the same order (AVX2 brings no
+/// fused multiply-add, which would round differently), four lanes of the metrics at a
+/// time.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn run_avx2<S: LoadSource + ?Sized, O: Observer + ?Sized>(
+    sc: &Scenario,
+    plan: &RunPlan,
+    source: &mut S,
+    observer: &mut O,
+) -> Result<RunResult, RunError> {
+    run_body(sc, plan, source, observer)
+}
+
+/// The body of [`run`].
+#[inline(always)]
+fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
+    sc: &Scenario,
+    plan: &RunPlan,
+    source: &mut S,
+    observer: &mut O,
+) -> Result<RunResult, RunError> {
     let u_n = sc.supply.nominal_voltage_v;
     let dt = plan.dt_s;
     let t0 = plan.t_first_s;
@@ -261,7 +302,102 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
     // k as a float, counted along (exact below 2^53, as every interval index is), so that
     // the times are those of `t0 + k as f64 * dt` without converting k each interval.
     let mut kf = 0.0f64;
+    // The usual kind of run: the controller reads the supply's own P and Q (three-phase
+    // or one phase), and nothing needs the phasors or the current. Its intervals inside a
+    // solved lane take the short loop below.
+    // Steps between two lines move active power from one phase to the other, which the
+    // short loop does not add to the phases' P; such banks take the long path.
+    let line_steps = bank
+        .steps
+        .iter()
+        .any(|s| matches!(s.phase, crate::bank::StepPhase::Line(_)));
+    let usual = direct
+        && !per_phase
+        && !want_unbalance
+        && !want_current
+        && coupled.is_none()
+        && !line_steps;
     while k < n {
+        // The short loop: the intervals of the lane in hand up to the first operation,
+        // before the next fault, the end of the run, and (with blocks) the last sample of
+        // the chunk, whose promise the long path asks for. Each interval takes its
+        // sample, solution, decision and record in the same order as the long path.
+        if usual && k >= same_until && k >= buf_k && k < k_fault {
+            let i0 = (k - buf_k) as usize;
+            let lane_end = (sol_base + sol_len).min(buf_len.saturating_sub(usize::from(blocks)));
+            let i_end = lane_end
+                .min((n - buf_k) as usize)
+                .min(k_fault.saturating_sub(buf_k).min(usize::MAX as u64) as usize);
+            if i0 >= sol_base && i0 < i_end {
+                let mut i = i0;
+                while i < i_end {
+                    let t = t0 + kf * dt;
+                    let t_next = t0 + (kf + 1.0) * dt;
+                    let j = i - sol_base;
+                    let sample = &samples[i];
+                    let unsolved = lanes.unsolved[j];
+                    unsolved_n += unsolved;
+                    let p3 = sample.p_kw[0] + sample.p_kw[1] + sample.p_kw[2];
+                    let q3 = lanes.q3[j];
+                    let v_ll_max = lanes.v_ll_max[j];
+                    let (p_raw, q_raw) = match measurement {
+                        Measurement::ThreePhase => (p3, q3),
+                        Measurement::SinglePhase(ph) => (
+                            3.0 * sample.p_kw[ph],
+                            3.0 * (sample.q_kvar[ph] - lanes.q_bank[ph][j]),
+                        ),
+                    };
+                    let mask = ctl.mask();
+                    let d = ctl.decide_measured(p_raw, q_raw, v_ll_max, 0.0, thd, t_next);
+                    let fixed_q = if has_fixed && met.overcorrected(p3, q3) {
+                        fixed_output(&b_fixed, &lanes.w, j)
+                    } else {
+                        0.0
+                    };
+                    met.record(&IntervalObs {
+                        t_s: t,
+                        p_kw: [p3, sample.p_kw[0], sample.p_kw[1], sample.p_kw[2]],
+                        q_kvar: [
+                            q3,
+                            sample.q_kvar[0] - lanes.q_bank[0][j],
+                            sample.q_kvar[1] - lanes.q_bank[1][j],
+                            sample.q_kvar[2] - lanes.q_bank[2][j],
+                        ],
+                        unbalance: None,
+                        load_q_kvar: sample.q_total(),
+                        load_p_kw: p3,
+                        fixed_q_kvar: fixed_q,
+                        v_ll_min: lanes.v_ll_min[j],
+                        v_ll_max,
+                        decision: &d,
+                    });
+                    observer.interval(&IntervalRecord {
+                        k,
+                        t_s: t,
+                        load: sample,
+                        phases: &lanes.phases(j, sample),
+                        mask,
+                        decision: &d,
+                    })?;
+                    if (k + 1) % PROGRESS_EVERY == 0 {
+                        observer.progress(k + 1, n);
+                    }
+                    k += 1;
+                    kf += 1.0;
+                    i += 1;
+                    if !d.closed.or(d.opened).is_empty() {
+                        met.record_ops(k - 1, &d, t_next);
+                        set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
+                        thd = thd_of(ctl.mask());
+                        same_until = 0;
+                        // Solutions past this interval were made with the old bank.
+                        sol_len = j + 1;
+                        break;
+                    }
+                }
+                continue;
+            }
+        }
         let t = t0 + kf * dt;
         let t_next = t0 + (kf + 1.0) * dt;
         if k >= k_fault {
@@ -399,12 +535,7 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         };
         // The fixed steps' output matters only to the cause of an overcorrected interval.
         let fixed_q = if has_fixed && met.overcorrected(p3, q3) {
-            let mut f = 0.0;
-            for (b, w) in b_fixed.iter().zip(&lanes.w) {
-                let v = w[j].sqrt();
-                f += b * v * v * 1e-3;
-            }
-            f
+            fixed_output(&b_fixed, &lanes.w, j)
         } else {
             0.0
         };
@@ -412,10 +543,8 @@ pub fn run<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         // so that nothing is kept alive across the common path).
         let obs = || IntervalObs {
             t_s: t,
-            p_kw: p3,
-            q_kvar: q3,
-            p_ph_kw: p_ph,
-            q_ph_kvar: q_ph,
+            p_kw: [p3, p_ph[0], p_ph[1], p_ph[2]],
+            q_kvar: [q3, q_ph[0], q_ph[1], q_ph[2]],
             unbalance,
             load_q_kvar: sample.q_total(),
             load_p_kw: p3,
@@ -490,6 +619,17 @@ fn unbalance_of(v: &[Complex64; 3], p: &[f64; 3], q: &[f64; 3]) -> crate::metric
         s_arithmetic_kva: s.arithmetic,
         s_effective_kva: s.effective,
     }
+}
+
+/// The fixed steps' reactive output in lane entry `j`, kvar: susceptances `b_fixed` per
+/// phase (S) at the squared bus voltages `w` (V²).
+fn fixed_output(b_fixed: &[f64; 3], w: &[[f64; LANE]; 3], j: usize) -> f64 {
+    let mut f = 0.0;
+    for (b, w) in b_fixed.iter().zip(w) {
+        let v = w[j].sqrt();
+        f += b * v * v * 1e-3;
+    }
+    f
 }
 
 /// Sets the connected steps' susceptance on the bus solver in use.

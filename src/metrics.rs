@@ -1,6 +1,8 @@
 //! Run metrics: everything a run reports, accumulated interval by interval without
 //! allocating, then finished into a [`RunMetrics`] value that the report writers turn
-//! into text or JSON.
+//! into text or JSON. The three-phase supply's and each phase's registers and shares are
+//! kept side by side in four lanes, each summed in interval order; episodes and billing
+//! windows are kept out of line, for the intervals that need them.
 //!
 //! Definitions: energy PF = E_P / sqrt(E_P² + E_Q,ind²) over the import register (the
 //! billed figure, see [`BilledPf`]), with tan φ and the capacitive figures beside it; four
@@ -16,6 +18,7 @@ use crate::pf::{BilledPf, PfTarget, Quadrant};
 use crate::timebase::{Calendar, DAY_S, YEAR_S};
 use serde::Serialize;
 use std::collections::{BTreeMap, HashMap};
+use std::hash::{BuildHasherDefault, Hasher};
 
 /// Settings of the metrics.
 #[derive(Debug, Clone, PartialEq)]
@@ -42,14 +45,11 @@ pub struct MetricParams {
 pub struct IntervalObs<'a> {
     /// Start of the interval t_k, s.
     pub t_s: f64,
-    /// Three-phase supply active power, kW.
-    pub p_kw: f64,
-    /// Three-phase supply reactive power, kvar.
-    pub q_kvar: f64,
-    /// Supply active power of each phase a, b, c, kW.
-    pub p_ph_kw: [f64; 3],
-    /// Supply reactive power of each phase a, b, c, kvar.
-    pub q_ph_kvar: [f64; 3],
+    /// Supply active power, kW: the three phases together (the phases added in the
+    /// order a, b, c), then each phase a, b, c.
+    pub p_kw: [f64; 4],
+    /// Supply reactive power, kvar, in the order of `p_kw`.
+    pub q_kvar: [f64; 4],
     /// Unbalance of the interval, when the run measures it (`report.unbalance`).
     pub unbalance: Option<UnbalanceObs>,
     /// Three-phase load reactive power, kvar.
@@ -563,20 +563,76 @@ struct Registers {
 }
 
 impl Registers {
-    #[inline(always)]
-    fn add(&mut self, p: f64, q: f64, h: f64) {
-        // Without branches: the register a sign does not belong to adds zero, which
-        // leaves it as it is (registers are never −0). A product that underflows to
-        // zero adds zero either way.
-        let (ph, qh) = (p * h, q * h);
-        self.kwh_import += if p > 0.0 { ph } else { 0.0 };
-        self.kwh_export -= if p < 0.0 { ph } else { 0.0 };
-        self.kvarh_ind += if q > 0.0 { qh } else { 0.0 };
-        self.kvarh_cap -= if q < 0.0 { qh } else { 0.0 };
-    }
-
     fn billed(&self) -> BilledPf {
         BilledPf::from_registers(self.kwh_import, self.kvarh_ind, self.kvarh_cap)
+    }
+}
+
+/// The supply's four energy registers in four lanes side by side: lane 0 the three-phase
+/// supply (the billing window in progress), lanes 1 to 3 phases a, b, c (the whole run).
+/// Each lane is a plain sum in interval order, as separate registers would be, so the
+/// lanes only let the compiler add them together.
+#[derive(Debug, Clone, Copy, Default)]
+struct Lanes4 {
+    kwh_import: [f64; 4],
+    kwh_export: [f64; 4],
+    kvarh_ind: [f64; 4],
+    kvarh_cap: [f64; 4],
+}
+
+impl Lanes4 {
+    /// Adds P·h and Q·h of each lane to the register of its sign, without branches: the
+    /// register a sign does not belong to adds zero, which leaves it as it is (registers
+    /// are never −0). A product that underflows to zero adds zero either way.
+    #[inline(always)]
+    fn add(&mut self, p: &[f64; 4], q: &[f64; 4], h: f64) {
+        for i in 0..4 {
+            let (ph, qh) = (p[i] * h, q[i] * h);
+            self.kwh_import[i] += if p[i] > 0.0 { ph } else { 0.0 };
+            self.kwh_export[i] -= if p[i] < 0.0 { ph } else { 0.0 };
+            self.kvarh_ind[i] += if q[i] > 0.0 { qh } else { 0.0 };
+            self.kvarh_cap[i] -= if q[i] < 0.0 { qh } else { 0.0 };
+        }
+    }
+
+    /// The registers of lane `i`.
+    fn lane(&self, i: usize) -> Registers {
+        Registers {
+            kwh_import: self.kwh_import[i],
+            kwh_export: self.kwh_export[i],
+            kvarh_ind: self.kvarh_ind[i],
+            kvarh_cap: self.kvarh_cap[i],
+        }
+    }
+
+    /// Sets lane `i` back to zero.
+    fn clear(&mut self, i: usize) {
+        self.kwh_import[i] = 0.0;
+        self.kwh_export[i] = 0.0;
+        self.kvarh_ind[i] = 0.0;
+        self.kvarh_cap[i] = 0.0;
+    }
+}
+
+/// Hashes a bank state (a small bit set, never chosen by an adversary) with one
+/// multiplication per word, where the standard hasher takes a hundred instructions at
+/// every operation. The states reported are sorted, so the hasher changes no output.
+#[derive(Debug, Default, Clone, Copy)]
+struct StateHasher(u64);
+
+impl Hasher for StateHasher {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+
+    fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            self.write_u64(u64::from(b));
+        }
+    }
+
+    fn write_u64(&mut self, x: u64) {
+        self.0 = (self.0.rotate_left(5) ^ x).wrapping_mul(0x517C_C1B7_2722_0A95);
     }
 }
 
@@ -624,12 +680,10 @@ impl StateAcc {
     }
 }
 
-/// The per-phase accumulators of one phase.
+/// The overcorrection episodes of one phase (its registers and shares are lanes 1 to 3
+/// of [`Metrics`]' lane accumulators).
 #[derive(Debug, Clone, Copy, Default)]
 struct PhaseAcc {
-    reg: Registers,
-    under_n: u64,
-    lead_n: u64,
     /// Intervals of the open episode (0: none open).
     ep_n: u64,
     ep_worst: f64,
@@ -674,15 +728,24 @@ pub struct Metrics {
     n: u64,
     /// The registers of the billing windows closed so far, added up.
     reg: Registers,
-    /// The registers of the billing window in progress.
-    win: Registers,
+    /// Lane 0: the registers of the billing window in progress; lanes 1 to 3: each
+    /// phase's registers over the run.
+    win: Lanes4,
+    /// Intervals under target (P > 0 and Q > P·tan φ_t) and leading (Q < 0): lane 0 the
+    /// three-phase supply, lanes 1 to 3 the phases. Whole numbers (below 2^53, so exact)
+    /// kept as floating point beside the registers.
+    under_n: [f64; 4],
+    lead_n: [f64; 4],
+    /// The overcorrection threshold of each lane: the three-phase one, then a third of it
+    /// for each phase.
+    thr: [f64; 4],
+    /// An episode is open, three-phase or of a phase.
+    any_open: bool,
     win_start: f64,
     next_bill: usize,
     /// [`Metrics::bill_t`] of `next_bill`.
     next_bill_t: f64,
     billing: Vec<BillingWindow>,
-    under_n: u64,
-    lead_n: u64,
     ep: Episode,
     episodes: u64,
     ep_total_n: u64,
@@ -693,7 +756,7 @@ pub struct Metrics {
     min_ep_n: u64,
     mask: BankState,
     mask_since_k: u64,
-    state_n: HashMap<BankState, StateAcc>,
+    state_n: HashMap<BankState, StateAcc, BuildHasherDefault<StateHasher>>,
     on_since_k: Vec<u64>,
     energized_n: Vec<u64>,
     last_op_t: Vec<f64>,
@@ -724,6 +787,8 @@ impl Metrics {
         let states_cap = if n_steps >= 12 { 4096 } else { 1 << n_steps };
         let min_ep_n = (p.overcorrection_min_s / dt_s - 1e-9).ceil().max(1.0) as u64;
         let billing = Vec::with_capacity(p.billing_starts.len() + 1);
+        let t = p.overcorrection_threshold_kvar;
+        let thr = [t, t / 3.0, t / 3.0, t / 3.0];
         let next_bill_t = p
             .billing_starts
             .first()
@@ -737,13 +802,15 @@ impl Metrics {
             calendar,
             n: 0,
             reg: Registers::default(),
-            win: Registers::default(),
+            win: Lanes4::default(),
+            under_n: [0.0; 4],
+            lead_n: [0.0; 4],
+            thr,
+            any_open: false,
             win_start: t_first_s,
             next_bill: 0,
             next_bill_t,
             billing,
-            under_n: 0,
-            lead_n: 0,
             ep: Episode::default(),
             episodes: 0,
             ep_total_n: 0,
@@ -754,7 +821,7 @@ impl Metrics {
             min_ep_n,
             mask: bank.fixed_mask,
             mask_since_k: 0,
-            state_n: HashMap::with_capacity(states_cap),
+            state_n: HashMap::with_capacity_and_hasher(states_cap, BuildHasherDefault::default()),
             on_since_k: vec![0; n_steps],
             energized_n: vec![0; n_steps],
             last_op_t: vec![f64::NEG_INFINITY; n_steps],
@@ -784,83 +851,85 @@ impl Metrics {
     #[inline(always)]
     pub fn record(&mut self, o: &IntervalObs<'_>) {
         self.n += 1;
-        let (p, q) = (o.p_kw, o.q_kvar);
         if o.t_s >= self.next_bill_t {
-            self.close_window(o.t_s);
-            self.next_bill += 1;
-            self.next_bill_t = self.bill_t(self.next_bill);
+            self.next_window(o.t_s);
         }
-        self.win.add(p, q, self.h);
-        if p > 0.0 && q > p * self.tan_t {
-            self.under_n += 1;
-        }
-        if q < 0.0 {
-            self.lead_n += 1;
-        }
-        if o.v_ll_min < self.v_min {
-            self.v_min = o.v_ll_min;
-        }
-        if o.v_ll_max > self.v_max {
-            self.v_max = o.v_ll_max;
-        }
-        if o.load_q_kvar > self.load_q_max {
-            self.load_q_max = o.load_q_kvar;
-        }
-        if o.load_p_kw > self.load_p_max {
-            self.load_p_max = o.load_p_kw;
-        }
-        if o.load_p_kw < self.load_p_min {
-            self.load_p_min = o.load_p_kw;
-        }
-        if o.v_ll_max > self.v_110 {
-            self.over_110_n += 1;
-        }
-        self.record_phases(o, 1);
+        let oc = self.add_lanes(o, self.h, 1);
+        // The extremes as selects (the same comparisons, without branches).
+        let lower = |x: f64, m: f64| if x < m { x } else { m };
+        let higher = |x: f64, m: f64| if x > m { x } else { m };
+        self.v_min = lower(o.v_ll_min, self.v_min);
+        self.v_max = higher(o.v_ll_max, self.v_max);
+        self.load_q_max = higher(o.load_q_kvar, self.load_q_max);
+        self.load_p_max = higher(o.load_p_kw, self.load_p_max);
+        self.load_p_min = lower(o.load_p_kw, self.load_p_min);
         if let (Some(acc), Some(u)) = (&mut self.unbalance, &o.unbalance) {
             acc.add(u, self.calendar.epoch(o.t_s), 1, self.h);
         }
-        match self.overcorrection_cause(o) {
-            Some(cause) => {
-                if !self.ep.open {
-                    self.ep = Episode {
-                        open: true,
-                        ..Episode::default()
-                    };
-                }
-                self.ep.intervals += 1;
-                self.ep.worst = self.ep.worst.max(-q);
-                self.ep.cause_n[cause] += 1;
-                self.ep.weekday_n[self.calendar.weekday(o.t_s)] += 1;
-            }
-            None if self.ep.open => self.close_episode(),
-            None => {}
+        if oc != 0 || self.any_open {
+            let cause = if oc & 1 != 0 { self.cause(o) } else { 0 };
+            self.episodes(o.t_s, o.q_kvar, oc, cause, 1);
         }
     }
 
-    /// Adds `m` intervals of the phases of `o` (1 for [`Metrics::record`], the block's
-    /// length for [`Metrics::record_block`]). An open episode of a phase closes on an
-    /// interval in which that phase is not overcorrected, which is never inside a block.
+    /// Closes the billing window in progress at `t_s` (out of line: a few times a run).
+    #[cold]
+    #[inline(never)]
+    fn next_window(&mut self, t_s: f64) {
+        self.close_window(t_s);
+        self.next_bill += 1;
+        self.next_bill_t = self.bill_t(self.next_bill);
+    }
+
+    /// Adds `m` intervals of `o` (1 for [`Metrics::record`], the block's length for
+    /// [`Metrics::record_block`]) to the registers (each `h` hours), the shares and the
+    /// time above 110 %, the three-phase supply and the phases side by side. Returns the
+    /// lanes in which the interval is overcorrected, as bits (bit 0 the three-phase
+    /// supply, bits 1 to 3 the phases).
     #[inline(always)]
-    fn record_phases(&mut self, o: &IntervalObs<'_>, m: u64) {
-        let h = if m == 1 { self.h } else { self.h * m as f64 };
-        let thr = self.p.overcorrection_threshold_kvar / 3.0;
+    fn add_lanes(&mut self, o: &IntervalObs<'_>, h: f64, m: u64) -> u32 {
+        let (p, q) = (&o.p_kw, &o.q_kvar);
+        self.win.add(p, q, h);
         let tan_t = self.tan_t;
+        // Counted in floating point, exactly (whole numbers below 2^53), and with selects
+        // rather than branches, so that the lanes go together as the registers do.
+        let mf = m as f64;
+        for i in 0..4 {
+            let importing = if p[i] > 0.0 { mf } else { 0.0 };
+            self.under_n[i] += if q[i] > p[i] * tan_t { importing } else { 0.0 };
+            self.lead_n[i] += if q[i] < 0.0 { mf } else { 0.0 };
+        }
+        let limit: [f64; 4] = if tan_t < 0.0 {
+            std::array::from_fn(|i| p[i].abs() * tan_t - self.thr[i])
+        } else {
+            std::array::from_fn(|i| -self.thr[i])
+        };
+        if o.v_ll_max > self.v_110 {
+            self.over_110_n += m;
+        }
+        // The overcorrected lanes as bits (one comparison of the four lanes and its mask).
+        let mut oc = 0;
+        for i in 0..4 {
+            oc |= u32::from(q[i] < limit[i]) << i;
+        }
+        oc
+    }
+
+    /// The episodes of `m` intervals starting at `t_s` with supply reactive power `q`
+    /// (lanes as in [`IntervalObs`]) whose lanes `oc` are overcorrected (bits as
+    /// [`Metrics::add_lanes`] returns them; `cause` is the three-phase one when bit 0 is
+    /// set), when some lane is or an episode is open (out of line: most intervals are
+    /// neither). An open episode of a phase closes on an interval in which that phase is
+    /// not overcorrected, which is never inside a block; a block continues the
+    /// three-phase episode the interval just recorded opened or continued (its worst
+    /// value and weekday already counted).
+    #[inline(never)]
+    fn episodes(&mut self, t_s: f64, q: [f64; 4], oc: u32, cause: usize, m: u64) {
+        let q_all = q;
         for ph in 0..3 {
-            let (p, q) = (o.p_ph_kw[ph], o.q_ph_kvar[ph]);
+            let q = q_all[ph + 1];
             let a = &mut self.phase[ph];
-            a.reg.add(p, q, h);
-            if p > 0.0 && q > p * tan_t {
-                a.under_n += m;
-            }
-            if q < 0.0 {
-                a.lead_n += m;
-            }
-            let limit = if tan_t < 0.0 {
-                p.abs() * tan_t - thr
-            } else {
-                -thr
-            };
-            if q < limit {
+            if oc & (2 << ph) != 0 {
                 a.ep_n += m;
                 if -q > a.ep_worst {
                     a.ep_worst = -q;
@@ -869,6 +938,29 @@ impl Metrics {
                 a.close(self.min_ep_n);
             }
         }
+        let cause = (oc & 1 != 0).then_some(cause);
+        match cause {
+            Some(cause) if m > 1 => {
+                self.ep.intervals += m;
+                self.ep.cause_n[cause] += m;
+                self.ep.weekday_n[self.calendar.weekday(t_s)] += m;
+            }
+            Some(cause) => {
+                if !self.ep.open {
+                    self.ep = Episode {
+                        open: true,
+                        ..Episode::default()
+                    };
+                }
+                self.ep.intervals += 1;
+                self.ep.worst = self.ep.worst.max(-q_all[0]);
+                self.ep.cause_n[cause] += 1;
+                self.ep.weekday_n[self.calendar.weekday(t_s)] += 1;
+            }
+            None if self.ep.open => self.close_episode(),
+            None => {}
+        }
+        self.any_open = self.ep.open || self.phase.iter().any(|a| a.ep_n > 0);
     }
 
     /// The time from which [`Metrics::record`] closes billing window `i` (the start of
@@ -900,23 +992,18 @@ impl Metrics {
         }
     }
 
-    /// The cause (index into `CAUSES`) when the interval is overcorrected.
-    #[inline]
-    fn overcorrection_cause(&self, o: &IntervalObs<'_>) -> Option<usize> {
-        let (p, q) = (o.p_kw, o.q_kvar);
-        let limit = self.overcorrection_limit(p);
-        if q < limit {
-            Some(if p < 0.0 {
-                0
-            } else if o.load_q_kvar - o.fixed_q_kvar < limit {
-                1
-            } else if o.decision.wish < 0 {
-                2
-            } else {
-                3
-            })
+    /// The cause (index into `CAUSES`) of an interval that is overcorrected.
+    #[inline(always)]
+    fn cause(&self, o: &IntervalObs<'_>) -> usize {
+        let limit = self.overcorrection_limit(o.p_kw[0]);
+        if o.p_kw[0] < 0.0 {
+            0
+        } else if o.load_q_kvar - o.fixed_q_kvar < limit {
+            1
+        } else if o.decision.wish < 0 {
+            2
         } else {
-            None
+            3
         }
     }
 
@@ -946,30 +1033,16 @@ impl Metrics {
         if m == 0 {
             return;
         }
-        let (p, q) = (o.p_kw, o.q_kvar);
         self.n += m;
-        let h = self.h * m as f64;
-        self.win.add(p, q, h);
-        if p > 0.0 && q > p * self.tan_t {
-            self.under_n += m;
-        }
-        if q < 0.0 {
-            self.lead_n += m;
-        }
-        if o.v_ll_max > self.v_110 {
-            self.over_110_n += m;
-        }
-        self.record_phases(o, m);
+        let oc = self.add_lanes(o, self.h * m as f64, m);
         if let (Some(acc), Some(u)) = (&mut self.unbalance, &o.unbalance) {
             // The block lies in the 10-minute window of the interval just recorded.
-            acc.add(u, self.calendar.epoch(o.t_s), m, h);
+            acc.add(u, self.calendar.epoch(o.t_s), m, self.h * m as f64);
         }
         // The extremes were taken by the interval just recorded.
-        if let Some(cause) = self.overcorrection_cause(o) {
-            // The interval just recorded opened or continued the episode.
-            self.ep.intervals += m;
-            self.ep.cause_n[cause] += m;
-            self.ep.weekday_n[self.calendar.weekday(o.t_s)] += m;
+        if oc != 0 || self.any_open {
+            let cause = if oc & 1 != 0 { self.cause(o) } else { 0 };
+            self.episodes(o.t_s, o.q_kvar, oc, cause, m);
         }
     }
 
@@ -992,11 +1065,12 @@ impl Metrics {
 
     fn close_window(&mut self, t_end: f64) {
         // The run's registers are the sum of its windows' (one window: the same figures).
-        self.reg.kwh_import += self.win.kwh_import;
-        self.reg.kwh_export += self.win.kwh_export;
-        self.reg.kvarh_ind += self.win.kvarh_ind;
-        self.reg.kvarh_cap += self.win.kvarh_cap;
-        let b = self.win.billed();
+        let win = self.win.lane(0);
+        self.reg.kwh_import += win.kwh_import;
+        self.reg.kwh_export += win.kwh_export;
+        self.reg.kvarh_ind += win.kvarh_ind;
+        self.reg.kvarh_cap += win.kvarh_cap;
+        let b = win.billed();
         self.billing.push(BillingWindow {
             start_s: self.win_start,
             end_s: t_end,
@@ -1005,12 +1079,12 @@ impl Metrics {
             tan_phi: b.tan_phi,
             tan_phi_capacitive: b.tan_phi_capacitive,
             capacitive_pf: b.capacitive_pf,
-            kwh_import: self.win.kwh_import,
-            kwh_export: self.win.kwh_export,
-            kvarh_inductive: self.win.kvarh_ind,
-            kvarh_capacitive: self.win.kvarh_cap,
+            kwh_import: win.kwh_import,
+            kwh_export: win.kwh_export,
+            kvarh_inductive: win.kvarh_ind,
+            kvarh_capacitive: win.kvarh_cap,
         });
-        self.win = Registers::default();
+        self.win.clear(0);
         self.win_start = t_end;
     }
 
@@ -1074,24 +1148,25 @@ impl Metrics {
             .map(|ph| {
                 let a = &mut self.phase[ph];
                 a.close(self.min_ep_n);
-                let b = a.reg.billed();
+                let reg = self.win.lane(ph + 1);
+                let b = reg.billed();
                 PhaseMetrics {
                     phase: crate::profile::PHASES[ph],
                     energy_pf: b.energy_pf,
                     energy_pf_quadrant: b.quadrant,
                     tan_phi: b.tan_phi,
                     tan_phi_capacitive: b.tan_phi_capacitive,
-                    kwh_import: a.reg.kwh_import,
-                    kwh_export: a.reg.kwh_export,
-                    kvarh_inductive: a.reg.kvarh_ind,
-                    kvarh_capacitive: a.reg.kvarh_cap,
+                    kwh_import: reg.kwh_import,
+                    kwh_export: reg.kwh_export,
+                    kvarh_inductive: reg.kvarh_ind,
+                    kvarh_capacitive: reg.kvarh_cap,
                     share_under_target: if n > 0 {
-                        a.under_n as f64 / n as f64
+                        self.under_n[ph + 1] / n as f64
                     } else {
                         0.0
                     },
                     share_leading: if n > 0 {
-                        a.lead_n as f64 / n as f64
+                        self.lead_n[ph + 1] / n as f64
                     } else {
                         0.0
                     },
@@ -1115,7 +1190,7 @@ impl Metrics {
             self.energized_n[s - 1] += n - self.on_since_k[s - 1];
         }
         let billed = self.reg.billed();
-        let share = |c: u64| if n > 0 { c as f64 / n as f64 } else { 0.0 };
+        let share = |c: f64| if n > 0 { c / n as f64 } else { 0.0 };
         let per_year = |ops: u64| {
             if duration > 0.0 {
                 ops as f64 * YEAR_S / duration
@@ -1190,8 +1265,8 @@ impl Metrics {
                 kwh_export: self.reg.kwh_export,
                 kvarh_inductive: self.reg.kvarh_ind,
                 kvarh_capacitive: self.reg.kvarh_cap,
-                share_under_target: share(self.under_n),
-                share_leading: share(self.lead_n),
+                share_under_target: share(self.under_n[0]),
+                share_leading: share(self.lead_n[0]),
                 target: self.p.target.to_string(),
                 billing: self.billing,
             },
@@ -1286,10 +1361,8 @@ mod tests {
         let d = Decision::default();
         m.record(&IntervalObs {
             t_s,
-            p_kw,
-            q_kvar,
-            p_ph_kw: [p_kw / 3.0; 3],
-            q_ph_kvar: [q_kvar / 3.0; 3],
+            p_kw: [p_kw, p_kw / 3.0, p_kw / 3.0, p_kw / 3.0],
+            q_kvar: [q_kvar, q_kvar / 3.0, q_kvar / 3.0, q_kvar / 3.0],
             unbalance: None,
             load_q_kvar: q_kvar,
             load_p_kw: p_kw,

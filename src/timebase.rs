@@ -91,7 +91,13 @@ impl Calendar {
     /// Seconds since midnight, 0 ≤ s < 86 400.
     #[inline]
     pub fn second_of_day(&self, t_s: f64) -> f64 {
-        self.epoch(t_s).rem_euclid(DAY_S)
+        let e = self.epoch(t_s);
+        // Whole seconds from 1 up (the usual case) in integers: the remainder is exact
+        // either way, so this gives the bits `rem_euclid` gives, without its `fmod`.
+        if (1.0..9.0e15).contains(&e) && e == e.trunc() {
+            return ((e as u64) % 86_400) as f64;
+        }
+        e.rem_euclid(DAY_S)
     }
 
     /// Local calendar date and time of a run time (not for the per-sample loop).
@@ -207,6 +213,28 @@ pub fn parse_start(text: &str) -> Option<NaiveDateTime> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // The second of the day is the standard library's `rem_euclid` (the reference), bit
+    // for bit, whether it takes the whole-second path or not: whole and fractional
+    // seconds, zero of either sign, negative times, day boundaries and huge values.
+    #[test]
+    fn second_of_day_is_rem_euclid_bit_for_bit() {
+        let mut ts = vec![
+            0.0, -0.0, 0.5, 1.0, -1.0, 86_399.0, 86_400.0, 86_401.0, -86_400.0,
+        ];
+        ts.extend([1.7e9, 1.7e9 + 0.25, 8.99e15, 9.0e15, 1e17, -1.7e9, 1e-300]);
+        for i in 0..5000u64 {
+            let x = (i.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 20) as f64;
+            ts.extend([x, x + 0.1, -x, x * 86_400.0, x / 7.0]);
+        }
+        for offset in [0, 3600, -18_000] {
+            let c = Calendar::absolute_local(offset);
+            for &t in &ts {
+                let want = c.epoch(t).rem_euclid(DAY_S);
+                assert_eq!(c.second_of_day(t).to_bits(), want.to_bits(), "t = {t}");
+            }
+        }
+    }
 
     #[test]
     fn weekdays_and_months() {

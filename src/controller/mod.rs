@@ -339,15 +339,16 @@ pub struct Decision {
     pub alarm: BankState,
 }
 
-/// Moving average over a fixed number of intervals; allocates once.
+/// Moving average over a fixed number of intervals; allocates once. P and Q go side by
+/// side as pairs (the window and the sums), each summed as it would be alone.
 #[derive(Debug, Clone)]
 struct Averager {
-    p: Vec<f64>,
-    q: Vec<f64>,
+    /// The window of (P, Q) values.
+    w: Vec<[f64; 2]>,
     next: usize,
     filled: usize,
-    sum_p: f64,
-    sum_q: f64,
+    /// The sums of P and of Q over the window.
+    sum: [f64; 2],
     inv_n: f64,
     /// Bits of the latest (P, Q) pushed (0.0 before any).
     last: (u64, u64),
@@ -361,12 +362,10 @@ struct Averager {
 impl Averager {
     fn new(n: usize) -> Self {
         Averager {
-            p: vec![0.0; n],
-            q: vec![0.0; n],
+            w: vec![[0.0; 2]; n],
             next: 0,
             filled: 0,
-            sum_p: 0.0,
-            sum_q: 0.0,
+            sum: [0.0; 2],
             inv_n: 1.0 / n as f64,
             last: (0, 0),
             same: 0,
@@ -381,7 +380,7 @@ impl Averager {
     /// older values are still in the window, every push changes the mean: none.
     #[inline]
     fn quiet(&self) -> u64 {
-        let n = self.p.len();
+        let n = self.w.len();
         if self.steady {
             u64::MAX
         } else if self.same >= n {
@@ -395,7 +394,7 @@ impl Averager {
     /// values and the sums stay as they are and only the write position moves.
     #[inline]
     fn skip(&mut self, m: u64) {
-        let n = self.p.len();
+        let n = self.w.len();
         if n > 1 {
             self.next = ((self.next as u64 + m % n as u64) % n as u64) as usize;
         }
@@ -403,7 +402,7 @@ impl Averager {
 
     #[inline(always)]
     fn push(&mut self, p: f64, q: f64) -> (f64, f64) {
-        let n = self.p.len();
+        let n = self.w.len();
         if n == 1 {
             return (p, q);
         }
@@ -416,16 +415,17 @@ impl Averager {
             self.same = 1;
             self.steady = false;
         }
-        self.sum_p += p - self.p[self.next];
-        self.sum_q += q - self.q[self.next];
-        self.p[self.next] = p;
-        self.q[self.next] = q;
+        let old = self.w[self.next];
+        self.sum = [self.sum[0] + (p - old[0]), self.sum[1] + (q - old[1])];
+        self.w[self.next] = [p, q];
         self.next += 1;
         if self.next == n {
             // Resum once per window so rounding cannot build up over long runs.
             self.next = 0;
-            self.sum_p = self.p.iter().sum();
-            self.sum_q = self.q.iter().sum();
+            self.sum = [
+                self.w.iter().map(|x| x[0]).sum(),
+                self.w.iter().map(|x| x[1]).sum(),
+            ];
             // The sums of n equal values do not change when one of them is replaced by
             // itself, and the next resum gives the same sums again.
             self.steady = self.same == n;
@@ -433,9 +433,9 @@ impl Averager {
         if self.filled < n {
             self.filled += 1;
             let k = self.filled as f64;
-            return (self.sum_p / k, self.sum_q / k);
+            return (self.sum[0] / k, self.sum[1] / k);
         }
-        (self.sum_p * self.inv_n, self.sum_q * self.inv_n)
+        (self.sum[0] * self.inv_n, self.sum[1] * self.inv_n)
     }
 }
 
@@ -767,12 +767,14 @@ impl Controller {
         if wish == 0 {
             return d;
         }
-        let delay = if wish > 0 {
-            self.params.connect_delay_s
+        // The delay in whole intervals, by the same comparison (count·Δt against the delay
+        // less the tolerance, which grows with the count; the count is at least 1 here).
+        let needed = if wish > 0 {
+            self.connect_n
         } else {
-            self.params.disconnect_delay_s
+            self.disconnect_n
         };
-        if (self.count as f64) * dt < delay - TIME_EPS_S {
+        if self.count < needed {
             return d;
         }
         if !self.cap_allows(t_next) {
@@ -1030,7 +1032,7 @@ mod tests {
             a.push(0.3, -0.3);
         }
         b.skip(11);
-        assert_eq!((a.next, a.sum_p, a.sum_q), (b.next, b.sum_p, b.sum_q));
+        assert_eq!((a.next, a.sum), (b.next, b.sum));
         assert_eq!(a.push(5.0, 1.0), b.push(5.0, 1.0));
     }
 

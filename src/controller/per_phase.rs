@@ -263,6 +263,9 @@ impl Control {
 
     /// The smallest of the parts' [`Controller::quiet_after`].
     pub fn quiet_after(&self, t_next: f64) -> u64 {
+        if let [one] = self.parts.as_slice() {
+            return one.quiet_after(t_next);
+        }
         self.parts
             .iter()
             .map(|c| c.quiet_after(t_next))
@@ -272,6 +275,10 @@ impl Control {
 
     /// [`Controller::skip`] on every part.
     pub fn skip(&mut self, m: u64) {
+        if let [one] = self.parts.as_mut_slice() {
+            one.skip(m);
+            return;
+        }
         for c in &mut self.parts {
             c.skip(m);
         }

@@ -110,7 +110,8 @@
 //! nothing. The PV curve is drawn in straight one-minute pieces and skipped through the
 //! night. Noise takes six quantised normal draws from two random numbers, each looked up
 //! directly as its factor 1 + σ·x, and spell lengths use a table-based exponential (see
-//! `draws`). `sample` never allocates.
+//! `draws`). `fill` makes a chunk's load first and then draws its noise in one pass, in
+//! the order `sample` draws it. Neither allocates.
 //!
 //! Without noise, a sample that takes the running sum alone (no event inside it, the
 //! groups summed every sample shut by their gates, every PV array in its night) repeats
@@ -1023,7 +1024,7 @@ impl SyntheticProfile {
 
     /// Adds the PV output of [t0, t1) to `v`; an array in daylight marks the sample as
     /// varied.
-    #[inline]
+    #[inline(always)]
     fn add_pv(&mut self, t0: f64, t1: f64, v: &mut [f64; 6]) {
         let tm = t0 + 0.5 * self.dt;
         if tm < self.pv_idle_until {
@@ -1053,26 +1054,10 @@ impl SyntheticProfile {
         self.pv_idle_until = dark_until;
     }
 
-    /// Whether interval j would take the running sum alone, as the last sample did: it
-    /// ends no later than the next event of the running sum and of the groups summed
-    /// every sample (shut by their gates), and its midpoint falls in the PV arrays'
-    /// night. The times are those of the engine's grid, computed the same way.
-    #[inline]
-    fn quiet_at(&self, j: u64) -> bool {
-        let t0 = self.t_first + j as f64 * self.dt;
-        let t1 = t0 + self.dt;
-        let tm = t0 + 0.5 * self.dt;
-        t1 <= self.next_event
-            && t1 <= self.fast_idle_until
-            && (self.pv.is_empty() || tm < self.pv_idle_until)
-    }
-}
-
-impl LoadSource for SyntheticProfile {
-    /// Writes the mean load over [t_s, t_s + Δt). Intervals must come in order; `k` is not
-    /// used, the time is.
-    #[inline]
-    fn sample(&mut self, _k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
+    /// The mean load over [t_s, t_s + Δt) without the measurement noise,
+    /// `[Pa, Pb, Pc, Qa, Qb, Qc]`; the parts move on to t_s + Δt.
+    #[inline(always)]
+    fn clean(&mut self, t_s: f64) -> [f64; 6] {
         let t0 = t_s;
         let t1 = t_s + self.dt;
         let mut v = self.steady;
@@ -1102,6 +1087,30 @@ impl LoadSource for SyntheticProfile {
         if !self.pv.is_empty() {
             self.add_pv(t0, t1, &mut v);
         }
+        v
+    }
+
+    /// Whether interval j would take the running sum alone, as the last sample did: it
+    /// ends no later than the next event of the running sum and of the groups summed
+    /// every sample (shut by their gates), and its midpoint falls in the PV arrays'
+    /// night. The times are those of the engine's grid, computed the same way.
+    #[inline]
+    fn quiet_at(&self, j: u64) -> bool {
+        let t0 = self.t_first + j as f64 * self.dt;
+        let t1 = t0 + self.dt;
+        let tm = t0 + 0.5 * self.dt;
+        t1 <= self.next_event
+            && t1 <= self.fast_idle_until
+            && (self.pv.is_empty() || tm < self.pv_idle_until)
+    }
+}
+
+impl LoadSource for SyntheticProfile {
+    /// Writes the mean load over [t_s, t_s + Δt). Intervals must come in order; `k` is not
+    /// used, the time is.
+    #[inline]
+    fn sample(&mut self, _k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
+        let mut v = self.clean(t_s);
         if self.noise_on {
             let f = self.noise.six(&mut self.noise_rng);
             for (vi, fi) in v.iter_mut().zip(f) {
@@ -1114,7 +1123,9 @@ impl LoadSource for SyntheticProfile {
     }
 
     /// With measurement noise every sample varies, so nothing is promised and the samples
-    /// are written without asking; otherwise as the default, one `sample` at a time.
+    /// are written without asking: the load of the whole chunk first, then its noise, in
+    /// the order `sample` draws it (the noise has its own random stream, so the samples
+    /// are the same bits); otherwise as the default, one `sample` at a time.
     fn fill(
         &mut self,
         k: u64,
@@ -1123,17 +1134,32 @@ impl LoadSource for SyntheticProfile {
         out: &mut [LoadSample],
         stop_at_hold: bool,
     ) -> (usize, Option<ProfileError>) {
-        let check = stop_at_hold && !self.noise_on;
         // j as a float, counted along: exact, so the times are `t_first_s + j as f64 * dt_s`.
         let mut jf = k as f64;
+        if self.noise_on {
+            for s in out.iter_mut() {
+                let v = self.clean(t_first_s + jf * dt_s);
+                jf += 1.0;
+                s.p_kw.copy_from_slice(&v[..3]);
+                s.q_kvar.copy_from_slice(&v[3..]);
+            }
+            for s in out.iter_mut() {
+                let f = self.noise.six(&mut self.noise_rng);
+                for x in 0..3 {
+                    s.p_kw[x] *= f[x];
+                    s.q_kvar[x] *= f[x + 3];
+                }
+            }
+            return (out.len(), None);
+        }
         for (i, s) in out.iter_mut().enumerate() {
             let j = k + i as u64;
             let t_s = t_first_s + jf * dt_s;
             jf += 1.0;
-            if let Err(e) = self.sample(j, t_s, s) {
-                return (i, Some(e));
-            }
-            if check && self.unchanged_until(j) > j + 1 {
+            let v = self.clean(t_s);
+            s.p_kw.copy_from_slice(&v[..3]);
+            s.q_kvar.copy_from_slice(&v[3..]);
+            if stop_at_hold && self.unchanged_until(j) > j + 1 {
                 return (i + 1, None);
             }
         }

@@ -277,6 +277,78 @@ impl MemoryProfile {
         };
         first_interval_reaching(t0, dt, k, t_next)
     }
+
+    /// [`LoadSource::fill`] for a cursor at `at`: the same samples and the same stops as
+    /// the default. A sample that stays on its row or moves to the next takes a short
+    /// path (the same row `sample_at` finds). The promise is asked for in full only when
+    /// interval k + 1 does not reach the next row (by the comparison
+    /// [`first_interval_reaching`] makes): on data as fine as the grid, every interval
+    /// reaches the next row and nothing is promised.
+    fn fill_at(
+        &self,
+        at: &mut At,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        let on_grid = stop_at_hold && at.grid.is_some();
+        let times = &self.times;
+        let n = times.len();
+        // Held rows only (no interpolation across gaps), one sample per time.
+        let plain = self.gap_interpolation_us.is_none() && n > 0 && self.samples.len() == n;
+        // j as a float, counted along: exact, so the times are `t_first_s + j as f64 * dt_s`.
+        let mut jf = k as f64;
+        for (i, s) in out.iter_mut().enumerate() {
+            let j = k + i as u64;
+            let t_s = t_first_s + jf * dt_s;
+            jf += 1.0;
+            // The usual step, as `sample_at` takes it: inside the coverage, not back in
+            // time, and the row in force or the next one (its forward walk stopping after
+            // at most one step); anything else goes the whole way.
+            let tq = t_s + time_tolerance(t_s);
+            let idx = at.idx;
+            let step = plain && tq >= times[0] && tq < self.end_s && idx < n && times[idx] <= tq;
+            let fast = step.then(|| {
+                let ahead = |x: usize| x + 1 < n && times[x + 1] <= tq;
+                match (ahead(idx), ahead(idx + 1)) {
+                    (false, _) => Some(idx),
+                    (true, false) => Some(idx + 1),
+                    (true, true) => None,
+                }
+            });
+            if let Some(Some(x)) = fast {
+                at.idx = x;
+                *s = self.samples[x];
+            } else if let Err(e) = self.sample_at(at, t_s, s) {
+                return (i, Some(e));
+            }
+            if on_grid && self.may_hold(at, j, jf) && self.next_change(at, j) > j + 1 {
+                return (i + 1, None);
+            }
+        }
+        (out.len(), None)
+    }
+
+    /// False only when [`MemoryProfile::next_change`] after interval j is sure to be
+    /// j + 1: the grid's interval j + 1 (`j1f`, j + 1 as a float) reaches the row after
+    /// the one in force.
+    #[inline]
+    fn may_hold(&self, at: &At, j: u64, j1f: f64) -> bool {
+        let Some((t0, dt)) = at.grid else {
+            return false;
+        };
+        let t_next = match self.times.get(at.idx + 1) {
+            Some(&tb) => tb,
+            None => self.end_s,
+        };
+        // Far out on the grid the full answer may differ (it gives up past 1e15
+        // intervals); ask it there.
+        let t = t0 + j1f * dt;
+        let reaches = t_next <= t + time_tolerance(t);
+        !reaches || j >= 1 << 48
+    }
 }
 
 /// Sample-and-hold over a borrowed [`MemoryProfile`]. Moving forward costs O(1)
@@ -305,6 +377,18 @@ impl LoadSource for MemoryCursor<'_> {
 
     fn unchanged_until(&self, k: u64) -> u64 {
         self.profile.next_change(&self.at, k)
+    }
+
+    fn fill(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        self.profile
+            .fill_at(&mut self.at, k, t_first_s, dt_s, out, stop_at_hold)
     }
 }
 
@@ -338,5 +422,17 @@ impl LoadSource for SharedCursor {
 
     fn unchanged_until(&self, k: u64) -> u64 {
         self.profile.next_change(&self.at, k)
+    }
+
+    fn fill(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        out: &mut [LoadSample],
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        self.profile
+            .fill_at(&mut self.at, k, t_first_s, dt_s, out, stop_at_hold)
     }
 }
