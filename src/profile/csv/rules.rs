@@ -431,6 +431,38 @@ impl Rules {
         }
     }
 
+    /// True when the previous used row was a good row of an elapsed-time file whose
+    /// rules check every column, with no repeated hour open: then a clean row after it
+    /// by more than the tolerance is good, and committing it changes only what
+    /// [`Rules::commit_steady`] changes.
+    #[inline]
+    pub(super) fn steady(&self) -> bool {
+        self.kind == Some(TimeKind::Elapsed)
+            && !self.time_only
+            && self.has_prev
+            && self.has_good
+            && self.prev_vals_ok
+            && self.keep_values
+            && self.dst_back.is_none()
+    }
+
+    /// The previous used row's time, s (0 before the first).
+    #[inline(always)]
+    pub(super) fn prev_t(&self) -> f64 {
+        self.prev_t
+    }
+
+    /// [`Rules::commit`] of a good row at `t` on `line`, `dt` after the previous used row,
+    /// with values `s`, while [`Rules::steady`] holds (which it still does after).
+    #[inline(always)]
+    pub(super) fn commit_steady(&mut self, t: f64, line: u64, dt: f64, s: &LoadSample) {
+        self.prev_dt = dt;
+        self.prev_t = t;
+        self.prev_line = line;
+        self.prev_vals = *s;
+        self.last_good_t = t;
+    }
+
     /// The last good row's time and values, if there was one.
     #[inline]
     pub(super) fn last_good(&self) -> Option<(f64, &LoadSample)> {

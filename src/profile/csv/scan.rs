@@ -22,7 +22,7 @@ use super::rules::{self, Action, Fill, Rejection, Rules};
 use super::source::{CsvSource, RawInput, Record, RecordReader};
 use super::spacings::Spacings;
 use super::summary::{DefectSummary, Tally};
-use super::tolerance::spacing_key;
+use super::tolerance::{spacing_key, time_tolerance};
 use crate::error::ProfileError;
 use crate::profile::{DefectPolicy, LoadSample};
 use crate::scenario::hex_lower;
@@ -223,6 +223,16 @@ struct Timeline {
 }
 
 impl Timeline {
+    /// [`Timeline::add`] of a used row at `t` on `line` whose spacing from the last one has
+    /// the same bits as the spacing before (which needs at least two rows before).
+    #[inline(always)]
+    fn add_again(&mut self, t: f64, line: u64) {
+        self.spacings.add_again();
+        self.used += 1;
+        self.t_last = t;
+        self.last_line = line;
+    }
+
     /// A used row at time `t` on `line`.
     #[inline]
     fn add(&mut self, t: f64, line: u64) {
@@ -570,6 +580,9 @@ impl KeptRows {
 /// the rows kept in memory.
 struct Pass1 {
     rules: Rules,
+    /// The last row was good, in a state where [`Pass1::steady_row`] may take the next
+    /// one (set by [`Pass1::good`], cleared by [`Pass1::record`]).
+    steady: bool,
     sample: LoadSample,
     n: Counts,
     line_of_time: Timeline,
@@ -583,6 +596,7 @@ impl Pass1 {
     fn new(rules: Rules, keep_bytes: u64) -> Self {
         Pass1 {
             rules,
+            steady: false,
             sample: LoadSample::default(),
             n: Counts::default(),
             line_of_time: Timeline::default(),
@@ -615,6 +629,30 @@ impl Pass1 {
         self.rules.commit(t, line, Some(&self.sample));
         let s = self.sample;
         self.keep(t, &s);
+        self.steady =
+            self.rules.steady() && self.line_of_time.used >= 2 && self.tally.good_span_at(t);
+    }
+
+    /// A clean row (time `t` on `line`, values in column order) taken in a few stores,
+    /// when the row before was good ([`Pass1::steady`]) and this one comes the same
+    /// spacing after it, more than the tolerance: exactly what [`Pass1::good_values`]
+    /// does then, and the rules would accept it. False (and nothing done) otherwise.
+    #[inline(always)]
+    fn steady_row(&mut self, t: f64, line: u64, v: &[f64; 6]) -> bool {
+        let dt = t - self.rules.prev_t();
+        if !(self.steady && dt.to_bits() == self.line_of_time.last_dt.0 && dt > time_tolerance(t)) {
+            return false;
+        }
+        let s = LoadSample {
+            p_kw: [v[0], v[2], v[4]],
+            q_kvar: [v[1], v[3], v[5]],
+        };
+        self.line_of_time.add_again(t, line);
+        self.n.good += 1;
+        self.tally.good_again(t);
+        self.rules.commit_steady(t, line, dt, &s);
+        self.keep(t, &s);
+        true
     }
 
     /// A clean row the rules accept: time `t`, values in column order.
@@ -629,6 +667,7 @@ impl Pass1 {
 
     /// Applies the rules and the policies to one record.
     fn record<R: Record>(&mut self, rec: &R, name: &Path) -> Result<(), ProfileError> {
+        self.steady = false;
         let verdict = self.rules.check(rec, &mut self.sample);
         let line = rec.record_line();
         match self.rules.decide(verdict) {
@@ -796,7 +835,9 @@ fn fast_pass(
             let walked = walk(block, 0, lay, |r| {
                 rows += 1;
                 let l = *line + u64::from(r.lf_before);
-                if r.clean && st.rules.accepts_clean(r.t) {
+                if r.clean && st.steady_row(r.t, l, &r.v) {
+                    Ok(())
+                } else if r.clean && st.rules.accepts_clean(r.t) {
                     st.good_values(r.t, l, &r.v);
                     Ok(())
                 } else {
@@ -838,6 +879,9 @@ fn fast_pass(
             for (rows, lf) in &parsed.pieces {
                 for r in rows {
                     let l = *line + lf_done + u64::from(r.lf_before);
+                    if r.clean && st.steady_row(r.t, l, &r.v) {
+                        continue;
+                    }
                     if r.clean && st.rules.accepts_clean(r.t) {
                         st.good_values(r.t, l, &r.v);
                     } else {
