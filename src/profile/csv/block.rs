@@ -44,10 +44,9 @@ const MIN_PIECE_BYTES: usize = 64 * 1024;
 /// One line of a block: where it is, and its time and values when it is clean.
 #[derive(Debug, Clone, Copy, Default)]
 pub(super) struct Row {
-    /// Time, s (clean rows only).
-    pub(super) t: f64,
-    /// Values in column order p_a, q_a, p_b, q_b, p_c, q_c (clean rows only).
-    pub(super) v: [f64; 6],
+    /// Time, s, then the values in column order p_a, q_a, p_b, q_b, p_c, q_c (clean rows
+    /// only; the eighth is not used, so that the numbers can be stored four at a time).
+    pub(super) vals: [f64; 8],
     /// Line feeds in the block before this line.
     pub(super) lf_before: u32,
     /// Start of the line in the block, bytes.
@@ -56,6 +55,21 @@ pub(super) struct Row {
     pub(super) len: u32,
     /// The line parsed cleanly.
     pub(super) clean: bool,
+}
+
+impl Row {
+    /// Time, s (clean rows only).
+    #[inline(always)]
+    pub(super) fn t(&self) -> f64 {
+        self.vals[0]
+    }
+
+    /// Values in column order p_a, q_a, p_b, q_b, p_c, q_c (clean rows only).
+    #[inline(always)]
+    pub(super) fn v(&self) -> &[f64; 6] {
+        let [_, v @ .., _] = &self.vals;
+        v
+    }
 }
 
 /// A plain line as a record: no quotes, so the fields are the bytes between delimiters.
@@ -239,8 +253,8 @@ fn parse_line(line: &[u8], lay: &Layout, row: &mut Row) -> bool {
             return false;
         }
     }
-    row.t = t;
-    row.v.copy_from_slice(&vals[1..]);
+    row.vals[0] = t;
+    row.vals[1..7].copy_from_slice(&vals[1..]);
     true
 }
 
@@ -345,8 +359,7 @@ fn parse_line_window(
     if !within(vals[0], MAX_ELAPSED_S) || vals[1..].iter().any(|&v| !within(v, MAX_POWER)) {
         return None;
     }
-    row.t = vals[0];
-    row.v.copy_from_slice(&vals[1..]);
+    row.vals[..7].copy_from_slice(&vals);
     Some((start + end, start + lf))
 }
 
@@ -389,8 +402,7 @@ fn parse_line_quick(
     if !within(vals[0], MAX_ELAPSED_S) || vals[1..].iter().any(|&v| !within(v, MAX_POWER)) {
         return None;
     }
-    row.t = vals[0];
-    row.v.copy_from_slice(&vals[1..]);
+    row.vals[..7].copy_from_slice(&vals);
     Some((pos, lf))
 }
 
@@ -456,31 +468,29 @@ pub(super) fn walk_with<E, C: Classify>(
     let mut shape = Shape::default();
     let mut lf = 0u32;
     let mut start = 0usize;
+    let mut row = Row::default();
     while start < piece.len() {
         if let Some(c) = classify.filter(|_| lay.quick) {
             if let Some(win) = piece
                 .get(start..start + SHAPE_WINDOW)
                 .and_then(|w| <&[u8; SHAPE_WINDOW]>::try_from(w).ok())
             {
-                if let Some(l) = shape.read(c, win, lay.delimiter) {
-                    let mut vals = l.values;
+                if let Some(l) = shape.read(c, win, lay.delimiter, &mut row.vals) {
                     if !lay.in_order {
-                        for (f, &v) in l.values.iter().enumerate() {
-                            vals[usize::from(lay.column_of[f]) % 7] = v;
+                        let vals = row.vals;
+                        for (f, &v) in vals[..7].iter().enumerate() {
+                            row.vals[usize::from(lay.column_of[f]) % 8] = v;
                         }
                     }
+                    let vals = &row.vals;
                     if !l.long
                         || (within(vals[0], MAX_ELAPSED_S)
-                            && vals[1..].iter().all(|&v| within(v, MAX_POWER)))
+                            && vals[1..7].iter().all(|&v| within(v, MAX_POWER)))
                     {
-                        let row = Row {
-                            t: vals[0],
-                            v: [vals[1], vals[2], vals[3], vals[4], vals[5], vals[6]],
-                            lf_before: lf,
-                            start: (base + start) as u32,
-                            len: l.stop as u32,
-                            clean: true,
-                        };
+                        row.lf_before = lf;
+                        row.start = (base + start) as u32;
+                        row.len = l.stop as u32;
+                        row.clean = true;
                         each(&row)?;
                         lf += 1;
                         start += l.lf + 1;
@@ -646,7 +656,7 @@ mod tests {
         assert_eq!(got, want);
         let clean: Vec<bool> = rows.iter().map(|r| r.clean).collect();
         assert_eq!(clean, vec![true, false, false, true, false]);
-        assert_eq!(rows[3].v, [1000.0, -2.5, 3.0, 4.0, 5.0, 6.0]);
+        assert_eq!(*rows[3].v(), [1000.0, -2.5, 3.0, 4.0, 5.0, 6.0]);
     }
 
     // The eight-byte reading of a number against the standard library's
@@ -706,8 +716,8 @@ mod tests {
         let mut rows = Vec::new();
         let walked = walk_with(classify, text, 0, lay, |r| {
             let mut bits = [0u64; 11];
-            bits[0] = r.t.to_bits();
-            for (b, v) in bits[1..7].iter_mut().zip(&r.v) {
+            bits[0] = r.t().to_bits();
+            for (b, v) in bits[1..7].iter_mut().zip(r.v()) {
                 *b = v.to_bits();
             }
             bits[7] = u64::from(r.lf_before);
@@ -796,12 +806,12 @@ mod tests {
         let rows_one: Vec<(f64, [f64; 6], u32)> = one.pieces[0]
             .0
             .iter()
-            .map(|r| (r.t, r.v, r.start))
+            .map(|r| (r.t(), *r.v(), r.start))
             .collect();
         let rows_many: Vec<(f64, [f64; 6], u32)> = many
             .pieces
             .iter()
-            .flat_map(|(rows, _)| rows.iter().map(|r| (r.t, r.v, r.start)))
+            .flat_map(|(rows, _)| rows.iter().map(|r| (r.t(), *r.v(), r.start)))
             .collect();
         assert_eq!(rows_one, rows_many);
         let lf: u32 = many.pieces.iter().map(|p| p.1).sum();

@@ -835,10 +835,10 @@ fn fast_pass(
             let walked = walk(block, 0, lay, |r| {
                 rows += 1;
                 let l = *line + u64::from(r.lf_before);
-                if r.clean && st.steady_row(r.t, l, &r.v) {
+                if r.clean && st.steady_row(r.t(), l, r.v()) {
                     Ok(())
-                } else if r.clean && st.rules.accepts_clean(r.t) {
-                    st.good_values(r.t, l, &r.v);
+                } else if r.clean && st.rules.accepts_clean(r.t()) {
+                    st.good_values(r.t(), l, r.v());
                     Ok(())
                 } else {
                     let (a, b) = (r.start as usize, (r.start + r.len) as usize);
@@ -879,11 +879,11 @@ fn fast_pass(
             for (rows, lf) in &parsed.pieces {
                 for r in rows {
                     let l = *line + lf_done + u64::from(r.lf_before);
-                    if r.clean && st.steady_row(r.t, l, &r.v) {
+                    if r.clean && st.steady_row(r.t(), l, r.v()) {
                         continue;
                     }
-                    if r.clean && st.rules.accepts_clean(r.t) {
-                        st.good_values(r.t, l, &r.v);
+                    if r.clean && st.rules.accepts_clean(r.t()) {
+                        st.good_values(r.t(), l, r.v());
                     } else {
                         let (a, b) = (r.start as usize, (r.start + r.len) as usize);
                         let unterminated = eof && b == block.len();

@@ -43,10 +43,10 @@ pub(super) trait Classify: Copy {
     fn classify(self, bytes: &[u8; SHAPE_BYTES], delimiter: u8) -> Classes;
 
     /// The seven numbers of the line at the start of `win` (none longer than eight
-    /// bytes), read by `shape`.
+    /// bytes), read by `shape` into `out` (its eighth is left as it is or set to 0).
     #[inline(always)]
-    fn numbers(self, shape: &Shape, win: &[u8; SHAPE_WINDOW]) -> [f64; 7] {
-        shape.numbers_one_by_one(win)
+    fn numbers(self, shape: &Shape, win: &[u8; SHAPE_WINDOW], out: &mut [f64; 8]) {
+        shape.numbers_one_by_one(win, out);
     }
 }
 
@@ -187,7 +187,7 @@ mod x86 {
         /// converted and divided by their powers of ten at once (IEEE 754 division,
         /// correctly rounded in each lane as in one).
         #[inline(always)]
-        fn numbers(self, shape: &Shape, win: &[u8; SHAPE_WINDOW]) -> [f64; 7] {
+        fn numbers(self, shape: &Shape, win: &[u8; SHAPE_WINDOW], out: &mut [f64; 8]) {
             let word = |i: usize| {
                 let at = usize::from(shape.at[i]) & (SHAPE_BYTES - 1);
                 let mut w = [0u8; 8];
@@ -198,11 +198,11 @@ mod x86 {
                 [word(0), word(1), word(2), word(3)],
                 [word(4), word(5), word(6), 0],
             ];
-            let mut out = [0.0f64; 8];
             for (h, w) in words.iter().enumerate() {
                 // SAFETY: an `Avx2` exists only when `detect` found AVX2 on this
                 // processor; the loads read lanes 4h to 4h + 3 of the shape's arrays of
-                // eight, and the store writes lanes 4h to 4h + 3 of `out`, of eight.
+                // eight, and the store writes lanes 4h to 4h + 3 of `out`, of eight (as
+                // one store of 32 bytes, from which the single numbers are read back).
                 unsafe {
                     let x = _mm256_set_epi64x(w[3], w[2], w[1], w[0]);
                     let a = _mm256_xor_si256(x, _mm256_set1_epi8(b'0' as i8));
@@ -233,7 +233,6 @@ mod x86 {
                     _mm256_storeu_pd(out.as_mut_ptr().add(4 * h), v);
                 }
             }
-            [out[0], out[1], out[2], out[3], out[4], out[5], out[6]]
         }
     }
 }
@@ -293,26 +292,23 @@ impl Shape {
         f64::from_bits(v.to_bits() | self.sign[i])
     }
 
-    /// The seven numbers (all of at most eight bytes) one at a time.
+    /// The seven numbers (all of at most eight bytes) one at a time, into `out`.
     #[inline(always)]
-    pub(super) fn numbers_one_by_one(&self, win: &[u8; SHAPE_WINDOW]) -> [f64; 7] {
-        [
-            self.number(0, win),
-            self.number(1, win),
-            self.number(2, win),
-            self.number(3, win),
-            self.number(4, win),
-            self.number(5, win),
-            self.number(6, win),
-        ]
+    pub(super) fn numbers_one_by_one(&self, win: &[u8; SHAPE_WINDOW], out: &mut [f64; 8]) {
+        out[0] = self.number(0, win);
+        out[1] = self.number(1, win);
+        out[2] = self.number(2, win);
+        out[3] = self.number(3, win);
+        out[4] = self.number(4, win);
+        out[5] = self.number(5, win);
+        out[6] = self.number(6, win);
     }
 }
 
-/// A line read by its shape: its seven numbers in field order, where its line end starts
-/// (its length) and where its line feed is, from the line's start.
+/// A line read by its shape: where its line end starts (its length) and where its line
+/// feed is, from the line's start.
 #[derive(Debug, Clone, Copy)]
 pub(super) struct ShapedLine {
-    pub(super) values: [f64; 7],
     pub(super) stop: usize,
     pub(super) lf: usize,
     /// Some number is longer than eight bytes, so that it may be out of the range of
@@ -394,14 +390,16 @@ impl Shape {
     }
 
     /// Reads the line at the start of `win` by its shape (learning the shape first when
-    /// it differs from the last line's), or `None` to leave it to the byte-wise reading.
-    /// The values are exactly those of [`parse_plain_prefix`] on each field.
+    /// it differs from the last line's), its seven numbers in field order into `out`, or
+    /// `None` to leave it to the byte-wise reading (`out` may then be written). The
+    /// values are exactly those of [`parse_plain_prefix`] on each field.
     #[inline(always)]
     pub(super) fn read<C: Classify>(
         &mut self,
         classify: C,
         win: &[u8; SHAPE_WINDOW],
         delimiter: u8,
+        out: &mut [f64; 8],
     ) -> Option<ShapedLine> {
         let head: &[u8; SHAPE_BYTES] = win[..SHAPE_BYTES].try_into().ok()?;
         let c = classify.classify(head, delimiter);
@@ -422,12 +420,17 @@ impl Shape {
             c.minus & line,
             stop as u64,
         ];
-        if key != self.key && !self.learn(key) {
+        // Compared one word at a time (not as one vector, which would be read back
+        // from memory as the words are written to it, and wait for them).
+        let same = (key[0] == self.key[0])
+            & (key[1] == self.key[1])
+            & (key[2] == self.key[2])
+            & (key[3] == self.key[3]);
+        if !same && !self.learn(key) {
             return None;
         }
-        let values = if self.long != 0 {
-            let mut values = [0.0; 7];
-            for (i, v) in values.iter_mut().enumerate() {
+        if self.long != 0 {
+            for (i, v) in out[..7].iter_mut().enumerate() {
                 *v = if self.long & (1 << i) != 0 {
                     let at = usize::from(self.at[i]) & (SHAPE_BYTES - 1);
                     let (v, _) = parse_plain_prefix(&win[at..])?;
@@ -436,12 +439,10 @@ impl Shape {
                     self.number(i, win)
                 };
             }
-            values
         } else {
-            classify.numbers(self, win)
-        };
+            classify.numbers(self, win, out);
+        }
         Some(ShapedLine {
-            values,
             stop,
             lf,
             long: self.long != 0,
@@ -533,18 +534,24 @@ mod tests {
     /// The reading of `line` by each classifier this processor can run, with the shape
     /// each keeps from line to line.
     fn read_all(shapes: &mut [Shape; 3], win: &[u8; SHAPE_WINDOW]) -> Vec<Option<Vec<u64>>> {
-        let as_bits = |l: ShapedLine| {
-            let mut v: Vec<u64> = l.values.iter().map(|x| x.to_bits()).collect();
+        fn read<C: Classify>(
+            shape: &mut Shape,
+            c: C,
+            win: &[u8; SHAPE_WINDOW],
+        ) -> Option<Vec<u64>> {
+            let mut out = [f64::NAN; 8];
+            let l = shape.read(c, win, b',', &mut out)?;
+            let mut v: Vec<u64> = out[..7].iter().map(|x| x.to_bits()).collect();
             v.extend([l.stop as u64, l.lf as u64]);
-            v
-        };
+            Some(v)
+        }
         #[allow(unused_mut)]
-        let mut got = vec![shapes[0].read(Bytewise, win, b',').map(as_bits)];
+        let mut got = vec![read(&mut shapes[0], Bytewise, win)];
         #[cfg(target_arch = "x86_64")]
         {
-            got.push(shapes[1].read(Sse2, win, b',').map(as_bits));
+            got.push(read(&mut shapes[1], Sse2, win));
             if let Some(avx2) = Avx2::detect() {
-                got.push(shapes[2].read(avx2, win, b',').map(as_bits));
+                got.push(read(&mut shapes[2], avx2, win));
             }
         }
         got
