@@ -406,6 +406,22 @@ fn parse_line_quick(
     Some((pos, lf))
 }
 
+/// What takes the rows [`walk`] hands on, in order; an error stops the walk. Any
+/// `FnMut(&Row) -> Result<(), E>` does; a type of its own can have its `row` inlined
+/// into the walk (`#[inline(always)]`), which a closure cannot ask for.
+pub(super) trait Rows {
+    type Error;
+    fn row(&mut self, r: &Row) -> Result<(), Self::Error>;
+}
+
+impl<E, F: FnMut(&Row) -> Result<(), E>> Rows for F {
+    type Error = E;
+    #[inline(always)]
+    fn row(&mut self, r: &Row) -> Result<(), E> {
+        self(r)
+    }
+}
+
 /// Where [`walk`] met a doubt (a line too long or too wide for the fast path): the start
 /// of that line in the piece and the line feeds before it.
 #[derive(Debug, Clone, Copy)]
@@ -419,12 +435,12 @@ pub(super) struct Doubt {
 /// feeds in the piece, or the [`Doubt`] that stopped it (nothing of that line or after it
 /// has been handed on); an error of `each` stops it at once.
 #[inline(always)]
-pub(super) fn walk<E>(
+pub(super) fn walk<R: Rows>(
     piece: &[u8],
     base: usize,
     lay: &Layout,
-    each: impl FnMut(&Row) -> Result<(), E>,
-) -> Result<Result<u32, Doubt>, E> {
+    each: R,
+) -> Result<Result<u32, Doubt>, R::Error> {
     #[cfg(target_arch = "x86_64")]
     if lay.quick {
         if let Some(avx2) = Avx2::detect() {
@@ -445,26 +461,26 @@ pub(super) fn walk<E>(
 /// The processor must have AVX2, BMI1, BMI2 and POPCNT (as an `Avx2` shows).
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2,bmi1,bmi2,popcnt")]
-unsafe fn walk_avx2<E>(
+unsafe fn walk_avx2<R: Rows>(
     avx2: Avx2,
     piece: &[u8],
     base: usize,
     lay: &Layout,
-    each: impl FnMut(&Row) -> Result<(), E>,
-) -> Result<Result<u32, Doubt>, E> {
+    each: R,
+) -> Result<Result<u32, Doubt>, R::Error> {
     walk_with(Some(avx2), piece, base, lay, each)
 }
 
 /// [`walk`] with lines read by their shape through `classify` when it is given (and
 /// the layout is the quick one), else byte by byte.
 #[inline(always)]
-pub(super) fn walk_with<E, C: Classify>(
+pub(super) fn walk_with<R: Rows, C: Classify>(
     classify: Option<C>,
     piece: &[u8],
     base: usize,
     lay: &Layout,
-    mut each: impl FnMut(&Row) -> Result<(), E>,
-) -> Result<Result<u32, Doubt>, E> {
+    mut each: R,
+) -> Result<Result<u32, Doubt>, R::Error> {
     let mut shape = Shape::default();
     let mut lf = 0u32;
     let mut start = 0usize;
@@ -491,7 +507,7 @@ pub(super) fn walk_with<E, C: Classify>(
                         row.start = (base + start) as u32;
                         row.len = l.stop as u32;
                         row.clean = true;
-                        each(&row)?;
+                        each.row(&row)?;
                         lf += 1;
                         start += l.lf + 1;
                         continue;
@@ -510,7 +526,7 @@ pub(super) fn walk_with<E, C: Classify>(
                 .or_else(|| parse_line_quick(piece, start, lay, &mut row))
             {
                 row.len = (stop - start) as u32;
-                each(&row)?;
+                each.row(&row)?;
                 if end < piece.len() {
                     lf += 1;
                 }
@@ -540,7 +556,7 @@ pub(super) fn walk_with<E, C: Classify>(
             {
                 return Ok(Err(Doubt { at: start, lf }));
             }
-            each(&row)?;
+            each.row(&row)?;
         }
         if end < piece.len() {
             lf += 1;
@@ -553,7 +569,7 @@ pub(super) fn walk_with<E, C: Classify>(
 /// Cuts `piece` into rows appended to `rows` ([`walk`]). Returns the line feeds in the
 /// piece, or `None` for a doubt.
 fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> Option<u32> {
-    let pushed = walk(piece, base, lay, |r| {
+    let pushed = walk(piece, base, lay, |r: &Row| {
         rows.push(*r);
         Ok::<(), std::convert::Infallible>(())
     });
@@ -714,7 +730,7 @@ mod tests {
     /// The rows `walk_with` hands on, as bits, read through `classify`.
     fn rows_with<C: Classify>(text: &[u8], lay: &Layout, classify: Option<C>) -> Vec<[u64; 11]> {
         let mut rows = Vec::new();
-        let walked = walk_with(classify, text, 0, lay, |r| {
+        let walked = walk_with(classify, text, 0, lay, |r: &Row| {
             let mut bits = [0u64; 11];
             bits[0] = r.t().to_bits();
             for (b, v) in bits[1..7].iter_mut().zip(r.v()) {

@@ -6,7 +6,7 @@
 //! The later passes over a scan are [`CsvScan::stream`] (in `stream.rs`) and
 //! [`CsvScan::load`] (in `memory.rs`).
 
-use super::block::{has_doubt, walk, Layout, Parsed, PlainLine, BLOCK_BYTES};
+use super::block::{has_doubt, walk, Layout, Parsed, PlainLine, Row, Rows, BLOCK_BYTES};
 use super::defect::{
     merge_by_line, Defect, DefectAction, DefectCounts, DefectKind, MAX_DEFECTS_KEPT,
 };
@@ -746,6 +746,55 @@ impl Pass1 {
     }
 }
 
+/// The rows of a block read on one thread, each given to the rules as it is read.
+struct OneThread<'a> {
+    st: &'a mut Pass1,
+    /// Line of the block's first line.
+    line: u64,
+    /// Rows seen.
+    rows: usize,
+    block: &'a [u8],
+    /// The block ends the source.
+    eof: bool,
+    lay: &'a Layout,
+    name: &'a Path,
+}
+
+impl OneThread<'_> {
+    /// A row that is not taken the steady way, on `line`.
+    #[inline(never)]
+    fn other(&mut self, r: &Row, line: u64) -> Result<(), ProfileError> {
+        let st = &mut *self.st;
+        if r.clean && st.rules.accepts_clean(r.t()) {
+            st.good_values(r.t(), line, r.v());
+            Ok(())
+        } else {
+            let (a, b) = (r.start as usize, (r.start + r.len) as usize);
+            let unterminated = self.eof && b == self.block.len();
+            st.record(
+                &PlainLine::new(&self.block[a..b], self.lay.delimiter(), line, unterminated),
+                self.name,
+            )
+        }
+    }
+}
+
+impl Rows for &mut OneThread<'_> {
+    type Error = ProfileError;
+
+    /// Inlined into the walk: the steady rows cost no call.
+    #[inline(always)]
+    fn row(&mut self, r: &Row) -> Result<(), ProfileError> {
+        self.rows += 1;
+        let line = self.line + u64::from(r.lf_before);
+        if r.clean && self.st.steady_row(r.t(), line, r.v()) {
+            Ok(())
+        } else {
+            self.other(r, line)
+        }
+    }
+}
+
 /// After the first block of `end` bytes and `rows` rows of a source of `total_len`
 /// bytes (taken, so that this is done once): gives up keeping the rows at once when the
 /// whole source would clearly not fit the budget, so that a long profile never fills it,
@@ -831,24 +880,17 @@ fn fast_pass(
             // On one thread the rules take each row as it is parsed, with nothing kept
             // in between; a doubt hands the rest of the block, from its line, to the
             // record reader.
-            let mut rows = 0usize;
-            let walked = walk(block, 0, lay, |r| {
-                rows += 1;
-                let l = *line + u64::from(r.lf_before);
-                if r.clean && st.steady_row(r.t(), l, r.v()) {
-                    Ok(())
-                } else if r.clean && st.rules.accepts_clean(r.t()) {
-                    st.good_values(r.t(), l, r.v());
-                    Ok(())
-                } else {
-                    let (a, b) = (r.start as usize, (r.start + r.len) as usize);
-                    let unterminated = eof && b == block.len();
-                    st.record(
-                        &PlainLine::new(&block[a..b], lay.delimiter(), l, unterminated),
-                        name,
-                    )
-                }
-            })?;
+            let mut each = OneThread {
+                st: &mut *st,
+                line: *line,
+                rows: 0,
+                block,
+                eof,
+                lay,
+                name,
+            };
+            let walked = walk(block, 0, lay, &mut each)?;
+            let rows = each.rows;
             let (taken, lf_done) = match walked {
                 Ok(lf) => (end, u64::from(lf)),
                 Err(d) => (d.at, u64::from(d.lf)),
