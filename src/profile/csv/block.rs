@@ -2,10 +2,11 @@
 //! block cut into lines and its numbers parsed (in parallel pieces on several cores),
 //! before the row rules are applied to the rows one by one, in file order.
 //!
-//! Only plain text takes this path: a block holding a quote character, a carriage return
-//! that is not part of a CRLF line end, a line longer than [`MAX_PLAIN_LINE`] bytes or
-//! with more than [`MAX_PLAIN_FIELDS`] fields is a doubt, and the scan goes on from the
-//! start of that block with the record reader (`source.rs`), which handles everything.
+//! Only plain text takes this path: a line holding a quote character, a carriage return
+//! that is not part of a CRLF line end, longer than [`MAX_PLAIN_LINE`] bytes or with more
+//! than [`MAX_PLAIN_FIELDS`] fields is a doubt, and the scan goes on with the record
+//! reader (`source.rs`), which handles everything: on one thread from the start of that
+//! line (the lines before it are plain), in parallel from the start of its block.
 //! On plain text a line is exactly one record and its fields are the bytes between
 //! delimiters, as the record reader would give them, so the rules see the same records.
 //!
@@ -164,12 +165,27 @@ impl Layout {
 }
 
 /// True when `bytes` hold something the fast path leaves to the record reader: a quote,
-/// or a carriage return not followed by a line feed.
+/// or a carriage return not followed by a line feed. The walk finds the same line by
+/// line ([`line_has_doubt`]); this is the reference for the tests.
+#[cfg(test)]
 pub(super) fn has_doubt(bytes: &[u8]) -> bool {
     if memchr::memchr(b'"', bytes).is_some() {
         return true;
     }
     memchr::memchr_iter(b'\r', bytes).any(|i| bytes.get(i + 1) != Some(&b'\n'))
+}
+
+/// True when the line `raw` (its bytes up to its line feed, or to the end of the text
+/// when `has_lf` is false) holds something the fast path leaves to the record reader: a
+/// quote, or a carriage return that is not the CR of a CRLF line end. A line read by its
+/// shape, or as seven plain numbers, has neither, so only the others are looked at.
+#[inline]
+fn line_has_doubt(raw: &[u8], has_lf: bool) -> bool {
+    let body = match raw.split_last() {
+        Some((b'\r', body)) if has_lf => body,
+        _ => raw,
+    };
+    memchr::memchr2(b'"', b'\r', body).is_some()
 }
 
 /// True when `v` is a number within ±`limit` (false for NaN).
@@ -422,8 +438,9 @@ impl<E, F: FnMut(&Row) -> Result<(), E>> Rows for F {
     }
 }
 
-/// Where [`walk`] met a doubt (a line too long or too wide for the fast path): the start
-/// of that line in the piece and the line feeds before it.
+/// Where [`walk`] met a doubt (a line with a quote or a lone carriage return, or too long
+/// or too wide for the fast path): the start of that line in the piece and the line
+/// feeds before it. The lines before it are plain, and read as the record reader would.
 #[derive(Debug, Clone, Copy)]
 pub(super) struct Doubt {
     pub(super) at: usize,
@@ -535,6 +552,9 @@ pub(super) fn walk_with<R: Rows, C: Classify>(
             }
         }
         let end = memchr::memchr(b'\n', &piece[start..]).map_or(piece.len(), |e| start + e);
+        if line_has_doubt(&piece[start..end], end < piece.len()) {
+            return Ok(Err(Doubt { at: start, lf }));
+        }
         let mut stop = end;
         if stop > start && piece[stop - 1] == b'\r' {
             stop -= 1;
@@ -797,6 +817,49 @@ mod tests {
                 if let Some(avx2) = Avx2::detect() {
                     assert_eq!(want, rows_with(piece, &layout(), Some(avx2)));
                 }
+            }
+        }
+    }
+
+    // The walk stops at the first line with a quote or a lone carriage return (the
+    // reference: `has_doubt` of the text up to and including that line), and nowhere
+    // when there is none.
+    #[test]
+    fn the_walk_stops_at_the_first_doubtful_line() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(0xd0b7);
+        for _ in 0..2_000 {
+            let mut text = Vec::new();
+            for i in 0..rng.random_range(1..40) {
+                let line = match rng.random_range(0..60) {
+                    0 => format!("{i},\"1\",2,3,4,5,6\n"),
+                    1 => format!("{i},1\r2,3,4,5,6\n"),
+                    2 => format!("{i},x,2\r\n"),
+                    3 => "\r\n".to_string(),
+                    4 => format!("{i},1,2,3,4,5,6\r"),
+                    _ => format!("{i},1.5,2,3,4,5,{}\r\n", i % 7),
+                };
+                text.extend_from_slice(line.as_bytes());
+                // Lines long enough that the last ones are read byte by byte too.
+                text.extend_from_slice(format!("{i},1,2,3,4,5,6\n").as_bytes());
+            }
+            if rng.random_bool(0.5) {
+                text.pop();
+            }
+            let mut doubt_at = None;
+            let mut at = 0;
+            for line in text.split_inclusive(|&b| b == b'\n') {
+                if has_doubt(line) {
+                    doubt_at = Some(at);
+                    break;
+                }
+                at += line.len();
+            }
+            let walked = walk(&text, 0, &layout(), |_: &Row| Ok::<(), ()>(()));
+            match walked {
+                Ok(Ok(_)) => assert_eq!(doubt_at, None),
+                Ok(Err(d)) => assert_eq!(Some(d.at), doubt_at),
+                Err(()) => unreachable!(),
             }
         }
     }

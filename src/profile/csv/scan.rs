@@ -6,7 +6,7 @@
 //! The later passes over a scan are [`CsvScan::stream`] (in `stream.rs`) and
 //! [`CsvScan::load`] (in `memory.rs`).
 
-use super::block::{has_doubt, walk, Layout, Parsed, PlainLine, Row, Rows, BLOCK_BYTES};
+use super::block::{walk, Layout, Parsed, PlainLine, Row, Rows, BLOCK_BYTES};
 use super::defect::{
     merge_by_line, Defect, DefectAction, DefectCounts, DefectKind, MAX_DEFECTS_KEPT,
 };
@@ -306,7 +306,8 @@ pub fn scan_source_with(
     let mut st = Pass1::new(rules, settings.keep_bytes);
 
     // The fast path takes the plain text in blocks; the record reader goes on from where
-    // it stopped (the start of a block it had a doubt about), or from the header.
+    // it stopped (the start of a line or a block it had a doubt about), or from the
+    // header.
     let mut hasher = rdr.take_hasher();
     let (mut offset, mut line) = (rdr.offset, rdr.next_line());
     drop(rdr);
@@ -819,7 +820,8 @@ fn reserve_kept(st: &mut Pass1, total_len: &mut Option<u64>, rows: usize, end: u
 /// (line `at.1`) in blocks of plain lines, parses each block on `threads` threads and
 /// applies the rules in file order, hashing every byte it takes. Returns true when it
 /// reached the end of the source; false when it met a doubt, with `at` and `hasher` at
-/// the start of the block it left to the record reader.
+/// the start of the line (on one thread) or block (in parallel) it left to the record
+/// reader.
 fn fast_pass(
     source: &CsvSource,
     lay: &Layout,
@@ -872,10 +874,10 @@ fn fast_pass(
                 None => return Ok(false),
             }
         };
+        // A line with a quote or a lone carriage return is a doubt found by the walk:
+        // on one thread the lines before it are taken and the record reader goes on
+        // from it; in parallel the record reader takes the whole block.
         let block = &buf[..end];
-        if has_doubt(block) {
-            return Ok(false);
-        }
         if threads == 1 {
             // On one thread the rules take each row as it is parsed, with nothing kept
             // in between; a doubt hands the rest of the block, from its line, to the
