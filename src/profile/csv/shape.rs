@@ -557,8 +557,9 @@ mod tests {
         got
     }
 
-    /// The reference for a line: each field read by `parse_plain_prefix`, which must
-    /// take it whole (no plus sign); seven fields ended by LF or CRLF within 64 bytes.
+    /// The reference for a line: seven fields ended by LF or CRLF within 64 bytes, each a
+    /// plain number (`parse_plain_prefix` takes it whole, no plus sign), whose value is
+    /// the standard library's `str::parse::<f64>` of it, to the bit.
     fn reference(line: &[u8]) -> Option<Vec<u64>> {
         let stop = line.iter().position(|&b| b == b'\n' || b == b'\r')?;
         if stop >= SHAPE_BYTES {
@@ -578,7 +579,11 @@ mod tests {
         let mut out = Vec::new();
         for f in &fields {
             match parse_plain_prefix(f) {
-                Some((x, n)) if n == f.len() && !f.starts_with(b"+") => out.push(x.to_bits()),
+                Some((_, n)) if n == f.len() && !f.starts_with(b"+") => {
+                    // The value the reading must give: the standard library's.
+                    let text = std::str::from_utf8(f).ok()?;
+                    out.push(text.parse::<f64>().ok()?.to_bits());
+                }
                 _ => return None,
             }
         }
@@ -587,7 +592,7 @@ mod tests {
     }
 
     #[test]
-    fn lines_read_by_shape_as_the_plain_reading_does() {
+    fn lines_read_by_shape_as_the_standard_library_reads_them() {
         use rand::{Rng, SeedableRng};
         let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(0x5ba9e);
         let mut read = 0;
