@@ -5,15 +5,16 @@
 //! out once (where each number starts, how many digits it has, where its point is) and
 //! the lines after it that have the same shape are read without looking for anything:
 //! each number is eight bytes loaded at a known place, its point dropped with two masks,
-//! its digits turned into an integer with three multiplications and divided by the power
-//! of ten of its fraction, exactly as [`parse_plain_prefix`] does, so every value is the
-//! same to the bit.
+//! its digits turned into an integer with a few multiplications (four numbers at a time
+//! with AVX2) and divided by the power of ten of its fraction, exactly as
+//! [`parse_plain_prefix`] does, so every value is the same to the bit.
 //!
 //! Only lines of exactly seven fields, each `[-]digits[.digits]` of at most eight bytes
-//! after the sign (or up to fifteen digits, read by [`parse_plain_prefix`]), ended by a line feed or CRLF, are
-//! read here; any other line is left to the byte-wise reading in `block.rs`. The SIMD
-//! code exists for x86-64 only: SSE2 is part of every x86-64 processor, AVX2 is used when
-//! the processor reports it at run time; elsewhere the byte-wise reading does it all.
+//! after the sign (or up to fifteen digits, read by [`parse_plain_prefix`]), ended by a
+//! line feed or CRLF within 64 bytes, are read here; any other line is left to the
+//! byte-wise reading in `block.rs`. The SIMD code exists for x86-64 only: SSE2 is part of
+//! every x86-64 processor, AVX2 is used when the processor reports it at run time;
+//! elsewhere the byte-wise reading does it all.
 
 use super::number::{parse_plain_prefix, POW10};
 
