@@ -208,20 +208,63 @@ fn values_read_are_the_standard_librarys() {
         text.push('\n');
         want.push(row);
     }
-    let sc = scan_with(text.as_bytes(), &CsvOptions::default(), &fast(2)).unwrap();
-    let m = sc.memory().unwrap();
-    assert_eq!(m.len(), want.len());
-    for (s, w) in m.samples.iter().zip(&want) {
-        let got = [
-            s.p_kw[0],
-            s.q_kvar[0],
-            s.p_kw[1],
-            s.q_kvar[1],
-            s.p_kw[2],
-            s.q_kvar[2],
-        ];
-        for (g, w) in got.iter().zip(w) {
-            assert_eq!(g.to_bits(), w.to_bits(), "{g} vs {w}");
+    for threads in [1, 2] {
+        let sc = scan_with(text.as_bytes(), &CsvOptions::default(), &fast(threads)).unwrap();
+        let m = sc.memory().unwrap();
+        assert_eq!(m.len(), want.len());
+        for (s, w) in m.samples.iter().zip(&want) {
+            let got = [
+                s.p_kw[0],
+                s.q_kvar[0],
+                s.p_kw[1],
+                s.q_kvar[1],
+                s.p_kw[2],
+                s.q_kvar[2],
+            ];
+            for (g, w) in got.iter().zip(w) {
+                assert_eq!(g.to_bits(), w.to_bits(), "{g} vs {w}, {threads} threads");
+            }
+        }
+    }
+}
+
+#[test]
+fn a_number_that_ends_the_file_is_read_alike_on_every_path() {
+    // The last number ends exactly at the end of the source, with and without a final
+    // line end, and the last lines take every length from 20 to about 110 bytes, so that
+    // the reads of 8, 64 and 128 bytes from the start of a line near the end of the text
+    // meet its end at every offset. Reference: the record reader alone.
+    for pad in 0..90 {
+        for final_lf in [false, true] {
+            let mut text = String::from(HEADER);
+            for t in 0..40 {
+                text.push_str(&format!("{t},1.5,-2.25,3,4.125,5,6.5\n"));
+            }
+            for t in 40..43 {
+                text.push_str(&t.to_string());
+                for f in 0..6 {
+                    // Spread `pad` extra decimals over the six values (at most 14 each).
+                    let decimals = (pad + f) / 6 + usize::from(t == 41);
+                    text.push_str(&format!(
+                        ",{f}.{}",
+                        "37".repeat(decimals).get(..decimals).unwrap_or("")
+                    ));
+                }
+                if t < 42 || final_lf {
+                    text.push('\n');
+                }
+            }
+            let want = scan_with(text.as_bytes(), &CsvOptions::default(), &reference()).unwrap();
+            for threads in [1, 2] {
+                let got =
+                    scan_with(text.as_bytes(), &CsvOptions::default(), &fast(threads)).unwrap();
+                assert_eq!(
+                    report(&got),
+                    report(&want),
+                    "pad {pad}, final line end {final_lf}"
+                );
+                assert_eq!(**got.memory().unwrap(), want.load().unwrap(), "pad {pad}");
+            }
         }
     }
 }

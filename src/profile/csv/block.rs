@@ -2,10 +2,11 @@
 //! block cut into lines and its numbers parsed (in parallel pieces on several cores),
 //! before the row rules are applied to the rows one by one, in file order.
 //!
-//! Only plain text takes this path: a block holding a quote character, a carriage return
-//! that is not part of a CRLF line end, a line longer than [`MAX_PLAIN_LINE`] bytes or
-//! with more than [`MAX_PLAIN_FIELDS`] fields is a doubt, and the scan goes on from the
-//! start of that block with the record reader (`source.rs`), which handles everything.
+//! Only plain text takes this path: a line holding a quote character, a carriage return
+//! that is not part of a CRLF line end, longer than [`MAX_PLAIN_LINE`] bytes or with more
+//! than [`MAX_PLAIN_FIELDS`] fields is a doubt, and the scan goes on with the record
+//! reader (`source.rs`), which handles everything: on one thread from the start of that
+//! line (the lines before it are plain), in parallel from the start of its block.
 //! On plain text a line is exactly one record and its fields are the bytes between
 //! delimiters, as the record reader would give them, so the rules see the same records.
 //!
@@ -22,6 +23,9 @@ use super::number::{
     POW10_INT,
 };
 use super::rules::{MAX_ELAPSED_S, MAX_POWER};
+#[cfg(target_arch = "x86_64")]
+use super::shape::{Avx2, Sse2};
+use super::shape::{Bytewise, Classify, Shape, SHAPE_WINDOW};
 use super::source::Record;
 use rayon::prelude::*;
 
@@ -41,10 +45,9 @@ const MIN_PIECE_BYTES: usize = 64 * 1024;
 /// One line of a block: where it is, and its time and values when it is clean.
 #[derive(Debug, Clone, Copy, Default)]
 pub(super) struct Row {
-    /// Time, s (clean rows only).
-    pub(super) t: f64,
-    /// Values in column order p_a, q_a, p_b, q_b, p_c, q_c (clean rows only).
-    pub(super) v: [f64; 6],
+    /// Time, s, then the values in column order p_a, q_a, p_b, q_b, p_c, q_c (clean rows
+    /// only; the eighth is not used, so that the numbers can be stored four at a time).
+    pub(super) vals: [f64; 8],
     /// Line feeds in the block before this line.
     pub(super) lf_before: u32,
     /// Start of the line in the block, bytes.
@@ -55,6 +58,25 @@ pub(super) struct Row {
     pub(super) clean: bool,
 }
 
+impl Row {
+    /// Time, s (clean rows only).
+    #[inline(always)]
+    pub(super) fn t(&self) -> f64 {
+        self.vals[0]
+    }
+
+    /// Values in column order p_a, q_a, p_b, q_b, p_c, q_c (clean rows only).
+    #[inline(always)]
+    pub(super) fn v(&self) -> &[f64; 6] {
+        let [_, v @ .., _] = &self.vals;
+        v
+    }
+}
+
+/// Delimiters whose places a [`PlainLine`] keeps, so that its first fields are found
+/// without splitting the line again for each.
+const KEPT_DELIMITERS: usize = 8;
+
 /// A plain line as a record: no quotes, so the fields are the bytes between delimiters.
 #[derive(Debug, Clone, Copy)]
 pub(super) struct PlainLine<'a> {
@@ -63,19 +85,29 @@ pub(super) struct PlainLine<'a> {
     n: usize,
     line: u64,
     unterminated: bool,
+    /// Where the first [`KEPT_DELIMITERS`] delimiters are.
+    delimiters: [u32; KEPT_DELIMITERS],
 }
 
 impl<'a> PlainLine<'a> {
     /// The line `bytes` (without its line end), starting on `line`; `unterminated` when it
     /// is the last of the input and has no line end.
     pub(super) fn new(bytes: &'a [u8], delimiter: u8, line: u64, unterminated: bool) -> Self {
-        let n = bytes.iter().filter(|&&b| b == delimiter).count() + 1;
+        let mut delimiters = [0u32; KEPT_DELIMITERS];
+        let mut n = 1;
+        for at in memchr::memchr_iter(delimiter, bytes) {
+            if let Some(d) = delimiters.get_mut(n - 1) {
+                *d = at as u32;
+            }
+            n += 1;
+        }
         PlainLine {
             bytes,
             delimiter,
             n,
             line,
             unterminated,
+            delimiters,
         }
     }
 }
@@ -85,10 +117,27 @@ impl Record for PlainLine<'_> {
         self.n
     }
     fn field(&self, i: usize) -> &[u8] {
-        self.bytes
-            .split(|&b| b == self.delimiter)
-            .nth(i)
-            .unwrap_or(&[])
+        if i >= self.n {
+            return &[];
+        }
+        // Field i runs from after delimiter i - 1 to delimiter i (or the line's end).
+        let start = match i.checked_sub(1) {
+            None => Some(0),
+            Some(k) => self.delimiters.get(k).map(|&d| d as usize + 1),
+        };
+        let end = if i + 1 == self.n {
+            Some(self.bytes.len())
+        } else {
+            self.delimiters.get(i).map(|&d| d as usize)
+        };
+        match (start, end) {
+            (Some(a), Some(b)) => &self.bytes[a..b],
+            _ => self
+                .bytes
+                .split(|&b| b == self.delimiter)
+                .nth(i)
+                .unwrap_or(&[]),
+        }
     }
     fn record_line(&self) -> u64 {
         self.line
@@ -114,6 +163,8 @@ pub(super) struct Layout {
     /// The header is exactly the seven columns and numbers have a decimal point, so a
     /// line can be read in one sweep ([`parse_line_quick`]).
     quick: bool,
+    /// The seven fields are the columns in their usual order (time first).
+    in_order: bool,
 }
 
 impl Layout {
@@ -134,6 +185,7 @@ impl Layout {
             delimiter,
             decimal,
             quick: cols.header_fields == 7 && decimal == b'.',
+            in_order: cols.idx == [0, 1, 2, 3, 4, 5, 6],
         })
     }
 
@@ -144,12 +196,27 @@ impl Layout {
 }
 
 /// True when `bytes` hold something the fast path leaves to the record reader: a quote,
-/// or a carriage return not followed by a line feed.
+/// or a carriage return not followed by a line feed. The walk finds the same line by
+/// line ([`line_has_doubt`]); this is the reference for the tests.
+#[cfg(test)]
 pub(super) fn has_doubt(bytes: &[u8]) -> bool {
     if memchr::memchr(b'"', bytes).is_some() {
         return true;
     }
     memchr::memchr_iter(b'\r', bytes).any(|i| bytes.get(i + 1) != Some(&b'\n'))
+}
+
+/// True when the line `raw` (its bytes up to its line feed, or to the end of the text
+/// when `has_lf` is false) holds something the fast path leaves to the record reader: a
+/// quote, or a carriage return that is not the CR of a CRLF line end. A line read by its
+/// shape, or as seven plain numbers, has neither, so only the others are looked at.
+#[inline]
+fn line_has_doubt(raw: &[u8], has_lf: bool) -> bool {
+    let body = match raw.split_last() {
+        Some((b'\r', body)) if has_lf => body,
+        _ => raw,
+    };
+    memchr::memchr2(b'"', b'\r', body).is_some()
 }
 
 /// True when `v` is a number within ±`limit` (false for NaN).
@@ -181,7 +248,13 @@ fn number_at(line: &[u8], pos: usize, lay: &Layout) -> (Option<f64>, usize) {
         .iter()
         .position(|&b| b == lay.delimiter)
         .map_or(line.len(), |e| pos + e);
-    (parse_number(line[pos..end].trim_ascii(), lay.decimal), end)
+    let field = line[pos..end].trim_ascii();
+    // No number holds a colon (a date-time does): `parse_number` would refuse it, after
+    // trying every reading.
+    if memchr::memchr(b':', field).is_some() {
+        return (None, end);
+    }
+    (parse_number(field, lay.decimal), end)
 }
 
 /// Parses a line (without its line end) into `row`; false when it is not clean.
@@ -233,8 +306,8 @@ fn parse_line(line: &[u8], lay: &Layout, row: &mut Row) -> bool {
             return false;
         }
     }
-    row.t = t;
-    row.v.copy_from_slice(&vals[1..]);
+    row.vals[0] = t;
+    row.vals[1..7].copy_from_slice(&vals[1..]);
     true
 }
 
@@ -339,8 +412,7 @@ fn parse_line_window(
     if !within(vals[0], MAX_ELAPSED_S) || vals[1..].iter().any(|&v| !within(v, MAX_POWER)) {
         return None;
     }
-    row.t = vals[0];
-    row.v.copy_from_slice(&vals[1..]);
+    row.vals[..7].copy_from_slice(&vals);
     Some((start + end, start + lf))
 }
 
@@ -383,13 +455,29 @@ fn parse_line_quick(
     if !within(vals[0], MAX_ELAPSED_S) || vals[1..].iter().any(|&v| !within(v, MAX_POWER)) {
         return None;
     }
-    row.t = vals[0];
-    row.v.copy_from_slice(&vals[1..]);
+    row.vals[..7].copy_from_slice(&vals);
     Some((pos, lf))
 }
 
-/// Where [`walk`] met a doubt (a line too long or too wide for the fast path): the start
-/// of that line in the piece and the line feeds before it.
+/// What takes the rows [`walk`] hands on, in order; an error stops the walk. Any
+/// `FnMut(&Row) -> Result<(), E>` does; a type of its own can have its `row` inlined
+/// into the walk (`#[inline(always)]`), which a closure cannot ask for.
+pub(super) trait Rows {
+    type Error;
+    fn row(&mut self, r: &Row) -> Result<(), Self::Error>;
+}
+
+impl<E, F: FnMut(&Row) -> Result<(), E>> Rows for F {
+    type Error = E;
+    #[inline(always)]
+    fn row(&mut self, r: &Row) -> Result<(), E> {
+        self(r)
+    }
+}
+
+/// Where [`walk`] met a doubt (a line with a quote or a lone carriage return, or too long
+/// or too wide for the fast path): the start of that line in the piece and the line
+/// feeds before it. The lines before it are plain, and read as the record reader would.
 #[derive(Debug, Clone, Copy)]
 pub(super) struct Doubt {
     pub(super) at: usize,
@@ -401,15 +489,86 @@ pub(super) struct Doubt {
 /// feeds in the piece, or the [`Doubt`] that stopped it (nothing of that line or after it
 /// has been handed on); an error of `each` stops it at once.
 #[inline(always)]
-pub(super) fn walk<E>(
+pub(super) fn walk<R: Rows>(
     piece: &[u8],
     base: usize,
     lay: &Layout,
-    mut each: impl FnMut(&Row) -> Result<(), E>,
-) -> Result<Result<u32, Doubt>, E> {
+    each: R,
+) -> Result<Result<u32, Doubt>, R::Error> {
+    #[cfg(target_arch = "x86_64")]
+    if lay.quick {
+        if let Some(avx2) = Avx2::detect() {
+            // SAFETY: `walk_avx2` is compiled for AVX2, BMI1, BMI2 and POPCNT, which
+            // `Avx2::detect` has just found on this processor.
+            return unsafe { walk_avx2(avx2, piece, base, lay, each) };
+        }
+        return walk_with(Some(Sse2), piece, base, lay, each);
+    }
+    walk_with(None::<Bytewise>, piece, base, lay, each)
+}
+
+/// [`walk_with`] compiled for AVX2 (and BMI1, BMI2, POPCNT), so that the classes of
+/// each line are worked out 32 bytes at a time.
+///
+/// # Safety
+///
+/// The processor must have AVX2, BMI1, BMI2 and POPCNT (as an `Avx2` shows).
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2,bmi1,bmi2,popcnt")]
+unsafe fn walk_avx2<R: Rows>(
+    avx2: Avx2,
+    piece: &[u8],
+    base: usize,
+    lay: &Layout,
+    each: R,
+) -> Result<Result<u32, Doubt>, R::Error> {
+    walk_with(Some(avx2), piece, base, lay, each)
+}
+
+/// [`walk`] with lines read by their shape through `classify` when it is given (and
+/// the layout is the quick one), else byte by byte.
+#[inline(always)]
+pub(super) fn walk_with<R: Rows, C: Classify>(
+    classify: Option<C>,
+    piece: &[u8],
+    base: usize,
+    lay: &Layout,
+    mut each: R,
+) -> Result<Result<u32, Doubt>, R::Error> {
+    let mut shape = Shape::default();
     let mut lf = 0u32;
     let mut start = 0usize;
+    let mut row = Row::default();
     while start < piece.len() {
+        if let Some(c) = classify.filter(|_| lay.quick) {
+            if let Some(win) = piece
+                .get(start..start + SHAPE_WINDOW)
+                .and_then(|w| <&[u8; SHAPE_WINDOW]>::try_from(w).ok())
+            {
+                if let Some(l) = shape.read(c, win, lay.delimiter, &mut row.vals) {
+                    if !lay.in_order {
+                        let vals = row.vals;
+                        for (f, &v) in vals[..7].iter().enumerate() {
+                            row.vals[usize::from(lay.column_of[f]) % 8] = v;
+                        }
+                    }
+                    let vals = &row.vals;
+                    if !l.long
+                        || (within(vals[0], MAX_ELAPSED_S)
+                            && vals[1..7].iter().all(|&v| within(v, MAX_POWER)))
+                    {
+                        row.lf_before = lf;
+                        row.start = (base + start) as u32;
+                        row.len = l.stop as u32;
+                        row.clean = true;
+                        each.row(&row)?;
+                        lf += 1;
+                        start += l.lf + 1;
+                        continue;
+                    }
+                }
+            }
+        }
         if lay.quick {
             let mut row = Row {
                 lf_before: lf,
@@ -421,7 +580,7 @@ pub(super) fn walk<E>(
                 .or_else(|| parse_line_quick(piece, start, lay, &mut row))
             {
                 row.len = (stop - start) as u32;
-                each(&row)?;
+                each.row(&row)?;
                 if end < piece.len() {
                     lf += 1;
                 }
@@ -430,6 +589,9 @@ pub(super) fn walk<E>(
             }
         }
         let end = memchr::memchr(b'\n', &piece[start..]).map_or(piece.len(), |e| start + e);
+        if line_has_doubt(&piece[start..end], end < piece.len()) {
+            return Ok(Err(Doubt { at: start, lf }));
+        }
         let mut stop = end;
         if stop > start && piece[stop - 1] == b'\r' {
             stop -= 1;
@@ -451,7 +613,7 @@ pub(super) fn walk<E>(
             {
                 return Ok(Err(Doubt { at: start, lf }));
             }
-            each(&row)?;
+            each.row(&row)?;
         }
         if end < piece.len() {
             lf += 1;
@@ -464,7 +626,7 @@ pub(super) fn walk<E>(
 /// Cuts `piece` into rows appended to `rows` ([`walk`]). Returns the line feeds in the
 /// piece, or `None` for a doubt.
 fn parse_piece(piece: &[u8], base: usize, lay: &Layout, rows: &mut Vec<Row>) -> Option<u32> {
-    let pushed = walk(piece, base, lay, |r| {
+    let pushed = walk(piece, base, lay, |r: &Row| {
         rows.push(*r);
         Ok::<(), std::convert::Infallible>(())
     });
@@ -567,7 +729,7 @@ mod tests {
         assert_eq!(got, want);
         let clean: Vec<bool> = rows.iter().map(|r| r.clean).collect();
         assert_eq!(clean, vec![true, false, false, true, false]);
-        assert_eq!(rows[3].v, [1000.0, -2.5, 3.0, 4.0, 5.0, 6.0]);
+        assert_eq!(*rows[3].v(), [1000.0, -2.5, 3.0, 4.0, 5.0, 6.0]);
     }
 
     // The eight-byte reading of a number against the standard library's
@@ -622,6 +784,150 @@ mod tests {
         assert!(answered > 40_000, "{answered}");
     }
 
+    /// The rows `walk_with` hands on, as bits, read through `classify`.
+    fn rows_with<C: Classify>(text: &[u8], lay: &Layout, classify: Option<C>) -> Vec<[u64; 11]> {
+        let mut rows = Vec::new();
+        let walked = walk_with(classify, text, 0, lay, |r: &Row| {
+            let mut bits = [0u64; 11];
+            bits[0] = r.t().to_bits();
+            for (b, v) in bits[1..7].iter_mut().zip(r.v()) {
+                *b = v.to_bits();
+            }
+            bits[7] = u64::from(r.lf_before);
+            bits[8] = u64::from(r.start);
+            bits[9] = u64::from(r.len);
+            bits[10] = u64::from(r.clean);
+            rows.push(bits);
+            Ok::<(), std::convert::Infallible>(())
+        });
+        assert!(matches!(walked, Ok(Ok(_))));
+        rows
+    }
+
+    // Lines read by their shape (SSE2, AVX2 where the processor has it, and the
+    // byte-wise classes) give exactly the rows of the byte-wise reading: every value to
+    // the bit, the same lines, line feeds and clean flags, on lines of many shapes (signs,
+    // widths, long numbers, CRLF, defects) and up to the very end of the text, with and
+    // without a final line end.
+    #[test]
+    fn lines_read_by_shape_give_the_same_rows() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(0x5a9e_b10c);
+        let mut text = Vec::new();
+        let mut t = 0u64;
+        while text.len() < 400_000 {
+            // Runs of lines of one format, as loggers write them.
+            let decimals = rng.random_range(0..5);
+            let scale = [1.0, 100.0, 1e4, 1e7][rng.random_range(0..4)];
+            let sign = rng.random_bool(0.3);
+            for _ in 0..rng.random_range(1..200) {
+                let mut line = format!("{t}");
+                for _ in 0..6 {
+                    let mut v = scale * rng.random::<f64>();
+                    if sign && rng.random_bool(0.5) {
+                        v = -v;
+                    }
+                    line.push_str(&format!(",{v:.decimals$}"));
+                }
+                match rng.random_range(0..60) {
+                    0 => line.push_str(",1"),
+                    1 => line = line.replacen(',', ",+", 1),
+                    2 => line.push('x'),
+                    3 => line = line.replacen(',', ",1e3", 1),
+                    4 => line.push('\r'),
+                    5 => line = format!("{t},1,2"),
+                    6 => line.clear(),
+                    _ => {}
+                }
+                text.extend_from_slice(line.as_bytes());
+                text.push(b'\n');
+                t += 1;
+            }
+        }
+        for cut in [text.len(), text.len() - 1, text.len() - 7] {
+            let piece = &text[..cut];
+            let want = rows_with(piece, &layout(), None::<Bytewise>);
+            assert_eq!(want, rows_with(piece, &layout(), Some(Bytewise)));
+            #[cfg(target_arch = "x86_64")]
+            {
+                assert_eq!(want, rows_with(piece, &layout(), Some(Sse2)));
+                if let Some(avx2) = Avx2::detect() {
+                    assert_eq!(want, rows_with(piece, &layout(), Some(avx2)));
+                }
+            }
+        }
+    }
+
+    // The walk stops at the first line with a quote or a lone carriage return (the
+    // reference: `has_doubt` of the text up to and including that line), and nowhere
+    // when there is none.
+    #[test]
+    fn the_walk_stops_at_the_first_doubtful_line() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(0xd0b7);
+        for _ in 0..2_000 {
+            let mut text = Vec::new();
+            for i in 0..rng.random_range(1..40) {
+                let line = match rng.random_range(0..60) {
+                    0 => format!("{i},\"1\",2,3,4,5,6\n"),
+                    1 => format!("{i},1\r2,3,4,5,6\n"),
+                    2 => format!("{i},x,2\r\n"),
+                    3 => "\r\n".to_string(),
+                    4 => format!("{i},1,2,3,4,5,6\r"),
+                    _ => format!("{i},1.5,2,3,4,5,{}\r\n", i % 7),
+                };
+                text.extend_from_slice(line.as_bytes());
+                // Lines long enough that the last ones are read byte by byte too.
+                text.extend_from_slice(format!("{i},1,2,3,4,5,6\n").as_bytes());
+            }
+            if rng.random_bool(0.5) {
+                text.pop();
+            }
+            let mut doubt_at = None;
+            let mut at = 0;
+            for line in text.split_inclusive(|&b| b == b'\n') {
+                if has_doubt(line) {
+                    doubt_at = Some(at);
+                    break;
+                }
+                at += line.len();
+            }
+            let walked = walk(&text, 0, &layout(), |_: &Row| Ok::<(), ()>(()));
+            match walked {
+                Ok(Ok(_)) => assert_eq!(doubt_at, None),
+                Ok(Err(d)) => assert_eq!(Some(d.at), doubt_at),
+                Err(()) => unreachable!(),
+            }
+        }
+    }
+
+    // The fields of a plain line, found from the kept places of its first delimiters,
+    // are those of splitting the line at every delimiter (the reference), for lines of up
+    // to 20 fields, empty ones included.
+    #[test]
+    fn plain_line_fields_are_the_split_ones() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(0xf1e1d);
+        for _ in 0..20_000 {
+            let mut line = Vec::new();
+            for _ in 0..rng.random_range(0..60) {
+                line.push(b"0123,;. x"[rng.random_range(0..9)]);
+            }
+            for delimiter in [b',', b';'] {
+                let pl = PlainLine::new(&line, delimiter, 7, false);
+                let want: Vec<&[u8]> = line.split(|&b| b == delimiter).collect();
+                assert_eq!(pl.n_fields(), want.len());
+                for i in 0..want.len() + 2 {
+                    assert_eq!(
+                        pl.field(i),
+                        want.get(i).copied().unwrap_or(&[]),
+                        "{line:?} {i}"
+                    );
+                }
+            }
+        }
+    }
+
     #[test]
     fn quotes_and_lone_carriage_returns_are_doubts() {
         assert!(has_doubt(b"1,\"2\",3\n"));
@@ -643,12 +949,12 @@ mod tests {
         let rows_one: Vec<(f64, [f64; 6], u32)> = one.pieces[0]
             .0
             .iter()
-            .map(|r| (r.t, r.v, r.start))
+            .map(|r| (r.t(), *r.v(), r.start))
             .collect();
         let rows_many: Vec<(f64, [f64; 6], u32)> = many
             .pieces
             .iter()
-            .flat_map(|(rows, _)| rows.iter().map(|r| (r.t, r.v, r.start)))
+            .flat_map(|(rows, _)| rows.iter().map(|r| (r.t(), *r.v(), r.start)))
             .collect();
         assert_eq!(rows_one, rows_many);
         let lf: u32 = many.pieces.iter().map(|p| p.1).sum();

@@ -27,7 +27,8 @@
 //! - `block.rs`: the scan's fast path: plain text read in blocks of whole lines, the
 //!   numbers of each block parsed in pieces on rayon's threads, then the row rules
 //!   applied in file order; a quote, a lone carriage return or an overlong line sends
-//!   the scan back to the record reader from the start of that block;
+//!   the scan back to the record reader from the start of that block; `shape.rs` reads
+//!   the lines of seven plain numbers there by their shape, with SSE2 or AVX2 on x86-64;
 //! - `replay.rs`: reading the used rows again exactly as the scan did;
 //! - `stream.rs`: pass 2, [`CsvScan::stream`]: reads the source again and yields samples
 //!   on the simulation grid by sample-and-hold, applying the same rules so that it uses
@@ -76,6 +77,7 @@ mod options;
 mod replay;
 mod rules;
 mod scan;
+mod shape;
 mod source;
 mod spacings;
 mod stream;

@@ -37,6 +37,85 @@ fn iso(text: &[u8], decimal: u8) -> Option<f64> {
     }
 }
 
+/// Longest date-time [`LastIso`] keeps, bytes.
+const LAST_ISO_BYTES: usize = 40;
+
+/// The last date-time read, for [`LastIso::read`]: its text and its instant.
+#[derive(Debug, Clone, Copy)]
+struct LastIso {
+    text: [u8; LAST_ISO_BYTES],
+    len: usize,
+    t: f64,
+}
+
+impl Default for LastIso {
+    fn default() -> Self {
+        LastIso {
+            text: [0; LAST_ISO_BYTES],
+            len: 0,
+            t: 0.0,
+        }
+    }
+}
+
+/// The whole seconds of a date-time written `YYYY-MM-DDTHH:MM:SS` (or with a space for
+/// the `T`), 0 to 59, with no fraction after them; `None` for any other layout.
+fn whole_seconds(text: &[u8]) -> Option<u32> {
+    let digits = |r: std::ops::Range<usize>| {
+        text.get(r)
+            .is_some_and(|d| d.iter().all(u8::is_ascii_digit))
+    };
+    let layout = text.len() >= 19
+        && digits(0..4)
+        && text[4] == b'-'
+        && digits(5..7)
+        && text[7] == b'-'
+        && digits(8..10)
+        && matches!(text[10], b'T' | b't' | b' ')
+        && digits(11..13)
+        && text[13] == b':'
+        && digits(14..16)
+        && text[16] == b':'
+        && digits(17..19)
+        && !matches!(text.get(19), Some(b'0'..=b'9' | b'.' | b','));
+    if !layout {
+        return None;
+    }
+    let s = u32::from(text[17] - b'0') * 10 + u32::from(text[18] - b'0');
+    (s <= 59).then_some(s)
+}
+
+impl LastIso {
+    /// [`iso`] of `text`; when `text` is the last date-time read with other whole seconds
+    /// (the same date, hours, minutes and offset), its instant is the last one shifted by
+    /// the difference, which is exactly what reading it gives (whole seconds in an f64,
+    /// no leap seconds in the time line).
+    #[inline]
+    fn read(&mut self, text: &[u8], decimal: u8) -> Option<f64> {
+        let last = &self.text[..self.len];
+        // Only a text kept here (19 bytes or more) is compared.
+        if self.len >= 19
+            && self.len == text.len()
+            && text[..17] == last[..17]
+            && text[19..] == last[19..]
+        {
+            if let (Some(s), Some(s_last)) = (whole_seconds(text), whole_seconds(last)) {
+                let t = self.t + (f64::from(s) - f64::from(s_last));
+                self.text[17..19].copy_from_slice(&text[17..19]);
+                self.t = t;
+                return Some(t);
+            }
+        }
+        let t = iso(text, decimal)?;
+        if text.len() <= LAST_ISO_BYTES && whole_seconds(text).is_some() {
+            self.text[..text.len()].copy_from_slice(text);
+            self.len = text.len();
+            self.t = t;
+        }
+        Some(t)
+    }
+}
+
 /// [`iso`] with the UTC offset written on the time, in seconds east of UTC (`None` for a
 /// naive time).
 fn iso_offset(text: &[u8], decimal: u8) -> Option<(f64, Option<i32>)> {
@@ -228,6 +307,9 @@ pub(super) struct Rules {
     pub(super) keep_values: bool,
     /// An hour repeated by a daylight-saving change: it ends at this time; found at this line.
     dst_back: Option<(f64, u64)>,
+    /// The last date-time read in full or shifted, so that the next one that differs
+    /// only in its seconds is not read again.
+    last_iso: LastIso,
 }
 
 impl Rules {
@@ -259,6 +341,7 @@ impl Rules {
             has_good: false,
             keep_values: true,
             dst_back: None,
+            last_iso: LastIso::default(),
         }
     }
 
@@ -431,6 +514,38 @@ impl Rules {
         }
     }
 
+    /// True when the previous used row was a good row of an elapsed-time file whose
+    /// rules check every column, with no repeated hour open: then a clean row after it
+    /// by more than the tolerance is good, and committing it changes only what
+    /// [`Rules::commit_steady`] changes.
+    #[inline]
+    pub(super) fn steady(&self) -> bool {
+        self.kind == Some(TimeKind::Elapsed)
+            && !self.time_only
+            && self.has_prev
+            && self.has_good
+            && self.prev_vals_ok
+            && self.keep_values
+            && self.dst_back.is_none()
+    }
+
+    /// The previous used row's time, s (0 before the first).
+    #[inline(always)]
+    pub(super) fn prev_t(&self) -> f64 {
+        self.prev_t
+    }
+
+    /// [`Rules::commit`] of a good row at `t` on `line`, `dt` after the previous used row,
+    /// with values `s`, while [`Rules::steady`] holds (which it still does after).
+    #[inline(always)]
+    pub(super) fn commit_steady(&mut self, t: f64, line: u64, dt: f64, s: &LoadSample) {
+        self.prev_dt = dt;
+        self.prev_t = t;
+        self.prev_line = line;
+        self.prev_vals = *s;
+        self.last_good_t = t;
+    }
+
     /// The last good row's time and values, if there was one.
     #[inline]
     pub(super) fn last_good(&self) -> Option<(f64, &LoadSample)> {
@@ -455,7 +570,7 @@ impl Rules {
                 None if iso(text, self.decimal).is_some() => Err(Problem::KindMismatch),
                 None => Err(Problem::Malformed(0)),
             },
-            Some(TimeKind::Absolute) => match iso(text, self.decimal) {
+            Some(TimeKind::Absolute) => match self.last_iso.read(text, self.decimal) {
                 Some(t) => Ok(t),
                 None if parse_number(text, self.decimal).is_some() => Err(Problem::KindMismatch),
                 None => Err(Problem::Malformed(0)),
@@ -723,6 +838,55 @@ impl Rules {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // A date-time that differs from the last one only in its whole seconds gets the
+    // instant the full reading gives (the reference: `iso`), on every second of two
+    // days, with and without offsets, and not for other layouts.
+    #[test]
+    fn shifted_seconds_read_as_the_full_reading() {
+        let mut last = LastIso::default();
+        let mut shifted = 0;
+        for day in ["2026-03-29", "2026-10-25"] {
+            for suffix in ["Z", "+01:00", "-0500", "", "+02"] {
+                for sep in ["T", " "] {
+                    for k in (0..86_400).step_by(7) {
+                        let text = format!(
+                            "{day}{sep}{:02}:{:02}:{:02}{suffix}",
+                            k / 3600,
+                            k / 60 % 60,
+                            k % 60
+                        );
+                        let before = last.len;
+                        let got = last.read(text.as_bytes(), b'.');
+                        assert_eq!(got, iso(text.as_bytes(), b'.'), "{text}");
+                        shifted += usize::from(before == text.len() && got.is_some());
+                    }
+                }
+            }
+        }
+        assert!(shifted > 50_000, "{shifted}");
+        for text in [
+            "2026-03-29T10:00:00.5Z",
+            "2026-03-29T10:00:01.5Z",
+            "2026-03-29T10:00:60Z",
+            "",
+            "7",
+            "2026-03-29T10:00",
+            "2026-03-29T10:00:0",
+            "2026-03-29T10:00:07Z",
+            "2026-03-29T10:00:0xZ",
+            "2026-03-29T10:00:08\u{e9}",
+        ] {
+            assert_eq!(
+                last.read(text.as_bytes(), b'.'),
+                iso(text.as_bytes(), b'.'),
+                "{text}"
+            );
+        }
+        assert_eq!(whole_seconds(b"2026-03-29T10:00:07,5"), None);
+        assert_eq!(whole_seconds(b"2026-03-29T10:00"), None);
+        assert_eq!(whole_seconds(b"2026-03-29 10:00:07+01:00"), Some(7));
+    }
 
     #[test]
     fn offsets_and_plausible_dates() {

@@ -6,7 +6,7 @@
 //! The later passes over a scan are [`CsvScan::stream`] (in `stream.rs`) and
 //! [`CsvScan::load`] (in `memory.rs`).
 
-use super::block::{has_doubt, walk, Layout, Parsed, PlainLine, BLOCK_BYTES};
+use super::block::{walk, Layout, Parsed, PlainLine, Row, Rows, BLOCK_BYTES};
 use super::defect::{
     merge_by_line, Defect, DefectAction, DefectCounts, DefectKind, MAX_DEFECTS_KEPT,
 };
@@ -22,7 +22,7 @@ use super::rules::{self, Action, Fill, Rejection, Rules};
 use super::source::{CsvSource, RawInput, Record, RecordReader};
 use super::spacings::Spacings;
 use super::summary::{DefectSummary, Tally};
-use super::tolerance::spacing_key;
+use super::tolerance::{spacing_key, time_tolerance};
 use crate::error::ProfileError;
 use crate::profile::{DefectPolicy, LoadSample};
 use crate::scenario::hex_lower;
@@ -223,6 +223,16 @@ struct Timeline {
 }
 
 impl Timeline {
+    /// [`Timeline::add`] of a used row at `t` on `line` whose spacing from the last one has
+    /// the same bits as the spacing before (which needs at least two rows before).
+    #[inline(always)]
+    fn add_again(&mut self, t: f64, line: u64) {
+        self.spacings.add_again();
+        self.used += 1;
+        self.t_last = t;
+        self.last_line = line;
+    }
+
     /// A used row at time `t` on `line`.
     #[inline]
     fn add(&mut self, t: f64, line: u64) {
@@ -296,7 +306,8 @@ pub fn scan_source_with(
     let mut st = Pass1::new(rules, settings.keep_bytes);
 
     // The fast path takes the plain text in blocks; the record reader goes on from where
-    // it stopped (the start of a block it had a doubt about), or from the header.
+    // it stopped (the start of a line or a block it had a doubt about), or from the
+    // header.
     let mut hasher = rdr.take_hasher();
     let (mut offset, mut line) = (rdr.offset, rdr.next_line());
     drop(rdr);
@@ -570,6 +581,9 @@ impl KeptRows {
 /// the rows kept in memory.
 struct Pass1 {
     rules: Rules,
+    /// The last row was good, in a state where [`Pass1::steady_row`] may take the next
+    /// one (set by [`Pass1::good`], cleared by [`Pass1::record`]).
+    steady: bool,
     sample: LoadSample,
     n: Counts,
     line_of_time: Timeline,
@@ -583,6 +597,7 @@ impl Pass1 {
     fn new(rules: Rules, keep_bytes: u64) -> Self {
         Pass1 {
             rules,
+            steady: false,
             sample: LoadSample::default(),
             n: Counts::default(),
             line_of_time: Timeline::default(),
@@ -615,6 +630,30 @@ impl Pass1 {
         self.rules.commit(t, line, Some(&self.sample));
         let s = self.sample;
         self.keep(t, &s);
+        self.steady =
+            self.rules.steady() && self.line_of_time.used >= 2 && self.tally.good_span_at(t);
+    }
+
+    /// A clean row (time `t` on `line`, values in column order) taken in a few stores,
+    /// when the row before was good ([`Pass1::steady`]) and this one comes the same
+    /// spacing after it, more than the tolerance: exactly what [`Pass1::good_values`]
+    /// does then, and the rules would accept it. False (and nothing done) otherwise.
+    #[inline(always)]
+    fn steady_row(&mut self, t: f64, line: u64, v: &[f64; 6]) -> bool {
+        let dt = t - self.rules.prev_t();
+        if !(self.steady && dt.to_bits() == self.line_of_time.last_dt.0 && dt > time_tolerance(t)) {
+            return false;
+        }
+        let s = LoadSample {
+            p_kw: [v[0], v[2], v[4]],
+            q_kvar: [v[1], v[3], v[5]],
+        };
+        self.line_of_time.add_again(t, line);
+        self.n.good += 1;
+        self.tally.good_again(t);
+        self.rules.commit_steady(t, line, dt, &s);
+        self.keep(t, &s);
+        true
     }
 
     /// A clean row the rules accept: time `t`, values in column order.
@@ -629,6 +668,7 @@ impl Pass1 {
 
     /// Applies the rules and the policies to one record.
     fn record<R: Record>(&mut self, rec: &R, name: &Path) -> Result<(), ProfileError> {
+        self.steady = false;
         let verdict = self.rules.check(rec, &mut self.sample);
         let line = rec.record_line();
         match self.rules.decide(verdict) {
@@ -707,6 +747,55 @@ impl Pass1 {
     }
 }
 
+/// The rows of a block read on one thread, each given to the rules as it is read.
+struct OneThread<'a> {
+    st: &'a mut Pass1,
+    /// Line of the block's first line.
+    line: u64,
+    /// Rows seen.
+    rows: usize,
+    block: &'a [u8],
+    /// The block ends the source.
+    eof: bool,
+    lay: &'a Layout,
+    name: &'a Path,
+}
+
+impl OneThread<'_> {
+    /// A row that is not taken the steady way, on `line`.
+    #[inline(never)]
+    fn other(&mut self, r: &Row, line: u64) -> Result<(), ProfileError> {
+        let st = &mut *self.st;
+        if r.clean && st.rules.accepts_clean(r.t()) {
+            st.good_values(r.t(), line, r.v());
+            Ok(())
+        } else {
+            let (a, b) = (r.start as usize, (r.start + r.len) as usize);
+            let unterminated = self.eof && b == self.block.len();
+            st.record(
+                &PlainLine::new(&self.block[a..b], self.lay.delimiter(), line, unterminated),
+                self.name,
+            )
+        }
+    }
+}
+
+impl Rows for &mut OneThread<'_> {
+    type Error = ProfileError;
+
+    /// Inlined into the walk: the steady rows cost no call.
+    #[inline(always)]
+    fn row(&mut self, r: &Row) -> Result<(), ProfileError> {
+        self.rows += 1;
+        let line = self.line + u64::from(r.lf_before);
+        if r.clean && self.st.steady_row(r.t(), line, r.v()) {
+            Ok(())
+        } else {
+            self.other(r, line)
+        }
+    }
+}
+
 /// After the first block of `end` bytes and `rows` rows of a source of `total_len`
 /// bytes (taken, so that this is done once): gives up keeping the rows at once when the
 /// whole source would clearly not fit the budget, so that a long profile never fills it,
@@ -731,7 +820,8 @@ fn reserve_kept(st: &mut Pass1, total_len: &mut Option<u64>, rows: usize, end: u
 /// (line `at.1`) in blocks of plain lines, parses each block on `threads` threads and
 /// applies the rules in file order, hashing every byte it takes. Returns true when it
 /// reached the end of the source; false when it met a doubt, with `at` and `hasher` at
-/// the start of the block it left to the record reader.
+/// the start of the line (on one thread) or block (in parallel) it left to the record
+/// reader.
 fn fast_pass(
     source: &CsvSource,
     lay: &Layout,
@@ -784,30 +874,25 @@ fn fast_pass(
                 None => return Ok(false),
             }
         };
+        // A line with a quote or a lone carriage return is a doubt found by the walk:
+        // on one thread the lines before it are taken and the record reader goes on
+        // from it; in parallel the record reader takes the whole block.
         let block = &buf[..end];
-        if has_doubt(block) {
-            return Ok(false);
-        }
         if threads == 1 {
             // On one thread the rules take each row as it is parsed, with nothing kept
             // in between; a doubt hands the rest of the block, from its line, to the
             // record reader.
-            let mut rows = 0usize;
-            let walked = walk(block, 0, lay, |r| {
-                rows += 1;
-                let l = *line + u64::from(r.lf_before);
-                if r.clean && st.rules.accepts_clean(r.t) {
-                    st.good_values(r.t, l, &r.v);
-                    Ok(())
-                } else {
-                    let (a, b) = (r.start as usize, (r.start + r.len) as usize);
-                    let unterminated = eof && b == block.len();
-                    st.record(
-                        &PlainLine::new(&block[a..b], lay.delimiter(), l, unterminated),
-                        name,
-                    )
-                }
-            })?;
+            let mut each = OneThread {
+                st: &mut *st,
+                line: *line,
+                rows: 0,
+                block,
+                eof,
+                lay,
+                name,
+            };
+            let walked = walk(block, 0, lay, &mut each)?;
+            let rows = each.rows;
             let (taken, lf_done) = match walked {
                 Ok(lf) => (end, u64::from(lf)),
                 Err(d) => (d.at, u64::from(d.lf)),
@@ -838,8 +923,11 @@ fn fast_pass(
             for (rows, lf) in &parsed.pieces {
                 for r in rows {
                     let l = *line + lf_done + u64::from(r.lf_before);
-                    if r.clean && st.rules.accepts_clean(r.t) {
-                        st.good_values(r.t, l, &r.v);
+                    if r.clean && st.steady_row(r.t(), l, r.v()) {
+                        continue;
+                    }
+                    if r.clean && st.rules.accepts_clean(r.t()) {
+                        st.good_values(r.t(), l, r.v());
                     } else {
                         let (a, b) = (r.start as usize, (r.start + r.len) as usize);
                         let unterminated = eof && b == block.len();

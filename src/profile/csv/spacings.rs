@@ -51,6 +51,13 @@ impl Spacings {
         }
     }
 
+    /// [`Spacings::add`] of the same key as the last one added.
+    #[inline(always)]
+    pub(super) fn add_again(&mut self) {
+        self.n += 1;
+        self.run_len += 1;
+    }
+
     fn bin(&self, key: i64) -> i64 {
         key.div_euclid(self.res_us)
     }

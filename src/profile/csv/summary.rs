@@ -249,6 +249,19 @@ impl Tally {
         self.span = Some((t, owner));
     }
 
+    /// True when the span of profile time open is that of a good row at `t`: then
+    /// [`Tally::timed`] of a good row after it only moves the span to it.
+    #[inline]
+    pub(super) fn good_span_at(&self, t: f64) -> bool {
+        matches!(self.span, Some((t0, None)) if t0.to_bits() == t.to_bits())
+    }
+
+    /// [`Tally::timed`] of a good row at `t` while the span open is a good row's before it.
+    #[inline(always)]
+    pub(super) fn good_again(&mut self, t: f64) {
+        self.span = Some((t, None));
+    }
+
     /// A left-out row with no place in the time line.
     pub(super) fn untimed(&mut self, kind: DefectKind) {
         match kind {
