@@ -14,6 +14,7 @@ use super::tolerance::{is_gap, time_tolerance};
 use crate::error::ProfileError;
 use crate::profile::{LoadSample, LoadSource};
 use crate::timebase::TimeKind;
+use std::ops::Deref;
 use std::path::PathBuf;
 use std::sync::Arc;
 
@@ -152,7 +153,7 @@ impl MemoryProfile {
 
     /// A sample-and-hold source over this profile. Cursors are cheap; make one per run.
     pub fn cursor(&self) -> MemoryCursor<'_> {
-        MemoryCursor {
+        Cursor {
             profile: self,
             at: At::default(),
         }
@@ -160,7 +161,7 @@ impl MemoryProfile {
 
     /// A sample-and-hold source sharing this profile, for a run that must own its source.
     pub fn shared_cursor(self: &Arc<Self>) -> SharedCursor {
-        SharedCursor {
+        Cursor {
             profile: Arc::clone(self),
             at: At::default(),
         }
@@ -351,56 +352,23 @@ impl MemoryProfile {
     }
 }
 
-/// Sample-and-hold over a borrowed [`MemoryProfile`]. Moving forward costs O(1)
-/// amortised per row passed; asking for an earlier time than the last is allowed and
-/// costs a binary search.
+/// Sample-and-hold over a [`MemoryProfile`] reached through `P`: a borrow
+/// ([`MemoryCursor`]) or an `Arc` ([`SharedCursor`], for a source that must own what it
+/// reads, such as a study's runs). Moving forward costs O(1) amortised per row passed;
+/// asking for an earlier time than the last is allowed and costs a binary search.
 #[derive(Debug, Clone)]
-pub struct MemoryCursor<'a> {
-    profile: &'a MemoryProfile,
+pub struct Cursor<P> {
+    profile: P,
     at: At,
 }
 
-impl MemoryCursor<'_> {
-    /// Tells the cursor the run's grid t_k = `t_first_s` + k·`dt_s` (s), so that
-    /// [`LoadSource::unchanged_until`] can promise the intervals until the next row.
-    pub fn on_grid(mut self, t_first_s: f64, dt_s: f64) -> Self {
-        self.at.grid = Some((t_first_s, dt_s));
-        self
-    }
-}
+/// A cursor borrowing its profile.
+pub type MemoryCursor<'a> = Cursor<&'a MemoryProfile>;
 
-impl LoadSource for MemoryCursor<'_> {
-    #[inline]
-    fn sample(&mut self, _k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
-        self.profile.sample_at(&mut self.at, t_s, out)
-    }
+/// A cursor sharing its profile through an `Arc`.
+pub type SharedCursor = Cursor<Arc<MemoryProfile>>;
 
-    fn unchanged_until(&self, k: u64) -> u64 {
-        self.profile.next_change(&self.at, k)
-    }
-
-    fn fill(
-        &mut self,
-        k: u64,
-        t_first_s: f64,
-        dt_s: f64,
-        out: &mut [LoadSample],
-        stop_at_hold: bool,
-    ) -> (usize, Option<ProfileError>) {
-        self.profile
-            .fill_at(&mut self.at, k, t_first_s, dt_s, out, stop_at_hold)
-    }
-}
-
-/// Sample-and-hold over a [`MemoryProfile`] shared through an `Arc`: the same as
-/// [`MemoryCursor`], for a source that must own what it reads (a study's runs).
-#[derive(Debug, Clone)]
-pub struct SharedCursor {
-    profile: Arc<MemoryProfile>,
-    at: At,
-}
-
-impl SharedCursor {
+impl<P: Deref<Target = MemoryProfile>> Cursor<P> {
     /// Tells the cursor the run's grid t_k = `t_first_s` + k·`dt_s` (s), so that
     /// [`LoadSource::unchanged_until`] can promise the intervals until the next row.
     pub fn on_grid(mut self, t_first_s: f64, dt_s: f64) -> Self {
@@ -409,12 +377,12 @@ impl SharedCursor {
     }
 
     /// The profile read.
-    pub fn profile(&self) -> &Arc<MemoryProfile> {
+    pub fn profile(&self) -> &P {
         &self.profile
     }
 }
 
-impl LoadSource for SharedCursor {
+impl<P: Deref<Target = MemoryProfile>> LoadSource for Cursor<P> {
     #[inline]
     fn sample(&mut self, _k: u64, t_s: f64, out: &mut LoadSample) -> Result<(), ProfileError> {
         self.profile.sample_at(&mut self.at, t_s, out)

@@ -89,7 +89,7 @@ mod tolerance;
 
 pub use defect::{Defect, DefectAction, DefectCounts, DefectKind, MAX_DEFECTS_KEPT};
 pub use header::{ColumnMatch, COLUMNS};
-pub use memory::{MemoryCursor, MemoryProfile, SharedCursor};
+pub use memory::{Cursor, MemoryCursor, MemoryProfile, SharedCursor};
 pub use options::{CsvOptions, OptionError};
 pub use rules::{MAX_ELAPSED_S, MAX_POWER};
 pub use scan::{
