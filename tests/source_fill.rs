@@ -133,7 +133,8 @@ fn fill_equals_one_sample_at_a_time_across_gaps() {
     }
 }
 
-/// A plant-like generator section (invented figures): machines, welders, PV with clouds.
+/// A plant-like generator section (invented figures): machines, two welder groups (one
+/// running in a window of its own), two PV arrays (one with clouds).
 const PLANT: &str = r#"
 [[steps]]
 kvar = 50
@@ -165,16 +166,29 @@ pf = 0.6
 phase = "ab"
 burst_s = 2
 pause_s = 8
+[[load.synthetic.welders]]
+units = 2
+kw = 30
+pf = 0.5
+runs = "window"
+window = "10:00-11:30"
+burst_s = 1.5
+pause_s = 20
 [[load.synthetic.pv]]
 peak_kw = 150
 [load.synthetic.pv.clouds]
 clear_s = 1800
 shade_s = 300
+[[load.synthetic.pv]]
+peak_kw = 40
+phase = "b"
+sunrise_h = 7.25
+sunset_h = 17.5
 "#;
 
 // The generator's `fill` gives the bits of one `sample` call per interval, with noise
 // (the chunk's load first, then its noise) and without (stopping at its promises), for
-// chunks of several sizes over two days at 1 s.
+// chunks of several sizes (one longer than the pieces `fill` works in) over two days at 1 s.
 #[test]
 fn generator_fill_equals_one_sample_at_a_time() {
     use bankstep::scenario::Scenario;
@@ -184,7 +198,7 @@ fn generator_fill_equals_one_sample_at_a_time() {
         let sc = Scenario::from_str(&text, std::path::Path::new("plant.toml")).expect("scenario");
         let study = Study::prepare(sc).expect("study");
         let (n, dt, t0) = (study.plan.intervals, study.plan.dt_s, study.plan.t_first_s);
-        for (chunk, stop) in [(1, false), (7, false), (256, false), (256, true)] {
+        for (chunk, stop) in [(1, false), (7, false), (256, false), (256, true), (600, false)] {
             let mut a = study.source().expect("source");
             let mut b = study.source().expect("source");
             let mut fa = vec![LoadSample::default(); chunk];

@@ -208,6 +208,39 @@ fn axpy(v: &mut [f64; 6], a: f64, x: &[f64; 6]) {
     }
 }
 
+/// Intervals `fill` takes together: the parts are walked over a piece of this many
+/// samples at a time.
+const FILL_PIECE: usize = 256;
+
+/// A sample as the load vector `[Pa, Pb, Pc, Qa, Qb, Qc]`.
+#[inline(always)]
+fn get(s: &LoadSample) -> [f64; 6] {
+    [
+        s.p_kw[0],
+        s.p_kw[1],
+        s.p_kw[2],
+        s.q_kvar[0],
+        s.q_kvar[1],
+        s.q_kvar[2],
+    ]
+}
+
+/// Writes a load vector `[Pa, Pb, Pc, Qa, Qb, Qc]` into a sample.
+#[inline(always)]
+fn put(s: &mut LoadSample, v: &[f64; 6]) {
+    s.p_kw.copy_from_slice(&v[..3]);
+    s.q_kvar.copy_from_slice(&v[3..]);
+}
+
+/// Adds a load vector `[Pa, Pb, Pc, Qa, Qb, Qc]` to a sample.
+#[inline(always)]
+fn add(s: &mut LoadSample, v: &[f64; 6]) {
+    for c in 0..3 {
+        s.p_kw[c] += v[c];
+        s.q_kvar[c] += v[c + 3];
+    }
+}
+
 /// The smaller of two numbers that are never NaN (a plain `minsd`).
 #[inline(always)]
 fn fmin(a: f64, b: f64) -> f64 {
@@ -1068,26 +1101,135 @@ impl SyntheticProfile {
             self.last_varied = true;
         }
         if t1 > self.fast_idle_until {
-            let mut idle_until = f64::INFINITY;
-            for g in &mut self.fast {
-                self.last_varied = true;
-                let m = g.mean_every_sample(&self.cal, t0, t1, self.inv_dt);
-                axpy(&mut v, m, &g.unit);
-                idle_until = fmin(
-                    idle_until,
-                    if g.gate.state == 0 {
-                        g.gate.next
-                    } else {
-                        f64::NEG_INFINITY
-                    },
-                );
-            }
-            self.fast_idle_until = idle_until;
+            self.add_fast(t0, t1, &mut v);
         }
         if !self.pv.is_empty() {
             self.add_pv(t0, t1, &mut v);
         }
         v
+    }
+
+    /// Writes the load without noise of a piece of at most [`FILL_PIECE`] intervals, the
+    /// first at index `jf` (as a float), and returns the index after the piece. The parts
+    /// are taken one after the other over the whole piece, each sample receiving them in
+    /// the order [`SyntheticProfile::clean`] adds them, with the same operations, so the
+    /// samples are the same bits; only the bookkeeping is done once per piece.
+    fn fill_clean(
+        &mut self,
+        mut jf: f64,
+        t_first_s: f64,
+        dt_s: f64,
+        piece: &mut [LoadSample],
+    ) -> f64 {
+        let n = piece.len();
+        if n == 0 {
+            return jf;
+        }
+        let dt = self.dt;
+        let mut t0s = [0.0; FILL_PIECE];
+        // The running sum, with the parts of it that change inside an interval integrated.
+        for (s, t) in piece.iter_mut().zip(t0s.iter_mut()) {
+            let t0 = t_first_s + jf * dt_s;
+            jf += 1.0;
+            *t = t0;
+            let t1 = t0 + dt;
+            let mut v = self.steady;
+            if t1 > self.next_event {
+                self.integrate_slow(t0, t1, &mut v);
+            }
+            put(s, &v);
+        }
+        let t0s = &t0s[..n];
+        self.add_fast_piece(t0s, piece);
+        if !self.pv.is_empty() {
+            for (s, &t0) in piece.iter_mut().zip(t0s) {
+                let mut v = get(s);
+                self.add_pv(t0, t0 + dt, &mut v);
+                put(s, &v);
+            }
+        }
+        jf
+    }
+
+    /// Adds the groups summed every sample to a piece whose intervals start at `t0s`. When
+    /// no gate changes inside the piece and a group runs (so that every sample takes the
+    /// groups), each group is walked from one switching to the next: a sample without a
+    /// switching adds the running units' load, worked out once per switching.
+    fn add_fast_piece(&mut self, t0s: &[f64], piece: &mut [LoadSample]) {
+        let (dt, inv_dt) = (self.dt, self.inv_dt);
+        let last_t1 = t0s[t0s.len() - 1] + dt;
+        if last_t1 <= self.fast_idle_until {
+            return;
+        }
+        let no_gate_change = self.fast.iter().all(|g| g.gate.next >= last_t1);
+        let one_runs = self.fast.iter().any(|g| g.gate.state != 0);
+        if !(no_gate_change && one_runs) {
+            for (s, &t0) in piece.iter_mut().zip(t0s) {
+                let t1 = t0 + dt;
+                if t1 > self.fast_idle_until {
+                    let mut v = get(s);
+                    self.add_fast(t0, t1, &mut v);
+                    put(s, &v);
+                }
+            }
+            return;
+        }
+        let n = t0s.len();
+        for g in &mut self.fast {
+            let unit = g.unit;
+            let scaled = |m: f64| std::array::from_fn::<f64, 6, _>(|c| m * unit[c]);
+            let mut nu = scaled(g.n_on);
+            let mut i = 0;
+            loop {
+                // Intervals that end at or before the next switching take the units
+                // running now: n_on·unit, as `mean_every_sample` gives n_on exactly then.
+                let te = g.events[g.pos].0;
+                while i < n && te >= t0s[i] + dt {
+                    add(&mut piece[i], &nu);
+                    i += 1;
+                }
+                if i == n {
+                    break;
+                }
+                let t0 = t0s[i];
+                let m = g.mean_every_sample(&self.cal, t0, t0 + dt, inv_dt);
+                let mut v = get(&piece[i]);
+                axpy(&mut v, m, &unit);
+                put(&mut piece[i], &v);
+                nu = scaled(g.n_on);
+                i += 1;
+            }
+        }
+        self.fast_idle_until = self.fast_idle();
+    }
+
+    /// Adds the groups summed every sample over [t0, t1) to `v` and marks the sample as
+    /// varied.
+    #[inline(always)]
+    fn add_fast(&mut self, t0: f64, t1: f64, v: &mut [f64; 6]) {
+        for g in &mut self.fast {
+            self.last_varied = true;
+            let m = g.mean_every_sample(&self.cal, t0, t1, self.inv_dt);
+            axpy(v, m, &g.unit);
+        }
+        self.fast_idle_until = self.fast_idle();
+    }
+
+    /// Run time before which every group summed every sample is shut by its gate, or −∞.
+    #[inline(always)]
+    fn fast_idle(&self) -> f64 {
+        let mut idle_until = f64::INFINITY;
+        for g in &self.fast {
+            idle_until = fmin(
+                idle_until,
+                if g.gate.state == 0 {
+                    g.gate.next
+                } else {
+                    f64::NEG_INFINITY
+                },
+            );
+        }
+        idle_until
     }
 
     /// Whether interval j would take the running sum alone, as the last sample did: it
@@ -1137,19 +1279,11 @@ impl LoadSource for SyntheticProfile {
         // j as a float, counted along: exact, so the times are `t_first_s + j as f64 * dt_s`.
         let mut jf = k as f64;
         if self.noise_on {
-            for s in out.iter_mut() {
-                let v = self.clean(t_first_s + jf * dt_s);
-                jf += 1.0;
-                s.p_kw.copy_from_slice(&v[..3]);
-                s.q_kvar.copy_from_slice(&v[3..]);
+            for piece in out.chunks_mut(FILL_PIECE) {
+                jf = self.fill_clean(jf, t_first_s, dt_s, piece);
             }
-            for s in out.iter_mut() {
-                let f = self.noise.six(&mut self.noise_rng);
-                for x in 0..3 {
-                    s.p_kw[x] *= f[x];
-                    s.q_kvar[x] *= f[x + 3];
-                }
-            }
+            self.noise.apply(&mut self.noise_rng, out);
+            self.last_varied = true;
             return (out.len(), None);
         }
         for (i, s) in out.iter_mut().enumerate() {

@@ -13,6 +13,7 @@
 //! distribution, exact at the bin edges, mean within 1e-4 of the exact one). The last
 //! bin is the exact tail: ln 1024 plus a fresh exponential draw, by memorylessness.
 
+use crate::profile::LoadSample;
 use rand::RngCore;
 use std::sync::OnceLock;
 
@@ -212,6 +213,28 @@ impl NoiseFactors {
         let t = &self.table;
         let at = |x: u64, k: u32| t[((x >> (k * BITS)) & m) as usize];
         [at(a, 0), at(a, 1), at(a, 2), at(a, 3), at(a, 4), at(b, 0)]
+    }
+
+    /// Multiplies each sample of a chunk by its six factors, drawn as [`NoiseFactors::six`]
+    /// draws them, sample after sample. The random state is kept in a local copy over the
+    /// loop, so that it stays in registers.
+    #[inline]
+    pub(crate) fn apply<R: RngCore + Clone>(&self, rng: &mut R, out: &mut [LoadSample]) {
+        let mut r = rng.clone();
+        let m = (SIZE - 1) as u64;
+        let t = &*self.table;
+        let at = |x: u64, k: u32| t[((x >> (k * BITS)) & m) as usize];
+        for s in out.iter_mut() {
+            let a = r.next_u64();
+            let b = r.next_u64();
+            s.p_kw[0] *= at(a, 0);
+            s.p_kw[1] *= at(a, 1);
+            s.p_kw[2] *= at(a, 2);
+            s.q_kvar[0] *= at(a, 3);
+            s.q_kvar[1] *= at(a, 4);
+            s.q_kvar[2] *= at(b, 0);
+        }
+        *rng = r;
     }
 }
 
