@@ -134,7 +134,8 @@ fn fill_equals_one_sample_at_a_time_across_gaps() {
 }
 
 /// A plant-like generator section (invented figures): machines, two welder groups (one
-/// running in a window of its own), two PV arrays (one with clouds).
+/// running in a window of its own), PV with clouds and, where `__PV2__` is replaced by
+/// [`PV2`], a second array.
 const PLANT: &str = r#"
 [[steps]]
 kvar = 50
@@ -179,6 +180,11 @@ peak_kw = 150
 [load.synthetic.pv.clouds]
 clear_s = 1800
 shade_s = 300
+__PV2__
+"#;
+
+/// The second PV array of [`PLANT`].
+const PV2: &str = r#"
 [[load.synthetic.pv]]
 peak_kw = 40
 phase = "b"
@@ -193,8 +199,8 @@ sunset_h = 17.5
 fn generator_fill_equals_one_sample_at_a_time() {
     use bankstep::scenario::Scenario;
     use bankstep::study::Study;
-    for noise in ["1.0", "0"] {
-        let text = PLANT.replace("__NOISE__", noise);
+    for (noise, pv2) in [("1.0", PV2), ("1.0", ""), ("0", PV2), ("0", "")] {
+        let text = PLANT.replace("__NOISE__", noise).replace("__PV2__", pv2);
         let sc = Scenario::from_str(&text, std::path::Path::new("plant.toml")).expect("scenario");
         let study = Study::prepare(sc).expect("study");
         let (n, dt, t0) = (study.plan.intervals, study.plan.dt_s, study.plan.t_first_s);

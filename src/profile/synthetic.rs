@@ -412,17 +412,20 @@ impl Process {
                 rng,
                 ..
             } => {
+                // The state in locals over the batch, so that it stays in registers.
+                let (mut r, mut kk, mut tt) = (rng.clone(), *k, *t);
                 for slot in out.iter_mut() {
-                    let e = exp.draw(rng);
-                    let (mean_wait, stop_below) = per_k[*k as usize];
-                    *t += e * mean_wait;
+                    let e = exp.draw(&mut r);
+                    let (mean_wait, stop_below) = per_k[kk as usize];
+                    tt += e * mean_wait;
                     // The same decision as `rng.random::<f64>() < p_stop`, in integers.
-                    let stops = (rng.next_u64() >> 11) < stop_below;
+                    let stops = (r.next_u64() >> 11) < stop_below;
                     // −1 when a unit stops, +1 when one starts, without a branch.
                     let step = 1 - 2 * i32::from(stops);
-                    *k = (*k as i32 + step) as u32;
-                    *slot = (*t, f64::from(step));
+                    kk = (kk as i32 + step) as u32;
+                    *slot = (tt, f64::from(step));
                 }
+                (*rng, *k, *t) = (r, kk, tt);
             }
             Process::Fixed {
                 period,
@@ -1142,13 +1145,65 @@ impl SyntheticProfile {
         let t0s = &t0s[..n];
         self.add_fast_piece(t0s, piece);
         if !self.pv.is_empty() {
-            for (s, &t0) in piece.iter_mut().zip(t0s) {
-                let mut v = get(s);
-                self.add_pv(t0, t0 + dt, &mut v);
-                put(s, &v);
-            }
+            self.add_pv_piece(t0s, piece);
         }
         jf
+    }
+
+    /// Adds the PV output to a piece whose intervals start at `t0s`. With one array,
+    /// the intervals in its night are passed over together, and so are those in daylight
+    /// that stay on one straight piece of the curve without a cloud switching inside;
+    /// each of the others is taken as [`SyntheticProfile::add_pv`] takes it.
+    fn add_pv_piece(&mut self, t0s: &[f64], piece: &mut [LoadSample]) {
+        let dt = self.dt;
+        let half = 0.5 * dt;
+        let n = t0s.len();
+        let mut i = 0;
+        while i < n {
+            if self.pv.len() == 1 {
+                // Night: nothing to add while the midpoint is before the next sunrise.
+                while i < n && t0s[i] + half < self.pv_idle_until {
+                    i += 1;
+                }
+                if i == n {
+                    break;
+                }
+                let a = &self.pv[0];
+                let tm = t0s[i] + half;
+                if a.lit && tm >= a.from && tm < a.to {
+                    let (pa, pb, from, to, peak) = (a.a, a.b, a.from, a.to, a.peak);
+                    let (cloud_next, cf) = match &a.clouds {
+                        Some(c) => (c.next, if c.shaded { 1.0 - c.depth } else { 1.0 }),
+                        None => (f64::INFINITY, 1.0),
+                    };
+                    let clouds = a.clouds.is_some();
+                    let start = i;
+                    while i < n {
+                        let t0 = t0s[i];
+                        let tm = t0 + half;
+                        if !(tm < to) || t0 + dt > cloud_next {
+                            break;
+                        }
+                        let mut f = pa + pb * (tm - from);
+                        if clouds {
+                            f *= cf;
+                        }
+                        add(&mut piece[i], &std::array::from_fn(|c| f * peak[c]));
+                        i += 1;
+                    }
+                    if i > start {
+                        self.pv_idle_until = f64::NEG_INFINITY;
+                        self.last_varied = true;
+                        continue;
+                    }
+                }
+            }
+            let t0 = t0s[i];
+            let mut v = get(&piece[i]);
+            self.add_pv(t0, t0 + dt, &mut v);
+            put(&mut piece[i], &v);
+            i += 1;
+        }
     }
 
     /// Adds the groups summed every sample to a piece whose intervals start at `t0s`. When
