@@ -1130,17 +1130,30 @@ impl SyntheticProfile {
         }
         let dt = self.dt;
         let mut t0s = [0.0; FILL_PIECE];
-        // The running sum, with the parts of it that change inside an interval integrated.
-        for (s, t) in piece.iter_mut().zip(t0s.iter_mut()) {
-            let t0 = t_first_s + jf * dt_s;
-            jf += 1.0;
-            *t = t0;
-            let t1 = t0 + dt;
-            let mut v = self.steady;
-            if t1 > self.next_event {
-                self.integrate_slow(t0, t1, &mut v);
+        // The running sum, taken as it stands up to its next event; a sample with an event
+        // inside gets the parts that change integrated.
+        let mut i = 0;
+        while i < n {
+            let (steady, next) = (self.steady, self.next_event);
+            while i < n {
+                let t0 = t_first_s + jf * dt_s;
+                t0s[i] = t0;
+                if t0 + dt > next {
+                    break;
+                }
+                jf += 1.0;
+                put(&mut piece[i], &steady);
+                i += 1;
             }
-            put(s, &v);
+            if i == n {
+                break;
+            }
+            let t0 = t0s[i];
+            jf += 1.0;
+            let mut v = self.steady;
+            self.integrate_slow(t0, t0 + dt, &mut v);
+            put(&mut piece[i], &v);
+            i += 1;
         }
         let t0s = &t0s[..n];
         self.add_fast_piece(t0s, piece);
