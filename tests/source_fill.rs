@@ -204,7 +204,13 @@ fn generator_fill_equals_one_sample_at_a_time() {
         let sc = Scenario::from_str(&text, std::path::Path::new("plant.toml")).expect("scenario");
         let study = Study::prepare(sc).expect("study");
         let (n, dt, t0) = (study.plan.intervals, study.plan.dt_s, study.plan.t_first_s);
-        for (chunk, stop) in [(1, false), (7, false), (256, false), (256, true), (600, false)] {
+        for (chunk, stop) in [
+            (1, false),
+            (7, false),
+            (256, false),
+            (256, true),
+            (600, false),
+        ] {
             let mut a = study.source().expect("source");
             let mut b = study.source().expect("source");
             let mut fa = vec![LoadSample::default(); chunk];

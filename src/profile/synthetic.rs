@@ -1194,7 +1194,7 @@ impl SyntheticProfile {
                     while i < n {
                         let t0 = t0s[i];
                         let tm = t0 + half;
-                        if !(tm < to) || t0 + dt > cloud_next {
+                        if tm >= to || t0 + dt > cloud_next {
                             break;
                         }
                         let mut f = pa + pb * (tm - from);
