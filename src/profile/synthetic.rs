@@ -110,8 +110,14 @@
 //! nothing. The PV curve is drawn in straight one-minute pieces and skipped through the
 //! night. Noise takes six quantised normal draws from two random numbers, each looked up
 //! directly as its factor 1 + σ·x, and spell lengths use a table-based exponential (see
-//! `draws`). `fill` makes a chunk's load first and then draws its noise in one pass, in
-//! the order `sample` draws it. Neither allocates.
+//! `draws`). With noise, `fill` takes each part over a piece of up to 256 samples in
+//! turn, adding to every sample in the order `sample` adds the parts and with the same
+//! operations (so the samples are the same bits): the running sum as it stands up to its
+//! next event; each group summed every sample from one switching to the next, a sample
+//! without a switching adding the running units' load worked out once; a single PV array
+//! over its night in one step and over runs of samples on one straight piece without a
+//! cloud switching; then the noise of the whole chunk, in the order `sample` draws it.
+//! Neither allocates.
 //!
 //! Without noise, a sample that takes the running sum alone (no event inside it, the
 //! groups summed every sample shut by their gates, every PV array in its night) repeats
