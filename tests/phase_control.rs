@@ -214,6 +214,15 @@ fn cold_store(replace: Option<(&str, &str)>) -> Study {
     cold_store_with(replace, "")
 }
 
+/// The assessment's finding on a phase (topic `phase`); the run must have one.
+fn phase_finding(st: &Study, r: &bankstep::engine::RunResult) -> bankstep::analysis::Finding {
+    let a = bankstep::analysis::assess(st, r);
+    a.findings
+        .into_iter()
+        .find(|f| f.topic == "phase")
+        .expect("a phase finding")
+}
+
 /// The cold store with one text replaced and `extra` (tables) appended.
 fn cold_store_with(replace: Option<(&str, &str)>, extra: &str) -> Study {
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("scenarios/cold-store.toml");
@@ -241,12 +250,7 @@ fn the_cold_store_hides_a_leading_phase_and_per_phase_control_fixes_it() {
         "{}",
         c.overcorrection.total_s
     );
-    let a = bankstep::analysis::assess(&st, &r);
-    let f = a
-        .findings
-        .iter()
-        .find(|f| f.topic == "phase")
-        .expect("a phase finding");
+    let f = phase_finding(&st, &r);
     assert!(
         f.text.starts_with("Phase c was overcorrected"),
         "{}",
@@ -373,12 +377,7 @@ duration_s = 600
         "{}",
         c.overcorrection.total_s
     );
-    let a = bankstep::analysis::assess(&st, &r);
-    let f = a
-        .findings
-        .iter()
-        .find(|f| f.topic == "phase")
-        .expect("a phase finding");
+    let f = phase_finding(&st, &r);
     assert!(
         f.text.starts_with("Phase c was overcorrected"),
         "{}",
