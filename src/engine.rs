@@ -337,14 +337,14 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
                     let sample = &samples[i];
                     let unsolved = lanes.unsolved[j];
                     unsolved_n += unsolved;
-                    let p3 = sample.p_kw[0] + sample.p_kw[1] + sample.p_kw[2];
-                    let q3 = lanes.q3[j];
+                    let (p4, q4) = (lanes.p4[j], lanes.q4[j]);
+                    let (p3, q3) = (p4[0], q4[0]);
                     let v_ll_max = lanes.v_ll_max[j];
                     let (p_raw, q_raw) = match measurement {
                         Measurement::ThreePhase => (p3, q3),
                         Measurement::SinglePhase(ph) => (
                             3.0 * sample.p_kw[ph],
-                            3.0 * (sample.q_kvar[ph] - lanes.q_bank[ph][j]),
+                            3.0 * q4[ph + 1],
                         ),
                     };
                     let mask = ctl.mask();
@@ -356,15 +356,10 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
                     };
                     met.record(&IntervalObs {
                         t_s: t,
-                        p_kw: [p3, sample.p_kw[0], sample.p_kw[1], sample.p_kw[2]],
-                        q_kvar: [
-                            q3,
-                            sample.q_kvar[0] - lanes.q_bank[0][j],
-                            sample.q_kvar[1] - lanes.q_bank[1][j],
-                            sample.q_kvar[2] - lanes.q_bank[2][j],
-                        ],
+                        p_kw: p4,
+                        q_kvar: q4,
                         unbalance: None,
-                        load_q_kvar: sample.q_total(),
+                        load_q_kvar: lanes.load_q[j],
                         load_p_kw: p3,
                         fixed_q_kvar: fixed_q,
                         v_ll_min: lanes.v_ll_min[j],
@@ -452,16 +447,12 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         let sample = &samples[i];
         let unsolved = lanes.unsolved[j];
         unsolved_n += unsolved;
-        let p3 = sample.p_kw[0] + sample.p_kw[1] + sample.p_kw[2];
         // Each phase's P at the metering point: the load's, plus what steps between two
         // lines take from one phase and give to the other (zero without such steps; the
         // three-phase P is the load's, the steps being lossless).
-        let p_ph = [
-            sample.p_kw[0] + lanes.p_bank[0][j],
-            sample.p_kw[1] + lanes.p_bank[1][j],
-            sample.p_kw[2] + lanes.p_bank[2][j],
-        ];
-        let q3 = lanes.q3[j];
+        let (p4, q4) = (lanes.p4[j], lanes.q4[j]);
+        let (p3, q3) = (p4[0], q4[0]);
+        let p_ph = [p4[1], p4[2], p4[3]];
         let v_ll_min = lanes.v_ll_min[j];
         let v_ll_max = lanes.v_ll_max[j];
         let current_a = if want_current {
@@ -478,11 +469,7 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         } else {
             0.0
         };
-        let q_ph = [
-            sample.q_kvar[0] - lanes.q_bank[0][j],
-            sample.q_kvar[1] - lanes.q_bank[1][j],
-            sample.q_kvar[2] - lanes.q_bank[2][j],
-        ];
+        let q_ph = [q4[1], q4[2], q4[3]];
         // The bus phasors, when the measurement or the unbalance needs them.
         let phasors = (want_unbalance || !direct).then(|| -> [Complex64; 3] {
             std::array::from_fn(|ph| {
@@ -543,10 +530,10 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         // so that nothing is kept alive across the common path).
         let obs = || IntervalObs {
             t_s: t,
-            p_kw: [p3, p_ph[0], p_ph[1], p_ph[2]],
-            q_kvar: [q3, q_ph[0], q_ph[1], q_ph[2]],
+            p_kw: p4,
+            q_kvar: q4,
             unbalance,
-            load_q_kvar: sample.q_total(),
+            load_q_kvar: lanes.load_q[j],
             load_p_kw: p3,
             fixed_q_kvar: fixed_q,
             v_ll_min,

@@ -507,7 +507,15 @@ impl CoupledSolver {
                 hi = hi.max(w);
                 v_out[ph][i] = v[ph];
             }
-            out.q3[i] = q3;
+            let q_ph: [f64; 3] = std::array::from_fn(|ph| smp.q_kvar[ph] - out.q_bank[ph][i]);
+            out.q4[i] = [q3, q_ph[0], q_ph[1], q_ph[2]];
+            out.p4[i] = [
+                smp.p_kw[0] + smp.p_kw[1] + smp.p_kw[2],
+                smp.p_kw[0] + out.p_bank[0][i],
+                smp.p_kw[1] + out.p_bank[1][i],
+                smp.p_kw[2] + out.p_bank[2][i],
+            ];
+            out.load_q[i] = smp.q_kvar[0] + smp.q_kvar[1] + smp.q_kvar[2];
             out.v_ll_min[i] = lo.sqrt() * sqrt3;
             out.v_ll_max[i] = hi.sqrt() * sqrt3;
             out.unsolved[i] = u64::from(!ok);
@@ -531,9 +539,16 @@ pub struct Lanes {
     /// phase and gives it to another (lossless: the phases add up to zero on the coupled
     /// bus, and on a balanced per-phase bus).
     pub p_bank: [[f64; LANE]; 3],
-    /// Three-phase reactive power through the metering point, kvar: the phases' load
-    /// minus bank output, added in the order a, b, c.
-    pub q3: [f64; LANE],
+    /// Active power through the metering point in the metrics' four lanes, kW: the
+    /// three-phase P (the load's, the phases added in the order a, b, c; the steps are
+    /// lossless), then each phase's load plus `p_bank`.
+    pub p4: [[f64; 4]; LANE],
+    /// Reactive power through the metering point in the same four lanes, kvar: the
+    /// three-phase Q (the phases' load minus bank output, added in the order a, b, c),
+    /// then each phase's load minus `q_bank`.
+    pub q4: [[f64; 4]; LANE],
+    /// The load's own three-phase reactive power (phases added a, b, c), kvar.
+    pub load_q: [f64; LANE],
     /// Lowest and highest phase voltage as √3 × V_ln, V.
     pub v_ll_min: [f64; LANE],
     /// See `v_ll_min`.
@@ -548,7 +563,9 @@ impl Default for Lanes {
             w: [[0.0; LANE]; 3],
             q_bank: [[0.0; LANE]; 3],
             p_bank: [[0.0; LANE]; 3],
-            q3: [0.0; LANE],
+            p4: [[0.0; 4]; LANE],
+            q4: [[0.0; 4]; LANE],
+            load_q: [0.0; LANE],
             v_ll_min: [0.0; LANE],
             v_ll_max: [0.0; LANE],
             unsolved: [0; LANE],
@@ -600,6 +617,16 @@ impl BusSolver {
     fn solve_lanes_body(&self, samples: &[crate::profile::LoadSample], out: &mut Lanes) {
         let n = samples.len().min(LANE);
         let samples = &samples[..n];
+        // The samples' powers, W and var, phase by phase in arrays, so that the solution
+        // below runs over contiguous values (four intervals to a vector).
+        let mut p_w = [[0.0; LANE]; 3];
+        let mut q_var = [[0.0; LANE]; 3];
+        for (i, smp) in samples.iter().enumerate() {
+            for ph in 0..3 {
+                p_w[ph][i] = smp.p_kw[ph] * 1e3;
+                q_var[ph][i] = smp.q_kvar[ph] * 1e3;
+            }
+        }
         // The smallest discriminant over the phases: below 0, some phase has no solution.
         let mut disc_min = [f64::INFINITY; LANE];
         for ph in 0..3 {
@@ -609,9 +636,9 @@ impl BusSolver {
             let qb_out = &mut out.q_bank[ph][..n];
             let pb_out = &mut out.p_bank[ph][..n];
             let disc_min = &mut disc_min[..n];
+            let (p_w, q_var) = (&p_w[ph][..n], &q_var[ph][..n]);
             for i in 0..n {
-                let p = samples[i].p_kw[ph] * 1e3;
-                let q = samples[i].q_kvar[ph] * 1e3;
+                let (p, q) = (p_w[i], q_var[i]);
                 // The same operations as `squared_voltage`.
                 let a_re = zr * p + zi * q;
                 let a_im = zi * p - zr * q;
@@ -633,9 +660,19 @@ impl BusSolver {
         let sqrt3 = 3f64.sqrt();
         for i in 0..n {
             let s = &samples[i];
-            out.q3[i] = (s.q_kvar[0] - out.q_bank[0][i])
-                + (s.q_kvar[1] - out.q_bank[1][i])
-                + (s.q_kvar[2] - out.q_bank[2][i]);
+            let q_ph = [
+                s.q_kvar[0] - out.q_bank[0][i],
+                s.q_kvar[1] - out.q_bank[1][i],
+                s.q_kvar[2] - out.q_bank[2][i],
+            ];
+            out.q4[i] = [q_ph[0] + q_ph[1] + q_ph[2], q_ph[0], q_ph[1], q_ph[2]];
+            out.p4[i] = [
+                s.p_kw[0] + s.p_kw[1] + s.p_kw[2],
+                s.p_kw[0] + out.p_bank[0][i],
+                s.p_kw[1] + out.p_bank[1][i],
+                s.p_kw[2] + out.p_bank[2][i],
+            ];
+            out.load_q[i] = s.q_kvar[0] + s.q_kvar[1] + s.q_kvar[2];
             let (w0, w1, w2) = (out.w[0][i], out.w[1][i], out.w[2][i]);
             // The square root keeps the order of its arguments, so the extremes of the
             // voltages are the roots of the extremes of their squares.
