@@ -14,6 +14,7 @@ use crate::engine::{self, Observer, RunResult};
 use crate::error::{ProfileError, RunError};
 use crate::harmonics::HarmonicModel;
 use crate::profile::csv::{self, CsvScan, CsvStream, MemoryProfile, SharedCursor};
+use crate::profile::prefetch;
 use crate::profile::synthetic::SyntheticProfile;
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::{BillingWindows, LoadSpec, Scenario};
@@ -245,9 +246,18 @@ impl Study {
         self.scenario.harmonic_model()
     }
 
-    /// Runs the study once on its own profile.
+    /// Runs the study once on its own profile. The synthetic generator runs on a second
+    /// thread ahead of the engine ([`prefetch`], the same samples) when the machine has
+    /// two cores or more and the run is not itself one of many on the rayon pool.
     pub fn run<O: Observer + ?Sized>(&self, observer: &mut O) -> Result<RunResult, RunError> {
         let mut src = self.source()?;
+        if let Source::Synthetic(g) = &mut src {
+            if prefetch_wanted() {
+                return prefetch::scoped(&mut **g, self.plan.intervals, |pf| {
+                    self.run_on(pf, observer)
+                });
+            }
+        }
         self.run_on(&mut src, observer)
     }
 
@@ -260,6 +270,16 @@ impl Study {
     ) -> Result<RunResult, RunError> {
         engine::run(&self.scenario, &self.plan, source, observer)
     }
+}
+
+/// Whether a run may fill its load on a second thread: the machine has at least two
+/// cores, and the run is not on a rayon worker (sweeps and designs already run one study
+/// per core there).
+fn prefetch_wanted() -> bool {
+    // The count of cores reads the system's settings: once per process is enough.
+    static CORES: std::sync::OnceLock<usize> = std::sync::OnceLock::new();
+    rayon::current_thread_index().is_none()
+        && *CORES.get_or_init(|| std::thread::available_parallelism().map_or(1, |n| n.get())) >= 2
 }
 
 /// Works out the time base of a run of `scenario` on `profile`.
