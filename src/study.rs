@@ -248,11 +248,17 @@ impl Study {
 
     /// Runs the study once on its own profile. The synthetic generator runs on a second
     /// thread ahead of the engine ([`prefetch`], the same samples) when the machine has
-    /// two cores or more and the run is not itself one of many on the rayon pool.
+    /// two cores or more, the run is not itself one of many on the rayon pool, and the
+    /// engine takes the samples in whole chunks: with measurement noise, or with an
+    /// observer that wants every interval. (Without noise the engine steps over the
+    /// generator's runs of unchanged samples, each chunk ends at one, and every next
+    /// chunk would be a round trip to the other thread.)
     pub fn run<O: Observer + ?Sized>(&self, observer: &mut O) -> Result<RunResult, RunError> {
         let mut src = self.source()?;
         if let Source::Synthetic(g) = &mut src {
-            if prefetch_wanted() {
+            let blocks =
+                self.plan.stepping == Stepping::Events && !observer.wants_every_interval();
+            if !(blocks && g.may_hold()) && prefetch_wanted() {
                 return prefetch::scoped(&mut **g, self.plan.intervals, |pf| {
                     self.run_on(pf, observer)
                 });
