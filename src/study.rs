@@ -9,6 +9,10 @@
 //!
 //! The settings exist once: [`Study::scenario`] is what the engine runs and what every
 //! report prints.
+//!
+//! [`Study::run`] has the synthetic generator fill the load on a second thread while the
+//! engine steps ([`crate::profile::prefetch`], the same samples to the bit) when the
+//! machine has a core to spare; [`Study::run_on`] runs on the caller's source as it is.
 
 use crate::engine::{self, Observer, RunResult};
 use crate::error::{ProfileError, RunError};
@@ -256,8 +260,7 @@ impl Study {
     pub fn run<O: Observer + ?Sized>(&self, observer: &mut O) -> Result<RunResult, RunError> {
         let mut src = self.source()?;
         if let Source::Synthetic(g) = &mut src {
-            let blocks =
-                self.plan.stepping == Stepping::Events && !observer.wants_every_interval();
+            let blocks = self.plan.stepping == Stepping::Events && !observer.wants_every_interval();
             if !(blocks && g.may_hold()) && prefetch_wanted() {
                 return prefetch::scoped(&mut **g, self.plan.intervals, |pf| {
                     self.run_on(pf, observer)

@@ -648,17 +648,19 @@ mod tests {
         }
     }
 
-    // `Study::run` (which prefetches the generator on a machine with two cores or more)
-    // against `run_on` over a fresh generator.
+    // `Study::run` (which prefetches the generator on a machine with two cores or more,
+    // when the engine takes whole chunks) against `run_on` over a fresh generator.
     #[test]
     fn study_run_equals_the_run_on_the_generator() {
         for noise in [true, false] {
             let study = plant(2 * 3600, noise);
-            let mut rec_a = Recorder::new(false);
-            let a = outcome(study.run_on(&mut synthetic(&study), &mut rec_a), &rec_a);
-            let mut rec_b = Recorder::new(false);
-            let b = outcome(study.run(&mut rec_b), &rec_b);
-            assert_eq!(a, b, "noise {noise}");
+            for every in [false, true] {
+                let mut rec_a = Recorder::new(every);
+                let a = outcome(study.run_on(&mut synthetic(&study), &mut rec_a), &rec_a);
+                let mut rec_b = Recorder::new(every);
+                let b = outcome(study.run(&mut rec_b), &rec_b);
+                assert_eq!(a, b, "noise {noise}, every interval {every}");
+            }
         }
     }
 
