@@ -114,14 +114,29 @@ struct Chunk {
 /// Chunks made one after the other, their samples back to back.
 #[derive(Debug, Default)]
 struct Batch {
+    /// Room for the samples; it only grows, so that a batch used again is not written
+    /// twice.
     samples: Vec<LoadSample>,
+    /// Samples in use, from the start.
+    used: usize,
     chunks: Vec<Chunk>,
 }
 
 impl Batch {
     fn clear(&mut self) {
-        self.samples.clear();
+        self.used = 0;
         self.chunks.clear();
+    }
+
+    /// The room for `len` more samples, grown (once per batch, in the steady state) to
+    /// hold a whole batch of chunks of that length.
+    fn room(&mut self, len: usize) -> &mut [LoadSample] {
+        let start = self.used;
+        if self.samples.len() < start + len {
+            let size = (start + len).max(BATCH_CHUNKS * len);
+            self.samples.resize(size, LoadSample::default());
+        }
+        &mut self.samples[start..start + len]
     }
 }
 
@@ -229,6 +244,7 @@ fn produce<S: LoadSource + ?Sized>(
             unmade -= 1;
             return Some(Batch {
                 samples: Vec::new(),
+                used: 0,
                 chunks: Vec::with_capacity(BATCH_CHUNKS),
             });
         }
@@ -240,14 +256,11 @@ fn produce<S: LoadSource + ?Sized>(
         let Some(mut b) = take() else { return };
         match req {
             Request::Sample { k, t_s } => {
-                let mut s = LoadSample::default();
-                let (got, err) = match inner.sample(k, t_s, &mut s) {
-                    Ok(()) => {
-                        b.samples.push(s);
-                        (1, None)
-                    }
+                let (got, err) = match inner.sample(k, t_s, &mut b.room(1)[0]) {
+                    Ok(()) => (1, None),
                     Err(e) => (0, Some(e)),
                 };
+                b.used = got;
                 b.chunks.push(Chunk {
                     key: Key::Sample {
                         k,
@@ -277,13 +290,10 @@ fn produce<S: LoadSource + ?Sized>(
                 // The answer goes out alone; the batches after it double in size.
                 let mut size = 1;
                 loop {
-                    b.samples.reserve(BATCH_CHUNKS * len);
-                    let start = b.samples.len();
-                    b.samples.resize(start + len, LoadSample::default());
-                    let (got, err) =
-                        inner.fill(k, t_first_s, dt_s, &mut b.samples[start..], stop_at_hold);
+                    let start = b.used;
+                    let (got, err) = inner.fill(k, t_first_s, dt_s, b.room(len), stop_at_hold);
                     let got = got.min(len);
-                    b.samples.truncate(start + got);
+                    b.used = start + got;
                     let end = k + got as u64;
                     let until = if got > 0 {
                         inner.unchanged_until(end - 1)
