@@ -12,8 +12,8 @@
 //!
 //! The engine asks for chunks: `fill(k, …, out, stop_at_hold)` with `out.len()` the
 //! chunk length or what is left of the run, at k = the end of the chunk before, and asks
-//! [`LoadSource::unchanged_until`] only of a chunk's last interval. The first request
-//! tells the producer the grid (t_first, Δt), the flag and the chunk length; from then on
+//! [`LoadSource::unchanged_until`] only of a chunk's last interval. A request tells the
+//! producer the grid (t_first, Δt), the flag and the chunk length; from then on
 //! it fills chunk after chunk at k, k + got, …, with length min(that length, n − k),
 //! asks the inner source for the promise of each chunk's last interval right after
 //! filling it (the call reads the source and changes nothing) and ships the promise with
@@ -32,6 +32,15 @@
 //! shipped promise for the last interval of the chunk handed out last, and k + 1 (no
 //! promise) for any other; [`Prefetch::sample`] is a one-sample request answered at
 //! once.
+//!
+//! # When it pays
+//!
+//! A chunk that ends in a hold costs a round trip between the threads (microseconds,
+//! more when the producer has to be woken), far more than the generator takes for a
+//! chunk of a few samples; [`crate::study::Study::run`] therefore prefetches only when
+//! the engine takes whole chunks. The two threads together use more processor time than
+//! one (the samples cross from one core's cache to the other's and are copied once
+//! more): the gain is in wall time, on a machine with a core to spare.
 //!
 //! # Batches
 //!
