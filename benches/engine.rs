@@ -1,7 +1,9 @@
 //! Engine benchmark: one year at a 1 s step (31,536,000 intervals) with a 12-step bank on
-//! a transformer-fed bus, driven by the synthetic generator. Prints ns per interval and
-//! the peak resident memory, then the generator's own cost: ns per sample (and samples
-//! per second) with the plant's measurement noise, and without noise, where the generator
+//! a transformer-fed bus, driven by the synthetic generator (on a second thread ahead of
+//! the engine where the machine has two cores or more, as `Study::run` does). Prints ns
+//! per interval and the peak resident memory, then the generator's own cost: ns per
+//! sample (and samples per second) with the plant's measurement noise, and without
+//! noise, where the generator
 //! promises runs of unchanged samples (`LoadSource::unchanged_until`) that a caller may
 //! step over. Run with `cargo bench --bench engine`; set `BANKSTEP_BENCH_DAYS` to shorten
 //! it and `BANKSTEP_BENCH_PART=engine` or `=generator` to run one part only.

@@ -101,6 +101,16 @@ pub enum ProfileError {
         /// What is wrong.
         message: String,
     },
+    /// The load was asked for in an order its source cannot serve (a prefetched
+    /// source asked for something other than what it made ahead), or the thread making
+    /// it stopped.
+    #[error("load interval {k}: {message}")]
+    Sequence {
+        /// The interval asked for.
+        k: u64,
+        /// What went wrong.
+        message: String,
+    },
 }
 
 /// Errors raised by a simulation run.

@@ -9,11 +9,16 @@
 //!
 //! The settings exist once: [`Study::scenario`] is what the engine runs and what every
 //! report prints.
+//!
+//! [`Study::run`] has the synthetic generator fill the load on a second thread while the
+//! engine steps ([`crate::profile::prefetch`], the same samples to the bit) when the
+//! machine has a core to spare; [`Study::run_on`] runs on the caller's source as it is.
 
 use crate::engine::{self, Observer, RunResult};
 use crate::error::{ProfileError, RunError};
 use crate::harmonics::HarmonicModel;
 use crate::profile::csv::{self, CsvScan, CsvStream, MemoryProfile, SharedCursor};
+use crate::profile::prefetch;
 use crate::profile::synthetic::SyntheticProfile;
 use crate::profile::{LoadSample, LoadSource};
 use crate::scenario::{BillingWindows, LoadSpec, Scenario};
@@ -245,9 +250,23 @@ impl Study {
         self.scenario.harmonic_model()
     }
 
-    /// Runs the study once on its own profile.
+    /// Runs the study once on its own profile. The synthetic generator runs on a second
+    /// thread ahead of the engine ([`prefetch`], the same samples) when the machine has
+    /// two cores or more, the run is not itself one of many on the rayon pool, and the
+    /// engine takes the samples in whole chunks: with measurement noise, or with an
+    /// observer that wants every interval. (Without noise the engine steps over the
+    /// generator's runs of unchanged samples, each chunk ends at one, and every next
+    /// chunk would be a round trip to the other thread.)
     pub fn run<O: Observer + ?Sized>(&self, observer: &mut O) -> Result<RunResult, RunError> {
         let mut src = self.source()?;
+        if let Source::Synthetic(g) = &mut src {
+            let blocks = self.plan.stepping == Stepping::Events && !observer.wants_every_interval();
+            if !(blocks && g.may_hold()) && prefetch_wanted() {
+                return prefetch::scoped(&mut **g, self.plan.intervals, |pf| {
+                    self.run_on(pf, observer)
+                });
+            }
+        }
         self.run_on(&mut src, observer)
     }
 
@@ -260,6 +279,16 @@ impl Study {
     ) -> Result<RunResult, RunError> {
         engine::run(&self.scenario, &self.plan, source, observer)
     }
+}
+
+/// Whether a run may fill its load on a second thread: the machine has at least two
+/// cores, and the run is not on a rayon worker (sweeps and designs already run one study
+/// per core there).
+fn prefetch_wanted() -> bool {
+    // The count of cores reads the system's settings: once per process is enough.
+    static CORES: std::sync::OnceLock<usize> = std::sync::OnceLock::new();
+    rayon::current_thread_index().is_none()
+        && *CORES.get_or_init(|| std::thread::available_parallelism().map_or(1, |n| n.get())) >= 2
 }
 
 /// Works out the time base of a run of `scenario` on `profile`.

@@ -102,6 +102,7 @@ fn profile_error(e: &ProfileError) -> Expected {
             parse: None,
         },
         ProfileError::Io { .. } => panic!("unexpected I/O error: {e}"),
+        ProfileError::Sequence { .. } => panic!("unexpected sequence error: {e}"),
     }
 }
 

@@ -4,8 +4,11 @@
 //! ([`csv`]), an in-memory copy of a CSV for many runs over one profile
 //! ([`csv::MemoryProfile`]), or the seeded synthetic generator ([`synthetic`]). The engine
 //! asks for interval k = 0, 1, 2, … in order and never looks back, so a source may stream.
+//! [`prefetch`] drives a source on a second thread ahead of the engine, with the same
+//! samples.
 
 pub mod csv;
+pub mod prefetch;
 pub mod synthetic;
 
 use crate::error::ProfileError;

@@ -1030,6 +1030,13 @@ impl SyntheticProfile {
         prof
     }
 
+    /// Whether the generator may promise runs of unchanged samples
+    /// ([`LoadSource::unchanged_until`]): only without measurement noise, which varies
+    /// every sample.
+    pub fn may_hold(&self) -> bool {
+        !self.noise_on
+    }
+
     /// Recomputes the running sum and its next event time from the parts in it.
     fn refresh_steady(&mut self) {
         let mut s = *self.base.steady();

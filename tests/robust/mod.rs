@@ -130,6 +130,9 @@ fn clean_profile_error(e: &ProfileError, lines: u64) -> Result<(), String> {
             }
         }
         ProfileError::Io { .. } => return Err(format!("an I/O error from memory: {text}")),
+        ProfileError::Sequence { .. } => {
+            return Err(format!("a CSV profile asked for out of order: {text}"))
+        }
     }
     Ok(())
 }
