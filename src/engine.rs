@@ -330,6 +330,9 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
                 .min(k_fault.saturating_sub(buf_k).min(usize::MAX as u64) as usize);
             if i0 >= sol_base && i0 < i_end {
                 let mut i = i0;
+                // The accumulators every interval adds to, held here (in registers) for
+                // the stretch and put back after it.
+                let mut running = met.running();
                 while i < i_end {
                     let t = t0 + kf * dt;
                     let t_next = t0 + (kf + 1.0) * dt;
@@ -342,10 +345,7 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
                     let v_ll_max = lanes.v_ll_max[j];
                     let (p_raw, q_raw) = match measurement {
                         Measurement::ThreePhase => (p3, q3),
-                        Measurement::SinglePhase(ph) => (
-                            3.0 * sample.p_kw[ph],
-                            3.0 * q4[ph + 1],
-                        ),
+                        Measurement::SinglePhase(ph) => (3.0 * sample.p_kw[ph], 3.0 * q4[ph + 1]),
                     };
                     let mask = ctl.mask();
                     let d = ctl.decide_measured(p_raw, q_raw, v_ll_max, 0.0, thd, t_next);
@@ -354,18 +354,21 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
                     } else {
                         0.0
                     };
-                    met.record(&IntervalObs {
-                        t_s: t,
-                        p_kw: p4,
-                        q_kvar: q4,
-                        unbalance: None,
-                        load_q_kvar: lanes.load_q[j],
-                        load_p_kw: p3,
-                        fixed_q_kvar: fixed_q,
-                        v_ll_min: lanes.v_ll_min[j],
-                        v_ll_max,
-                        decision: &d,
-                    });
+                    met.record_running(
+                        &mut running,
+                        &IntervalObs {
+                            t_s: t,
+                            p_kw: p4,
+                            q_kvar: q4,
+                            unbalance: None,
+                            load_q_kvar: lanes.load_q[j],
+                            load_p_kw: p3,
+                            fixed_q_kvar: fixed_q,
+                            v_ll_min: lanes.v_ll_min[j],
+                            v_ll_max,
+                            decision: &d,
+                        },
+                    );
                     observer.interval(&IntervalRecord {
                         k,
                         t_s: t,
@@ -381,15 +384,18 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
                     kf += 1.0;
                     i += 1;
                     if !d.closed.or(d.opened).is_empty() {
+                        met.set_running(running);
                         met.record_ops(k - 1, &d, t_next);
                         set_bank(&mut solver, &mut coupled, &bank.susceptance(ctl.mask()));
                         thd = thd_of(ctl.mask());
                         same_until = 0;
                         // Solutions past this interval were made with the old bank.
                         sol_len = j + 1;
+                        running = met.running();
                         break;
                     }
                 }
+                met.set_running(running);
                 continue;
             }
         }

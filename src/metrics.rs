@@ -788,6 +788,50 @@ struct Episode {
     weekday_n: [u64; 7],
 }
 
+/// The accumulators that every interval adds to, apart from the rest of [`Metrics`] so
+/// that a caller stepping many intervals in a row can hold them in registers: it takes
+/// them with [`Metrics::running`], records with [`Metrics::record_running`] and puts
+/// them back with [`Metrics::set_running`] (the same additions in the same order as
+/// [`Metrics::record`], so the same bits).
+#[derive(Debug, Clone, Copy)]
+pub struct Running {
+    /// Intervals recorded.
+    n: u64,
+    /// Lane 0: the registers of the billing window in progress; lanes 1 to 3: each
+    /// phase's registers over the run.
+    win: Lanes4,
+    /// Intervals under target (P > 0 and Q > P·tan φ_t) and leading (Q < 0): lane 0 the
+    /// three-phase supply, lanes 1 to 3 the phases. Whole numbers (below 2^53, so exact)
+    /// kept as floating point beside the registers.
+    under_n: [f64; 4],
+    lead_n: [f64; 4],
+    /// Intervals with the highest phase voltage above 110 % of nominal.
+    over_110_n: u64,
+    /// Extremes of the bus voltage (line to line, V) and of the load (kvar, kW).
+    v_min: f64,
+    v_max: f64,
+    load_q_max: f64,
+    load_p_max: f64,
+    load_p_min: f64,
+}
+
+impl Default for Running {
+    fn default() -> Self {
+        Running {
+            n: 0,
+            win: Lanes4::default(),
+            under_n: [0.0; 4],
+            lead_n: [0.0; 4],
+            over_110_n: 0,
+            v_min: f64::INFINITY,
+            v_max: 0.0,
+            load_q_max: f64::NEG_INFINITY,
+            load_p_max: f64::NEG_INFINITY,
+            load_p_min: f64::INFINITY,
+        }
+    }
+}
+
 /// Accumulates the metrics of one run. Allocates only in [`Metrics::new`] (and when a
 /// bank state is reached for the first time beyond the reserved capacity).
 pub struct Metrics {
@@ -797,17 +841,10 @@ pub struct Metrics {
     tan_t: f64,
     t_first: f64,
     calendar: Calendar,
-    n: u64,
     /// The registers of the billing windows closed so far, added up.
     reg: Registers,
-    /// Lane 0: the registers of the billing window in progress; lanes 1 to 3: each
-    /// phase's registers over the run.
-    win: Lanes4,
-    /// Intervals under target (P > 0 and Q > P·tan φ_t) and leading (Q < 0): lane 0 the
-    /// three-phase supply, lanes 1 to 3 the phases. Whole numbers (below 2^53, so exact)
-    /// kept as floating point beside the registers.
-    under_n: [f64; 4],
-    lead_n: [f64; 4],
+    /// What every interval adds to.
+    run: Running,
     /// The overcorrection threshold of each lane: the three-phase one, then a third of it
     /// for each phase.
     thr: [f64; 4],
@@ -834,13 +871,7 @@ pub struct Metrics {
     last_op_t: Vec<f64>,
     hunting: Vec<u64>,
     trips: TripCounts,
-    v_min: f64,
-    v_max: f64,
-    over_110_n: u64,
     v_110: f64,
-    load_q_max: f64,
-    load_p_max: f64,
-    load_p_min: f64,
     phase: [PhaseAcc; 3],
     unbalance: Option<UnbalanceAcc>,
 }
@@ -872,11 +903,8 @@ impl Metrics {
             h: dt_s / 3600.0,
             t_first: t_first_s,
             calendar,
-            n: 0,
             reg: Registers::default(),
-            win: Lanes4::default(),
-            under_n: [0.0; 4],
-            lead_n: [0.0; 4],
+            run: Running::default(),
             thr,
             any_open: false,
             win_start: t_first_s,
@@ -899,13 +927,7 @@ impl Metrics {
             last_op_t: vec![f64::NEG_INFINITY; n_steps],
             hunting: vec![0; n_steps],
             trips: TripCounts::default(),
-            v_min: f64::INFINITY,
-            v_max: 0.0,
-            over_110_n: 0,
             v_110: 1.1 * u_n_v,
-            load_q_max: f64::NEG_INFINITY,
-            load_p_max: f64::NEG_INFINITY,
-            load_p_min: f64::INFINITY,
             phase: [PhaseAcc::default(); 3],
             unbalance: None,
         }
@@ -922,17 +944,41 @@ impl Metrics {
     /// Records interval k with the bank state as it stood.
     #[inline(always)]
     pub fn record(&mut self, o: &IntervalObs<'_>) {
-        self.n += 1;
+        let mut r = self.run;
+        self.record_running(&mut r, o);
+        self.run = r;
+    }
+
+    /// The accumulators every interval adds to, for [`Metrics::record_running`].
+    #[inline(always)]
+    pub fn running(&self) -> Running {
+        self.run
+    }
+
+    /// Puts back the accumulators taken with [`Metrics::running`].
+    #[inline(always)]
+    pub fn set_running(&mut self, r: Running) {
+        self.run = r;
+    }
+
+    /// [`Metrics::record`] with the accumulators `r` (taken with [`Metrics::running`])
+    /// held by the caller: the same additions in the same order. Nothing else reads the
+    /// accumulators until they are put back with [`Metrics::set_running`].
+    #[inline(always)]
+    pub fn record_running(&mut self, r: &mut Running, o: &IntervalObs<'_>) {
+        r.n += 1;
         if o.t_s >= self.next_bill_t {
+            self.run = *r;
             self.next_window(o.t_s);
+            *r = self.run;
         }
-        let oc = self.add_lanes(o, self.h, 1);
+        let oc = self.add_lanes(r, o, self.h, 1);
         // The extremes, each stored every interval (see `lower`).
-        self.v_min = lower(o.v_ll_min, self.v_min);
-        self.v_max = higher(o.v_ll_max, self.v_max);
-        self.load_q_max = higher(o.load_q_kvar, self.load_q_max);
-        self.load_p_max = higher(o.load_p_kw, self.load_p_max);
-        self.load_p_min = lower(o.load_p_kw, self.load_p_min);
+        r.v_min = lower(o.v_ll_min, r.v_min);
+        r.v_max = higher(o.v_ll_max, r.v_max);
+        r.load_q_max = higher(o.load_q_kvar, r.load_q_max);
+        r.load_p_max = higher(o.load_p_kw, r.load_p_max);
+        r.load_p_min = lower(o.load_p_kw, r.load_p_min);
         if let (Some(acc), Some(u)) = (&mut self.unbalance, &o.unbalance) {
             acc.add(u, self.calendar.epoch(o.t_s), 1, self.h);
         }
@@ -957,17 +1003,17 @@ impl Metrics {
     /// lanes in which the interval is overcorrected, as bits (bit 0 the three-phase
     /// supply, bits 1 to 3 the phases).
     #[inline(always)]
-    fn add_lanes(&mut self, o: &IntervalObs<'_>, h: f64, m: u64) -> u32 {
+    fn add_lanes(&self, r: &mut Running, o: &IntervalObs<'_>, h: f64, m: u64) -> u32 {
         let (p, q) = (&o.p_kw, &o.q_kvar);
-        self.win.add(p, q, h);
+        r.win.add(p, q, h);
         let tan_t = self.tan_t;
         // Counted in floating point, exactly (whole numbers below 2^53), and with selects
         // rather than branches, so that the lanes go together as the registers do.
         let mf = m as f64;
         for i in 0..4 {
             let importing = if p[i] > 0.0 { mf } else { 0.0 };
-            self.under_n[i] += if q[i] > p[i] * tan_t { importing } else { 0.0 };
-            self.lead_n[i] += if q[i] < 0.0 { mf } else { 0.0 };
+            r.under_n[i] += if q[i] > p[i] * tan_t { importing } else { 0.0 };
+            r.lead_n[i] += if q[i] < 0.0 { mf } else { 0.0 };
         }
         let limit: [f64; 4] = if tan_t < 0.0 {
             std::array::from_fn(|i| p[i].abs() * tan_t - self.thr[i])
@@ -975,7 +1021,7 @@ impl Metrics {
             std::array::from_fn(|i| -self.thr[i])
         };
         if o.v_ll_max > self.v_110 {
-            self.over_110_n += m;
+            r.over_110_n += m;
         }
         // The overcorrected lanes as bits (one comparison of the four lanes and its mask).
         lanes_below(q, &limit)
@@ -1099,8 +1145,10 @@ impl Metrics {
         if m == 0 {
             return;
         }
-        self.n += m;
-        let oc = self.add_lanes(o, self.h * m as f64, m);
+        let mut r = self.run;
+        r.n += m;
+        let oc = self.add_lanes(&mut r, o, self.h * m as f64, m);
+        self.run = r;
         if let (Some(acc), Some(u)) = (&mut self.unbalance, &o.unbalance) {
             // The block lies in the 10-minute window of the interval just recorded.
             acc.add(u, self.calendar.epoch(o.t_s), m, self.h * m as f64);
@@ -1131,7 +1179,7 @@ impl Metrics {
 
     fn close_window(&mut self, t_end: f64) {
         // The run's registers are the sum of its windows' (one window: the same figures).
-        let win = self.win.lane(0);
+        let win = self.run.win.lane(0);
         self.reg.kwh_import += win.kwh_import;
         self.reg.kwh_export += win.kwh_export;
         self.reg.kvarh_ind += win.kvarh_ind;
@@ -1150,7 +1198,7 @@ impl Metrics {
             kvarh_inductive: win.kvarh_ind,
             kvarh_capacitive: win.kvarh_cap,
         });
-        self.win.clear(0);
+        self.run.win.clear(0);
         self.win_start = t_end;
     }
 
@@ -1202,7 +1250,7 @@ impl Metrics {
 
     /// Finishes the run after `n` intervals and builds the result.
     pub fn finish(mut self, bank: &Bank, steps: &[StepState]) -> RunMetrics {
-        let n = self.n;
+        let n = self.run.n;
         let dt = self.dt;
         let duration = n as f64 * dt;
         let t_end = self.t_first + duration;
@@ -1214,7 +1262,7 @@ impl Metrics {
             .map(|ph| {
                 let a = &mut self.phase[ph];
                 a.close(self.min_ep_n);
-                let reg = self.win.lane(ph + 1);
+                let reg = self.run.win.lane(ph + 1);
                 let b = reg.billed();
                 PhaseMetrics {
                     phase: crate::profile::PHASES[ph],
@@ -1227,12 +1275,12 @@ impl Metrics {
                     kvarh_inductive: reg.kvarh_ind,
                     kvarh_capacitive: reg.kvarh_cap,
                     share_under_target: if n > 0 {
-                        self.under_n[ph + 1] / n as f64
+                        self.run.under_n[ph + 1] / n as f64
                     } else {
                         0.0
                     },
                     share_leading: if n > 0 {
-                        self.lead_n[ph + 1] / n as f64
+                        self.run.lead_n[ph + 1] / n as f64
                     } else {
                         0.0
                     },
@@ -1331,8 +1379,8 @@ impl Metrics {
                 kwh_export: self.reg.kwh_export,
                 kvarh_inductive: self.reg.kvarh_ind,
                 kvarh_capacitive: self.reg.kvarh_cap,
-                share_under_target: share(self.under_n[0]),
-                share_leading: share(self.lead_n[0]),
+                share_under_target: share(self.run.under_n[0]),
+                share_leading: share(self.run.lead_n[0]),
                 target: self.p.target.to_string(),
                 billing: self.billing,
             },
@@ -1363,18 +1411,18 @@ impl Metrics {
             states,
             wear,
             voltage: VoltageMetrics {
-                min_v: if self.v_min.is_finite() {
-                    self.v_min
+                min_v: if self.run.v_min.is_finite() {
+                    self.run.v_min
                 } else {
                     0.0
                 },
-                max_v: self.v_max,
-                above_110pct_s: self.over_110_n as f64 * dt,
+                max_v: self.run.v_max,
+                above_110pct_s: self.run.over_110_n as f64 * dt,
             },
             load: LoadMetrics {
-                max_q_kvar: if n > 0 { self.load_q_max } else { 0.0 },
-                max_p_kw: if n > 0 { self.load_p_max } else { 0.0 },
-                min_p_kw: if n > 0 { self.load_p_min } else { 0.0 },
+                max_q_kvar: if n > 0 { self.run.load_q_max } else { 0.0 },
+                max_p_kw: if n > 0 { self.run.load_p_max } else { 0.0 },
+                min_p_kw: if n > 0 { self.run.load_p_min } else { 0.0 },
             },
             phases,
             unbalance,
