@@ -30,7 +30,8 @@
 //! between two lines) the intervals of a solved lane go through a short loop, up to the
 //! first operation, the next fault, the end of the run and, with blocks, the chunk's
 //! last sample (whose promise the long path asks for): the same steps in the same order,
-//! without the long path's buffer, lane and block checks. Where the processor has AVX2 the whole loop is compiled
+//! without the long path's buffer, lane and block checks, and with what every interval
+//! adds to the metrics ([`crate::metrics::Running`]) held in registers for the stretch. Where the processor has AVX2 the whole loop is compiled
 //! for it (chosen at run time): the same operations in the same order, no fused
 //! multiply-add, so the same bits.
 //!
