@@ -31,7 +31,9 @@
 //! first operation, the next fault, the end of the run and, with blocks, the chunk's
 //! last sample (whose promise the long path asks for): the same steps in the same order,
 //! without the long path's buffer, lane and block checks, and with what every interval
-//! adds to the metrics ([`crate::metrics::Running`]) held in registers for the stretch. Where the processor has AVX2 the whole loop is compiled
+//! adds to the metrics ([`crate::metrics::Running`]) held in registers for the stretch.
+//! When the lane in hand is used up (or cut back by an operation) inside the chunk, the
+//! short loop solves the next one itself, as the long path would. Where the processor has AVX2 the whole loop is compiled
 //! for it (chosen at run time): the same operations in the same order, no fused
 //! multiply-add, so the same bits.
 //!
@@ -325,6 +327,13 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         // sample, solution, decision and record in the same order as the long path.
         if usual && k >= same_until && k >= buf_k && k < k_fault {
             let i0 = (k - buf_k) as usize;
+            // The lane in hand used up (or cut back by an operation) inside the chunk:
+            // the next one is solved here, as the long path would solve it.
+            if i0 == sol_base + sol_len && i0 < buf_len {
+                let end = buf_len.min(i0 + LANE);
+                solver.solve_lanes(&samples[i0..end], &mut lanes);
+                (sol_base, sol_len) = (i0, end - i0);
+            }
             let lane_end = (sol_base + sol_len).min(buf_len.saturating_sub(usize::from(blocks)));
             let i_end = lane_end
                 .min((n - buf_k) as usize)
