@@ -509,13 +509,7 @@ impl CoupledSolver {
             }
             let q_ph: [f64; 3] = std::array::from_fn(|ph| smp.q_kvar[ph] - out.q_bank[ph][i]);
             out.q4[i] = [q3, q_ph[0], q_ph[1], q_ph[2]];
-            out.p4[i] = [
-                smp.p_kw[0] + smp.p_kw[1] + smp.p_kw[2],
-                smp.p_kw[0] + out.p_bank[0][i],
-                smp.p_kw[1] + out.p_bank[1][i],
-                smp.p_kw[2] + out.p_bank[2][i],
-            ];
-            out.load_q[i] = smp.q_kvar[0] + smp.q_kvar[1] + smp.q_kvar[2];
+            out.put_load(i, smp);
             out.v_ll_min[i] = lo.sqrt() * sqrt3;
             out.v_ll_max[i] = hi.sqrt() * sqrt3;
             out.unsolved[i] = u64::from(!ok);
@@ -574,6 +568,19 @@ impl Default for Lanes {
 }
 
 impl Lanes {
+    /// Entry `i`'s active power in the metrics' four lanes (`p4`, from its sample and
+    /// `p_bank`, which must be in place) and the load's own three-phase Q (`load_q`).
+    #[inline(always)]
+    fn put_load(&mut self, i: usize, s: &crate::profile::LoadSample) {
+        self.p4[i] = [
+            s.p_kw[0] + s.p_kw[1] + s.p_kw[2],
+            s.p_kw[0] + self.p_bank[0][i],
+            s.p_kw[1] + self.p_bank[1][i],
+            s.p_kw[2] + self.p_bank[2][i],
+        ];
+        self.load_q[i] = s.q_kvar[0] + s.q_kvar[1] + s.q_kvar[2];
+    }
+
     /// The solution of entry `i` as [`BusSolver::solve`] gives it, for the load `s`.
     #[inline]
     pub fn phases(&self, i: usize, s: &crate::profile::LoadSample) -> [PhaseSolution; 3] {
@@ -666,13 +673,7 @@ impl BusSolver {
                 s.q_kvar[2] - out.q_bank[2][i],
             ];
             out.q4[i] = [q_ph[0] + q_ph[1] + q_ph[2], q_ph[0], q_ph[1], q_ph[2]];
-            out.p4[i] = [
-                s.p_kw[0] + s.p_kw[1] + s.p_kw[2],
-                s.p_kw[0] + out.p_bank[0][i],
-                s.p_kw[1] + out.p_bank[1][i],
-                s.p_kw[2] + out.p_bank[2][i],
-            ];
-            out.load_q[i] = s.q_kvar[0] + s.q_kvar[1] + s.q_kvar[2];
+            out.put_load(i, s);
             let (w0, w1, w2) = (out.w[0][i], out.w[1][i], out.w[2][i]);
             // The square root keeps the order of its arguments, so the extremes of the
             // voltages are the roots of the extremes of their squares.
