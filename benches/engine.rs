@@ -3,10 +3,11 @@
 //! the engine where the machine has two cores or more, as `Study::run` does). Prints ns
 //! per interval and the peak resident memory, then the generator's own cost: ns per
 //! sample (and samples per second) with the plant's measurement noise, and without
-//! noise, where the generator
-//! promises runs of unchanged samples (`LoadSource::unchanged_until`) that a caller may
-//! step over. Run with `cargo bench --bench engine`; set `BANKSTEP_BENCH_DAYS` to shorten
-//! it and `BANKSTEP_BENCH_PART=engine` or `=generator` to run one part only.
+//! noise, where the generator promises runs of unchanged samples
+//! (`LoadSource::unchanged_until`) that a caller may step over. Run with
+//! `cargo bench --bench engine`; set `BANKSTEP_BENCH_DAYS` to shorten it and
+//! `BANKSTEP_BENCH_PART=engine` or `=generator` to run one part only. Under
+//! `taskset -c 0` (one core) no second thread is started.
 
 use bankstep::engine::Quiet;
 use bankstep::profile::{LoadSample, LoadSource};
