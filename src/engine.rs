@@ -14,7 +14,8 @@
 //! # Chunks and lanes
 //!
 //! The samples come from the source in chunks of up to 256 intervals
-//! ([`LoadSource::fill`], the same samples as interval-by-interval calls), and the bus is
+//! ([`LoadSource::fill_owned`]: the same samples as interval-by-interval calls, written
+//! into the engine's buffer or handed over in one the source made ahead), and the bus is
 //! solved ahead of the controller for up to [`LANE`] of them at a time with the bank as
 //! it stands ([`BusSolver::solve_lanes`], bit for bit the per-interval solution, in
 //! arrays the compiler vectorises). Operations are rare against the interval, so the
@@ -434,7 +435,7 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
                     return Err(e.into());
                 }
                 let want = (CHUNK as u64).min(n - k) as usize;
-                let (got, err) = source.fill(k, t0, dt, &mut samples[..want], blocks);
+                let (got, err) = source.fill_owned(k, t0, dt, &mut samples, want, blocks);
                 pending = err;
                 if got == 0 {
                     return Err(pending.take().map_or_else(

@@ -83,6 +83,27 @@ pub trait LoadSource {
         }
         (out.len(), None)
     }
+
+    /// [`LoadSource::fill`] into the first `len` samples of `buf` (grown to `len` when
+    /// shorter), for a caller that owns its buffer: a source that made the samples ahead
+    /// in a buffer of its own may hand that buffer over instead of copying it, swapping
+    /// it for `buf` (then at least `len` long; the source fills the caller's old buffer
+    /// later). The samples and the count are those `fill` would give. The default fills
+    /// `buf` in place.
+    fn fill_owned(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        buf: &mut Vec<LoadSample>,
+        len: usize,
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        if buf.len() < len {
+            buf.resize(len, LoadSample::default());
+        }
+        self.fill(k, t_first_s, dt_s, &mut buf[..len], stop_at_hold)
+    }
 }
 
 /// What to do with a defect in a CSV profile. Which policies apply depends on the kind

@@ -24,7 +24,9 @@
 //! gives no sample, and at the end of the run.
 //!
 //! [`Prefetch::fill`] hands out the next shipped chunk when it is the one asked for
-//! (same k, length, grid and flag), copying its samples into the caller's slice, and
+//! (same k, length, grid and flag), copying its samples into the caller's slice
+//! ([`Prefetch::fill_owned`], which the engine calls, swaps the chunk's buffer for the
+//! engine's instead, and the producer fills the engine's old buffer later), and
 //! otherwise, when the producer is waiting, asks it for that fill and waits for the
 //! answer (this happens after holds). A request that differs from a chunk already made
 //! ahead cannot be answered with the same bits (the inner source has moved on) and is
@@ -39,8 +41,8 @@
 //! more when the producer has to be woken), far more than the generator takes for a
 //! chunk of a few samples; [`crate::study::Study::run`] therefore prefetches only when
 //! the engine takes whole chunks. The two threads together use more processor time than
-//! one (the samples cross from one core's cache to the other's and are copied once
-//! more): the gain is in wall time, on a machine with a core to spare.
+//! one (the samples cross from one core's cache to the other's): the gain is in wall
+//! time, on a machine with a core to spare.
 //!
 //! # Batches
 //!
@@ -104,6 +106,14 @@ impl Key {
             Key::Fill { k, .. } | Key::Sample { k, .. } => k,
         }
     }
+
+    /// How many samples the call asks for.
+    fn len(&self) -> usize {
+        match *self {
+            Key::Fill { len, .. } => len,
+            Key::Sample { .. } => 1,
+        }
+    }
 }
 
 /// One call's result, as shipped.
@@ -111,8 +121,6 @@ impl Key {
 struct Chunk {
     /// The call.
     key: Key,
-    /// Where its samples start in the batch.
-    start: usize,
     /// How many samples it gave.
     got: usize,
     /// The inner source's promise for its last interval (when `got` > 0).
@@ -123,32 +131,34 @@ struct Chunk {
     more: bool,
 }
 
-/// Chunks made one after the other, their samples back to back.
+/// Chunks made one after the other, each in a buffer of its own (chunk i in `bufs[i]`),
+/// so that the engine can take a chunk's buffer in exchange for its own instead of
+/// copying the samples ([`LoadSource::fill_owned`]).
 #[derive(Debug, Default)]
 struct Batch {
-    /// Room for the samples; it only grows, so that a batch used again is not written
-    /// twice.
-    samples: Vec<LoadSample>,
-    /// Samples in use, from the start.
-    used: usize,
+    /// The chunks' buffers, and spare ones for the next use of the batch; a buffer only
+    /// grows, so that a batch used again is not written twice.
+    bufs: Vec<Vec<LoadSample>>,
     chunks: Vec<Chunk>,
 }
 
 impl Batch {
     fn clear(&mut self) {
-        self.used = 0;
         self.chunks.clear();
     }
 
-    /// The room for `len` more samples, grown (once per batch, in the steady state) to
-    /// hold a whole batch of chunks of that length.
+    /// The room for the next chunk's `len` samples (its buffer, grown when shorter: once
+    /// per buffer in the steady state).
     fn room(&mut self, len: usize) -> &mut [LoadSample] {
-        let start = self.used;
-        if self.samples.len() < start + len {
-            let size = (start + len).max(BATCH_CHUNKS * len);
-            self.samples.resize(size, LoadSample::default());
+        let i = self.chunks.len();
+        if self.bufs.len() <= i {
+            self.bufs.push(Vec::new());
         }
-        &mut self.samples[start..start + len]
+        let buf = &mut self.bufs[i];
+        if buf.len() < len {
+            buf.resize(len, LoadSample::default());
+        }
+        &mut buf[..len]
     }
 }
 
@@ -255,8 +265,7 @@ fn produce<S: LoadSource + ?Sized>(
         if unmade > 0 {
             unmade -= 1;
             return Some(Batch {
-                samples: Vec::new(),
-                used: 0,
+                bufs: Vec::with_capacity(BATCH_CHUNKS),
                 chunks: Vec::with_capacity(BATCH_CHUNKS),
             });
         }
@@ -272,13 +281,11 @@ fn produce<S: LoadSource + ?Sized>(
                     Ok(()) => (1, None),
                     Err(e) => (0, Some(e)),
                 };
-                b.used = got;
                 b.chunks.push(Chunk {
                     key: Key::Sample {
                         k,
                         t_bits: t_s.to_bits(),
                     },
-                    start: 0,
                     got,
                     until: if got > 0 {
                         inner.unchanged_until(k)
@@ -302,10 +309,8 @@ fn produce<S: LoadSource + ?Sized>(
                 // The answer goes out alone; the batches after it double in size.
                 let mut size = 1;
                 loop {
-                    let start = b.used;
                     let (got, err) = inner.fill(k, t_first_s, dt_s, b.room(len), stop_at_hold);
                     let got = got.min(len);
-                    b.used = start + got;
                     let end = k + got as u64;
                     let until = if got > 0 {
                         inner.unchanged_until(end - 1)
@@ -316,7 +321,6 @@ fn produce<S: LoadSource + ?Sized>(
                         err.is_none() && got > 0 && end < n && !(stop_at_hold && until > end);
                     b.chunks.push(Chunk {
                         key: Key::fill(k, len, t_first_s, dt_s, stop_at_hold),
-                        start,
                         got,
                         until,
                         err,
@@ -384,14 +388,45 @@ impl Consumer {
 
     /// Hands out the chunk answering `key` into `out` (its length is in the key).
     fn answer(&mut self, key: Key, out: &mut [LoadSample]) -> (usize, Option<ProfileError>) {
+        match self.next_chunk(key) {
+            Ok((b, i, got, err)) => {
+                let got = got.min(out.len());
+                out[..got].copy_from_slice(&b.bufs[i][..got]);
+                (got, err)
+            }
+            Err(e) => (0, Some(e)),
+        }
+    }
+
+    /// Hands out the chunk answering `key` by giving its buffer for `buf` (the producer
+    /// fills `buf` for a later chunk).
+    fn answer_owned(
+        &mut self,
+        key: Key,
+        buf: &mut Vec<LoadSample>,
+    ) -> (usize, Option<ProfileError>) {
+        match self.next_chunk(key) {
+            Ok((b, i, got, err)) => {
+                std::mem::swap(buf, &mut b.bufs[i]);
+                (got, err)
+            }
+            Err(e) => (0, Some(e)),
+        }
+    }
+
+    /// The chunk answering `key`, asked for when none is waiting: its batch, its index
+    /// there, how many samples it gave and its error; the error to report when the
+    /// producer has gone or made another chunk ahead.
+    #[allow(clippy::type_complexity)]
+    fn next_chunk(
+        &mut self,
+        key: Key,
+    ) -> Result<(&mut Batch, usize, usize, Option<ProfileError>), ProfileError> {
         let gone = || {
-            (
-                0,
-                Some(ProfileError::Sequence {
-                    k: key.k(),
-                    message: "the thread filling the load ahead stopped".into(),
-                }),
-            )
+            Err(ProfileError::Sequence {
+                k: key.k(),
+                message: "the thread filling the load ahead stopped".into(),
+            })
         };
         match self.ready() {
             Err(()) => return gone(),
@@ -430,22 +465,20 @@ impl Consumer {
         };
         let c = &mut b.chunks[self.next];
         if c.key != key {
-            return (
-                0,
-                Some(ProfileError::Sequence {
-                    k: key.k(),
-                    message: format!(
-                        "the load was asked for out of order (interval {} was made ahead)",
-                        c.key.k()
-                    ),
-                }),
-            );
+            return Err(ProfileError::Sequence {
+                k: key.k(),
+                message: format!(
+                    "the load was asked for out of order (interval {} was made ahead)",
+                    c.key.k()
+                ),
+            });
         }
+        let i = self.next;
         self.next += 1;
-        let got = c.got.min(out.len());
-        out[..got].copy_from_slice(&b.samples[c.start..c.start + got]);
+        let got = c.got.min(key.len());
         self.last = (got > 0).then(|| (key.k() + got as u64 - 1, c.until));
-        (got, c.err.take())
+        let err = c.err.take();
+        Ok((b, i, got, err))
     }
 }
 
@@ -488,6 +521,23 @@ impl<S: LoadSource + ?Sized> LoadSource for Prefetch<'_, S> {
             Mode::Direct(s) => s.fill(k, t_first_s, dt_s, out, stop_at_hold),
             Mode::Threaded(c) => {
                 c.answer(Key::fill(k, out.len(), t_first_s, dt_s, stop_at_hold), out)
+            }
+        }
+    }
+
+    fn fill_owned(
+        &mut self,
+        k: u64,
+        t_first_s: f64,
+        dt_s: f64,
+        buf: &mut Vec<LoadSample>,
+        len: usize,
+        stop_at_hold: bool,
+    ) -> (usize, Option<ProfileError>) {
+        match &mut self.mode {
+            Mode::Direct(s) => s.fill_owned(k, t_first_s, dt_s, buf, len, stop_at_hold),
+            Mode::Threaded(c) => {
+                c.answer_owned(Key::fill(k, len, t_first_s, dt_s, stop_at_hold), buf)
             }
         }
     }
