@@ -331,9 +331,14 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             // The lane in hand used up (or cut back by an operation) inside the chunk:
             // the next one is solved here, as the long path would solve it.
             if i0 == sol_base + sol_len && i0 < buf_len {
-                let end = buf_len.min(i0 + LANE);
-                solver.solve_lanes(&samples[i0..end], &mut lanes);
-                (sol_base, sol_len) = (i0, end - i0);
+                (sol_base, sol_len) = solve_lane(
+                    &solver,
+                    &coupled,
+                    &samples[..buf_len],
+                    i0,
+                    &mut lanes,
+                    &mut coupled_v,
+                );
             }
             let lane_end = (sol_base + sol_len).min(buf_len.saturating_sub(usize::from(blocks)));
             let i_end = lane_end
@@ -448,12 +453,14 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
             }
             let i = (k - buf_k) as usize;
             if i >= sol_base + sol_len || i < sol_base {
-                let end = buf_len.min(i + LANE);
-                match &coupled {
-                    None => solver.solve_lanes(&samples[i..end], &mut lanes),
-                    Some(c) => c.solve_lanes(&samples[i..end], &mut lanes, &mut coupled_v),
-                }
-                (sol_base, sol_len) = (i, end - i);
+                (sol_base, sol_len) = solve_lane(
+                    &solver,
+                    &coupled,
+                    &samples[..buf_len],
+                    i,
+                    &mut lanes,
+                    &mut coupled_v,
+                );
             }
             if blocks && i + 1 == buf_len {
                 same_until = source.unchanged_until(k);
@@ -606,6 +613,26 @@ fn run_body<S: LoadSource + ?Sized, O: Observer + ?Sized>(
         metrics,
         nonconverged_intervals: solver.nonconverged,
     })
+}
+
+/// Solves the bus for the samples from `i` on (up to [`LANE`] of them) with the bank as
+/// it stands, into `lanes` (and the coupled bus's phasors into `coupled_v`); returns the
+/// lane's first entry and length.
+#[inline(always)]
+fn solve_lane(
+    solver: &BusSolver,
+    coupled: &Option<CoupledSolver>,
+    samples: &[LoadSample],
+    i: usize,
+    lanes: &mut Lanes,
+    coupled_v: &mut [[Complex64; LANE]; 3],
+) -> (usize, usize) {
+    let end = samples.len().min(i + LANE);
+    match coupled {
+        None => solver.solve_lanes(&samples[i..end], lanes),
+        Some(c) => c.solve_lanes(&samples[i..end], lanes, coupled_v),
+    }
+    (i, end - i)
 }
 
 /// The unbalance of one interval: the bus voltage phasors `v` (V, line to neutral) and

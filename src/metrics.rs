@@ -1436,6 +1436,41 @@ mod tests {
     use crate::bank::StepSpec;
     use chrono::NaiveDate;
 
+    // The SSE2 selects against Rust's own comparisons, bit for bit, over values that
+    // test their edges: NaN on either side, zeros of both signs, infinities, equal values.
+    #[test]
+    fn the_vector_selects_are_the_plain_comparisons() {
+        let values = [
+            f64::NAN,
+            -0.0,
+            0.0,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            1.0,
+            -1.0,
+            1.0 + f64::EPSILON,
+            f64::MIN_POSITIVE,
+        ];
+        for &x in &values {
+            for &m in &values {
+                let lo = if x < m { x } else { m };
+                let hi = if x > m { x } else { m };
+                assert_eq!(lower(x, m).to_bits(), lo.to_bits(), "lower({x}, {m})");
+                assert_eq!(higher(x, m).to_bits(), hi.to_bits(), "higher({x}, {m})");
+            }
+        }
+        for a in values.windows(4) {
+            for b in values.windows(4).rev() {
+                let (a, b): ([f64; 4], [f64; 4]) = (a.try_into().unwrap(), b.try_into().unwrap());
+                let mut bits = 0;
+                for i in 0..4 {
+                    bits |= u32::from(a[i] < b[i]) << i;
+                }
+                assert_eq!(lanes_below(&a, &b), bits, "{a:?} < {b:?}");
+            }
+        }
+    }
+
     /// One switched 50 kvar step at 400 V.
     /// The one switched step of these tests, never operated.
     fn idle_step() -> StepState {

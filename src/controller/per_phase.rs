@@ -218,15 +218,7 @@ impl Control {
             d.q_m_kvar += dp.q_m_kvar;
             d.demand_kvar += dp.demand_kvar;
             let wp = wish_of(&self.parts[1 + ph], self.own[1 + ph], dp.wish);
-            d.wish = match (d.wish, wp) {
-                (-1, _) | (_, -1) => -1,
-                (1, _) | (_, 1) => 1,
-                _ => 0,
-            };
-            d.closed = d.closed.or(dp.closed);
-            d.opened = d.opened.or(dp.opened);
-            d.alarm = d.alarm.or(dp.alarm);
-            d.trip = d.trip.or(dp.trip);
+            merge(&mut d, &dp, wp);
         }
         for (k, &pair) in self.pairs.iter().enumerate() {
             let (x, y) = (pair, (pair + 1) % 3);
@@ -241,15 +233,7 @@ impl Control {
                 t_next,
             );
             let wp = wish_of(&self.parts[part], self.own[part], dp.wish);
-            d.wish = match (d.wish, wp) {
-                (-1, _) | (_, -1) => -1,
-                (1, _) | (_, 1) => 1,
-                _ => 0,
-            };
-            d.closed = d.closed.or(dp.closed);
-            d.opened = d.opened.or(dp.opened);
-            d.alarm = d.alarm.or(dp.alarm);
-            d.trip = d.trip.or(dp.trip);
+            merge(&mut d, &dp, wp);
         }
         let changed = d.closed.or(d.opened).or(d.alarm);
         for n in changed {
@@ -302,4 +286,19 @@ fn phase_dead_band(params: &ControllerParams, bank: &Bank, own: BankState) -> f6
     } else {
         1.0
     }
+}
+
+/// Merges a part's decision `dp`, whose wish counts as `wish`, into the merged decision
+/// `d`: −1 when either wishes to disconnect, else +1 when either wishes to connect; the
+/// steps closed, opened and alarmed on by both; the first trip.
+fn merge(d: &mut Decision, dp: &Decision, wish: i8) {
+    d.wish = match (d.wish, wish) {
+        (-1, _) | (_, -1) => -1,
+        (1, _) | (_, 1) => 1,
+        _ => 0,
+    };
+    d.closed = d.closed.or(dp.closed);
+    d.opened = d.opened.or(dp.opened);
+    d.alarm = d.alarm.or(dp.alarm);
+    d.trip = d.trip.or(dp.trip);
 }
